@@ -1,0 +1,458 @@
+"""Annotated frames: PNGs at every contact and ``annotated.mp4`` of the whole clip.
+
+Everything drawn is measured data mapped back into the image through the
+calibration (table mm -> px at the ball-centre plane, lens distortion
+included), so the overlay is also a visual check of calibration and tracking:
+
+* each ball's trail (its smoothed track so far) and its label;
+* a velocity arrow per moving ball: the arrow reaches where the ball would be
+  ``arrow_s`` seconds later at its current velocity, so arrow length is
+  proportional to speed (mm/s); a legend shows the length of a round speed;
+* at a contact: the contact point, the contact normal and ``e = x ± s``.
+
+Style: plain lines with a thin black outline so they read on any cloth colour,
+the Okabe-Ito colour-blind-safe palette (see :mod:`.style`), text on a dark
+panel. The video is re-read frame by frame (streaming): memory does not grow
+with clip length.
+"""
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass, field
+from pathlib import Path
+from typing import Callable
+
+import cv2
+import numpy as np
+import pandas as pd
+from PIL import Image, ImageDraw, ImageFont
+
+from feltlab.errors import FeltlabError
+from feltlab.outputs.style import CONTACT_RGB, ball_colours, ball_order, bgr
+
+#: Below this speed (mm/s) a ball gets no velocity arrow (it is at rest within
+#: tracking noise; ~1 mm/frame at 30 fps).
+MIN_ARROW_SPEED_MM_S = 30.0
+#: The fastest ball's arrow spans this fraction of the image width.
+ARROW_FRACTION_OF_WIDTH = 0.12
+#: How long after a contact its normal and e stay drawn in the video (s).
+CONTACT_HOLD_S = 0.4
+#: Contact frames "just before" / "just after" are this far from the contact (s),
+#: at least one frame.
+CONTACT_FRAME_OFFSET_S = 0.01
+#: annotated.mp4 plays at the clip's rate up to this (frames/s); faster clips
+#: play back in slow motion (every frame kept).
+MAX_PLAYBACK_FPS = 60.0
+
+
+
+def _font_path() -> str:
+    """DejaVu Sans, shipped with matplotlib (has ±, ° and arrows that OpenCV's Hershey fonts lack)."""
+    import matplotlib
+
+    return str(Path(matplotlib.get_data_path()) / "fonts" / "ttf" / "DejaVuSans.ttf")
+
+
+_FONTS: dict[int, ImageFont.FreeTypeFont] = {}
+
+
+def _font(px: int) -> ImageFont.FreeTypeFont:
+    if px not in _FONTS:
+        _FONTS[px] = ImageFont.truetype(_font_path(), px)
+    return _FONTS[px]
+
+
+def nice_speed(v: float) -> float:
+    """A round speed (1, 2 or 5 x 10^n mm/s) not above ``v``.
+
+    >>> nice_speed(1730.0), nice_speed(480.0)
+    (1000.0, 200.0)
+    """
+    if not v > 0:
+        return 1000.0
+    p = 10 ** math.floor(math.log10(v))
+    for m in (5, 2, 1):
+        if m * p <= v:
+            return float(m * p)
+    return float(p)
+
+
+def speed_text(v_mm_s: float) -> str:
+    """Speed label in m/s (the unit coaches and ball makers quote)."""
+    return f"{v_mm_s / 1000.0:.2g} m/s" if v_mm_s < 1000 else f"{v_mm_s / 1000.0:.1f} m/s"
+
+
+@dataclass
+class Overlay:
+    """Everything needed to annotate any frame, precomputed in pixels.
+
+    px[ball]: (n_frames, 2) ball-centre pixel positions (NaN where no track);
+    tip[ball]: (n_frames, 2) arrow tips; speed[ball]: (n_frames,) mm/s.
+    arrow_s: seconds of travel an arrow represents; legend_mm_s / legend_px:
+    the legend arrow's speed and pixel length. radius_px: ball radius in px.
+    """
+
+    n_frames: int
+    fps: float
+    image_size: tuple[int, int]
+    px: dict[str, np.ndarray]
+    tip: dict[str, np.ndarray]
+    speed: dict[str, np.ndarray]
+    colours: dict[str, tuple[int, int, int]]
+    radius_px: float
+    arrow_s: float
+    legend_mm_s: float
+    legend_px: float
+    contacts: list[dict] = field(default_factory=list)
+    panel_corner: str = "tl"
+    font_px: int = 18
+
+
+def _contact_label(c: dict) -> str:
+    if c["kind"] == "ball-ball":
+        return f"C{c['contact']}: {c['ball_a']} → {c['ball_b']}"
+    return f"C{c['contact']}: {c['ball_a']} → cushion {c.get('cushion', '')}".rstrip()
+
+
+def e_text(e: float, s: float) -> str:
+    """``e = 0.936 ± 0.012`` (digits from the sigma; '?' where unknown)."""
+    if e is None or not np.isfinite(e):
+        return "e = n/a"
+    if s is None or not np.isfinite(s) or s <= 0:
+        return f"e = {e:.3f}"
+    d = max(2, min(4, 1 - int(math.floor(math.log10(s)))))
+    return f"e = {e:.{d}f} ± {s:.{d}f}"
+
+
+def build_overlay(tracks: pd.DataFrame, contacts: pd.DataFrame, calibration, fps: float,
+                  n_frames: int | None = None) -> Overlay:
+    """Precompute pixel positions, arrows and contact markers (pure)."""
+    w, h = calibration.camera.image_size
+    if n_frames is None:
+        n_frames = int(tracks["frame"].max()) + 1 if len(tracks) else 0
+    balls = ball_order(tracks["ball"].unique()) if len(tracks) else []
+    colours = ball_colours(balls)
+    sp_all = np.hypot(tracks["vx_mm_s"].to_numpy(float), tracks["vy_mm_s"].to_numpy(float)) if len(tracks) else np.array([])
+    vmax = float(np.nanmax(sp_all)) if sp_all.size and np.isfinite(sp_all).any() else 1000.0
+    vmax = max(vmax, 100.0)
+    px_per_mm = float(calibration.px_per_mm)
+    arrow_s = ARROW_FRACTION_OF_WIDTH * w / (vmax * px_per_mm)
+    legend = nice_speed(vmax * 0.6)
+    px, tip, speed = {}, {}, {}
+    for b in balls:
+        g = tracks[tracks["ball"] == b]
+        fr = g["frame"].to_numpy(int)
+        ok = (fr >= 0) & (fr < n_frames)
+        g, fr = g[ok], fr[ok]
+        xy = g[["x_mm", "y_mm"]].to_numpy(float)
+        v = g[["vx_mm_s", "vy_mm_s"]].to_numpy(float)
+        p = np.full((n_frames, 2), np.nan)
+        q = np.full((n_frames, 2), np.nan)
+        s = np.full(n_frames, np.nan)
+        if len(g):
+            good = np.isfinite(xy).all(axis=1)
+            if good.any():
+                p[fr[good]] = calibration.table_to_px(xy[good])
+                vv = np.nan_to_num(v[good])
+                q[fr[good]] = calibration.table_to_px(xy[good] + vv * arrow_s)
+                s[fr[good]] = np.hypot(vv[:, 0], vv[:, 1])
+        px[b], tip[b], speed[b] = p, q, s
+    cons = []
+    R = calibration.ball_radius_mm
+    for c in (contacts.to_dict(orient="records") if contacts is not None and len(contacts) else []):
+        c = dict(c)
+        k = c["t_s"] * fps
+        c["frame_float"] = k
+        # Contact point: the table gives it (x_mm, y_mm); else mid-way along the normal.
+        cp = None
+        if np.isfinite(c.get("x_mm", np.nan)) and np.isfinite(c.get("y_mm", np.nan)):
+            cp = np.array([c["x_mm"], c["y_mm"]], float)
+        n = np.array([c.get("nx", np.nan), c.get("ny", np.nan)], float)
+        if cp is None:
+            a = str(c["ball_a"])
+            kk = int(np.clip(round(k), 0, n_frames - 1))
+            ga = tracks[(tracks["ball"] == a) & (tracks["frame"] == kk)]
+            if len(ga) and np.isfinite(n).all():
+                cp = ga[["x_mm", "y_mm"]].to_numpy(float)[0] + n * R * (1 if c["kind"] == "ball-ball" else -1)
+        c["cp_px"] = calibration.table_to_px(cp[None])[0] if cp is not None else None
+        if cp is not None and np.isfinite(n).all():
+            c["n_px"] = calibration.table_to_px(np.array([cp - 5.0 * R * n, cp + 5.0 * R * n]))
+        else:
+            c["n_px"] = None
+        c["label"] = _contact_label(c)
+        c["e_text"] = e_text(c.get("e", np.nan), c.get("e_sigma", np.nan))
+        cons.append(c)
+    corner = _quiet_corner(calibration, (w, h))
+    return Overlay(n_frames=n_frames, fps=fps, image_size=(w, h), px=px, tip=tip, speed=speed, colours=colours,
+                   radius_px=R * px_per_mm, arrow_s=arrow_s, legend_mm_s=legend,
+                   legend_px=legend * arrow_s * px_per_mm, contacts=cons, panel_corner=corner,
+                   font_px=max(13, int(round(h / 40.0))))
+
+
+def _quiet_corner(calibration, size: tuple[int, int]) -> str:
+    """The image corner whose legend box covers least of the playing surface."""
+    w, h = size
+    t = calibration.table
+    poly = calibration.table_to_px(np.array([[0, 0], [t.length_mm, 0], [t.length_mm, t.width_mm], [0, t.width_mm]]),
+                                   z_mm=0.0)
+    mask = np.zeros((h, w), np.uint8)
+    if np.isfinite(poly).all():
+        cv2.fillPoly(mask, [np.round(poly).astype(np.int32)], 1)
+    bw, bh = int(0.26 * w), int(0.16 * h)
+    boxes = {"tl": (0, 0), "tr": (w - bw, 0), "bl": (0, h - bh), "br": (w - bw, h - bh)}
+    return min(boxes, key=lambda k: int(mask[boxes[k][1]:boxes[k][1] + bh, boxes[k][0]:boxes[k][0] + bw].sum()))
+
+
+def _pt(p) -> tuple[int, int]:
+    return int(round(float(p[0]))), int(round(float(p[1])))
+
+
+def _line(img, pts, rgb, thick: int) -> None:
+    pts = np.asarray(pts, float)
+    pts = pts[np.isfinite(pts).all(axis=1)]
+    if len(pts) < 2:
+        return
+    arr = np.round(pts).astype(np.int32).reshape(-1, 1, 2)
+    cv2.polylines(img, [arr], False, (0, 0, 0), thick + 2, cv2.LINE_AA)
+    cv2.polylines(img, [arr], False, bgr(rgb), thick, cv2.LINE_AA)
+
+
+def _arrow(img, a, b, rgb, thick: int) -> None:
+    if not (np.isfinite(a).all() and np.isfinite(b).all()):
+        return
+    length = float(np.hypot(*(np.asarray(b) - np.asarray(a))))
+    if length < 3:
+        return
+    tip = min(0.35, 12.0 / length)
+    cv2.arrowedLine(img, _pt(a), _pt(b), (0, 0, 0), thick + 2, cv2.LINE_AA, tipLength=tip)
+    cv2.arrowedLine(img, _pt(a), _pt(b), bgr(rgb), thick, cv2.LINE_AA, tipLength=tip)
+
+
+def _draw_texts(img: np.ndarray, texts: list[tuple[str, tuple[float, float], tuple[int, int, int], int]]) -> None:
+    """Draw (text, left-baseline px, rgb, size px) items in place, each with a black halo.
+
+    Only a small patch around each text goes through PIL (whole-frame
+    conversions would dominate the video's run time).
+    """
+    h, w = img.shape[:2]
+    for s, org, rgb, size in texts:
+        font = _font(size)
+        stroke = max(2, size // 8)
+        x0, y0, x1, y1 = font.getbbox(s, anchor="ls", stroke_width=stroke)
+        ox, oy = float(org[0]), float(org[1])
+        left, top = int(math.floor(ox + x0)) - 1, int(math.floor(oy + y0)) - 1
+        right, bottom = int(math.ceil(ox + x1)) + 1, int(math.ceil(oy + y1)) + 1
+        cl, ct, cr, cb = max(0, left), max(0, top), min(w, right), min(h, bottom)
+        if cr <= cl or cb <= ct:
+            continue
+        patch = Image.fromarray(np.ascontiguousarray(img[ct:cb, cl:cr, ::-1]))
+        d = ImageDraw.Draw(patch)
+        d.text((ox - cl, oy - ct), s, font=font, fill=tuple(int(c) for c in rgb), anchor="ls",
+               stroke_width=stroke, stroke_fill=(0, 0, 0))
+        img[ct:cb, cl:cr] = np.asarray(patch)[:, :, ::-1]
+
+
+def _text_width(s: str, size: int) -> float:
+    return float(_font(size).getlength(s))
+
+
+def draw_overlay(image: np.ndarray, ov: Overlay, frame: int, t_s: float | None = None,
+                 focus_contact: dict | None = None, caption: str | None = None) -> np.ndarray:
+    """A copy of ``image`` (BGR) with the overlay for ``frame``; pure apart from the copy."""
+    img = image.copy()
+    k = int(frame)
+    t = k / ov.fps if t_s is None else t_s
+    fs = ov.font_px
+    texts: list = []
+    th = 2 if img.shape[0] >= 600 else 1
+    r = max(4, int(round(ov.radius_px)))
+    # Contacts: normal line, contact point and e, held for a while after the contact.
+    shown = []
+    for c in ov.contacts:
+        dt = t - c["t_s"]
+        if (focus_contact is not None and c["contact"] == focus_contact["contact"]) or (
+                focus_contact is None and 0 <= dt <= CONTACT_HOLD_S):
+            shown.append(c)
+    for c in shown:
+        if c["n_px"] is not None:
+            _line(img, c["n_px"], CONTACT_RGB, 1)
+        if c["cp_px"] is not None and np.isfinite(c["cp_px"]).all():
+            p = c["cp_px"]
+            cv2.drawMarker(img, _pt(p), (0, 0, 0), cv2.MARKER_TILTED_CROSS, 2 * r // 2 + 4, 4, cv2.LINE_AA)
+            cv2.drawMarker(img, _pt(p), bgr(CONTACT_RGB), cv2.MARKER_TILTED_CROSS, 2 * r // 2 + 4, 2, cv2.LINE_AA)
+    # Trails, balls, labels, arrows.
+    for b, p in ov.px.items():
+        col = ov.colours[b]
+        hist = p[: k + 1]
+        _line(img, hist, col, 1)
+        if k >= ov.n_frames or not np.isfinite(p[k]).all():
+            continue
+        cv2.circle(img, _pt(p[k]), r + 1, (0, 0, 0), 3, cv2.LINE_AA)
+        cv2.circle(img, _pt(p[k]), r + 1, bgr(col), 1, cv2.LINE_AA)
+        if ov.speed[b][k] >= MIN_ARROW_SPEED_MM_S:
+            _arrow(img, p[k], ov.tip[b][k], col, th)
+        texts.append((b, (p[k][0] + r + 3, p[k][1] - r - 2), col, fs))
+    for c in shown:
+        if c["cp_px"] is None or not np.isfinite(c["cp_px"]).all():
+            continue
+        p = c["cp_px"]
+        lines = [c["label"], c["e_text"]]
+        y0 = p[1] + 2 * r + fs
+        for i, s in enumerate(lines):
+            texts.append((s, (p[0] + 2 * r, y0 + i * 1.3 * fs), CONTACT_RGB, fs))
+    _panel(img, ov, k, t, caption, texts)
+    _draw_texts(img, texts)
+    return img
+
+
+def _panel(img, ov: Overlay, k: int, t: float, caption: str | None, texts: list) -> None:
+    """Legend panel: time, frame, the speed-scale arrow, an optional caption (texts appended)."""
+    h, w = img.shape[:2]
+    fs = ov.font_px
+    lh = int(round(1.4 * fs))
+    lines = [f"t = {t:.3f} s    frame {k}"]
+    if caption:
+        lines.append(caption)
+    legend_label = f"= {speed_text(ov.legend_mm_s)}"
+    bw = int(max(ov.legend_px + _text_width(legend_label, fs) + 30, max(_text_width(s, fs) for s in lines) + 20))
+    bh = lh * (len(lines) + 1) + int(0.6 * fs)
+    x0 = 6 if ov.panel_corner in ("tl", "bl") else w - bw - 6
+    y0 = 6 if ov.panel_corner in ("tl", "tr") else h - bh - 6
+    sub = img[y0:y0 + bh, x0:x0 + bw]
+    if sub.size:
+        img[y0:y0 + bh, x0:x0 + bw] = (sub * 0.3).astype(img.dtype)
+    y = y0 + lh
+    for s in lines:
+        texts.append((s, (x0 + 10, y), (255, 255, 255), fs))
+        y += lh
+    ax = x0 + 10
+    ay = y - 0.35 * fs
+    _arrow(img, (ax, ay), (ax + ov.legend_px, ay), (255, 255, 255), 2)
+    texts.append((legend_label, (ax + ov.legend_px + 8, y), (255, 255, 255), fs))
+
+
+def contact_frame_plan(contacts: pd.DataFrame, fps: float, n_frames: int) -> list[tuple[int, str, int]]:
+    """(contact id, 'before'|'at'|'after', frame index) for every contact.
+
+    'at' is the frame nearest the contact time; 'before'/'after' are
+    ``CONTACT_FRAME_OFFSET_S`` (at least one frame) either side, clipped to the clip.
+
+    >>> contact_frame_plan(pd.DataFrame({"contact": [1], "t_s": [0.3736]}), 120.0, 240)
+    [(1, 'before', 44), (1, 'at', 45), (1, 'after', 46)]
+    """
+    plan = []
+    if contacts is None or len(contacts) == 0 or n_frames <= 0:
+        return plan
+    off = max(1, int(round(CONTACT_FRAME_OFFSET_S * fps)))
+    for c, t in zip(contacts["contact"], contacts["t_s"]):
+        at = int(np.clip(round(t * fps), 0, n_frames - 1))
+        for tag, k in (("before", at - off), ("at", at), ("after", at + off)):
+            plan.append((int(c), tag, int(np.clip(k, 0, n_frames - 1))))
+    return plan
+
+
+def frame_file_name(contact: int, tag: str, frame: int) -> str:
+    return f"contact{contact:02d}_{tag}_f{frame:06d}.png"
+
+
+def render_annotations(video_path: Path, ov: Overlay, out_dir: Path, write_video: bool = True,
+                       write_frames: bool = True, frame_times: np.ndarray | None = None,
+                       progress: Callable[[int, int], None] | None = None) -> dict:
+    """Stream the clip once: write annotated.mp4 and the contact PNGs into ``out_dir``.
+
+    Returns {"video": path or None, "frames": [(contact, tag, frame, path), ...]}.
+    ``frame_times`` (s, per frame index) overrides k/fps in the captions.
+    """
+    out_dir = Path(out_dir)
+    plan = contact_frame_plan(pd.DataFrame(ov.contacts), ov.fps, ov.n_frames) if write_frames else []
+    want: dict[int, list[tuple[int, str]]] = {}
+    for c, tag, k in plan:
+        want.setdefault(k, []).append((c, tag))
+    cons = {c["contact"]: c for c in ov.contacts}
+    cap = cv2.VideoCapture(str(video_path))
+    if not cap.isOpened():
+        raise FeltlabError(f"cannot re-open {video_path} to draw the annotated frames; check the file is readable",
+                           stage="outputs")
+    writer = None
+    video_path_out = out_dir / "annotated.mp4"
+    frames_dir = out_dir / "frames"
+    written = []
+    k = 0
+    last_needed = max(want) if want else -1
+    try:
+        while True:
+            if not write_video and k > last_needed:
+                break
+            ok, img = cap.read()
+            if not ok:
+                break
+            if k >= ov.n_frames:
+                break
+            t = float(frame_times[k]) if frame_times is not None and k < len(frame_times) else k / ov.fps
+            if write_video:
+                if writer is None:
+                    hh, ww = img.shape[:2]
+                    writer = cv2.VideoWriter(str(video_path_out), cv2.VideoWriter_fourcc(*"mp4v"),
+                                             float(min(ov.fps, MAX_PLAYBACK_FPS)), (ww, hh))
+                    if not writer.isOpened():
+                        raise FeltlabError("OpenCV cannot write annotated.mp4 (mp4v codec missing); "
+                                           "rerun without the annotated video", stage="outputs")
+                writer.write(draw_overlay(img, ov, k, t))
+            for c, tag in want.get(k, []):
+                con = cons[c]
+                dt_ms = (t - con["t_s"]) * 1000.0
+                caption = f"{con['label']}: {tag} ({dt_ms:+.1f} ms)"
+                frames_dir.mkdir(exist_ok=True)
+                p = frames_dir / frame_file_name(c, tag, k)
+                if not cv2.imwrite(str(p), draw_overlay(img, ov, k, t, focus_contact=con, caption=caption)):
+                    raise FeltlabError(f"could not write {p}; check free disk space", stage="outputs")
+                written.append((c, tag, k, p))
+            k += 1
+            if progress is not None:
+                progress(k, ov.n_frames)
+    finally:
+        cap.release()
+        if writer is not None:
+            writer.release()
+    return {"video": video_path_out if writer is not None else None, "frames": written}
+
+
+def contact_strip(images: list[tuple[str, np.ndarray]], centre_px, radius_px: float, out_path: Path,
+                  height_px: int = 320) -> Path:
+    """Close-up of one contact: the same crop of each (caption, annotated BGR frame), side by side.
+
+    The crop is centred on the contact point (px), 16 x 10 ball radii (at least
+    240 x 150 px), scaled to ``height_px``; each panel gets its caption.
+    """
+    if not images:
+        raise ValueError("no frames for the contact strip")
+    h, w = images[0][1].shape[:2]
+    hw = int(max(120, 8 * radius_px))
+    hh = int(max(75, 5 * radius_px))
+    cx, cy = (w // 2, h // 2) if centre_px is None or not np.isfinite(centre_px).all() else _pt(centre_px)
+    x0 = int(np.clip(cx - hw, 0, max(0, w - 2 * hw)))
+    y0 = int(np.clip(cy - hh, 0, max(0, h - 2 * hh)))
+    panels = []
+    for cap, img in images:
+        crop = img[y0:y0 + 2 * hh, x0:x0 + 2 * hw]
+        f = height_px / crop.shape[0]
+        crop = cv2.resize(crop, (int(round(crop.shape[1] * f)), height_px), interpolation=cv2.INTER_CUBIC)
+        bar = np.full((int(height_px * 0.12) + 8, crop.shape[1], 3), 255, np.uint8)
+        size = int(height_px * 0.07)
+        panel = np.vstack([crop, bar])
+        _draw_texts_plain(panel, [(cap, (8, panel.shape[0] - bar.shape[0] / 2 + size * 0.35), (0, 0, 0), size)])
+        panels.append(panel)
+        panels.append(np.full((panel.shape[0], 6, 3), 255, np.uint8))
+    strip = np.hstack(panels[:-1])
+    if not cv2.imwrite(str(out_path), strip):
+        raise FeltlabError(f"could not write {out_path}; check free disk space", stage="outputs")
+    return Path(out_path)
+
+
+def _draw_texts_plain(img: np.ndarray, texts) -> None:
+    """Dark text without halo (for white caption bars)."""
+    pil = Image.fromarray(np.ascontiguousarray(img[:, :, ::-1]))
+    d = ImageDraw.Draw(pil)
+    for s, org, rgb, size in texts:
+        d.text((float(org[0]), float(org[1])), s, font=_font(int(size)), fill=tuple(int(c) for c in rgb), anchor="ls")
+    img[:] = np.asarray(pil)[:, :, ::-1]

@@ -1,0 +1,221 @@
+"""Plots: each ball's speed against time, and a to-scale table diagram.
+
+* :func:`speed_plot` -- one panel per moving ball: speed (m/s) from the
+  smoothed track, the fitted sliding / rolling phases shaded, every contact
+  marked. Sliding and rolling separate clearly on a speed-time plot (a sliding
+  ball decelerates ~20x faster than a rolling one; Mathavan, Jackson & Parkin,
+  Am. J. Phys. 77:788, 2009).
+* :func:`table_diagram` -- the playing surface to scale in mm (table frame of
+  DEVELOPERS.md, origin bottom-left), every ball's path, contact points, the
+  balls' positions at each ball-ball contact, and departure angles.
+
+Colours: Okabe-Ito (colour-blind safe), cue ball black on paper.
+"""
+from __future__ import annotations
+
+import math
+from pathlib import Path
+
+import matplotlib
+
+matplotlib.use("Agg")
+import matplotlib.pyplot as plt  # noqa: E402
+import numpy as np  # noqa: E402
+import pandas as pd  # noqa: E402
+from matplotlib.patches import Circle, Rectangle  # noqa: E402
+
+from feltlab.outputs.style import ROLL_RGB, SLIDE_RGB, ball_colours, ball_order, mpl  # noqa: E402
+
+#: A ball whose track spans less than this (mm) is drawn as "did not move".
+MOVED_MM = 5.0
+#: Sight (diamond) set-back behind the cushion nose, mm: WPA, 3 11/16 in (secondary copy).
+SIGHT_SETBACK_MM = 93.7
+#: Drawn cushion-plus-rail width and pocket radius (mm): illustration only, common practice values.
+CUSHION_DRAW_MM = 125.0
+POCKET_DRAW_MM = 60.0
+DPI = 110
+
+
+def moving_balls(tracks: pd.DataFrame) -> list[str]:
+    """Balls whose track spans more than ``MOVED_MM``, cue first."""
+    out = []
+    for b in ball_order(tracks["ball"].unique()):
+        g = tracks[tracks["ball"] == b]
+        span = np.hypot(np.ptp(g["x_mm"].to_numpy(float)), np.ptp(g["y_mm"].to_numpy(float))) if len(g) else 0.0
+        if np.isfinite(span) and span > MOVED_MM:
+            out.append(b)
+    return out
+
+
+def speed_plot(tracks: pd.DataFrame, segments: pd.DataFrame | None, contacts: pd.DataFrame | None,
+               path: Path, title: str = "") -> Path:
+    """Write the speed-time plot (PNG) and return its path."""
+    balls = moving_balls(tracks) or ball_order(tracks["ball"].unique())[:1]
+    cols = ball_colours(tracks["ball"].unique(), on_paper=True)
+    n = max(1, len(balls))
+    fig, axes = plt.subplots(n, 1, figsize=(9, 1.2 + 2.1 * n), sharex=True, squeeze=False)
+    axes = axes[:, 0]
+    t_all = tracks["t_s"].to_numpy(float)
+    tmin, tmax = (float(np.nanmin(t_all)), float(np.nanmax(t_all))) if len(t_all) else (0.0, 1.0)
+    vmax = 0.0
+    for ax, b in zip(axes, balls):
+        g = tracks[tracks["ball"] == b].sort_values("t_s")
+        sp = np.hypot(g["vx_mm_s"].to_numpy(float), g["vy_mm_s"].to_numpy(float)) / 1000.0
+        vmax = max(vmax, float(np.nanmax(sp)) if sp.size and np.isfinite(sp).any() else 0.0)
+        if segments is not None and len(segments):
+            for _, s in segments[segments["ball"].astype(str) == b].iterrows():
+                ph = str(s.get("phase", ""))
+                if ph in ("slide", "roll"):
+                    ax.axvspan(s["t0_s"], s["t1_s"], color=mpl(SLIDE_RGB if ph == "slide" else ROLL_RGB),
+                               alpha=0.22 if ph == "slide" else 0.16, lw=0)
+        vis = g["visible"].to_numpy(float) if "visible" in g else np.ones(len(g))
+        ax.plot(g["t_s"], sp, color=mpl(cols[b]), lw=1.6, label="speed (smoothed track)")
+        pred = vis < 0.5
+        if pred.any():
+            ax.plot(g["t_s"].to_numpy()[pred], sp[pred], ".", color="0.5", ms=3, label="predicted (ball not seen)")
+        ax.set_ylabel(f"{b}\nspeed (m/s)")
+        ax.grid(True, color="0.9", lw=0.6)
+    for ax in axes:
+        ax.set_ylim(0, max(0.1, vmax * 1.12))
+        if contacts is not None:
+            for _, c in contacts.iterrows():
+                ax.axvline(c["t_s"], color="0.25", ls="--", lw=0.9)
+    if contacts is not None and len(contacts):
+        for _, c in contacts.iterrows():
+            axes[0].annotate(f"C{c['contact']}", (c["t_s"], 1.0), xycoords=("data", "axes fraction"),
+                             xytext=(2, -2), textcoords="offset points", va="top", fontsize=9, color="0.15")
+    axes[-1].set_xlabel("time (s)")
+    axes[-1].set_xlim(tmin, tmax)
+    from matplotlib.patches import Patch
+    from matplotlib.lines import Line2D
+    handles = [Patch(color=mpl(SLIDE_RGB), alpha=0.35, label="sliding (fitted)"),
+               Patch(color=mpl(ROLL_RGB), alpha=0.3, label="rolling (fitted)"),
+               Line2D([], [], color="0.25", ls="--", lw=0.9, label="contact")]
+    fig.legend(handles=handles, loc="upper right", ncol=3, fontsize=9, frameon=False)
+    fig.suptitle(title or "Ball speed against time", x=0.02, ha="left", fontsize=11)
+    fig.tight_layout(rect=(0, 0, 1, 0.97 if n > 1 else 0.93))
+    fig.savefig(path, dpi=DPI)
+    plt.close(fig)
+    return Path(path)
+
+
+def _angle_deg(u, v) -> float:
+    """Unsigned angle between two 2-vectors (degrees); NaN if either is ~zero."""
+    u, v = np.asarray(u, float), np.asarray(v, float)
+    nu, nv = np.linalg.norm(u), np.linalg.norm(v)
+    if not (nu > 1e-9 and nv > 1e-9):
+        return float("nan")
+    return float(np.degrees(np.arccos(np.clip(np.dot(u, v) / (nu * nv), -1.0, 1.0))))
+
+
+def departure_angles(c: dict) -> dict:
+    """Departure angles of one contact row (degrees).
+
+    ball-ball: ``object_deg`` / ``cue_deg`` -- each ball's departure direction
+    measured from ball_a's incoming direction (for a frictionless hit the
+    object ball leaves along the line of centres, i.e. object_deg = cut angle).
+    ball-cushion: ``incidence_deg`` / ``rebound_deg`` -- from the cushion normal.
+    """
+    va_in = np.array([c.get("va_in_x_mm_s", np.nan), c.get("va_in_y_mm_s", np.nan)], float)
+    va_out = np.array([c.get("va_out_x_mm_s", np.nan), c.get("va_out_y_mm_s", np.nan)], float)
+    if c.get("kind") == "ball-ball":
+        vb_out = np.array([c.get("vb_out_x_mm_s", np.nan), c.get("vb_out_y_mm_s", np.nan)], float)
+        return {"object_deg": _angle_deg(va_in, vb_out), "cue_deg": _angle_deg(va_in, va_out)}
+    n = np.array([c.get("nx", np.nan), c.get("ny", np.nan)], float)
+    inc = c.get("incidence_deg", np.nan)
+    reb = c.get("rebound_deg", np.nan)
+    if inc is None or not np.isfinite(inc):
+        inc = _angle_deg(-va_in, n)
+    if reb is None or not np.isfinite(reb):
+        reb = _angle_deg(va_out, n)
+    return {"incidence_deg": float(inc), "rebound_deg": float(reb)}
+
+
+def _draw_table(ax, table) -> None:
+    L, W = table.length_mm, table.width_mm
+    cw = CUSHION_DRAW_MM
+    ax.add_patch(Rectangle((-cw, -cw), L + 2 * cw, W + 2 * cw, color="0.6", zorder=0))
+    ax.add_patch(Rectangle((0, 0), L, W, facecolor="0.97", edgecolor="0.3", lw=1.0, zorder=1))
+    if table.pockets:
+        for x, y in ((0, 0), (L / 2, 0), (L, 0), (0, W), (L / 2, W), (L, W)):
+            ax.add_patch(Circle((x, y), POCKET_DRAW_MM, color="0.35", zorder=2))
+    if table.name.startswith("pool") or table.name.startswith("carom"):
+        off = SIGHT_SETBACK_MM if table.name.startswith("pool") else cw * 0.7
+        for i in range(1, 8):
+            if i == 4:
+                continue
+            for y in (-off, W + off):
+                ax.plot(i * L / 8, y, marker="D", ms=3, color="white", zorder=3)
+        for j in (1, 2, 3):
+            for x in (-off, L + off):
+                ax.plot(x, j * W / 4, marker="D", ms=3, color="white", zorder=3)
+    for name, (x, y, ha, va) in {"cushion y0": (L * 0.19, -cw * 0.35, "center", "center"),
+                                 "cushion yW": (L * 0.19, W + cw * 0.35, "center", "center"),
+                                 "cushion x0": (-cw * 0.35, W * 0.62, "center", "center"),
+                                 "cushion xL": (L + cw * 0.35, W * 0.62, "center", "center")}.items():
+        ax.text(x, y, name, ha=ha, va=va, fontsize=7, color="white", zorder=3,
+                rotation=90 if name.endswith(("x0", "xL")) else 0)
+
+
+def table_diagram(tracks: pd.DataFrame, contacts: pd.DataFrame | None, table, ball_radius_mm: float,
+                  path: Path, title: str = "") -> Path:
+    """Write the to-scale top-down diagram (PNG) and return its path."""
+    L, W = table.length_mm, table.width_mm
+    cols = ball_colours(tracks["ball"].unique(), on_paper=True)
+    fig_w = 10.0
+    fig, ax = plt.subplots(figsize=(fig_w, fig_w * (W + 2 * CUSHION_DRAW_MM + 260) / (L + 2 * CUSHION_DRAW_MM + 80)))
+    _draw_table(ax, table)
+    R = ball_radius_mm
+    for b in ball_order(tracks["ball"].unique()):
+        g = tracks[tracks["ball"] == b].sort_values("t_s")
+        xy = g[["x_mm", "y_mm"]].to_numpy(float)
+        xy = xy[np.isfinite(xy).all(axis=1)]
+        if not len(xy):
+            continue
+        c = mpl(cols[b])
+        ax.plot(xy[:, 0], xy[:, 1], color=c, lw=1.6, zorder=5, label=b)
+        ax.add_patch(Circle(xy[0], R, facecolor="none", edgecolor=c, lw=1.4, zorder=6))
+        ax.add_patch(Circle(xy[-1], R, facecolor=c, edgecolor="0.1", lw=0.8, alpha=0.55, zorder=6))
+        ax.annotate(b, xy[0], xytext=(7, 7), textcoords="offset points", fontsize=8, color="0.1", zorder=8)
+    if contacts is not None:
+        for _, row in contacts.iterrows():
+            c = row.to_dict()
+            cp = np.array([c.get("x_mm", np.nan), c.get("y_mm", np.nan)], float)
+            n = np.array([c.get("nx", np.nan), c.get("ny", np.nan)], float)
+            if not np.isfinite(cp).all():
+                continue
+            ax.plot(*cp, marker="x", color="black", ms=7, mew=1.8, zorder=9)
+            ang = departure_angles(c)
+            if c.get("kind") == "ball-ball":
+                if np.isfinite(n).all():
+                    for sgn, who in ((-1, c["ball_a"]), (1, c["ball_b"])):
+                        ctr = cp + sgn * R * n
+                        ax.add_patch(Circle(ctr, R, facecolor="none", edgecolor=mpl(cols.get(str(who), (0, 0, 0))),
+                                            ls="--", lw=1.0, zorder=7))
+                txt = (f"C{c['contact']}  {c['ball_b']} leaves {ang['object_deg']:.1f}°,"
+                       f"\n{c['ball_a']} {ang['cue_deg']:.1f}° off {c['ball_a']}'s path")
+            else:
+                txt = f"C{c['contact']}  in {ang['incidence_deg']:.1f}°, out {ang['rebound_deg']:.1f}°\nfrom the normal"
+            # Put the label towards the table centre so it stays on the drawing.
+            d = np.array([L / 2, W / 2]) - cp
+            d = d / (np.linalg.norm(d) + 1e-9)
+            ax.annotate(txt, cp, xytext=(cp + d * 160 + np.array([0, 40])), fontsize=8, zorder=10,
+                        bbox=dict(boxstyle="round,pad=0.25", fc="white", ec="0.6", alpha=0.9),
+                        arrowprops=dict(arrowstyle="-", color="0.4", lw=0.7))
+    ax.set_xlim(-CUSHION_DRAW_MM - 10, L + CUSHION_DRAW_MM + 10)
+    ax.set_ylim(-CUSHION_DRAW_MM - 10, W + CUSHION_DRAW_MM + 10)
+    ax.set_aspect("equal")
+    step = 250 if L > 2000 else 200
+    ax.set_xticks(np.arange(0, L + 1, step))
+    ax.set_yticks(np.arange(0, W + 1, step))
+    ax.tick_params(labelsize=7)
+    ax.set_xlabel("x (mm)")
+    ax.set_ylabel("y (mm)")
+    ax.legend(loc="upper left", bbox_to_anchor=(0.0, -0.08), ncol=8, fontsize=8, frameon=False,
+              title="paths (open circle: start, filled: end, dashed: balls at contact, x: contact point)",
+              title_fontsize=8)
+    ax.set_title(title or f"Top view, to scale ({table.name}, {L:.0f} x {W:.0f} mm)", loc="left", fontsize=11)
+    fig.tight_layout()
+    fig.savefig(path, dpi=DPI)
+    plt.close(fig)
+    return Path(path)

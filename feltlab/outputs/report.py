@@ -1,0 +1,202 @@
+"""``report.html``: one self-contained page per shot.
+
+The page needs nothing but itself: images are embedded as base64 ``data:``
+URIs, styles are inline, there is no script and no network access. Every
+string that came from outside (file names, labels, notes) is HTML-escaped by
+Jinja2's autoescape. The shot is told in plain words first, then the contacts
+table, the plots and the contact frames.
+"""
+from __future__ import annotations
+
+import base64
+import math
+from pathlib import Path
+
+import cv2
+import jinja2
+import numpy as np
+import pandas as pd
+
+from feltlab.outputs.plots import departure_angles
+
+TEMPLATE_DIR = Path(__file__).resolve().parents[1] / "templates"
+TEMPLATE = "report.html.j2"
+#: Embedded frames are scaled down to at most this width (px) to keep the page light.
+EMBED_MAX_WIDTH_PX = 1000
+
+
+def _f(v) -> float:
+    try:
+        f = float(v)
+    except (TypeError, ValueError):
+        return float("nan")
+    return f
+
+
+def _ok(*vals) -> bool:
+    return all(math.isfinite(_f(v)) for v in vals)
+
+
+def ms(v_mm_s) -> str:
+    """mm/s -> 'x.xx m/s'."""
+    return f"{_f(v_mm_s) / 1000.0:.2f} m/s" if _ok(v_mm_s) else "n/a"
+
+
+def pm(value, sigma, digits: int | None = None) -> str:
+    """'0.936 ± 0.010', decimals from the sigma's first significant digit (2-4)."""
+    v, s = _f(value), _f(sigma)
+    if not math.isfinite(v):
+        return "n/a"
+    if not (math.isfinite(s) and s > 0):
+        return f"{v:.{digits or 3}f}"
+    d = digits if digits is not None else max(2, min(4, 1 - int(math.floor(math.log10(s)))))
+    return f"{v:.{d}f} ± {s:.{d}f}"
+
+
+def _speed(c: dict, prefix: str) -> float:
+    return float(np.hypot(_f(c.get(f"{prefix}_x_mm_s")), _f(c.get(f"{prefix}_y_mm_s"))))
+
+
+def _phase_word(p) -> str:
+    return {"slide": "sliding", "roll": "rolling", "rest": "at rest"}.get(str(p), "")
+
+
+def describe_contact(c: dict) -> str:
+    """One contact in plain words (pure).
+
+    >>> describe_contact({"contact": 1, "t_s": 0.5, "kind": "ball-cushion", "ball_a": "red", "cushion": "y0",
+    ...     "nx": 0.0, "ny": 1.0, "va_in_x_mm_s": 0.0, "va_in_y_mm_s": -1000.0, "va_out_x_mm_s": 0.0,
+    ...     "va_out_y_mm_s": 800.0, "speed_in_mm_s": 1000.0, "e": 0.8, "e_sigma": 0.01, "ke_loss_frac": 0.36})
+    'C1 at 0.500 s: red reached cushion y0 at 1.00 m/s (1.00 m/s into the cushion), 0° from the normal, and came off at 0.80 m/s, 0° from the normal; e = 0.80 ± 0.01; 36.0% of the kinetic energy lost.'
+    """
+    parts = []
+    ang = departure_angles(c)
+    head = f"C{c['contact']} at {_f(c['t_s']):.3f} s: "
+    a, b = str(c.get("ball_a", "")), str(c.get("ball_b", "") or "")
+    va_in, va_out = _speed(c, "va_in"), _speed(c, "va_out")
+    phase = _phase_word(c.get("a_phase_in", ""))
+    if c.get("kind") == "ball-ball":
+        vb_out = _speed(c, "vb_out")
+        s = f"{a} arrived at {ms(va_in)}" + (f" ({phase})" if phase else "")
+        if _ok(c.get("cut_angle_deg")):
+            s += f", {_f(c['cut_angle_deg']):.0f}° cut on {b}"
+        else:
+            s += f" and struck {b}"
+        s += f"; {b} left at {ms(vb_out)}"
+        if _ok(ang.get("object_deg")):
+            s += f" ({ang['object_deg']:.1f}° off {a}'s line"
+            s += f", throw {_f(c['throw_deg']):.1f}°)" if _ok(c.get("throw_deg")) else ")"
+        s += f", {a} at {ms(va_out)}"
+        if _ok(ang.get("cue_deg")) and va_out > 1.0:
+            s += f" ({ang['cue_deg']:.0f}° off its line)"
+        parts.append(s)
+    else:
+        cushion = str(c.get("cushion", "") or "")
+        s = f"{a} reached cushion {cushion} at {ms(va_in)}".replace("cushion  at", "a cushion at")
+        if _ok(c.get("speed_in_mm_s")):
+            s += f" ({ms(c['speed_in_mm_s'])} into the cushion)"
+        if _ok(ang.get("incidence_deg")):
+            s += f", {ang['incidence_deg']:.0f}° from the normal"
+        s += f", and came off at {ms(va_out)}"
+        if _ok(ang.get("rebound_deg")):
+            s += f", {ang['rebound_deg']:.0f}° from the normal"
+        parts.append(s)
+    parts.append(f"e = {pm(c.get('e'), c.get('e_sigma'))}")
+    if _ok(c.get("ke_loss_frac")):
+        parts.append(f"{100 * _f(c['ke_loss_frac']):.1f}% of the kinetic energy lost")
+    return head + "; ".join(parts) + "."
+
+
+def embed_png(path: Path, max_width: int = EMBED_MAX_WIDTH_PX) -> str:
+    """A ``data:image/png;base64,...`` URI of an image file, scaled down to ``max_width``."""
+    img = cv2.imread(str(path), cv2.IMREAD_COLOR)
+    if img is None:
+        raise ValueError(f"cannot read image {path}")
+    if img.shape[1] > max_width:
+        f = max_width / img.shape[1]
+        img = cv2.resize(img, (max_width, int(round(img.shape[0] * f))), interpolation=cv2.INTER_AREA)
+    ok, buf = cv2.imencode(".png", img)
+    if not ok:
+        raise ValueError(f"cannot encode image {path}")
+    return "data:image/png;base64," + base64.b64encode(buf.tobytes()).decode("ascii")
+
+
+#: Contacts-table columns shown in the report: (column, heading, format).
+TABLE_COLUMNS = [
+    ("contact", "#", "{}"), ("t_s", "t (s)", "{:.4f}"), ("kind", "kind", "{}"), ("ball_a", "ball a", "{}"),
+    ("ball_b", "ball b / cushion", "{}"), ("speed_in_mm_s", "normal speed in (mm/s)", "{:.0f}"),
+    ("e", "e", "{:.3f}"), ("e_sigma", "σ(e)", "{:.3f}"), ("impulse_Ns", "impulse (N·s)", "{:.4f}"),
+    ("ke_loss_frac", "KE lost (%)", "pct"), ("cut_angle_deg", "cut (°)", "{:.1f}"), ("throw_deg", "throw (°)", "{:.1f}"),
+    ("momentum_residual_pct", "momentum residual (%)", "{:.1f}"),
+]
+
+
+def contacts_rows(contacts: pd.DataFrame | None) -> tuple[list[str], list[list[str]]]:
+    """Headings and formatted cells of the contacts table."""
+    if contacts is None or len(contacts) == 0:
+        return [h for _, h, _ in TABLE_COLUMNS], []
+    cols = [(c, h, f) for c, h, f in TABLE_COLUMNS if c in contacts.columns]
+    rows = []
+    for _, r in contacts.iterrows():
+        cells = []
+        for c, _, f in cols:
+            v = r[c]
+            if c == "ball_b" and (v is None or str(v) in ("", "nan")):
+                v = f"cushion {r.get('cushion', '')}"
+            if f == "pct":
+                cells.append(f"{100 * _f(v):.1f}" if _ok(v) else "")
+            elif f == "{}":
+                cells.append("" if v is None or (isinstance(v, float) and not math.isfinite(v)) else str(v))
+            else:
+                cells.append(f.format(_f(v)) if _ok(v) else "")
+        rows.append(cells)
+    return [h for _, h, _ in cols], rows
+
+
+def render_report(context: dict) -> str:
+    """Render the template (autoescaped) to a string (pure)."""
+    env = jinja2.Environment(loader=jinja2.FileSystemLoader(str(TEMPLATE_DIR)), autoescape=True,
+                             undefined=jinja2.StrictUndefined, trim_blocks=True, lstrip_blocks=True)
+    return env.get_template(TEMPLATE).render(**context)
+
+
+def build_context(shot: dict, contacts: pd.DataFrame | None, plots: dict[str, Path],
+                  contact_images: list[tuple[str, Path]], files: list[str]) -> dict:
+    """Everything the template shows. ``plots``: caption -> PNG; ``contact_images``: (caption, PNG)."""
+    cal = shot.get("calibration", {})
+    fr = shot.get("friction", {})
+    facts = [
+        ("clip", shot["clip"]["name"]),
+        ("SHA-256", shot["clip"]["sha256"]),
+        ("frames", f"{shot['n_frames']} at {shot['fps']:g} frames/s ({shot['fps_source']})"),
+        ("duration", f"{shot['duration_s']:.3f} s" if shot.get("duration_s") is not None else "n/a"),
+        ("table", f"{shot['table']['preset']} ({shot['table']['length_mm']:.0f} x {shot['table']['width_mm']:.0f} mm)"),
+        ("ball", f"{shot['ball']['diameter_mm']:.2f} mm, {shot['ball']['mass_kg'] * 1000:.0f} g"),
+        ("calibration", f"{cal.get('method')}, residual {pm(cal.get('residual_px'), None, 2)} px"
+                        f" / {pm(cal.get('residual_mm'), None, 2)} mm, {pm(cal.get('px_per_mm'), None, 3)} px/mm"),
+        ("balls found", ", ".join(str(b.get("ball")) for b in shot.get("balls", [])) or "none"),
+        ("cloth sliding friction μs", pm(fr.get("mu_s"), fr.get("mu_s_sigma"))),
+        ("rolling resistance μr (deceleration / g)", pm(fr.get("mu_r"), fr.get("mu_r_sigma"), 4)),
+        ("software", f"feltlab {shot['software']['version']}"),
+    ]
+    sentences = [describe_contact(r) for r in (contacts.to_dict(orient="records")
+                                               if contacts is not None and len(contacts) else [])]
+    heads, rows = contacts_rows(contacts)
+    return {
+        "title": f"Shot report: {shot['clip']['name']}",
+        "facts": facts,
+        "sentences": sentences,
+        "notes": [str(n) for n in cal.get("notes", [])],
+        "table_heads": heads,
+        "table_rows": rows,
+        "plots": [(cap, embed_png(p, 1200)) for cap, p in plots.items()],
+        "contact_images": [(cap, embed_png(p)) for cap, p in contact_images],
+        "files": sorted(files),
+    }
+
+
+def write_report(path: Path, context: dict) -> Path:
+    """Write report.html (UTF-8)."""
+    path = Path(path)
+    path.write_text(render_report(context), encoding="utf-8")
+    return path
