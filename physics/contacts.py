@@ -1,0 +1,188 @@
+"""Measured contact quantities from fitted chains: restitution, impulse, energy, geometry.
+
+Definitions (table plane, mm, s, kg; results in N·s, J, degrees):
+
+* normal ``n``: ball-ball, the unit line of centres from ball a to ball b at first touch;
+  ball-cushion, the in-plane cushion normal pointing into the table. The cushion nose is
+  above the ball centre, so the real cushion force also has a vertical part; it is not seen
+  from overhead and is not part of ``n``.
+* velocities "in"/"out": the fitted model of the segment before/after the contact, evaluated
+  at the segment break (where both segments meet; within one frame of first touch).
+* restitution: ball-ball ``e = -(vb' - va')·n / ((vb - va)·n)``; cushion ``e = -(v'·n)/(v·n)``.
+* impulse ``J = m (v' - v)`` on ball b (ball-ball) or on the ball (cushion), N·s, with normal
+  part ``J·n`` and tangential part ``J·t`` (``t`` = ``n`` turned +90 degrees).
+* momentum residual: ``|m(va'+vb') - m(va+vb)| / |m(va+vb)|`` in % (ball-ball only).
+* kinetic energy: translational ``m v^2 / 2`` of the balls involved; the "total" columns add the
+  rolling share ``(2/5)(m v^2 / 2)`` for a ball known to roll (NaN when a ball slides).
+* cut angle: between the approach velocity ``va - vb`` and ``n``; throw: signed angle from ``n``
+  to ball b's velocity change; departure angles are signed from a's incoming direction.
+* cushion incidence: between ``-v`` and ``n``; rebound: between ``v'`` and ``n``.
+
+Uncertainties come from first-order propagation of the chain covariances (balls are fitted
+independently, so their covariances are independent).
+"""
+from __future__ import annotations
+
+import numpy as np
+from scipy.optimize import brentq
+
+from physics.events import cushion_distance
+from physics.segments import ChainFit, chain_eval
+
+
+def _angle(u: np.ndarray, v: np.ndarray) -> float:
+    """Signed angle from u to v, degrees (NaN if either is ~0)."""
+    if np.hypot(*u) < 1e-9 or np.hypot(*v) < 1e-9:
+        return float("nan")
+    return float(np.degrees(np.arctan2(u[0] * v[1] - u[1] * v[0], u @ v)))
+
+
+def _first_touch(gap_fn, tb: float, dt: float) -> float:
+    """Root of the pre-contact gap near the break (s); the break itself if none is bracketed."""
+    lo, hi = tb - 1.5 * dt, tb + 0.5 * dt
+    try:
+        glo, ghi = gap_fn(lo), gap_fn(hi)
+        if glo > 0 > ghi:
+            return float(brentq(gap_fn, lo, hi, xtol=1e-7))
+        gtb = gap_fn(tb)
+        if glo > 0 > gtb:
+            return float(brentq(gap_fn, lo, tb, xtol=1e-7))
+    except ValueError:
+        pass
+    return tb
+
+
+def ball_ball_core(fa: ChainFit, ia: int, xa, fb: ChainFit, ib: int, xb, radius_mm: float, dt: float):
+    """Core values of a ball-ball contact for parameter vectors xa, xb (for propagation)."""
+    tba, pa, va0, va1 = fa.at_break(ia, xa)
+    tbb, pb, vb0, vb1 = fb.at_break(ib, xb)
+    tb = 0.5 * (tba + tbb)
+
+    def gap(t):
+        Pa, _, _ = chain_eval(xa, fa.layout, np.array([t]), seg=np.array([ia]))
+        Pb, _, _ = chain_eval(xb, fb.layout, np.array([t]), seg=np.array([ib]))
+        return float(np.hypot(*(Pb[0] - Pa[0])) - 2 * radius_mm)
+
+    t1 = _first_touch(gap, tb, dt)
+    Pa, _, _ = chain_eval(xa, fa.layout, np.array([t1]), seg=np.array([ia]))
+    Pb, _, _ = chain_eval(xb, fb.layout, np.array([t1]), seg=np.array([ib]))
+    d = Pb[0] - Pa[0]
+    n = d / np.hypot(*d)
+    den = (vb0 - va0) @ n
+    e = -((vb1 - va1) @ n) / den if abs(den) > 1e-9 else np.nan
+    return dict(t=t1, n=n, pa=Pa[0], va0=va0, va1=va1, vb0=vb0, vb1=vb1, e=e)
+
+
+def cushion_core(f: ChainFit, i: int, x, cushion: str, normal: np.ndarray,
+                 length_mm: float, width_mm: float, radius_mm: float, dt: float):
+    """Core values of a ball-cushion contact for parameter vector x (for propagation)."""
+    tb, p, v0, v1 = f.at_break(i, x)
+
+    def gap(t):
+        P, _, _ = chain_eval(x, f.layout, np.array([t]), seg=np.array([i]))
+        return float(cushion_distance(P, cushion, length_mm, width_mm)[0] - radius_mm)
+
+    t1 = _first_touch(gap, tb, dt)
+    P, _, _ = chain_eval(x, f.layout, np.array([t1]), seg=np.array([i]))
+    den = v0 @ normal
+    e = -(v1 @ normal) / den if abs(den) > 1e-9 else np.nan
+    return dict(t=t1, n=normal, pa=P[0], va0=v0, va1=v1, e=e)
+
+
+def propagate(fn, x: np.ndarray, cov: np.ndarray) -> np.ndarray:
+    """Variance of the scalar outputs of ``fn(x)`` (array) by central differences."""
+    y0 = np.atleast_1d(np.asarray(fn(x), dtype=float))
+    sd = np.sqrt(np.clip(np.diag(cov), 0, None))
+    G = np.zeros((len(y0), len(x)))
+    for j in range(len(x)):
+        if sd[j] <= 0:
+            continue
+        h = 1e-3 * sd[j]
+        xp, xm = x.copy(), x.copy()
+        xp[j] += h
+        xm[j] -= h
+        G[:, j] = (np.atleast_1d(fn(xp)) - np.atleast_1d(fn(xm))) / (2 * h)
+    return np.einsum("ij,jk,ik->i", G, cov, G)
+
+
+def derived(core: dict, mass_kg: float, two_balls: bool, a_roll: tuple[bool, bool],
+            b_roll: tuple[bool, bool]) -> dict:
+    """Impulse, momentum, energy and angles from core values (see module docstring)."""
+    n = core["n"]
+    tt = np.array([-n[1], n[0]])
+    va0, va1 = core["va0"], core["va1"]
+    out = {}
+    m = mass_kg
+    k = 1e-3  # mm/s -> m/s
+    if two_balls:
+        vb0, vb1 = core["vb0"], core["vb1"]
+        J = m * (vb1 - vb0) * k
+        out["speed_in_mm_s"] = float(-((vb0 - va0) @ n))
+        p0 = m * (va0 + vb0)
+        p1 = m * (va1 + vb1)
+        out["momentum_residual_pct"] = float(100 * np.hypot(*(p1 - p0)) / max(np.hypot(*p0), 1e-12))
+        ke0 = 0.5 * m * (va0 @ va0 + vb0 @ vb0) * k * k
+        ke1 = 0.5 * m * (va1 @ va1 + vb1 @ vb1) * k * k
+        rel = va0 - vb0
+        out["cut_angle_deg"] = abs(_angle(n, rel))
+        out["throw_deg"] = _angle(n, vb1 - vb0)
+        out["a_departure_deg"] = _angle(va0, va1)
+        out["b_departure_deg"] = _angle(va0, vb1)
+        out["separation_deg"] = abs(_angle(va1, vb1))
+        out["incidence_deg"] = np.nan
+        out["rebound_deg"] = np.nan
+        tot0 = _total(m, [(va0, a_roll[0]), (vb0, b_roll[0])])
+        tot1 = _total(m, [(va1, a_roll[1]), (vb1, b_roll[1])])
+    else:
+        J = m * (va1 - va0) * k
+        out["speed_in_mm_s"] = float(-(va0 @ n))
+        out["momentum_residual_pct"] = np.nan
+        ke0 = 0.5 * m * (va0 @ va0) * k * k
+        ke1 = 0.5 * m * (va1 @ va1) * k * k
+        out["cut_angle_deg"] = np.nan
+        out["throw_deg"] = np.nan
+        out["a_departure_deg"] = np.nan
+        out["b_departure_deg"] = np.nan
+        out["separation_deg"] = np.nan
+        out["incidence_deg"] = abs(_angle(n, -va0))
+        out["rebound_deg"] = abs(_angle(n, va1))
+        tot0 = _total(m, [(va0, a_roll[0])])
+        tot1 = _total(m, [(va1, a_roll[1])])
+    out["impulse_Ns"] = float(np.hypot(*J))
+    out["impulse_n_Ns"] = float(J @ n)
+    out["impulse_t_Ns"] = float(J @ tt)
+    out["ke_before_J"] = float(ke0)
+    out["ke_after_J"] = float(ke1)
+    out["ke_loss_frac"] = float(1 - ke1 / ke0) if ke0 > 0 else np.nan
+    out["ke_total_before_J"] = tot0
+    out["ke_total_after_J"] = tot1
+    return out
+
+
+def _total(m: float, items) -> float:
+    """Translational + rotational KE (J) if every ball rolls or rests, else NaN."""
+    tot = 0.0
+    for v, rolls in items:
+        sp2 = float(v @ v) * 1e-6
+        if sp2 < 1e-8:
+            continue
+        if not rolls:
+            return float("nan")
+        tot += 0.5 * m * sp2 * (1 + 2.0 / 5.0)
+    return tot
+
+
+def ball_ball_e(va_in, va_out, vb_in, vb_out, n) -> float:
+    """e = -(vb' - va')·n / ((vb - va)·n) for 2-vectors (mm/s) and unit normal n (a->b).
+
+    >>> import numpy as np
+    >>> round(ball_ball_e(np.array([1000.0, 0]), np.array([25.0, 0]), np.zeros(2),
+    ...                   np.array([975.0, 0]), np.array([1.0, 0])), 3)
+    0.95
+    """
+    return float(-((vb_out - va_out) @ n) / ((vb_in - va_in) @ n))
+
+
+def cushion_e(v_in, v_out, n) -> float:
+    """e = -(v'·n) / (v·n) for 2-vectors (mm/s) and inward unit normal n."""
+    return float(-(v_out @ n) / (v_in @ n))

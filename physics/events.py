@@ -1,0 +1,365 @@
+"""Events from raw ball samples: strikes, ball-ball and ball-cushion contacts, rest, leaving.
+
+Table frame, mm, s. A contact is accepted only with both kinds of evidence:
+
+* geometric: the sampled gap (centre distance - 2R, or distance to a cushion-nose line - R)
+  has a local minimum below a margin that allows for noise and for one frame of travel;
+* kinematic: a change-point fit around the candidate (position continuous at a break time
+  scanned across the candidate frame, separate velocity and acceleration on each side,
+  weighted linear least squares) shows a velocity jump along the contact normal that is larger
+  than ``dv_min_mm_s`` and ``dv_z`` standard errors, with the sign a contact requires (pushes
+  the balls apart; reverses the approach to a cushion).
+
+Nose lines: ``x0`` is x = 0, ``xL`` is x = L, ``y0`` is y = 0, ``yW`` is y = W (table frame);
+the in-plane cushion normal points into the table.
+"""
+from __future__ import annotations
+
+from dataclasses import dataclass, field
+
+import numpy as np
+import pandas as pd
+
+from feltlab.errors import FeltlabError
+from physics.settings import PhysicsSettings
+
+CUSHION_NORMALS = {
+    "x0": np.array([1.0, 0.0]),
+    "xL": np.array([-1.0, 0.0]),
+    "y0": np.array([0.0, 1.0]),
+    "yW": np.array([0.0, -1.0]),
+}
+
+
+def cushion_distance(xy: np.ndarray, cushion: str, length_mm: float, width_mm: float) -> np.ndarray:
+    """Distance (mm) of points (T,2) from a cushion-nose line, positive on the table side."""
+    if cushion == "x0":
+        return xy[:, 0]
+    if cushion == "xL":
+        return length_mm - xy[:, 0]
+    if cushion == "y0":
+        return xy[:, 1]
+    return width_mm - xy[:, 1]
+
+
+@dataclass
+class BallSamples:
+    """One ball's raw samples: times (T,) s, centres (T,2) mm, sigmas (T,2) mm, sorted by time."""
+
+    ball: str
+    t: np.ndarray
+    xy: np.ndarray
+    sig: np.ndarray
+
+
+def ball_samples(
+    tracks: pd.DataFrame, detections: pd.DataFrame | None, s: PhysicsSettings
+) -> dict[str, BallSamples]:
+    """Per-ball samples: raw detections where a ball has them, else its visible track rows."""
+    need = {"t_s", "ball", "x_mm", "y_mm"}
+    if tracks is None or not need <= set(tracks.columns):
+        raise FeltlabError(
+            f"tracks table needs columns {sorted(need)}; pass the tracks from the tracking stage"
+        )
+    out: dict[str, BallSamples] = {}
+    for ball, tr in tracks.groupby("ball", sort=True):
+        src = None
+        if detections is not None and len(detections) and need <= set(detections.columns):
+            d = detections[detections["ball"] == ball]
+            if len(d) >= 3:
+                src = d
+        if src is None:
+            src = tr
+            if "visible" in src.columns and (src["visible"] > 0).sum() >= 3:
+                src = src[src["visible"] > 0]
+        src = src.dropna(subset=["t_s", "x_mm", "y_mm"]).sort_values("t_s")
+        src = src.drop_duplicates(subset=["t_s"])
+        if len(src) < 3:
+            continue
+        sig = np.full((len(src), 2), s.default_sigma_mm)
+        for i, c in enumerate(("sx_mm", "sy_mm")):
+            if c in src.columns:
+                v = src[c].to_numpy(float)
+                sig[:, i] = np.where(np.isfinite(v) & (v > 0), v, s.default_sigma_mm)
+        sig = np.maximum(sig, s.min_sigma_mm)
+        out[str(ball)] = BallSamples(
+            str(ball), src["t_s"].to_numpy(float), src[["x_mm", "y_mm"]].to_numpy(float), sig
+        )
+    return out
+
+
+def local_speed(b: BallSamples, dt: float, s: PhysicsSettings) -> tuple[np.ndarray, np.ndarray]:
+    """Speed (T,) mm/s from a centred moving linear fit and its standard error (T,) mm/s."""
+    n = len(b.t)
+    w = max(2, int(round(s.speed_window_s / dt / 2)))
+    sp = np.zeros(n)
+    se = np.zeros(n)
+    for i in range(n):
+        lo, hi = max(0, i - w), min(n, i + w + 1)
+        tt = b.t[lo:hi] - b.t[i]
+        if hi - lo < 3:
+            sp[i], se[i] = 0.0, np.inf
+            continue
+        tm = tt.mean()
+        sxx = np.sum((tt - tm) ** 2)
+        v = (tt - tm) @ (b.xy[lo:hi] - b.xy[lo:hi].mean(axis=0)) / sxx
+        sp[i] = float(np.hypot(*v))
+        se[i] = float(np.mean(b.sig[lo:hi]) / np.sqrt(sxx))
+    return sp, se
+
+
+@dataclass
+class Onset:
+    """Motion at the start of the samples: ``rest_first`` and the estimated onset time (s)."""
+
+    rest_first: bool
+    t_onset: float | None
+    rest_xy: np.ndarray | None = None
+
+
+def motion_onset(b: BallSamples, dt: float, s: PhysicsSettings) -> Onset:
+    """Is the ball at rest at its first samples, and when does it start moving (s)."""
+    sp, se = local_speed(b, dt, s)
+    moving = sp > np.maximum(s.rest_speed_mm_s, s.rest_speed_z * se)
+    k = 3
+    if not moving[: max(3, int(0.5 * s.speed_window_s / dt) + 1)].any():
+        idx = None
+        for i in range(len(moving) - k + 1):
+            if moving[i : i + k].all():
+                idx = i
+                break
+        rest_xy = np.median(b.xy[: max(3, (idx or len(b.t)) // 2 + 1)], axis=0)
+        if idx is None:
+            return Onset(True, None, rest_xy)
+        # onset: where a line through the first moving samples leaves the rest position
+        dist = np.hypot(*(b.xy - rest_xy).T)
+        thr = 4.0 * float(np.median(b.sig))
+        first = int(np.argmax(dist > thr)) if (dist > thr).any() else idx
+        j = slice(first, min(len(b.t), first + 6))
+        if j.stop - j.start >= 2:
+            tt = b.t[j]
+            p = np.polyfit(tt, dist[j], 1)
+            t_on = -p[1] / p[0] if p[0] > 1e-9 else b.t[first]
+            t_on = float(np.clip(t_on, b.t[max(first - 2, 0)], b.t[first]))
+        else:
+            t_on = float(b.t[first])
+        return Onset(True, t_on, rest_xy)
+    return Onset(False, None, None)
+
+
+@dataclass
+class KinkFit:
+    """Change-point fit of one ball around a candidate: break time (s), velocities before and
+    after (2,) mm/s at the break, covariance of the jump (2,2), reduced chi^2."""
+
+    t_b: float
+    v_pre: np.ndarray
+    v_post: np.ndarray
+    dv_cov: np.ndarray
+    chi2_red: float
+    ok: bool = True
+
+
+def kink_fit(
+    b: BallSamples, t_c: float, lo: float, hi: float, guard: float, dt: float, s: PhysicsSettings
+) -> KinkFit | None:
+    """Fit position-continuous two-sided quadratics to samples in (lo, hi), break scanned over
+    [t_c - dt, t_c + dt]; samples within ``guard`` of ``t_c`` are left out."""
+    m = (b.t > lo) & (b.t < hi) & (np.abs(b.t - t_c) > guard)
+    t, xy, sig = b.t[m], b.xy[m], b.sig[m]
+    best = None
+    for tb in np.linspace(t_c - dt, t_c + dt, 17):
+        pre = t < tb
+        npre, npost = int(pre.sum()), int((~pre).sum())
+        if npre < 2 or npost < 2:
+            continue
+        tau = t - tb
+        cols = [np.ones_like(tau), np.where(pre, tau, 0.0), np.where(pre, 0.0, tau)]
+        if npre >= s.min_side_points + 1:
+            cols.append(np.where(pre, 0.5 * tau**2, 0.0))
+        if npost >= s.min_side_points + 1:
+            cols.append(np.where(pre, 0.0, 0.5 * tau**2))
+        A = np.column_stack(cols)
+        if len(t) <= A.shape[1]:
+            continue
+        chi2 = 0.0
+        vpre = np.zeros(2)
+        vpost = np.zeros(2)
+        cov = np.zeros((2, 2))
+        for i in range(2):
+            w = 1.0 / sig[:, i]
+            Aw = A * w[:, None]
+            yw = xy[:, i] * w
+            coef, *_ = np.linalg.lstsq(Aw, yw, rcond=None)
+            r = yw - Aw @ coef
+            chi2 += float(r @ r)
+            C = np.linalg.pinv(Aw.T @ Aw)
+            vpre[i], vpost[i] = coef[1], coef[2]
+            cov[i, i] = C[1, 1] + C[2, 2] - 2 * C[1, 2]
+        dof = max(2 * len(t) - 2 * A.shape[1], 1)
+        if best is None or chi2 < best[0]:
+            best = (chi2, tb, vpre, vpost, cov, dof)
+    if best is None:
+        return None
+    chi2, tb, vpre, vpost, cov, dof = best
+    red = max(chi2 / dof, 1.0)
+    return KinkFit(float(tb), vpre, vpost, cov * red, red)
+
+
+@dataclass
+class ContactCandidate:
+    """A contact with geometric and kinematic evidence.
+
+    kind 'ball-ball' or 'ball-cushion'; ball_a (striking ball), ball_b ('' for a cushion);
+    cushion ('' for ball-ball); t_init_s: break time from the change-point fit (s); normal (2,)
+    a->b or into the table; gap_mm: smallest sampled gap; z: jump significance (standard errors).
+    """
+
+    kind: str
+    ball_a: str
+    ball_b: str
+    cushion: str
+    t_init_s: float
+    normal: np.ndarray
+    gap_mm: float
+    z: float
+    dv_a: np.ndarray = field(default_factory=lambda: np.zeros(2))
+    dv_b: np.ndarray = field(default_factory=lambda: np.zeros(2))
+
+
+def _local_minima(g: np.ndarray) -> np.ndarray:
+    """Indices of interior local minima of a sequence with NaNs (NaN neighbours count as larger)."""
+    gg = np.where(np.isfinite(g), g, np.inf)
+    left = np.concatenate([[np.inf], gg[:-1]])
+    right = np.concatenate([gg[1:], [np.inf]])
+    idx = np.flatnonzero(np.isfinite(g) & (gg <= left) & (gg < right))
+    return idx
+
+
+def _grid(samples: dict[str, BallSamples], dt: float):
+    """Common time grid: frame index k -> (T_all,) times; per ball (K,2) positions (NaN = none)."""
+    t_all = np.concatenate([b.t for b in samples.values()])
+    t0 = float(t_all.min())
+    k_all = np.round((t_all - t0) / dt).astype(int)
+    K = int(k_all.max()) + 1
+    times = t0 + dt * np.arange(K)
+    P, S, V = {}, {}, {}
+    for name, b in samples.items():
+        k = np.round((b.t - t0) / dt).astype(int)
+        p = np.full((K, 2), np.nan)
+        sg = np.full(K, np.nan)
+        p[k] = b.xy
+        sg[k] = b.sig.mean(axis=1)
+        P[name], S[name] = p, sg
+        sp, _ = local_speed(b, dt, PhysicsSettings())
+        v = np.full(K, np.nan)
+        v[k] = sp
+        V[name] = v
+    return times, P, S, V
+
+
+def find_contacts(
+    samples: dict[str, BallSamples],
+    length_mm: float,
+    width_mm: float,
+    radius_mm: float,
+    dt: float,
+    s: PhysicsSettings,
+) -> list[ContactCandidate]:
+    """Accepted ball-ball and ball-cushion contacts, sorted by time."""
+    times, P, S, V = _grid(samples, dt)
+    names = sorted(samples)
+    geo: list[tuple] = []  # (kind, a, b, cushion, k, gap, normal)
+    for a in names:
+        for c, n in CUSHION_NORMALS.items():
+            g = cushion_distance(P[a], c, length_mm, width_mm) - radius_mm
+            margin = (s.gap_margin_mm + s.gap_margin_sigma * np.nan_to_num(S[a], nan=1.0)
+                      + s.gap_margin_frames * np.nan_to_num(V[a], nan=0.0) * dt)
+            for k in _local_minima(g):
+                if g[k] < margin[k] and V[a][k] > s.rest_speed_mm_s:
+                    geo.append(("ball-cushion", a, "", c, k, float(g[k]), n))
+    for i, a in enumerate(names):
+        for b in names[i + 1:]:
+            d = P[b] - P[a]
+            g = np.hypot(d[:, 0], d[:, 1]) - 2 * radius_mm
+            vrel = np.nan_to_num(V[a], nan=0.0) + np.nan_to_num(V[b], nan=0.0)
+            sg = np.hypot(np.nan_to_num(S[a], nan=1.0), np.nan_to_num(S[b], nan=1.0))
+            margin = s.gap_margin_mm + s.gap_margin_sigma * sg + s.gap_margin_frames * vrel * dt
+            for k in _local_minima(g):
+                if g[k] < margin[k] and vrel[k] > s.rest_speed_mm_s:
+                    n = d[k] / np.hypot(*d[k])
+                    geo.append(("ball-ball", a, b, "", k, float(g[k]), n))
+    # candidate times per ball: limit the change-point windows to the neighbouring candidates
+    cand_t: dict[str, list[float]] = {nm: [] for nm in names}
+    for kind, a, b, c, k, gap, n in geo:
+        cand_t[a].append(times[k])
+        if b:
+            cand_t[b].append(times[k])
+    out: list[ContactCandidate] = []
+    for kind, a, b, c, k, gap, n in geo:
+        t_c = float(times[k])
+        guard = s.guard_ball_s if kind == "ball-ball" else s.guard_cushion_s
+        fits = {}
+        for ball in (a, b) if b else (a,):
+            others = [x for x in cand_t[ball] if abs(x - t_c) > 2.5 * dt]
+            lo = max([x for x in others if x < t_c], default=-np.inf)
+            hi = min([x for x in others if x > t_c], default=np.inf)
+            lo = max(lo + guard, t_c - s.side_window_s)
+            hi = min(hi - guard, t_c + s.side_window_s)
+            fits[ball] = kink_fit(samples[ball], t_c, lo, hi, guard, dt, s)
+        if kind == "ball-cushion":
+            f = fits[a]
+            if f is None:
+                continue
+            vn_pre, vn_post = f.v_pre @ n, f.v_post @ n
+            dvn = vn_post - vn_pre
+            sd = float(np.sqrt(n @ f.dv_cov @ n))
+            z = dvn / max(sd, 1e-9)
+            if vn_pre < 0 and vn_post > -sd and dvn > s.dv_min_mm_s and z > s.dv_z:
+                out.append(ContactCandidate(kind, a, "", c, f.t_b, n, gap, float(z),
+                                            f.v_post - f.v_pre))
+        else:
+            zs, dvs, tbs = {}, {}, {}
+            ok_any, bad = False, False
+            for ball, sign in ((a, -1.0), (b, 1.0)):
+                f = fits[ball]
+                if f is None:
+                    continue
+                dv = f.v_post - f.v_pre
+                dvn = sign * (dv @ n)
+                sd = float(np.sqrt(n @ f.dv_cov @ n))
+                z = dvn / max(sd, 1e-9)
+                zs[ball], dvs[ball], tbs[ball] = z, dv, f.t_b
+                if dvn > s.dv_min_mm_s and z > s.dv_z:
+                    ok_any = True
+                if z < -s.dv_z and -dvn > s.dv_min_mm_s:
+                    bad = True
+            if ok_any and not bad:
+                # the striking ball approaches faster along the normal
+                fa, fb = fits[a], fits[b]
+                va = fa.v_pre @ n if fa is not None else 0.0
+                vb = fb.v_pre @ n if fb is not None else 0.0
+                best = max(zs, key=zs.get)
+                if va - 0.0 >= -vb:  # a moves towards b more than b towards a
+                    A, B, nn = a, b, n
+                else:
+                    A, B, nn = b, a, -n
+                out.append(ContactCandidate(kind, A, B, "", tbs[best], nn, gap, float(zs[best]),
+                                            dvs.get(A, np.zeros(2)), dvs.get(B, np.zeros(2))))
+    out = _dedupe(out, dt)
+    return sorted(out, key=lambda c: c.t_init_s)
+
+
+def _dedupe(cands: list[ContactCandidate], dt: float) -> list[ContactCandidate]:
+    """Keep one candidate per (pair or ball+cushion) within 2 frame periods: the most significant."""
+    keep: list[ContactCandidate] = []
+    for c in sorted(cands, key=lambda c: -c.z):
+        key = (c.kind, frozenset((c.ball_a, c.ball_b)), c.cushion)
+        clash = any(
+            (k.kind, frozenset((k.ball_a, k.ball_b)), k.cushion) == key
+            and abs(k.t_init_s - c.t_init_s) < 2.0 * dt
+            for k in keep
+        )
+        if not clash:
+            keep.append(c)
+    return keep

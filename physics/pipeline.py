@@ -1,0 +1,385 @@
+"""Tracks in, measured contacts out: :func:`analyze_tracks`.
+
+Stages: raw samples per ball -> contact candidates with geometric and kinematic evidence
+(:mod:`physics.events`) -> one motion-model chain per ball broken at its strikes and contacts
+(:mod:`physics.segments`) -> contact quantities with propagated uncertainties
+(:mod:`physics.contacts`). Table frame, mm, s, kg; impulses N·s; energies J.
+"""
+from __future__ import annotations
+
+from dataclasses import dataclass, field
+
+import numpy as np
+import pandas as pd
+
+from feltlab.errors import FeltlabError
+from feltlab.standards import TablePreset
+from physics.contacts import ball_ball_core, cushion_core, derived, propagate
+from physics.events import (
+    BallSamples,
+    ContactCandidate,
+    ball_samples,
+    find_contacts,
+    motion_onset,
+)
+from physics.segments import ChainFit, ChainLayout, fit_chain, segment_starts, unpack_segment
+from physics.settings import PhysicsSettings
+
+CONTACT_COLUMNS = [
+    "contact", "t_s", "t_sigma_s", "kind", "ball_a", "ball_b", "cushion", "nx", "ny",
+    "va_in_x_mm_s", "va_in_y_mm_s", "va_out_x_mm_s", "va_out_y_mm_s",
+    "vb_in_x_mm_s", "vb_in_y_mm_s", "vb_out_x_mm_s", "vb_out_y_mm_s",
+    "speed_in_mm_s", "e", "e_sigma", "impulse_Ns", "impulse_n_Ns", "impulse_t_Ns",
+    "momentum_residual_pct", "ke_before_J", "ke_after_J", "ke_loss_frac",
+    "ke_total_before_J", "ke_total_after_J",
+    "cut_angle_deg", "throw_deg", "a_departure_deg", "b_departure_deg", "separation_deg",
+    "incidence_deg", "rebound_deg", "a_phase_in", "b_phase_in", "x_mm", "y_mm",
+]
+SEGMENT_COLUMNS = [
+    "ball", "segment", "t0_s", "t1_s", "phase", "x0_mm", "y0_mm", "vx0_mm_s", "vy0_mm_s",
+    "ax_mm_s2", "ay_mm_s2", "x0_sigma_mm", "y0_sigma_mm", "vx0_sigma_mm_s", "vy0_sigma_mm_s",
+    "ax_sigma_mm_s2", "ay_sigma_mm_s2", "t_roll_s", "mu", "mu_sigma", "rms_mm", "n_points",
+]
+EVENT_COLUMNS = ["event", "t_s", "t_sigma_s", "kind", "ball", "other", "contact"]
+
+
+@dataclass
+class ShotPhysics:
+    """Physics of one shot: ``events``, ``segments`` and ``contacts`` tables (columns above),
+    per-shot cloth friction ``mu_s`` (sliding) and ``mu_r`` (rolling, deceleration / g) with
+    sigmas (NaN where no phase was long enough), and the fitted chains."""
+
+    events: pd.DataFrame
+    segments: pd.DataFrame
+    contacts: pd.DataFrame
+    mu_s: float
+    mu_s_sigma: float
+    mu_r: float
+    mu_r_sigma: float
+    fits: dict[str, ChainFit] = field(default_factory=dict, repr=False)
+    rest_xy: dict[str, np.ndarray] = field(default_factory=dict, repr=False)
+
+    def state(self, ball: str, t_s):
+        """Fitted position (mm) and velocity (mm/s) of ``ball`` at ``t_s`` (scalar -> (2,),
+        array -> (T,2)). Raises FeltlabError for an unknown ball."""
+        if ball not in self.fits:
+            raise FeltlabError(f"no fitted motion for ball {ball!r}; known: {sorted(self.fits)}")
+        t = np.asarray(t_s, dtype=float)
+        P, V = self.fits[ball].state(np.atleast_1d(t))
+        if t.ndim == 0:
+            return P[0], V[0]
+        return P, V
+
+
+def _check_inputs(table, radius, mass, fps):
+    if not (np.isfinite(fps) and fps > 0):
+        raise FeltlabError(f"frame rate {fps!r} is not positive; pass the clip's fps (e.g. --fps 120)")
+    if not (np.isfinite(radius) and 5 < radius < 100):
+        raise FeltlabError(f"ball radius {radius!r} mm is implausible; pass the radius in mm (pool: 28.575)")
+    if not (np.isfinite(mass) and 0.01 < mass < 2):
+        raise FeltlabError(f"ball mass {mass!r} kg is implausible; pass the mass in kg (pool: 0.163)")
+    if table.length_mm <= 0 or table.width_mm <= 0:
+        raise FeltlabError("table size must be positive; check the table preset or calibration")
+
+
+@dataclass
+class _Break:
+    t: float
+    kind: str
+    contact: int  # index into the candidate list, -1 for a strike
+
+
+def _layouts(samples, cands, onsets, dt, s):
+    """Per ball: chain layout and the map contact index -> break index."""
+    layouts, maps = {}, {}
+    for name, b in samples.items():
+        brs = [_Break(c.t_init_s, c.kind, i) for i, c in enumerate(cands) if name in (c.ball_a, c.ball_b)]
+        brs.sort(key=lambda x: x.t)
+        on = onsets[name]
+        rest_first = on.rest_first
+        if rest_first and on.t_onset is not None:
+            first_contact = brs[0].t if brs else np.inf
+            if on.t_onset < first_contact - 3 * dt:
+                brs.insert(0, _Break(on.t_onset, "strike", -1))
+        if rest_first and not brs:
+            rest_first = True  # never moves: one rest segment
+        # breaks within one frame share a break (the fit cannot split them)
+        merged: list[_Break] = []
+        cmap: dict[int, int] = {}
+        for br in brs:
+            if merged and br.t - merged[-1].t < 1.0 * dt:
+                if br.contact >= 0:
+                    cmap[br.contact] = len(merged) - 1
+                continue
+            merged.append(br)
+            if br.contact >= 0:
+                cmap[br.contact] = len(merged) - 1
+        # drop breaks outside the samples
+        merged = [m for m in merged if b.t[0] < m.t < b.t[-1]]
+        cmap = {c: i for i, m in enumerate(merged) for c in [m.contact] if c >= 0}
+        for i, c in enumerate(cands):
+            if name in (c.ball_a, c.ball_b) and i not in cmap:
+                for j, m in enumerate(merged):
+                    if abs(m.t - c.t_init_s) < 1.0 * dt:
+                        cmap[i] = j
+        if not merged and not rest_first and len(brs) == 0:
+            pass
+        guards = np.array([
+            s.guard_ball_s if m.kind == "ball-ball" else
+            s.guard_cushion_s if m.kind == "ball-cushion" else s.guard_strike_s
+            for m in merged
+        ])
+        half = np.array([1.0 * dt if m.kind != "strike" else 2.5 * dt for m in merged])
+        layouts[name] = ChainLayout(
+            name, float(b.t[0]), bool(rest_first and (merged or on.t_onset is None)),
+            [m.kind for m in merged], np.array([m.t for m in merged]), half, guards,
+        )
+        maps[name] = (cmap, merged)
+    return layouts, maps
+
+
+def analyze_tracks(
+    tracks: pd.DataFrame,
+    detections: pd.DataFrame | None,
+    table: TablePreset,
+    ball_radius_mm: float,
+    ball_mass_kg: float,
+    fps: float,
+    settings: PhysicsSettings = PhysicsSettings(),
+) -> ShotPhysics:
+    """Events, motion segments and measured contacts of one shot.
+
+    tracks / detections: tables as in DEVELOPERS.md (table frame, mm, s); raw detections are
+    fitted where a ball has them, else its visible track rows. ball_radius_mm, ball_mass_kg:
+    the ball set; fps: frame rate (Hz).
+    """
+    s = settings
+    _check_inputs(table, ball_radius_mm, ball_mass_kg, fps)
+    dt = 1.0 / fps
+    samples = ball_samples(tracks, detections, s)
+    if not samples:
+        raise FeltlabError("no ball has 3 or more samples; check the tracking output")
+    R, m = float(ball_radius_mm), float(ball_mass_kg)
+    onsets = {k: motion_onset(b, dt, s) for k, b in samples.items()}
+    cands = find_contacts(samples, table.length_mm, table.width_mm, R, dt, s)
+    layouts, maps = _layouts(samples, cands, onsets, dt, s)
+    fits: dict[str, ChainFit] = {}
+    for name, b in samples.items():
+        lay = layouts[name]
+        if lay.rest_first and lay.n_seg == 1:
+            fits[name] = _rest_fit(b, lay)
+        else:
+            fits[name] = fit_chain(b.t, b.xy, b.sig, lay, s)
+    contacts = _contacts_table(cands, fits, maps, table, R, m, dt)
+    segments, mu = _segments_table(fits, samples, s)
+    events = _events_table(samples, fits, layouts, maps, contacts, cands, dt, s)
+    return ShotPhysics(events, segments, contacts, *mu, fits=fits,
+                       rest_xy={k: o.rest_xy for k, o in onsets.items() if o.rest_xy is not None})
+
+
+def _rest_fit(b: BallSamples, lay: ChainLayout) -> ChainFit:
+    """A ball that never moves: weighted mean position and its covariance."""
+    w = 1.0 / b.sig**2
+    p = (b.xy * w).sum(0) / w.sum(0)
+    r = b.xy - p
+    chi2 = max(float(np.sum(r**2 * w)) / max(2 * len(b.t) - 2, 1), 0.5)
+    cov = np.diag(1.0 / w.sum(0)) * chi2
+    x = p.copy()
+    rms = float(np.sqrt(np.mean(np.sum(r**2, axis=1))))
+    return ChainFit(lay, x, cov, rms, len(b.t), chi2, b.t, b.xy, np.ones(len(b.t), bool))
+
+
+def _roll_flags(f: ChainFit, i: int, x=None) -> tuple[bool, bool]:
+    """(rolling or resting before break i, rolling or resting after break i)."""
+    tb = float(f.breaks(x)[i])
+    ph0 = f.phase_at(i, tb - 1e-6, x)
+    ph1 = f.phase_at(i + 1, tb + 1e-6, x)
+    return ph0 in ("roll", "rest"), ph1 in ("roll", "rest")
+
+
+def _contacts_table(cands, fits, maps, table, R, m, dt) -> pd.DataFrame:
+    rows = []
+    for ci, c in enumerate(cands):
+        if c.kind == "ball-ball":
+            fa, fb = fits.get(c.ball_a), fits.get(c.ball_b)
+            if fa is None or fb is None:
+                continue
+            ia, ib = maps[c.ball_a][0].get(ci), maps[c.ball_b][0].get(ci)
+            if ia is None or ib is None:
+                continue
+            na = len(fa.x)
+
+            def core_of(z, fa=fa, fb=fb, ia=ia, ib=ib, na=na):
+                return ball_ball_core(fa, ia, z[:na], fb, ib, z[na:], R, dt)
+
+            xz = np.concatenate([fa.x, fb.x])
+            cz = np.zeros((len(xz), len(xz)))
+            cz[:na, :na] = fa.cov
+            cz[na:, na:] = fb.cov
+            core = core_of(xz)
+            var = propagate(lambda z: np.array([core_of(z)["e"], core_of(z)["t"]]), xz, cz)
+            rolls_a, rolls_b = _roll_flags(fa, ia), _roll_flags(fb, ib)
+            d = derived(core, m, True, rolls_a, rolls_b)
+            pt = core["pa"] + R * core["n"]
+            phase_a = fa.phase_at(ia, float(fa.breaks()[ia]) - 1e-6)
+            phase_b = fb.phase_at(ib, float(fb.breaks()[ib]) - 1e-6)
+            vb0, vb1 = core["vb0"], core["vb1"]
+            cushion = ""
+        else:
+            f = fits.get(c.ball_a)
+            i = maps[c.ball_a][0].get(ci) if f is not None else None
+            if i is None:
+                continue
+
+            def core_of(z, f=f, i=i, c=c):
+                return cushion_core(f, i, z, c.cushion, c.normal, table.length_mm, table.width_mm, R, dt)
+
+            core = core_of(f.x)
+            var = propagate(lambda z: np.array([core_of(z)["e"], core_of(z)["t"]]), f.x, f.cov)
+            d = derived(core, m, False, _roll_flags(f, i), (False, False))
+            pt = core["pa"] - R * core["n"]
+            phase_a = f.phase_at(i, float(f.breaks()[i]) - 1e-6)
+            phase_b = ""
+            vb0 = vb1 = np.full(2, np.nan)
+            cushion = c.cushion
+        row = dict(
+            contact=len(rows), t_s=core["t"], t_sigma_s=float(np.sqrt(var[1])), kind=c.kind,
+            ball_a=c.ball_a, ball_b=c.ball_b, cushion=cushion, nx=core["n"][0], ny=core["n"][1],
+            va_in_x_mm_s=core["va0"][0], va_in_y_mm_s=core["va0"][1],
+            va_out_x_mm_s=core["va1"][0], va_out_y_mm_s=core["va1"][1],
+            vb_in_x_mm_s=vb0[0], vb_in_y_mm_s=vb0[1], vb_out_x_mm_s=vb1[0], vb_out_y_mm_s=vb1[1],
+            e=float(core["e"]), e_sigma=float(np.sqrt(var[0])),
+            a_phase_in=phase_a, b_phase_in=phase_b, x_mm=pt[0], y_mm=pt[1], _cand=ci,
+        )
+        row.update(d)
+        rows.append(row)
+    df = pd.DataFrame(rows, columns=CONTACT_COLUMNS + ["_cand"])
+    df = df.sort_values("t_s").reset_index(drop=True)
+    df["contact"] = np.arange(len(df))
+    return df
+
+
+def _segments_table(fits: dict[str, ChainFit], samples, s: PhysicsSettings):
+    rows = []
+    g = s.g_mm_s2
+    mus, mur = [], []
+    for name, f in fits.items():
+        lay = f.layout
+        if lay.rest_first and lay.n_seg == 1:
+            sd = np.sqrt(np.diag(f.cov))
+            rows.append(dict(ball=name, segment=0, t0_s=f.t[0], t1_s=f.t[-1], phase="rest",
+                             x0_mm=f.x[0], y0_mm=f.x[1], vx0_mm_s=0.0, vy0_mm_s=0.0,
+                             ax_mm_s2=0.0, ay_mm_s2=0.0, x0_sigma_mm=sd[0], y0_sigma_mm=sd[1],
+                             vx0_sigma_mm_s=0.0, vy0_sigma_mm_s=0.0, ax_sigma_mm_s2=0.0,
+                             ay_sigma_mm_s2=0.0, t_roll_s=np.nan, mu=np.nan, mu_sigma=np.nan,
+                             rms_mm=f.rms_mm, n_points=f.n_points))
+            continue
+        starts, _ = segment_starts(f.x, lay)
+        ends = np.concatenate([starts[1:], [f.t[-1]]])
+        tu = f.t[f.used]
+        for k in range(lay.n_seg):
+            t0, t1 = float(starts[k]), float(ends[k])
+            npts = int(((tu >= t0) & (tu < t1)).sum())
+            P, V = f.state(np.array([t0 + 1e-9]))
+            par = unpack_segment(f.x, lay, k)
+            base = dict(ball=name, segment=k, rms_mm=f.rms_mm, n_points=npts)
+            if par is None:
+                sd = np.sqrt(np.diag(f.cov))[:2]
+                rows.append(dict(base, t0_s=t0, t1_s=t1, phase="rest", x0_mm=P[0, 0], y0_mm=P[0, 1],
+                                 vx0_mm_s=0.0, vy0_mm_s=0.0, ax_mm_s2=0.0, ay_mm_s2=0.0,
+                                 x0_sigma_mm=sd[0], y0_sigma_mm=sd[1], t_roll_s=np.nan, mu=np.nan,
+                                 mu_sigma=np.nan))
+                continue
+            v0, a, t_roll, a_r = par
+            o = lay.move_offset(k)
+            t_r = t0 + t_roll
+            vr = v0 + a * t_roll
+            sp = float(np.hypot(*vr))
+            t_stop = t_r + (sp / a_r if a_r > 0 else np.inf)
+            # sigmas of the segment-start state and accelerations by propagation
+            def vals(z, k=k, t0=t0):
+                Pz, Vz, _ = chain_eval_pos(f, z, t0)
+                pz = unpack_segment(z, lay, k)
+                vrz = pz[0] + pz[1] * pz[2]
+                u = vrz / max(np.hypot(*vrz), 1e-12)
+                return np.array([Pz[0], Pz[1], Vz[0], Vz[1], pz[1][0], pz[1][1],
+                                 np.hypot(*pz[1]) / g, pz[3] / g, *(-pz[3] * u)])
+            var = propagate(vals, f.x, f.cov)
+            sd = np.sqrt(var)
+            if t_roll > 0 and t0 < min(t_r, t1):
+                rows.append(dict(base, t0_s=t0, t1_s=min(t_r, t1), phase="slide",
+                                 x0_mm=P[0, 0], y0_mm=P[0, 1], vx0_mm_s=v0[0], vy0_mm_s=v0[1],
+                                 ax_mm_s2=a[0], ay_mm_s2=a[1], x0_sigma_mm=sd[0], y0_sigma_mm=sd[1],
+                                 vx0_sigma_mm_s=sd[2], vy0_sigma_mm_s=sd[3], ax_sigma_mm_s2=sd[4],
+                                 ay_sigma_mm_s2=sd[5], t_roll_s=t_r if t_r < t1 else np.nan,
+                                 mu=float(np.hypot(*a) / g), mu_sigma=sd[6]))
+                n_slide = int(((tu >= t0) & (tu < min(t_r, t1))).sum())
+                if n_slide >= 6 and np.isfinite(sd[6]) and sd[6] > 0:
+                    mus.append((np.hypot(*a) / g, sd[6]))
+            if t_r < t1:
+                Pr, Vr = f.state(np.array([max(t_r, t0) + 1e-9]))
+                u = vr / max(sp, 1e-12)
+                rows.append(dict(base, t0_s=max(t_r, t0), t1_s=min(t_stop, t1), phase="roll",
+                                 x0_mm=Pr[0, 0], y0_mm=Pr[0, 1], vx0_mm_s=Vr[0, 0], vy0_mm_s=Vr[0, 1],
+                                 ax_mm_s2=-a_r * u[0], ay_mm_s2=-a_r * u[1],
+                                 ax_sigma_mm_s2=sd[8], ay_sigma_mm_s2=sd[9],
+                                 t_roll_s=t_r, mu=a_r / g, mu_sigma=sd[7]))
+                n_roll = int(((tu >= max(t_r, t0)) & (tu < min(t_stop, t1))).sum())
+                hi = s.mu_r_max * g
+                if n_roll >= 10 and 0 < a_r < 0.999 * hi and np.isfinite(sd[7]) and sd[7] > 0:
+                    mur.append((a_r / g, sd[7]))
+            if t_stop < t1:
+                Ps, _ = f.state(np.array([t_stop + 1e-9]))
+                rows.append(dict(base, t0_s=t_stop, t1_s=t1, phase="rest", x0_mm=Ps[0, 0],
+                                 y0_mm=Ps[0, 1], vx0_mm_s=0.0, vy0_mm_s=0.0, ax_mm_s2=0.0,
+                                 ay_mm_s2=0.0, t_roll_s=t_r, mu=np.nan, mu_sigma=np.nan))
+    seg = pd.DataFrame(rows, columns=SEGMENT_COLUMNS)
+    return seg, (*_combine(mus), *_combine(mur))
+
+
+def chain_eval_pos(f: ChainFit, z: np.ndarray, t0: float):
+    P, V = f.state(np.array([t0 + 1e-9]), z)
+    return P[0], V[0], None
+
+
+def _combine(vals) -> tuple[float, float]:
+    """Weighted mean and its sigma (inflated by the scatter when estimates disagree)."""
+    if not vals:
+        return float("nan"), float("nan")
+    v = np.array([x for x, _ in vals])
+    sg = np.array([e for _, e in vals])
+    w = 1 / sg**2
+    mean = float((v * w).sum() / w.sum())
+    se = float(1 / np.sqrt(w.sum()))
+    if len(v) > 1:
+        chi2 = float(((v - mean) ** 2 * w).sum() / (len(v) - 1))
+        se *= max(1.0, np.sqrt(chi2))
+    return mean, se
+
+
+def _events_table(samples, fits, layouts, maps, contacts, cands, dt, s) -> pd.DataFrame:
+    rows = []
+    t_end = max(float(b.t[-1]) for b in samples.values())
+    for name, f in fits.items():
+        lay = f.layout
+        merged = maps[name][1]
+        for i, br in enumerate(merged):
+            if br.kind == "strike":
+                k = lay.break_offset + i
+                rows.append(dict(t_s=float(f.x[k]), t_sigma_s=float(np.sqrt(max(f.cov[k, k], 0))),
+                                 kind="strike", ball=name, other="", contact=-1))
+        b = samples[name]
+        if b.t[-1] < t_end - s.leave_frames * dt:
+            rows.append(dict(t_s=float(b.t[-1] + 0.5 * dt), t_sigma_s=0.5 * dt, kind="leave",
+                             ball=name, other="", contact=-1))
+    seg_rest = []
+    for _, c in contacts.iterrows():
+        for ball, other in ((c.ball_a, c.ball_b or c.cushion), (c.ball_b, c.ball_a)):
+            if ball:
+                rows.append(dict(t_s=c.t_s, t_sigma_s=c.t_sigma_s, kind=c.kind, ball=ball,
+                                 other=other, contact=int(c.contact)))
+    ev = pd.DataFrame(rows, columns=[c for c in EVENT_COLUMNS if c != "event"])
+    ev = pd.concat([ev, seg_rest and pd.DataFrame(seg_rest) or pd.DataFrame(columns=ev.columns)])
+    ev = ev.sort_values(["t_s", "ball"]).reset_index(drop=True)
+    ev.insert(0, "event", np.arange(len(ev)))
+    return ev

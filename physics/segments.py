@@ -1,0 +1,375 @@
+"""Motion models between contacts and their robust weighted fits.
+
+Table frame, mm and s throughout. Between two breaks (strike, contacts) a ball is in one
+*move segment* with time ``tau`` (s) counted from the segment start:
+
+* slide phase, ``0 <= tau < t_roll``: constant acceleration ``a`` (mm/s^2). Under Coulomb
+  friction with the cloth the contact-point slip velocity keeps its direction while the ball
+  slides, so ``a = -mu_s g u_hat`` is constant and the path is a parabola
+  ``p = p0 + v0 tau + a tau^2 / 2`` (it curves when the ball carries spin).
+* roll phase, ``tau >= t_roll``: deceleration ``a_r = mu_r g`` along the velocity (a straight
+  line) until the ball stops, then rest.
+
+Position and velocity are continuous at ``t_roll``. A ball that rests before its first break
+is in a *rest segment* (constant position).
+
+A ball's whole path is a *chain*: one start position, the parameters of each move segment and
+the break times. Each segment starts where the previous one is at the break, so positions are
+continuous through a contact (the contact itself lasts well under a frame, see
+:mod:`physics.settings`) and only velocities jump. :func:`fit_chain` fits a chain to the raw
+samples by robust weighted least squares (``scipy.optimize.least_squares``) and returns the
+parameter covariance.
+
+Example (a ball rolling from rest-free start at 1000 mm/s with mu_r = 0.01):
+
+>>> import numpy as np
+>>> d, v = move_motion(np.array([0.0, 1.0]), np.array([1000.0, 0]), np.zeros(2), 0.0, 98.0665)
+>>> round(float(v[1, 0]), 1), round(float(d[1, 0]), 1)
+(901.9, 951.0)
+"""
+from __future__ import annotations
+
+from dataclasses import dataclass, field
+
+import numpy as np
+from scipy.optimize import least_squares
+
+from physics.settings import PhysicsSettings
+
+#: Parameters per move segment: v0x, v0y, ax, ay, t_roll, a_r.
+N_MOVE = 6
+
+
+def move_motion(
+    tau: np.ndarray, v0: np.ndarray, a: np.ndarray, t_roll: float, a_r: float
+) -> tuple[np.ndarray, np.ndarray]:
+    """Displacement (T,2) mm and velocity (T,2) mm/s of a move segment at times ``tau`` (s).
+
+    ``v0`` mm/s and ``a`` mm/s^2 are 2-vectors (table frame); ``t_roll`` s from the segment
+    start (<= 0: rolling from the start); ``a_r`` >= 0 rolling deceleration, mm/s^2.
+    Negative ``tau`` extrapolates the slide parabola backwards.
+    """
+    tau = np.atleast_1d(np.asarray(tau, dtype=float))
+    tr0 = max(float(t_roll), 0.0)
+    vr = v0 + a * tr0
+    speed = float(np.hypot(vr[0], vr[1]))
+    u = vr / speed if speed > 1e-12 else np.zeros(2)
+    t_stop = speed / a_r if a_r > 1e-12 else np.inf
+    ts = np.minimum(tau, tr0)
+    tr = np.clip(tau - tr0, 0.0, t_stop)
+    sr = speed * tr - 0.5 * a_r * tr**2
+    disp = np.outer(ts, v0) + np.outer(0.5 * ts**2, a) + np.outer(sr, u)
+    vel = v0[None, :] + np.outer(ts, a) - np.outer(a_r * tr, u)
+    return disp, vel
+
+
+@dataclass
+class ChainLayout:
+    """Structure of one ball's chain.
+
+    t_start: reference time of segment 0 (s; its first sample). rest_first: segment 0 is a
+    rest segment. break_kinds: one label per break ('strike', 'ball-ball', 'ball-cushion').
+    break_init: initial break times (s); break_halfwidth: how far (s) each break may move.
+    guards: samples closer than this (s) to each break are left out of the fit.
+    """
+
+    ball: str
+    t_start: float
+    rest_first: bool
+    break_kinds: list[str]
+    break_init: np.ndarray
+    break_halfwidth: np.ndarray
+    guards: np.ndarray
+
+    @property
+    def n_seg(self) -> int:
+        return len(self.break_kinds) + 1
+
+    @property
+    def n_move(self) -> int:
+        return self.n_seg - (1 if self.rest_first else 0)
+
+    @property
+    def n_par(self) -> int:
+        return 2 + N_MOVE * self.n_move + (self.n_seg - 1)
+
+    def move_offset(self, seg: int) -> int | None:
+        """Index of segment ``seg``'s first parameter, None for a rest segment."""
+        if self.rest_first and seg == 0:
+            return None
+        j = seg - (1 if self.rest_first else 0)
+        return 2 + N_MOVE * j
+
+    @property
+    def break_offset(self) -> int:
+        return 2 + N_MOVE * self.n_move
+
+
+def unpack_segment(x: np.ndarray, lay: ChainLayout, seg: int):
+    """(v0, a, t_roll, a_r) of a move segment, or None for a rest segment."""
+    o = lay.move_offset(seg)
+    if o is None:
+        return None
+    return x[o : o + 2], x[o + 2 : o + 4], float(x[o + 4]), float(x[o + 5])
+
+
+def segment_starts(x: np.ndarray, lay: ChainLayout) -> tuple[np.ndarray, np.ndarray]:
+    """Start times (n_seg,) s and start positions (n_seg, 2) mm of every segment."""
+    br = x[lay.break_offset : lay.break_offset + lay.n_seg - 1]
+    starts = np.concatenate([[lay.t_start], br])
+    pos = np.zeros((lay.n_seg, 2))
+    pos[0] = x[0:2]
+    for k in range(1, lay.n_seg):
+        pos[k] = _segment_eval(x, lay, k - 1, np.array([starts[k]]), starts, pos)[0][0]
+    return starts, pos
+
+
+def _segment_eval(x, lay, seg, t, starts, pos):
+    par = unpack_segment(x, lay, seg)
+    if par is None:
+        return np.repeat(pos[seg][None, :], len(t), 0), np.zeros((len(t), 2))
+    v0, a, t_roll, a_r = par
+    d, v = move_motion(t - starts[seg], v0, a, t_roll, a_r)
+    return pos[seg][None, :] + d, v
+
+
+def chain_eval(
+    x: np.ndarray, lay: ChainLayout, t: np.ndarray, seg: np.ndarray | None = None
+) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """Positions (T,2) mm, velocities (T,2) mm/s and segment index (T,) at times ``t`` (s).
+
+    ``seg`` forces the segment used for each time (e.g. to extrapolate a segment past its end).
+    """
+    t = np.atleast_1d(np.asarray(t, dtype=float))
+    starts, pos = segment_starts(x, lay)
+    if seg is None:
+        seg = np.clip(np.searchsorted(starts, t, side="right") - 1, 0, lay.n_seg - 1)
+    seg = np.broadcast_to(np.asarray(seg, dtype=int), t.shape)
+    P = np.zeros((len(t), 2))
+    V = np.zeros((len(t), 2))
+    for k in np.unique(seg):
+        m = seg == k
+        P[m], V[m] = _segment_eval(x, lay, int(k), t[m], starts, pos)
+    return P, V, seg
+
+
+def _priors(x: np.ndarray, lay: ChainLayout, s: PhysicsSettings) -> np.ndarray:
+    out = []
+    g = s.g_mm_s2
+    for k in range(lay.n_seg):
+        par = unpack_segment(x, lay, k)
+        if par is None:
+            continue
+        _, a, _, a_r = par
+        out.append((np.hypot(*a) - s.mu_s_prior * g) / (s.mu_s_prior_sigma * g))
+        out.append((a_r - s.mu_r_prior * g) / (s.mu_r_prior_sigma * g))
+    return np.asarray(out)
+
+
+@dataclass
+class ChainFit:
+    """A fitted chain: parameters ``x``, covariance ``cov`` (scaled by the reduced chi^2),
+    ``rms_mm`` of the used samples, ``n_points`` used, ``chi2_red``, and the samples."""
+
+    layout: ChainLayout
+    x: np.ndarray
+    cov: np.ndarray
+    rms_mm: float
+    n_points: int
+    chi2_red: float
+    t: np.ndarray = field(repr=False)
+    xy: np.ndarray = field(repr=False)
+    used: np.ndarray = field(repr=False)
+
+    def state(self, t, x: np.ndarray | None = None):
+        """Positions (T,2) mm and velocities (T,2) mm/s of the fitted model at times ``t`` (s)."""
+        P, V, _ = chain_eval(self.x if x is None else x, self.layout, t)
+        return P, V
+
+    def breaks(self, x: np.ndarray | None = None) -> np.ndarray:
+        x = self.x if x is None else x
+        o = self.layout.break_offset
+        return x[o : o + self.layout.n_seg - 1]
+
+    def at_break(self, i: int, x: np.ndarray | None = None):
+        """(t_b s, position (2,) mm, velocity before (2,), velocity after (2,)) at break ``i``."""
+        x = self.x if x is None else x
+        tb = float(self.breaks(x)[i])
+        P0, V0, _ = chain_eval(x, self.layout, np.array([tb]), seg=np.array([i]))
+        P1, V1, _ = chain_eval(x, self.layout, np.array([tb]), seg=np.array([i + 1]))
+        return tb, P1[0], V0[0], V1[0]
+
+    def segment_at(self, t: float, x: np.ndarray | None = None) -> int:
+        x = self.x if x is None else x
+        starts, _ = segment_starts(x, self.layout)
+        return int(np.clip(np.searchsorted(starts, t, side="right") - 1, 0, self.layout.n_seg - 1))
+
+    def phase_at(self, seg: int, t: float, x: np.ndarray | None = None) -> str:
+        """'rest', 'slide' or 'roll' of segment ``seg`` at time ``t`` (s)."""
+        x = self.x if x is None else x
+        par = unpack_segment(x, self.layout, seg)
+        if par is None:
+            return "rest"
+        starts, _ = segment_starts(x, self.layout)
+        v0, a, t_roll, a_r = par
+        tau = t - starts[seg]
+        if tau < t_roll:
+            return "slide"
+        vr = v0 + a * max(t_roll, 0.0)
+        sp = float(np.hypot(*vr))
+        if a_r > 0 and tau - max(t_roll, 0.0) >= sp / a_r:
+            return "rest"
+        return "roll"
+
+
+def _residuals(x, lay, t, xy, sig, s):
+    P, _, _ = chain_eval(x, lay, t)
+    r = ((P - xy) / sig).ravel()
+    return np.concatenate([r, _priors(x, lay, s)])
+
+
+def used_mask(t: np.ndarray, lay: ChainLayout) -> np.ndarray:
+    """Samples outside every break's guard interval."""
+    m = np.ones(len(t), dtype=bool)
+    for b, gd in zip(lay.break_init, lay.guards):
+        m &= np.abs(t - b) > gd
+    return m
+
+
+def _bounds(lay: ChainLayout, t_end: float, s: PhysicsSettings):
+    n = lay.n_par
+    lo = np.full(n, -np.inf)
+    hi = np.full(n, np.inf)
+    starts = np.concatenate([[lay.t_start], lay.break_init])
+    ends = np.concatenate([lay.break_init, [t_end]])
+    g = s.g_mm_s2
+    for k in range(lay.n_seg):
+        o = lay.move_offset(k)
+        if o is None:
+            continue
+        lo[o + 2 : o + 4] = -s.mu_s_max * g
+        hi[o + 2 : o + 4] = s.mu_s_max * g
+        lo[o + 4], hi[o + 4] = 0.0, 3.0 * (ends[k] - starts[k]) + 0.1
+        lo[o + 5], hi[o + 5] = 0.0, s.mu_r_max * g
+    b = lay.break_offset
+    for i in range(lay.n_seg - 1):
+        lo[b + i] = lay.break_init[i] - lay.break_halfwidth[i]
+        hi[b + i] = lay.break_init[i] + lay.break_halfwidth[i]
+    return lo, hi
+
+
+def _move_start_guess(t, xy, sig, s: PhysicsSettings):
+    """Independent start values for one move segment (samples t, xy): (p0, v0, a, t_roll, a_r).
+
+    For each roll time on a grid the path is linear in its parameters if the roll phase is
+    approximated by a second constant acceleration (p0 + v0 tau + a (ts^2/2 + t_roll tr) +
+    b tr^2/2 with ts = min(tau, t_roll), tr = max(tau - t_roll, 0)); the grid point with the
+    smallest weighted residual is kept and then refined with the exact model.
+    """
+    t0 = t[0]
+    tau = t - t0
+    dur = max(tau[-1], 1e-3)
+    w = 1.0 / sig
+    best = None
+    grid = np.unique(np.concatenate([np.linspace(0.0, dur, 21), [1.5 * dur]]))
+    for tr0 in grid:
+        ts = np.minimum(tau, tr0)
+        tr = np.maximum(tau - tr0, 0.0)
+        cols = [np.ones_like(tau), tau, 0.5 * ts**2 + tr0 * tr]
+        n_roll = int((tr > 0).sum())
+        if n_roll >= 3:
+            cols.append(0.5 * tr**2)
+        A = np.column_stack(cols)
+        if len(t) < A.shape[1] + 1:
+            A = A[:, :2]
+        cost = 0.0
+        coefs = []
+        for i in range(2):
+            Aw = A * w[:, i : i + 1]
+            c, *_ = np.linalg.lstsq(Aw, xy[:, i] * w[:, i], rcond=None)
+            r = xy[:, i] * w[:, i] - Aw @ c
+            cost += float(r @ r)
+            coefs.append(np.concatenate([c, np.zeros(4 - len(c))]))
+        if best is None or cost < best[0] - 1e-9:
+            best = (cost, tr0, coefs)
+    _, tr0, (cx, cy) = best
+    g = s.g_mm_s2
+    p0 = np.array([cx[0], cy[0]])
+    v0 = np.array([cx[1], cy[1]])
+    a = np.array([cx[2], cy[2]])
+    b = np.array([cx[3], cy[3]])
+    vr = v0 + a * tr0
+    sp = np.hypot(*vr)
+    a_r = float(-(b @ vr) / sp) if sp > 1e-9 else s.mu_r_prior * g
+    a_r = float(np.clip(a_r, 0.0, s.mu_r_max * g))
+    if tr0 >= dur:
+        a_r = s.mu_r_prior * g
+    lay = ChainLayout("", t0, False, [], np.zeros(0), np.zeros(0), np.zeros(0))
+    lo, hi = _bounds(lay, t[-1], s)
+    x0 = np.clip(np.concatenate([p0, v0, a, [tr0, a_r]]), lo, hi)
+    try:
+        r = least_squares(
+            _residuals, x0, bounds=(lo, hi), args=(lay, t, xy, sig, s),
+            loss=s.loss, f_scale=s.f_scale, x_scale="jac", max_nfev=100,
+        )
+        x = r.x
+    except ValueError:
+        x = x0
+    return x[0:2], x[2:4], x[4:6], x[6], x[7]
+
+
+def fit_chain(
+    t: np.ndarray,
+    xy: np.ndarray,
+    sig: np.ndarray,
+    lay: ChainLayout,
+    s: PhysicsSettings,
+) -> ChainFit:
+    """Fit a ball's chain to samples ``t`` (T,) s, ``xy`` (T,2) mm with sigmas ``sig`` (T,2) mm.
+
+    Samples inside a break's guard are left out. Each move segment is first fitted on its own
+    (multi-start on the roll time); the chain is then fitted as a whole with continuous
+    positions. Covariance: (J^T J)^-1 times the reduced chi^2 (floored, see settings).
+    """
+    used = used_mask(t, lay)
+    tu, xyu, sgu = t[used], xy[used], sig[used]
+    x0 = np.zeros(lay.n_par)
+    edges = np.concatenate([[lay.t_start], lay.break_init, [t[-1] + 1e-9]])
+    prev_end = None
+    for k in range(lay.n_seg):
+        m = (tu >= edges[k]) & (tu < edges[k + 1]) if k < lay.n_seg - 1 else (tu >= edges[k])
+        o = lay.move_offset(k)
+        if o is None:
+            x0[0:2] = np.median(xyu[m], axis=0) if m.any() else xy[0]
+            continue
+        if m.sum() >= 3:
+            p0, v0, a, tr, ar = _move_start_guess(tu[m], xyu[m], sgu[m], s)
+            # the segment starts at the break, not at its first sample
+            d, vv = move_motion(np.array([edges[k] - tu[m][0]]), v0, a, tr, ar)
+            p0 = p0 + d[0]
+            v0 = vv[0]
+            tr = max(tr - (edges[k] - tu[m][0]), 0.0)
+        else:
+            p0 = prev_end if prev_end is not None else (xyu[m][0] if m.any() else xy[0])
+            v0 = np.zeros(2)
+            a = np.zeros(2)
+            tr, ar = 0.0, s.mu_r_prior * s.g_mm_s2
+        if k == 0:
+            x0[0:2] = p0
+        x0[o : o + 6] = np.concatenate([v0, a, [tr, ar]])
+    x0[lay.break_offset : lay.break_offset + lay.n_seg - 1] = lay.break_init
+    lo, hi = _bounds(lay, t[-1], s)
+    x0 = np.clip(x0, lo, hi)
+    res = least_squares(
+        _residuals, x0, bounds=(lo, hi), args=(lay, tu, xyu, sgu, s),
+        loss=s.loss, f_scale=s.f_scale, x_scale="jac", max_nfev=400,
+    )
+    J = res.jac
+    n_data = 2 * len(tu)
+    dof = max(n_data - lay.n_par, 1)
+    chi2 = 2.0 * res.cost / dof
+    chi2 = max(chi2, s.chi2_floor)
+    cov = np.linalg.pinv(J.T @ J) * chi2
+    P, _, _ = chain_eval(res.x, lay, tu)
+    rms = float(np.sqrt(np.mean(np.sum((P - xyu) ** 2, axis=1)))) if len(tu) else float("nan")
+    return ChainFit(lay, res.x, cov, rms, int(len(tu)), float(chi2), t, xy, used)

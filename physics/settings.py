@@ -1,0 +1,105 @@
+"""Tolerances and defaults of the physics stage (tracks -> events, segments, contacts).
+
+Units: mm, s, mm/s, mm/s^2. Each value says where it comes from: a published figure
+(see /work/shared/REFERENCES.md and :mod:`feltlab.standards`), "common practice", "from memory",
+or "design choice" (a statistical or numerical choice of ours, not a physical constant).
+"""
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+from feltlab.standards import (
+    G_MM_S2,
+    MU_ROLL_RANGE,
+    MU_ROLL_TYPICAL,
+    MU_SLIDE_CLOTH_RANGE,
+    MU_SLIDE_CLOTH_TYPICAL,
+)
+
+
+@dataclass(frozen=True)
+class PhysicsSettings:
+    """Settings of :func:`physics.pipeline.analyze_tracks`.
+
+    Geometry of candidates: a contact is looked for where the sampled gap (centre distance
+    minus 2R, or distance to a cushion-nose line minus R) has a local minimum below
+    ``gap_margin_mm + gap_margin_sigma * sigma + speed * frame period`` (a ball can travel
+    one frame period between the last sample and the touch).
+
+    Kinematic evidence: on each side of a candidate a quadratic per coordinate is fitted over
+    ``side_window_s`` (at least ``min_side_points`` samples); the velocity jump at the candidate
+    must exceed both ``dv_min_mm_s`` and ``dv_z`` standard errors, along the physically required
+    direction (line of centres, cushion normal).
+    """
+
+    #: Standard gravity, mm/s^2 (CGPM conventional value, feltlab.standards).
+    g_mm_s2: float = G_MM_S2
+    #: Position sigma used when a table gives none (mm). Design choice: ~1 mm single-camera
+    #: tracking (Mathavan, Jackson & Parkin, Am. J. Phys. 77:788, 2009) halved for sub-pixel centroids.
+    default_sigma_mm: float = 0.5
+    #: Floor on any per-sample sigma (mm); guards against zero sigmas in input. Design choice.
+    min_sigma_mm: float = 0.05
+
+    # -- rest / motion ------------------------------------------------------------------
+    #: A ball slower than this (local fit) is at rest (mm/s). Design choice: ~1% of the slowest
+    #: shot band (450 mm/s, Physics of Pool FAQ) plus a noise allowance below.
+    rest_speed_mm_s: float = 8.0
+    #: ... and slower than this many standard errors of the local speed. Design choice.
+    rest_speed_z: float = 4.0
+    #: Window of the local speed fit (s); at least 5 samples. Design choice.
+    speed_window_s: float = 0.05
+
+    # -- contact candidates -----------------------------------------------------------------
+    gap_margin_mm: float = 3.0
+    gap_margin_sigma: float = 4.0
+    #: Fraction of (speed x frame period) added to the gap margin. 1.0 covers a touch anywhere
+    #: between two samples. Geometry, not tuned.
+    gap_margin_frames: float = 1.0
+
+    # -- kinematic evidence -----------------------------------------------------------------
+    side_window_s: float = 0.08
+    min_side_points: int = 3
+    #: Minimum velocity jump of a contact (mm/s). The truth convention of our outside test
+    #: footage calls a contact significant at >= 30 mm/s normal change; we accept a bit lower.
+    dv_min_mm_s: float = 20.0
+    #: Velocity jump must exceed this many standard errors. Design choice (false-alarm rate
+    #: ~1e-6 per candidate for a Gaussian test).
+    dv_z: float = 5.0
+
+    # -- samples left out around a contact ---------------------------------------------------
+    #: Ball-ball contact lasts ~0.24-0.45 ms (Hertz estimate, REFERENCES.md): samples closer than
+    #: this to the break are not fitted (s).
+    guard_ball_s: float = 0.0006
+    #: Ball-cushion contacts last a few ms (from memory: 2-5 ms for pool cushions at medium
+    #: speed); samples within this of the break are not fitted (s).
+    guard_cushion_s: float = 0.004
+    #: Cue-tip contact lasts ~1 ms (from memory); guard at a strike (s).
+    guard_strike_s: float = 0.002
+
+    # -- motion-model priors (weak; keep parameters defined when data say nothing) -----------
+    #: Ball-cloth sliding friction, typical 0.2, range 0.15-0.4 (Physics of Pool FAQ, CSU).
+    mu_s_prior: float = MU_SLIDE_CLOTH_TYPICAL
+    mu_s_prior_sigma: float = MU_SLIDE_CLOTH_RANGE[1] - MU_SLIDE_CLOTH_TYPICAL
+    #: Rolling resistance as deceleration / g, typical 0.01, range 0.005-0.015 (same source;
+    #: the "force / weight" definition, R. Cross, Am. J. Phys. 90(9):648, 2022).
+    mu_r_prior: float = MU_ROLL_TYPICAL
+    mu_r_prior_sigma: float = MU_ROLL_RANGE[1] - MU_ROLL_TYPICAL + 0.005
+    #: Upper bound of the fitted rolling deceleration / g. Design choice (10x the published max).
+    mu_r_max: float = 0.15
+    #: Upper bound of the fitted sliding deceleration / g. Design choice (2x the published max).
+    mu_s_max: float = 0.8
+
+    # -- robust fitting ----------------------------------------------------------------------
+    #: scipy.optimize.least_squares loss and scale (in standard errors). Design choice: quadratic
+    #: up to ~3 sigma, so Gaussian noise keeps full efficiency and outliers lose weight.
+    loss: str = "soft_l1"
+    f_scale: float = 3.0
+    #: Multi-start fractions of a segment's duration for the slide->roll time. Design choice.
+    t_roll_starts: tuple[float, ...] = (0.0, 0.1, 0.25, 0.45, 0.7, 1.0, 1.6)
+    #: Floor on the reduced chi^2 that scales the covariance (design choice: input sigmas may be
+    #: overstated, but never trust them to be more than 2x too large).
+    chi2_floor: float = 0.5
+
+    # -- leaving the table -----------------------------------------------------------------
+    #: A ball whose samples stop this many frame periods before the clip end left the table.
+    leave_frames: int = 3
