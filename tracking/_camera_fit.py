@@ -1,0 +1,214 @@
+"""Least-squares camera fits against the table: edge points on nose lines, or corner points.
+
+Camera model: :class:`tracking.camera.CameraModel` (pinhole + OpenCV radial
+distortion, see the OpenCV calib3d documentation). Unknowns: one focal length
+(square pixels), the pose (Rodrigues rotation vector + translation, mm), and
+radial k1 (optionally k2). The principal point is held at the image centre:
+it cannot be separated from the pose with a single plane (Zhang, "A flexible
+new technique for camera calibration", IEEE PAMI 22(11), 2000, needs several
+plane orientations for it).
+"""
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import cv2
+import numpy as np
+from scipy.optimize import least_squares
+
+from tracking.camera import CameraModel
+
+#: side name -> (axis index of the coordinate that is fixed, which dimension)
+SIDES = {"y0": (1, 0.0), "xL": (0, 1.0), "yW": (1, 1.0), "x0": (0, 0.0)}
+SIDE_ORDER = ("y0", "xL", "yW", "x0")
+
+
+def camera_from_params(p: np.ndarray, image_size: tuple[int, int], k1: float | None = None,
+                       fit_k1: bool = True, fit_k2: bool = False) -> CameraModel:
+    """Build a camera from the parameter vector [f, rvec(3), t(3), (k1), (k2)]."""
+    w, h = image_size
+    f = p[0]
+    K = np.array([[f, 0, (w - 1) / 2.0], [0, f, (h - 1) / 2.0], [0, 0, 1]])
+    R, _ = cv2.Rodrigues(np.asarray(p[1:4], float))
+    i = 7
+    kk1 = 0.0 if k1 is None else float(k1)
+    kk2 = 0.0
+    if fit_k1:
+        kk1 = p[i]
+        i += 1
+    if fit_k2:
+        kk2 = p[i]
+    return CameraModel(K=K, dist=[kk1, kk2, 0, 0, 0], R=R, t=p[4:7], image_size=(w, h))
+
+
+def params_from_camera(cam: CameraModel, fit_k1: bool = True, fit_k2: bool = False) -> np.ndarray:
+    rvec, _ = cv2.Rodrigues(cam.R)
+    p = [cam.K[0, 0], *rvec.ravel(), *cam.t]
+    if fit_k1:
+        p.append(cam.dist[0])
+    if fit_k2:
+        p.append(cam.dist[1])
+    return np.array(p, float)
+
+
+def initial_camera(corners_px: np.ndarray, corners_mm: np.ndarray, image_size: tuple[int, int],
+                   focal_px: float | None = None, k1: float = 0.0) -> CameraModel:
+    """Camera from four (or more) coplanar point pairs, focal scanned if not given.
+
+    corners_mm: (N, 3) table points (a common z). For each trial focal the pose
+    comes from OpenCV's planar PnP (IPPE, Collins & Bartoli, IJCV 2014); the
+    focal with the smallest reprojection error wins.
+    """
+    w, h = image_size
+    obj = np.asarray(corners_mm, np.float64).reshape(-1, 3)
+    img = np.asarray(corners_px, np.float64).reshape(-1, 2)
+    focals = [focal_px] if focal_px else list(np.geomspace(0.3 * w, 5.0 * w, 40))
+    best = None
+    for f in focals:
+        K = np.array([[f, 0, (w - 1) / 2.0], [0, f, (h - 1) / 2.0], [0, 0, 1]])
+        dist = np.array([k1, 0, 0, 0, 0], float)
+        try:
+            ok, rvec, tvec = cv2.solvePnP(obj, img, K, dist, flags=cv2.SOLVEPNP_IPPE)
+        except cv2.error:
+            ok = False
+        if not ok:
+            continue
+        proj, _ = cv2.projectPoints(obj, rvec, tvec, K, dist)
+        err = float(np.sqrt(np.mean(np.sum((proj.reshape(-1, 2) - img) ** 2, axis=1))))
+        R, _ = cv2.Rodrigues(rvec)
+        cam = CameraModel(K=K, dist=dist, R=R, t=tvec.ravel(), image_size=(w, h))
+        if cam.centre_mm[2] <= obj[0, 2]:
+            continue  # camera under the table
+        if best is None or err < best[0]:
+            best = (err, cam)
+    if best is None:
+        raise ValueError("no camera pose fits the table corners")
+    return best[1]
+
+
+@dataclass
+class EdgeFit:
+    """Result of :func:`fit_edges`: the camera and per-point residuals (mm on the nose plane, px)."""
+
+    camera: CameraModel
+    resid_mm: np.ndarray
+    resid_px: np.ndarray
+    length_scale: float = 1.0
+
+
+def backproject_radial(cam: CameraModel, px: np.ndarray, z_mm: float) -> np.ndarray:
+    """Fast back-projection (N,3) onto the plane z for radial-only distortion (k1, k2).
+
+    Inverts r_d = r_u (1 + k1 r_u^2 + k2 r_u^4) by Newton's method on the
+    radius (same model as OpenCV's; CameraModel.undistort_pixels handles the
+    general case).
+    """
+    k1, k2 = cam.dist[0], cam.dist[1]
+    f, cx, cy = cam.K[0, 0], cam.K[0, 2], cam.K[1, 2]
+    xd = (px[:, 0] - cx) / f
+    yd = (px[:, 1] - cy) / cam.K[1, 1]
+    rd = np.sqrt(xd * xd + yd * yd)
+    ru = rd.copy()
+    for _ in range(8):
+        r2 = ru * ru
+        g = ru * (1 + k1 * r2 + k2 * r2 * r2) - rd
+        dg = 1 + 3 * k1 * r2 + 5 * k2 * r2 * r2
+        ru = ru - g / np.where(np.abs(dg) < 1e-6, 1e-6, dg)
+    ratio = np.where(rd > 1e-12, ru / np.maximum(rd, 1e-12), 1.0)
+    d = np.column_stack([xd * ratio, yd * ratio, np.ones_like(xd)]) @ cam.R
+    c = -cam.R.T @ cam.t
+    s = (z_mm - c[2]) / d[:, 2]
+    return c[None, :] + s[:, None] * d
+
+
+def _edge_resid_mm(cam: CameraModel, pts: dict[str, np.ndarray], L: float, W: float, z: float,
+                   ls: float = 1.0) -> np.ndarray:
+    out = []
+    for side in SIDE_ORDER:
+        p = pts.get(side)
+        if p is None or len(p) == 0:
+            continue
+        xyz = backproject_radial(cam, p, z)
+        ax, frac = SIDES[side]
+        dim = (L * ls) if ax == 0 else W
+        out.append(xyz[:, ax] - frac * dim)
+    return np.concatenate(out) if out else np.empty(0)
+
+
+def fit_edges(cam0: CameraModel, pts: dict[str, np.ndarray], L: float, W: float, z_mm: float,
+              fit_k2: bool = False, loss_scale_px: float = 0.5,
+              hfov_prior: tuple[float, float] | None = None, free_length: bool = False) -> EdgeFit:
+    """Fit focal, pose and radial distortion so the nose lines pass through the edge points.
+
+    pts: side name -> (N, 2) observed pixels on that cushion's nose line
+    (x = 0, x = L, y = 0 or y = W at height z_mm). Residual: distance (mm)
+    along the table axis between the point back-projected onto the nose plane
+    and the line, times the nominal scale (px/mm) so the loss works in pixels.
+    ``free_length`` also fits a factor on L (used to check the aspect ratio).
+    hfov_prior: (deg, sigma deg) weak prior on the horizontal field of view.
+    """
+    w = cam0.image_size[0]
+    scale = 1.0 / cam0.mm_per_px([L / 2, W / 2, z_mm])
+    p0 = params_from_camera(cam0, True, fit_k2)
+    if free_length:
+        p0 = np.append(p0, 1.0)
+    nk = 8 + int(fit_k2)
+
+    def fun(p):
+        cam = camera_from_params(p[:nk], cam0.image_size, fit_k1=True, fit_k2=fit_k2)
+        ls = p[nk] if free_length else 1.0
+        r = _edge_resid_mm(cam, pts, L, W, z_mm, ls) * scale
+        if hfov_prior is not None:
+            hfov = np.degrees(2 * np.arctan(w / 2.0 / p[0]))
+            r = np.append(r, loss_scale_px * (hfov - hfov_prior[0]) / hfov_prior[1])
+        return r
+
+    lo = np.full_like(p0, -np.inf)
+    hi = np.full_like(p0, np.inf)
+    lo[0], hi[0] = 0.1 * w, 20.0 * w
+    lo[7], hi[7] = -1.0, 1.0
+    p0[0] = np.clip(p0[0], lo[0] * 1.01, hi[0] * 0.99)
+    p0[7] = np.clip(p0[7], -0.99, 0.99)
+    res = least_squares(fun, p0, bounds=(lo, hi), loss="soft_l1", f_scale=loss_scale_px,
+                        x_scale="jac", max_nfev=200)
+    cam = camera_from_params(res.x[:nk], cam0.image_size, fit_k1=True, fit_k2=fit_k2)
+    ls = float(res.x[nk]) if free_length else 1.0
+    r_mm = _edge_resid_mm(cam, pts, L, W, z_mm, ls)
+    # local scale per point for the pixel residual
+    r_px = []
+    i = 0
+    for side in SIDE_ORDER:
+        p = pts.get(side)
+        if p is None or len(p) == 0:
+            continue
+        xyz = cam.backproject(p, z_mm)
+        k = np.array([1.0 / cam.mm_per_px(q) for q in xyz[:: max(len(xyz) // 8, 1)]]).mean()
+        r_px.append(r_mm[i: i + len(p)] * k)
+        i += len(p)
+    return EdgeFit(cam, r_mm, np.concatenate(r_px) if r_px else np.empty(0), ls)
+
+
+def fit_points(cam0: CameraModel, px: np.ndarray, xyz_mm: np.ndarray, fit_focal: bool,
+               fit_k1: bool) -> tuple[CameraModel, np.ndarray]:
+    """Fit pose (and focal, k1 if asked) to point correspondences; returns (camera, residuals px)."""
+    k1_fixed = float(cam0.dist[0])
+    f_fixed = float(cam0.K[0, 0])
+    p_all = params_from_camera(cam0, True, False)
+    free = [fit_focal, True, True, True, True, True, True, fit_k1]
+    idx = [i for i, fr in enumerate(free) if fr]
+
+    def build(q):
+        p = p_all.copy()
+        p[idx] = q
+        if not fit_focal:
+            p[0] = f_fixed
+        if not fit_k1:
+            p[7] = k1_fixed
+        return camera_from_params(p, cam0.image_size, fit_k1=True)
+
+    def fun(q):
+        return (build(q).project(xyz_mm) - px).ravel()
+
+    res = least_squares(fun, p_all[idx], x_scale="jac", max_nfev=400)
+    cam = build(res.x)
+    return cam, np.linalg.norm((cam.project(xyz_mm) - px), axis=1)

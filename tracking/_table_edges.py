@@ -1,0 +1,256 @@
+"""Find the playing surface in an image: cloth region, rough outline, nose-edge points.
+
+Pure array functions used by :mod:`tracking.calibrate`. Pixels follow OpenCV
+(origin at the centre of the top-left pixel, x right, y down).
+
+Which edge we measure
+---------------------
+The playing surface is bounded by the cushion *noses*: the horizontal line
+along which each cushion's rubber reaches furthest into the table, at nose
+height h above the cloth (WPA: ~63.5% of the ball diameter). Seen from above,
+the nose is the inner edge of the cushion's top surface. Inward of it there is
+either cloth seen directly, or a narrow dark band (the shadow the overhanging
+nose casts on the cloth, or - where the face is vertical or slopes outward -
+the face itself, lit at grazing incidence). So, walking a profile outward from
+the cloth, the nose is the *last* strong edge before the first flat stretch
+of the cushion top; where there is no band it is the single cloth/cushion
+edge. All these points lie at height h, which is what the camera fit assumes.
+"""
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import cv2
+import numpy as np
+from scipy.ndimage import gaussian_filter1d
+
+from tracking.settings import CalibrationSettings
+
+
+@dataclass
+class EdgePoints:
+    """Sub-pixel nose-edge points found along one side of the table.
+
+    side: 'y0', 'xL', 'yW' or 'x0' (the cushion's table-frame name).
+    px: (N, 2) pixel positions; strength: (N,) edge contrast (DN).
+    """
+
+    side: str
+    px: np.ndarray
+    strength: np.ndarray
+
+
+def median_image(frames: list[np.ndarray], max_frames: int) -> np.ndarray:
+    """Per-pixel median of up to ``max_frames`` evenly chosen frames (float32, 0..255)."""
+    if len(frames) > max_frames:
+        idx = np.linspace(0, len(frames) - 1, max_frames).round().astype(int)
+        frames = [frames[i] for i in idx]
+    stack = np.stack([np.asarray(f) for f in frames], axis=0)
+    if stack.ndim == 3:  # grey frames
+        stack = np.repeat(stack[..., None], 3, axis=3)
+    return np.median(stack, axis=0).astype(np.float32)
+
+
+def cloth_mask(image: np.ndarray, settings: CalibrationSettings) -> np.ndarray:
+    """Boolean mask of the cloth region grown from the image centre.
+
+    Edges (colour gradient above a noise-scaled barrier) split the image into
+    regions; the cloth is the region holding the seed, the pixel of the
+    central box closest to that box's median colour (any cloth colour). Smooth
+    lighting changes (vignetting, gradients) are no barrier; cushion, pocket and
+    rail edges are. Holes (balls, marks) are filled.
+    """
+    h, w = image.shape[:2]
+    sm = cv2.GaussianBlur(image, (0, 0), settings.region_smooth_px)
+    gx = cv2.Sobel(sm, cv2.CV_32F, 1, 0, ksize=3) / 8.0
+    gy = cv2.Sobel(sm, cv2.CV_32F, 0, 1, ksize=3) / 8.0
+    grad = np.sqrt(gx * gx + gy * gy).max(axis=2)  # DN per px, strongest channel
+    bx, by = int(w * settings.seed_box_frac / 2), int(h * settings.seed_box_frac / 2)
+    sl = (slice(h // 2 - by, h // 2 + by), slice(w // 2 - bx, w // 2 + bx))
+    box = sm[sl].reshape(-1, 3)
+    med = np.median(box, axis=0)
+    k = int(np.argmin(np.abs(box - med).sum(axis=1) + 10 * grad[sl].reshape(-1)))
+    seed = (w // 2 - bx + k % (2 * bx), h // 2 - by + k // (2 * bx))
+    gb = grad[sl]
+    gmed = np.median(gb)
+    barrier = max(gmed + settings.region_grad_sigmas * 1.4826 * np.median(np.abs(gb - gmed)),
+                  settings.region_step_dn)
+    free = (grad < barrier).astype(np.uint8)
+    n, lab = cv2.connectedComponents(free, connectivity=4)
+    region = lab == lab[seed[1], seed[0]]
+    # keep one solid region: fill holes via the outer contour
+    cnts, _ = cv2.findContours(region.astype(np.uint8), cv2.RETR_EXTERNAL, cv2.CHAIN_APPROX_NONE)
+    if not cnts:
+        return region
+    big = max(cnts, key=cv2.contourArea)
+    out = np.zeros((h, w), np.uint8)
+    cv2.drawContours(out, [big], -1, 1, thickness=-1)
+    return out > 0
+
+
+def rough_quad(mask: np.ndarray) -> np.ndarray | None:
+    """Four corners (4, 2) px of the mask's convex hull, or None if it is no quadrilateral."""
+    cnts, _ = cv2.findContours(mask.astype(np.uint8), cv2.RETR_EXTERNAL, cv2.CHAIN_APPROX_NONE)
+    if not cnts:
+        return None
+    hull = cv2.convexHull(max(cnts, key=cv2.contourArea))
+    peri = cv2.arcLength(hull, True)
+    for frac in np.linspace(0.005, 0.1, 40):
+        approx = cv2.approxPolyDP(hull, frac * peri, True)
+        if len(approx) == 4:
+            return _corner_refine(hull.reshape(-1, 2).astype(float), approx.reshape(4, 2).astype(float))
+        if len(approx) < 4:
+            break
+    return None
+
+
+def _corner_refine(hull: np.ndarray, quad: np.ndarray) -> np.ndarray:
+    """Intersect lines fitted to the hull points nearest each quad side (cuts corner bevels)."""
+    lines = []
+    for i in range(4):
+        a, b = quad[i], quad[(i + 1) % 4]
+        d = b - a
+        L = np.linalg.norm(d)
+        u = d / L
+        n = np.array([-u[1], u[0]])
+        s = (hull - a) @ u
+        dist = np.abs((hull - a) @ n)
+        sel = (s > 0.15 * L) & (s < 0.85 * L) & (dist < 0.02 * L + 3)
+        if sel.sum() < 2:
+            lines.append((a, u))
+            continue
+        p = hull[sel]
+        c = p.mean(axis=0)
+        _, _, vt = np.linalg.svd(p - c)
+        lines.append((c, vt[0]))
+    out = np.empty((4, 2))
+    for i in range(4):
+        (p1, u1), (p2, u2) = lines[i - 1], lines[i]
+        A = np.column_stack([u1, -u2])
+        try:
+            s = np.linalg.solve(A, p2 - p1)
+            out[i] = p1 + s[0] * u1
+        except np.linalg.LinAlgError:
+            out[i] = quad[i]
+    return out
+
+
+def _sample(gray: np.ndarray, pts: np.ndarray) -> np.ndarray:
+    """Bilinear samples of ``gray`` at float pixel positions (..., 2)."""
+    shp = pts.shape[:-1]
+    p = pts.reshape(-1, 2).astype(np.float32)
+    n = len(p)
+    cols = 4096
+    rows = -(-n // cols)
+    pad = np.zeros((rows * cols, 2), np.float32)
+    pad[:n] = p
+    mx = np.ascontiguousarray(pad[:, 0].reshape(rows, cols))
+    my = np.ascontiguousarray(pad[:, 1].reshape(rows, cols))
+    v = cv2.remap(gray, mx, my, cv2.INTER_LINEAR, borderMode=cv2.BORDER_REPLICATE).reshape(-1)[:n]
+    return v.reshape(shp)
+
+
+def nose_offset(profile: np.ndarray, step: float, plateau_n: int, settings: CalibrationSettings,
+                inner_n: int) -> tuple[float, float] | None:
+    """Offset (samples) of the nose edge along an outward profile, and its contrast.
+
+    ``inner_n`` leading samples are known cloth. Returns None when the profile
+    shows no clean cloth -> cushion transition (pocket, ball, clutter).
+    """
+    g = profile.astype(float)
+    cloth = g[:inner_n]
+    c0 = np.median(cloth)
+    noise = 1.4826 * np.median(np.abs(cloth - c0)) + 0.5
+    sig = settings.edge_sigma_px / step
+    dg = gaussian_filter1d(g, sig, order=1) / step  # DN per px
+    dc = dg[:inner_n]
+    dnoise = 1.4826 * np.median(np.abs(dc - np.median(dc))) + 0.2
+    thr = max(settings.edge_min_snr * dnoise, 1.0)
+    dev = np.abs(g - c0)
+    start = np.nonzero(dev[inner_n:] > max(6 * noise, 6.0))[0]
+    if start.size == 0:
+        return None
+    i0 = inner_n + int(start[0])
+    # the first edge: the gradient extremum around the first departure
+    lo = max(inner_n // 2, i0 - int(3 / step))
+    seg = np.abs(dg[lo: i0 + int(2 / step) + 1])
+    i1 = lo + int(np.argmax(seg))
+    e1 = abs(dg[i1])
+    if e1 < thr:
+        return None
+    strong = max(thr, settings.edge_rel_min * e1)
+    flat = max(0.5 * thr, 0.15 * e1)
+    # walk outward to the first flat stretch (the cushion top)
+    absd = np.abs(dg)
+    run = 0
+    plateau = None
+    for i in range(i1, len(g)):
+        if absd[i] < flat:
+            run += 1
+            if run >= plateau_n:
+                plateau = i - run + 1
+                break
+        else:
+            run = 0
+    if plateau is None:
+        return None
+    # last strong local maximum of |dg| before the plateau
+    cand = [i for i in range(max(i1, 1), plateau) if absd[i] >= strong
+            and absd[i] >= absd[i - 1] and absd[i] >= absd[i + 1]]
+    if not cand:
+        return None
+    k = cand[-1]
+    # the plateau must differ from the cloth (else it is cloth again: a ball or mark)
+    if abs(np.median(g[plateau: plateau + plateau_n]) - c0) < max(6 * noise, 4.0):
+        return None
+    a, b, c = absd[k - 1], absd[k], absd[k + 1]
+    den = a - 2 * b + c
+    frac = 0.5 * (a - c) / den if den < 0 else 0.0
+    return k + float(np.clip(frac, -0.5, 0.5)), float(b)
+
+
+def edge_points_along(gray: np.ndarray, p0: np.ndarray, p1: np.ndarray, outward: np.ndarray,
+                      s_ranges: list[tuple[float, float]], inner_px: float, outer_px: float,
+                      plateau_px: float, settings: CalibrationSettings,
+                      curve=None, n_profiles: int | None = None) -> tuple[np.ndarray, np.ndarray]:
+    """Nose points along the segment p0->p1 (px), profiles taken along ``outward``.
+
+    s_ranges: fractions of the segment to use (pockets excluded). ``curve``
+    optionally maps fractions s (M,) -> (points (M,2), outward normals (M,2)) to
+    follow a predicted curved line instead of the straight segment.
+    """
+    if n_profiles is None:
+        n_profiles = max(int(np.linalg.norm(p1 - p0) / settings.profile_spacing_px), 2)
+    n_prof = n_profiles
+    s_all = np.linspace(0, 1, n_prof)
+    keep = np.zeros_like(s_all, bool)
+    for a, b in s_ranges:
+        keep |= (s_all >= a) & (s_all <= b)
+    s = s_all[keep]
+    if s.size == 0:
+        return np.empty((0, 2)), np.empty(0)
+    if curve is None:
+        base = p0[None, :] + s[:, None] * (p1 - p0)[None, :]
+        nrm = np.repeat((outward / np.linalg.norm(outward))[None, :], len(s), axis=0)
+    else:
+        base, nrm = curve(s)
+    tang = np.column_stack([-nrm[:, 1], nrm[:, 0]])
+    step = settings.profile_step_px
+    offs = np.arange(-inner_px, outer_px + step / 2, step)
+    strip = np.arange(-settings.profile_strip_px, settings.profile_strip_px + 1e-9, 0.5)
+    pts = (base[:, None, None, :] + offs[None, :, None, None] * nrm[:, None, None, :]
+           + strip[None, None, :, None] * tang[:, None, None, :])
+    prof = _sample(gray, pts).mean(axis=2)
+    inner_n = max(int(0.35 * inner_px / step), 4)
+    plateau_n = max(int(plateau_px / step), 4)
+    out, strength = [], []
+    for i in range(len(s)):
+        r = nose_offset(prof[i], step, plateau_n, settings, inner_n)
+        if r is None:
+            continue
+        off = offs[0] + r[0] * step
+        out.append(base[i] + off * nrm[i])
+        strength.append(r[1])
+    if not out:
+        return np.empty((0, 2)), np.empty(0)
+    return np.array(out), np.array(strength)

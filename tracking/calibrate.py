@@ -1,0 +1,283 @@
+"""Camera calibration against the table: automatic, from a file, saving and drawing.
+
+Automatic (:func:`calibrate_auto`)
+----------------------------------
+1. Per-pixel median of a few frames (moving balls vanish).
+2. The cloth region: grown from the image centre's dominant colour, stopped by
+   colour edges (any cloth colour; no hue is assumed). Its convex hull gives a
+   rough outline with four corners.
+3. Nose-edge points: profiles across each side find the cushion nose, the inner
+   edge of the cushion top (see :mod:`tracking._table_edges` for why this edge
+   lies at nose height h above the cloth). Stretches at pockets are skipped.
+4. Camera fit (scipy ``least_squares``, soft-L1 loss): focal, pose, radial k1
+   (k2 optional) so that the four nose lines x = 0, x = L, y = 0, y = W at
+   z = h project through the points; the curvature of the lines fixes k1 and
+   the preset's playing-surface size (WPA etc., :mod:`feltlab.standards`) the
+   metric scale. Profiles are then re-taken along the fitted curves and the
+   fit repeated, dropping outliers.
+
+Table frame (see DEVELOPERS.md): origin at the playing-surface corner nearest
+the image's bottom-left, x along the long side, y along the short side, z up.
+If the long side runs up-down in the image, x runs *up* the right-hand long
+side from the bottom-right corner and y to the left (the only right-handed
+choice with z up and the origin at the bottom of the image).
+
+Manual calibration file (TOML, our schema; see clips/example_calibration.toml)
+-------------------------------------------------------------------------------
+::
+
+    table = "pool-9ft"            # preset name (feltlab.standards.TABLES)
+    image_size = [1280, 720]      # width, height (px)
+    # four corners in pixels, in table order (0,0), (L,0), (L,W), (0,W)
+    corners_px = [[151.4, 611.8], [1141.2, 601.5], [1125.5, 108.3], [153.9, 125.2]]
+    corners_plane = "cloth"       # "cloth" (z = 0) or "nose" (cushion-nose height)
+    # optional:
+    # rect_mm = [x0, y0, x1, y1]  # corners of a marked rectangle instead of the
+    #                             # playing surface (a test bench filming part of a table)
+    # ball_diameter_mm = 57.15
+    # k1 = -0.02                  # radial distortion, if known
+    # focal_px = 1163.6           # if known; otherwise fitted from the corners
+    # nose_height_mm = 36.5       # overrides the preset for corners_plane = "nose"
+
+Four corners fix a homography (8 numbers); the camera has focal + pose = 7, so
+the focal is fitted from the corners unless given. It is poorly determined
+for a camera looking straight down (then only focal/height is); give it if
+you know it.
+
+A file written by :func:`save_calibration` holds the fitted camera as well
+(``[camera]`` table: K, dist, R, t_mm) and is read back exactly.
+"""
+from __future__ import annotations
+
+import math
+import os
+import tempfile
+import tomllib
+from pathlib import Path
+
+import cv2
+import numpy as np
+
+from feltlab.errors import FeltlabError
+from feltlab.standards import TablePreset, table_preset
+from tracking._camera_fit import SIDE_ORDER, fit_edges, fit_points, initial_camera
+from tracking._table_edges import cloth_mask, edge_points_along, median_image, rough_quad
+from tracking.calibration import Calibration
+from tracking.camera import CameraModel
+from tracking.settings import CalibrationSettings
+
+#: Nose height as a fraction of ball diameter when the preset has none: pool
+#: practice, 62.5-64.5% (from memory; see feltlab.standards).
+NOSE_FRAC_DEFAULT = 0.635
+
+
+def nose_height_mm(table: TablePreset, ball_diameter_mm: float) -> float:
+    """Cushion-nose height above the cloth (mm): the preset's, else 63.5% of the ball."""
+    if table.cushion_nose_height_mm is not None:
+        return float(table.cushion_nose_height_mm)
+    return NOSE_FRAC_DEFAULT * ball_diameter_mm
+
+
+# --------------------------------------------------------------------------- auto
+def _check_frames(frames) -> list[np.ndarray]:
+    if frames is None or len(frames) == 0:
+        raise FeltlabError("calibration needs at least one frame; the clip gave none")
+    out = []
+    shape = None
+    for f in frames:
+        a = np.asarray(f)
+        if a.ndim not in (2, 3) or a.size == 0 or (a.ndim == 3 and a.shape[2] not in (1, 3)):
+            raise FeltlabError(f"calibration frames must be HxW or HxWx3 images, got shape {a.shape}")
+        if a.ndim == 3 and a.shape[2] == 1:
+            a = a[..., 0]
+        if shape is not None and a.shape[:2] != shape:
+            raise FeltlabError("calibration frames differ in size; use frames of one clip")
+        shape = a.shape[:2]
+        out.append(a.astype(np.float32))
+    if min(shape) < 32:
+        raise FeltlabError(f"frames of {shape[1]}x{shape[0]} px are too small to find a table")
+    return out
+
+
+def order_corners(quad: np.ndarray) -> tuple[np.ndarray, str]:
+    """Quad corners (4,2) px -> table order (0,0), (L,0), (L,W), (0,W) and the layout.
+
+    Layout 'horizontal' (long side left-right): origin bottom-left, x right.
+    'vertical': origin bottom-right, x up, y left (see module docstring).
+    """
+    c = quad.mean(axis=0)
+    ang = np.arctan2(quad[:, 1] - c[1], quad[:, 0] - c[0])
+    q = quad[np.argsort(ang)]  # cyclic order (clockwise on screen, y down)
+    sides = [np.linalg.norm(q[(i + 1) % 4] - q[i]) for i in range(4)]
+    long_first = sides[0] + sides[2] >= sides[1] + sides[3]
+    # the two long sides as index pairs
+    pairs = [(0, 1), (2, 3)] if long_first else [(1, 2), (3, 0)]
+    d = q[pairs[0][1]] - q[pairs[0][0]]
+    horizontal = abs(d[0]) >= abs(d[1])
+    if horizontal:
+        side = max(pairs, key=lambda pr: q[list(pr), 1].mean())  # bottom long side
+        a, b = q[side[0]], q[side[1]]
+        o, xl = (a, b) if a[0] < b[0] else (b, a)
+    else:
+        side = max(pairs, key=lambda pr: q[list(pr), 0].mean())  # right long side
+        a, b = q[side[0]], q[side[1]]
+        o, xl = (a, b) if a[1] > b[1] else (b, a)
+    rest = [p for p in q if not (np.allclose(p, o) or np.allclose(p, xl))]
+    # (L,W) is the remaining corner nearer (L,0)
+    r0, r1 = rest
+    lw, ow = (r0, r1) if np.linalg.norm(r0 - xl) < np.linalg.norm(r1 - xl) else (r1, r0)
+    return np.array([o, xl, lw, ow]), "horizontal" if horizontal else "vertical"
+
+
+def _side_ranges(table: TablePreset, side: str, s: CalibrationSettings) -> list[tuple[float, float]]:
+    """Fractions of a side's length to search (pocket stretches removed)."""
+    length = table.length_mm if side in ("y0", "yW") else table.width_mm
+    if not table.pockets:
+        e = s.corner_plain_mm / length
+        return [(e, 1 - e)]
+    e = s.corner_pocket_mm / length
+    if side in ("y0", "yW"):
+        m = s.side_pocket_mm / length
+        return [(e, 0.5 - m), (0.5 + m, 1 - e)]
+    return [(e, 1 - e)]
+
+
+def _side_world(side: str, L: float, W: float) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """Start, end and outward unit vector of a nose line in the table plane."""
+    return {
+        "y0": (np.array([0.0, 0.0]), np.array([L, 0.0]), np.array([0.0, -1.0])),
+        "xL": (np.array([L, 0.0]), np.array([L, W]), np.array([1.0, 0.0])),
+        "yW": (np.array([L, W]), np.array([0.0, W]), np.array([0.0, 1.0])),
+        "x0": (np.array([0.0, W]), np.array([0.0, 0.0]), np.array([-1.0, 0.0])),
+    }[side]
+
+
+def _curve(cam: CameraModel, side: str, L: float, W: float, z: float):
+    a, b, out = _side_world(side, L, W)
+
+    def f(sfrac: np.ndarray):
+        xy = a[None, :] + sfrac[:, None] * (b - a)[None, :]
+        p = cam.project(np.column_stack([xy, np.full(len(xy), z)]))
+        q = cam.project(np.column_stack([xy + out * 5.0, np.full(len(xy), z)]))
+        n = q - p
+        n /= np.linalg.norm(n, axis=1, keepdims=True)
+        return p, n
+
+    return f
+
+
+def calibrate_auto(frames: list[np.ndarray], table: TablePreset, ball_diameter_mm: float | None = None,
+                   settings: CalibrationSettings = CalibrationSettings()) -> Calibration:
+    """Calibrate the camera from a few frames showing the whole playing surface.
+
+    frames: BGR (or grey) images of one clip. table: the preset whose playing
+    surface (between cushion noses) is in view. Returns a Calibration
+    (method 'auto') with the fitted camera in the table frame (mm), RMS
+    edge residuals in px and mm, and notes (warnings) for the user.
+    """
+    imgs = _check_frames(frames)
+    ball_d = float(ball_diameter_mm or table.ball.diameter_mm)
+    if not (0 < ball_d < 200):
+        raise FeltlabError(f"ball diameter {ball_d} mm is not plausible; give it in millimetres")
+    z_nose = nose_height_mm(table, ball_d)
+    L, W = table.length_mm, table.width_mm
+    img = median_image(imgs, settings.max_frames)
+    h, w = img.shape[:2]
+    gray = img.mean(axis=2).astype(np.float32)
+    mask = cloth_mask(img, settings)
+    frac = mask.mean()
+    if frac < 0.05 or frac > 0.97:
+        raise FeltlabError(
+            "could not find the cloth in the middle of the image; film the whole table from above "
+            "or calibrate from a file (feltlab calibrate --help)")
+    quad = rough_quad(mask)
+    if quad is None:
+        raise FeltlabError("the cloth region is not a quadrilateral; is the whole playing surface in view? "
+                           "otherwise calibrate from a file")
+    corners, layout = order_corners(quad)
+    notes: list[str] = []
+    try:
+        cam = initial_camera(corners, np.column_stack([[0, L, L, 0], [0, 0, W, W], [z_nose] * 4]), (w, h))
+    except ValueError as exc:
+        raise FeltlabError(f"could not place a camera over the table outline ({exc}); check the table preset")
+    w_px = float(np.mean([np.linalg.norm(corners[3] - corners[0]), np.linalg.norm(corners[2] - corners[1])]))
+    px_mm0 = w_px / W
+    plateau_px = settings.plateau_mm * px_mm0
+    prior = (settings.hfov_prior_deg, settings.hfov_prior_sigma_deg)
+    fit = None
+    for it in range(max(settings.passes, 1)):
+        pts: dict[str, np.ndarray] = {}
+        for i, side in enumerate(SIDE_ORDER):
+            ranges = _side_ranges(table, side, settings)
+            if it == 0:
+                p0, p1 = corners[i], corners[(i + 1) % 4]
+                t = (p1 - p0) / np.linalg.norm(p1 - p0)
+                nrm = np.array([-t[1], t[0]])
+                if np.dot(nrm, (p0 + p1) / 2 - corners.mean(axis=0)) < 0:
+                    nrm = -nrm
+                found, _ = edge_points_along(gray, p0, p1, nrm, ranges, settings.search_in_frac * w_px,
+                                             settings.search_out_frac * w_px, plateau_px, settings)
+            else:
+                win = settings.refine_window_px
+                found, _ = edge_points_along(gray, None, None, None, ranges, 1.5 * win + plateau_px / 2,
+                                             win + plateau_px * 1.5, plateau_px, settings,
+                                             curve=_curve(fit.camera, side, L, W, z_nose),
+                                             n_profiles=_n_profiles(fit.camera, side, L, W, z_nose,
+                                                                    settings))
+            if it > 0 and len(found):
+                r = np.abs(_point_resid_px(fit.camera, side, found, L, W, z_nose))
+                found = found[r < max(settings.outlier_px, 4 * settings.loss_scale_px) + (
+                    settings.refine_window_px if it == 1 else 0)]
+            pts[side] = found
+        few = [s for s in SIDE_ORDER if len(pts[s]) < 8]
+        if few:
+            raise FeltlabError(
+                f"found too few cushion-nose points on side(s) {', '.join(few)}; is the whole table in view "
+                "and not covered? otherwise calibrate from a file")
+        fit = fit_edges(fit.camera if fit else cam, pts, L, W, z_nose, settings.fit_k2,
+                        settings.loss_scale_px, prior)
+        # drop outliers and refit
+        keep = np.abs(fit.resid_px) < max(settings.outlier_px, 4 * _robust_sigma(fit.resid_px))
+        if not keep.all():
+            i0 = 0
+            for side in SIDE_ORDER:
+                n = len(pts[side])
+                pts[side] = pts[side][keep[i0: i0 + n]]
+                i0 += n
+            fit = fit_edges(fit.camera, pts, L, W, z_nose, settings.fit_k2, settings.loss_scale_px, prior)
+    res_px = float(np.sqrt(np.mean(fit.resid_px ** 2)))
+    res_mm = float(np.sqrt(np.mean(fit.resid_mm ** 2)))
+    if not math.isfinite(res_px) or res_px > settings.max_residual_px:
+        raise FeltlabError(
+            f"table edges do not fit a camera model (RMS {res_px:.2f} px); check the table preset or "
+            "calibrate from a file")
+    # aspect check: refit with a free length factor
+    chk = fit_edges(fit.camera, pts, L, W, z_nose, settings.fit_k2, settings.loss_scale_px, prior,
+                    free_length=True)
+    if abs(chk.length_scale - 1) > settings.aspect_warn_frac:
+        notes.append(
+            f"the table's length/width looks {chk.length_scale * L / W:.3f}, not {L / W:.3f} as for "
+            f"{table.name}: is this the right table preset?")
+    cam_fit = fit.camera
+    cam_fit.meta = {"layout": layout, "nose_height_mm": z_nose, "n_edge_points": int(len(fit.resid_px))}
+    cal = Calibration(camera=cam_fit, table=table, ball_diameter_mm=ball_d, residual_px=res_px,
+                      residual_mm=res_mm, method="auto", notes=notes)
+    return cal
+
+
+def _robust_sigma(r: np.ndarray) -> float:
+    return float(1.4826 * np.median(np.abs(r - np.median(r)))) if len(r) else 0.0
+
+
+def _n_profiles(cam, side, L, W, z, settings) -> int:
+    a, b, _ = _side_world(side, L, W)
+    p = cam.project(np.array([[*a, z], [*b, z]]))
+    return max(int(np.linalg.norm(p[1] - p[0]) / settings.profile_spacing_px), 2)
+
+
+def _point_resid_px(cam: CameraModel, side: str, px: np.ndarray, L: float, W: float, z: float) -> np.ndarray:
+    xyz = cam.backproject(px, z)
+    ax, fr = {"y0": (1, 0.0), "xL": (0, 1.0), "yW": (1, 1.0), "x0": (0, 0.0)}[side]
+    dim = L if ax == 0 else W
+    scale = 1.0 / cam.mm_per_px([L / 2, W / 2, z])
+    return (xyz[:, ax] - fr * dim) * scale

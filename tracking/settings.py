@@ -1,0 +1,195 @@
+"""Tracking tolerances and defaults, each with its source.
+
+Sections are owned by the stage that uses them; keep each number beside the
+reason it has that value.
+"""
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+
+# ===========================================================================
+# Video input and camera calibration (tracking/video.py, calibrate.py,
+# _table_edges.py, _camera_fit.py)
+# ===========================================================================
+@dataclass(frozen=True)
+class CalibrationSettings:
+    """Automatic calibration from the table's cushion-nose lines.
+
+    Lengths in pixels unless named _mm; _mm lengths are on the table and are
+    turned into pixels with the rough scale of the first table outline.
+    """
+
+    #: Frames combined (per-pixel median) before looking for the table: a
+    #: median over >= 5 frames removes a ball that sits on an edge in fewer
+    #: than half of them (common practice for background estimation).
+    max_frames: int = 9
+    #: Side of the central image box (fraction of width/height) whose median
+    #: colour seeds the cloth region; the cloth fills the middle of an
+    #: overhead shot (common practice when filming a table).
+    seed_box_frac: float = 0.3
+    #: Gaussian smoothing (px) of the image used to grow the cloth region.
+    region_smooth_px: float = 1.0
+    #: The cloth region stops at colour gradients above median + this many
+    #: robust sigmas of the gradient over the seed box, and at least
+    #: region_step_dn DN/px. Vignetting and lighting gradients change the cloth
+    #: by well under 1 DN/px; a cushion, pocket or rail edge by > 5 DN/px.
+    region_grad_sigmas: float = 8.0
+    region_step_dn: float = 2.0
+    #: Spacing (px) of the profiles taken across each side.
+    profile_spacing_px: float = 2.0
+    #: Profile sampling step (px) and half-width of the averaging strip
+    #: along the edge (px).
+    profile_step_px: float = 0.25
+    profile_strip_px: float = 1.5
+    #: Gaussian derivative scale (px) for locating edges along a profile
+    #: (~ the optical blur of a sharp camera; small so a narrow shadow band
+    #: between cloth and cushion does not bias the nose edge).
+    edge_sigma_px: float = 0.8
+    #: A profile edge counts if its gradient exceeds this many noise sigmas.
+    edge_min_snr: float = 6.0
+    #: Edges weaker than this fraction of the first cloth edge are ignored
+    #: when looking for the nose (shading on the cushion top).
+    edge_rel_min: float = 0.3
+    #: Length (mm on the table) of flat profile that marks the cushion top,
+    #: i.e. the end of the cloth -> (shadow / face band) -> cushion transition.
+    #: A cushion is ~50 mm wide from nose to rail top (common practice), a
+    #: visible face or shadow band at most ~h = 36 mm wide at 45 deg.
+    plateau_mm: float = 18.0
+    #: Search window of the first pass, inward / outward of the rough
+    #: outline, as a fraction of the table width in px.
+    search_in_frac: float = 0.10
+    search_out_frac: float = 0.06
+    #: Half-width (px) of the search window of the refinement passes around
+    #: the nose line predicted by the previous camera fit.
+    refine_window_px: float = 10.0
+    #: Stretches of cushion excluded next to each pocket (mm along the
+    #: nose line from the corner, and either side of a side pocket's centre).
+    #: WPA pocket mouths are ~4.9-5.1 in (corner) and ~5.4-5.6 in (side)
+    #: (from memory); the jaws add a cut of similar length.
+    corner_pocket_mm: float = 170.0
+    side_pocket_mm: float = 160.0
+    #: Stretch excluded at the corners of a table without pockets (mm): the
+    #: cushion noses meet in a rounded or mitred joint (common practice).
+    corner_plain_mm: float = 40.0
+    #: Robust fitting: residual scale (px) of the soft-L1 loss, and the
+    #: outlier cut (px) applied between passes.
+    loss_scale_px: float = 0.5
+    outlier_px: float = 2.0
+    #: Refinement passes (resample edges along the fitted curved lines).
+    passes: int = 3
+    #: Fit the second radial coefficient k2 as well as k1. k1 alone describes
+    #: most lenses over a table-sized field (OpenCV calib3d docs recommend
+    #: adding higher terms only for wide-angle / fisheye lenses).
+    fit_k2: bool = False
+    #: Weak prior on the horizontal field of view (deg, sigma in deg): plane
+    #: targets seen almost square-on do not fix the focal length (the focal /
+    #: height ratio is what the image constrains). 60 +/- 25 deg spans common
+    #: video lenses (from memory); it only matters when the tilt is tiny.
+    hfov_prior_deg: float = 60.0
+    hfov_prior_sigma_deg: float = 25.0
+    #: Warn when the observed table aspect ratio departs from the preset's by
+    #: more than this fraction (a different table size; WPA tolerance is
+    #: 3.2 mm on 1270 mm, 0.25%).
+    aspect_warn_frac: float = 0.03
+    #: Refuse a fit whose RMS edge residual exceeds this (px).
+    max_residual_px: float = 3.0
+
+
+# ===========================================================================
+# Detection and tracking (tracking/detect.py, kalman.py, assign.py, labels.py,
+# pipeline.py)
+# ===========================================================================
+@dataclass(frozen=True)
+class DetectionSettings:
+    """Ball detection in one frame; lengths in pixels unless named _mm.
+
+    Radii are given as fractions of the expected ball radius in px
+    (Calibration.ball_radius_px), so the same settings serve every lens and
+    resolution.
+    """
+
+    #: Frames sampled for the temporal-median background (a median over >= ~15
+    #: samples rejects a ball present in fewer than half of them; common practice).
+    background_samples: int = 31
+    #: Noise floor for the foreground threshold, in multiples of the robust
+    #: (MAD) noise sigma of the frame-background difference (6 sigma: < 1e-8
+    #: false pixels per frame for Gaussian noise; standard tail probability).
+    fg_sigma: float = 6.0
+    #: Minimum colour distance (DN, 0..255 scale) counted as foreground,
+    #: whatever the noise estimate (compression blocks reach ~5-8 DN; from
+    #: inspecting MPEG-4 part 2 output at default quality, from memory).
+    fg_min_dn: float = 14.0
+    #: A candidate's mean foreground over its disc must exceed this many times
+    #: the pixel threshold (fraction; 0.5 lets through a ball half the disc of
+    #: which is above threshold, e.g. a dark ball half in its own shadow).
+    disc_score_min: float = 0.45
+    #: Local maxima of the disc score closer than this (x radius) are merged.
+    #: Two touching balls have centres 2 radii apart, so anything < 2 keeps them.
+    nms_radius: float = 1.3
+    #: Rays cast from the first centre estimate for the edge fit (64 rays give
+    #: a centre noise sqrt(2/64) = 0.18 of the per-ray edge noise; circle-fit
+    #: variance, e.g. Chernov, "Circular and Linear Regression", 2010).
+    n_rays: int = 64
+    #: Edge search window along each ray, x expected radius.
+    ray_min: float = 0.55
+    ray_max: float = 1.6
+    #: Radial sampling step along a ray (px).
+    ray_step_px: float = 0.25
+    #: Gaussian pre-smoothing of the difference image before differentiating
+    #: (px); small so that a 10 px radius edge is not biased.
+    edge_smooth_px: float = 0.8
+    #: Tukey biweight constant, x robust residual scale (4.685: 95% efficiency
+    #: under Gaussian noise; Holland & Welsch 1977).
+    tukey_c: float = 4.685
+    #: The fitted silhouette radius must lie within this fraction of the
+    #: expected one for a free-radius fit to be trusted; otherwise the radius is
+    #: fixed at the expected value (occlusion, cushion overlap, clusters).
+    radius_tol: float = 0.2
+    #: Fraction of rays that must carry an inlying edge to accept a detection.
+    min_support: float = 0.4
+    #: Floor of the per-detection centre sigma (px): compression and the
+    #: renderer's pixel grid correlate neighbouring rays, so the formal circle-
+    #: fit sigma is optimistic below ~0.05 px (Crocker & Grier 1996 reach
+    #: ~0.05 px with centroids; we do not claim better).
+    sigma_floor_px: float = 0.05
+    #: Pixels whose HSV saturation < this and value > white_value count as white
+    #: (stripe/cue summary); 0..1 scale, common practice for "white" in HSV.
+    white_saturation: float = 0.28
+    white_value: float = 0.62
+
+
+@dataclass(frozen=True)
+class TrackingSettings:
+    """Linking detections into per-ball tracks and smoothing them (mm, s)."""
+
+    #: White-acceleration process noise (mm/s^2): cloth friction decelerates a
+    #: sliding ball at mu_s g ~ 0.2 * 9.81 = 2 m/s^2 (mu_s typical 0.2, Physics
+    #: of Pool FAQ, Colorado State University); 2x for curve/swerve margin.
+    accel_sigma_mm_s2: float = 4000.0
+    #: Velocity sigma of a newly born track (mm/s): covers a power shot
+    #: (4.5 m/s, Physics of Pool FAQ shot-speed bands).
+    birth_speed_sigma_mm_s: float = 3000.0
+    #: Mahalanobis gate on the innovation (chi-square, 2 dof, p = 0.999 -> 13.8;
+    #: standard table value).
+    gate_chi2: float = 13.8
+    #: Fallback gate for a measurement that fails the Mahalanobis gate: the
+    #: farthest a ball can travel in one frame (mm/s): a break shot reaches
+    #: 11-13 m/s (Physics of Pool FAQ); we allow 14 m/s.
+    max_speed_mm_s: float = 14000.0
+    #: Weight of the colour distance (0..1 normalised RGB) in the assignment
+    #: cost, in chi-square units per unit colour distance.
+    colour_weight: float = 40.0
+    #: NIS above this splits a track into motion segments (chi-square 2 dof,
+    #: p = 0.9999 -> 18.4; standard table value): a contact's velocity jump.
+    split_nis: float = 18.4
+    #: Frames a track may go unseen before it is ended (occlusion by cue/hand).
+    max_missed_s: float = 0.5
+    #: Tracks shorter than this (s) with no stationary part are dropped as
+    #: clutter (a real ball is on the table for the whole shot or rolls in).
+    min_track_s: float = 0.08
+    #: Rest detection: all detections of a run lie within this many sigma
+    #: (plus rest_tol_mm) of the run mean, for at least rest_min_s.
+    rest_sigma: float = 3.0
+    rest_tol_mm: float = 0.25
+    rest_min_s: float = 0.1
