@@ -20,6 +20,7 @@ resistance), rest after ``|v0| / (mu_r g)``.
 """
 from __future__ import annotations
 
+import math
 from dataclasses import dataclass
 
 import numpy as np
@@ -53,13 +54,19 @@ class Segment:
     def state(self, t: float) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
         """Position (mm), velocity (mm/s) and spin (rad/s) at absolute time t (s)."""
         tau = t - self.t0
-        r = self.r0 + self.v0 * tau + 0.5 * self.a * tau * tau
-        v = self.v0 + self.a * tau
-        w = np.empty(3)
-        w[:2] = self.w0[:2] + self.alpha * tau
-        wz0 = self.w0[2]
-        w[2] = np.sign(wz0) * max(abs(wz0) - self.wz_decel * tau, 0.0)
-        return r, v, w
+        (rx, ry), (vx, vy), (ax, ay) = self._rva
+        (wx, wy, wz0), (bx, by) = self._w
+        h = 0.5 * tau * tau
+        wz = max(abs(wz0) - self.wz_decel * tau, 0.0)
+        return (np.array([rx + vx * tau + ax * h, ry + vy * tau + ay * h]),
+                np.array([vx + ax * tau, vy + ay * tau]),
+                np.array([wx + bx * tau, wy + by * tau, wz if wz0 >= 0.0 else -wz]))
+
+    def __post_init__(self) -> None:
+        # Plain-float copies for fast scalar evaluation in the event loop.
+        object.__setattr__(self, "_rva", (tuple(map(float, self.r0)), tuple(map(float, self.v0)),
+                                          tuple(map(float, self.a))))
+        object.__setattr__(self, "_w", (tuple(map(float, self.w0)), tuple(map(float, self.alpha))))
 
 
 def slip_velocity(v: np.ndarray, w: np.ndarray, radius_mm: float) -> np.ndarray:
@@ -157,6 +164,49 @@ def _quadratic_roots(c2: float, c1: float, c0: float) -> list[float]:
     return roots
 
 
+def _cubic_real_roots(c3: float, c2: float, c1: float, c0: float) -> list[float]:
+    """Real roots of c3 x^3 + c2 x^2 + c1 x + c0 (Cardano / trigonometric form,
+    each root polished by Newton steps on the original cubic).
+
+    >>> sorted(round(x, 12) for x in _cubic_real_roots(1.0, -6.0, 11.0, -6.0))
+    [1.0, 2.0, 3.0]
+    """
+    scale = max(abs(c3), abs(c2), abs(c1), abs(c0))
+    if scale == 0.0:
+        return []
+    if abs(c3) <= 1e-13 * scale:
+        return _quadratic_roots(c2, c1, c0)
+    b, c, d = c2 / c3, c1 / c3, c0 / c3
+    p = c - b * b / 3.0
+    q = 2.0 * b**3 / 27.0 - b * c / 3.0 + d
+    disc = 0.25 * q * q + p**3 / 27.0
+    if disc > 0.0:
+        s = np.sqrt(disc)
+        A = -np.copysign(np.cbrt(abs(0.5 * q) + s), q)
+        ys = [A - p / (3.0 * A) if A != 0.0 else 0.0]
+    elif p == 0.0:
+        ys = [0.0]
+    else:
+        r = np.sqrt(-p / 3.0)
+        arg = min(1.0, max(-1.0, (1.5 * q / p) * np.sqrt(-3.0 / p)))
+        ph = np.arccos(arg) / 3.0
+        ys = [2.0 * r * np.cos(ph - 2.0 * np.pi * k / 3.0) for k in range(3)]
+    roots = []
+    for y in ys:
+        x = float(y - b / 3.0)
+        for _ in range(3):
+            fx = ((x + b) * x + c) * x + d
+            dfx = (3.0 * x + 2.0 * b) * x + c
+            if dfx == 0.0:
+                break
+            step = fx / dfx
+            x -= step
+            if abs(step) <= 1e-15 * max(1.0, abs(x)):
+                break
+        roots.append(x)
+    return roots
+
+
 #: Gap (mm) within which a ball counts as touching a cushion or another ball
 #: for "contact now" decisions; 1 nm, numerical zero.
 TOUCH_TOL_MM = 1e-6
@@ -197,19 +247,20 @@ def pair_time(
     so that f is monotone on each piece, then bracket the first sign change
     from + to - and polish it with Brent's method (machine precision).
     """
-    if not np.isfinite(horizon_s) or horizon_s <= 0.0:
+    if not horizon_s > 0.0 or horizon_s == np.inf:
         return None
-    q2 = 0.5 * da
-    dist = float(np.hypot(*dr))
+    px, py = float(dr[0]), float(dr[1])
+    vx, vy = float(dv[0]), float(dv[1])
+    qx, qy = 0.5 * float(da[0]), 0.5 * float(da[1])
     # Cheap reject: the gap cannot close within the horizon.
-    reach = float(np.hypot(*dv)) * horizon_s + float(np.hypot(*q2)) * horizon_s**2
-    if dist - contact_mm > reach + TOUCH_TOL_MM:
+    reach = math.hypot(vx, vy) * horizon_s + math.hypot(qx, qy) * horizon_s**2
+    if math.hypot(px, py) - contact_mm > reach + TOUCH_TOL_MM:
         return None
-    c4 = float(q2 @ q2)
-    c3 = 2.0 * float(dv @ q2)
-    c2 = float(dv @ dv) + 2.0 * float(dr @ q2)
-    c1 = 2.0 * float(dr @ dv)
-    c0 = float(dr @ dr) - contact_mm * contact_mm
+    c4 = qx * qx + qy * qy
+    c3 = 2.0 * (vx * qx + vy * qy)
+    c2 = vx * vx + vy * vy + 2.0 * (px * qx + py * qy)
+    c1 = 2.0 * (px * vx + py * vy)
+    c0 = px * px + py * py - contact_mm * contact_mm
     if c4 == 0.0 and c3 == 0.0 and c2 == 0.0 and c1 == 0.0:
         return None
 
@@ -219,15 +270,7 @@ def pair_time(
     touch_f = 2.0 * contact_mm * TOUCH_TOL_MM
     if c0 <= touch_f and c1 < -2.0 * contact_mm * APPROACH_TOL_MM_S:
         return 0.0
-    deriv = np.array([4.0 * c4, 3.0 * c3, 2.0 * c2, c1])
-    nz = np.flatnonzero(np.abs(deriv) > 0.0)
-    crit: list[float] = []
-    if nz.size and nz[0] < 3:
-        for z in np.roots(deriv[nz[0]:]):
-            if abs(z.imag) <= 1e-9 * max(1.0, abs(z.real)):
-                x = float(z.real)
-                if 0.0 < x < horizon_s:
-                    crit.append(x)
+    crit = [x for x in _cubic_real_roots(4.0 * c4, 3.0 * c3, 2.0 * c2, c1) if 0.0 < x < horizon_s]
     points = [0.0] + sorted(crit) + [horizon_s]
     f_prev = f(0.0)
     for lo, hi in zip(points[:-1], points[1:]):

@@ -448,25 +448,31 @@ class _Sim:
                 best = (float(t + tau), name)
         self.next_cushion[i] = best
 
-    def _pair(self, i: int, j: int, t: float) -> float:
+    def _pair(self, i: int, j: int, t: float, states: dict | None = None) -> float:
         si, sj = self.cur(i), self.cur(j)
         if si.phase in ("rest", "off") and sj.phase in ("rest", "off"):
             return np.inf
         if "off" in (si.phase, sj.phase):
             return np.inf
-        ri, vi, _ = si.state(t)
-        rj, vj, _ = sj.state(t)
+        if states is None:
+            states = {}
+        for k in (i, j):
+            if k not in states:
+                states[k] = self.cur(k).state(t)
+        ri, vi, _ = states[i]
+        rj, vj, _ = states[j]
         horizon = min(si.t1, sj.t1, self.t_end) - t
         tau = pair_time(rj - ri, vj - vi, sj.a - si.a, self.R[i] + self.R[j], horizon)
         return np.inf if tau is None else float(t + tau)
 
     def _refresh(self, changed: set[int], t: float) -> None:
+        states: dict[int, tuple] = {}
         for i in changed:
             self._refresh_cushion(i, t)
             for j in range(self.N):
                 if j != i:
                     key = (min(i, j), max(i, j))
-                    self.next_pair[key] = self._pair(key[0], key[1], t)
+                    self.next_pair[key] = self._pair(key[0], key[1], t, states)
 
     def run(self) -> None:
         n_events = 0
