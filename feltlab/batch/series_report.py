@@ -30,7 +30,7 @@ import pandas as pd
 from feltlab.batch import stats
 from feltlab.batch.settings import CONFIDENCE, ROBUST_Z_LIMIT
 from feltlab.batch.spec import Spec, SpecResult, evaluate_spec
-from feltlab.standards import SHOT_SPEED_BANDS_MM_S
+from feltlab.standards import MU_ROLL_RANGE, MU_SLIDE_CLOTH_RANGE, SHOT_SPEED_BANDS_MM_S
 
 #: Okabe & Ito colour-blind-safe palette ("Color Universal Design", 2008).
 OKABE_ITO = ["#0072B2", "#D55E00", "#009E73", "#CC79A7", "#E69F00", "#56B4E9", "#F0E442", "#000000"]
@@ -280,9 +280,14 @@ def plot_session(res: SeriesResult, path: Path) -> Path | None:
     fig, (a1, a2) = plt.subplots(1, 2, figsize=(12, 4.4), gridspec_kw={"width_ratios": [1.6, 1]})
     x = np.arange(len(sh))
     sp = sh["shot_speed_mm_s"].to_numpy(float) / 1000
-    for (name, (lo, hi)), col in zip(SHOT_SPEED_BANDS_MM_S.items(), ["#FFFFFF", "#EEEEEE", "#DDDDDD", "#CCCCCC"]):
+    top = max(float(np.nanmax(sp)) * 1.1 if np.isfinite(sp).any() else 1.0, 1.0)
+    for (name, (lo, hi)), col in zip(SHOT_SPEED_BANDS_MM_S.items(), ["#F3F3F3", "#E4E4E4", "#D3D3D3", "#C2C2C2"]):
+        if lo / 1000 >= top:
+            continue
         a1.axhspan(lo / 1000, hi / 1000, color=col, zorder=0)
-        a1.text(len(sh) - 0.45, (lo + hi) / 2000, name, fontsize=8, va="center", ha="right", color="#444444")
+        a1.text(1.01, (lo + min(hi, top * 1000)) / 2000, name, fontsize=8, va="center", ha="left", color="#444444",
+                transform=a1.get_yaxis_transform(), clip_on=False)
+    a1.set_ylim(0, top)
     a1.bar(x, np.nan_to_num(sp), color=OKABE_ITO[0], zorder=2)
     a1.set_xticks(x)
     a1.set_xticklabels([Path(c).stem[:18] for c in sh["clip"]], rotation=60, ha="right", fontsize=7)
@@ -296,6 +301,7 @@ def plot_session(res: SeriesResult, path: Path) -> Path | None:
         a2.text(0.5, 0.5, "no ball-ball contacts", ha="center", va="center", transform=a2.transAxes)
     a2.set_xlabel("cut angle at the first ball-ball contact (deg)")
     a2.set_ylabel("shots")
+    a2.yaxis.get_major_locator().set_params(integer=True)
     a2.set_title("cut angles")
     for a in (a1, a2):
         a.grid(alpha=0.3, axis="y")
@@ -314,10 +320,15 @@ def plot_friction(res: SeriesResult, path: Path) -> Path | None:
     plt = _plt()
     fig, axes = plt.subplots(1, 2, figsize=(12, 3.8))
     x = np.arange(len(sh))
-    for ax, key, label, col in ((axes[0], "mu_s", "sliding friction mu_s", OKABE_ITO[0]),
-                                (axes[1], "mu_r", "rolling resistance mu_r (deceleration / g)", OKABE_ITO[1])):
+    for ax, key, label, col, rng in (
+            (axes[0], "mu_s", "sliding friction mu_s (ball on cloth)", OKABE_ITO[0], MU_SLIDE_CLOTH_RANGE),
+            (axes[1], "mu_r", "rolling resistance mu_r (deceleration / g)", OKABE_ITO[1], MU_ROLL_RANGE)):
+        lo, hi = rng
+        ax.axhspan(lo, hi, color="#DDDDDD", alpha=0.5, lw=0, label="published range (Physics of Pool FAQ, CSU)")
         ax.errorbar(x, sh[key].to_numpy(float), yerr=np.nan_to_num(sh[f"{key}_sigma"].to_numpy(float)), fmt="o",
-                    color=col, capsize=3)
+                    color=col, capsize=3, label="this clip (±1 sigma)")
+        ax.set_ylabel(key)
+        ax.legend(fontsize=8, loc="upper right")
         ax.set_xticks(x)
         ax.set_xticklabels([Path(c).stem[:18] for c in sh["clip"]], rotation=60, ha="right", fontsize=7)
         ax.set_title(label)
