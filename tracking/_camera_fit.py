@@ -86,16 +86,6 @@ def initial_camera(corners_px: np.ndarray, corners_mm: np.ndarray, image_size: t
     return best[1]
 
 
-@dataclass
-class EdgeFit:
-    """Result of :func:`fit_edges`: the camera and per-point residuals (mm on the nose plane, px)."""
-
-    camera: CameraModel
-    resid_mm: np.ndarray
-    resid_px: np.ndarray
-    length_scale: float = 1.0
-
-
 def backproject_radial(cam: CameraModel, px: np.ndarray, z_mm: float) -> np.ndarray:
     """Fast back-projection (N,3) onto the plane z for radial-only distortion (k1, k2).
 
@@ -121,12 +111,14 @@ def backproject_radial(cam: CameraModel, px: np.ndarray, z_mm: float) -> np.ndar
     return c[None, :] + s[:, None] * d
 
 
-def _edge_resid_mm(cam: CameraModel, pts: dict[str, np.ndarray], L: float, W: float, z: float,
-                   ls: float = 1.0) -> np.ndarray:
+#: A group of edge points: (side name, height z_mm of the line, (N, 2) pixels).
+Group = tuple[str, float, np.ndarray]
+
+
+def _edge_resid_mm(cam: CameraModel, groups: list[Group], L: float, W: float, ls: float = 1.0) -> np.ndarray:
     out = []
-    for side in SIDE_ORDER:
-        p = pts.get(side)
-        if p is None or len(p) == 0:
+    for side, z, p in groups:
+        if len(p) == 0:
             continue
         xyz = backproject_radial(cam, p, z)
         ax, frac = SIDES[side]
@@ -135,20 +127,32 @@ def _edge_resid_mm(cam: CameraModel, pts: dict[str, np.ndarray], L: float, W: fl
     return np.concatenate(out) if out else np.empty(0)
 
 
-def fit_edges(cam0: CameraModel, pts: dict[str, np.ndarray], L: float, W: float, z_mm: float,
+@dataclass
+class EdgeFit:
+    """Result of :func:`fit_edges`: the camera and per-point residuals (mm on the line's plane, px)."""
+
+    camera: CameraModel
+    resid_mm: np.ndarray
+    resid_px: np.ndarray
+    length_scale: float = 1.0
+
+
+def fit_edges(cam0: CameraModel, groups: list[Group], L: float, W: float,
               fit_k2: bool = False, loss_scale_px: float = 0.5,
               hfov_prior: tuple[float, float] | None = None, free_length: bool = False) -> EdgeFit:
-    """Fit focal, pose and radial distortion so the nose lines pass through the edge points.
+    """Fit focal, pose and radial distortion so the table's lines pass through the edge points.
 
-    pts: side name -> (N, 2) observed pixels on that cushion's nose line
-    (x = 0, x = L, y = 0 or y = W at height z_mm). Residual: distance (mm)
-    along the table axis between the point back-projected onto the nose plane
-    and the line, times the nominal scale (px/mm) so the loss works in pixels.
-    ``free_length`` also fits a factor on L (used to check the aspect ratio).
-    hfov_prior: (deg, sigma deg) weak prior on the horizontal field of view.
+    groups: (side, z_mm, pixels): observed pixels on the line x = 0, x = L,
+    y = 0 or y = W (side 'x0', 'xL', 'y0', 'yW') at height z_mm. Residual:
+    distance (mm) along the table axis between the point back-projected onto
+    the plane z and the line, times the nominal scale (px/mm) so the loss works
+    in pixels. ``free_length`` also fits a factor on L (to check the aspect
+    ratio). hfov_prior: (deg, sigma deg), a weak prior on the horizontal
+    field of view.
     """
     w = cam0.image_size[0]
-    scale = 1.0 / cam0.mm_per_px([L / 2, W / 2, z_mm])
+    z_ref = groups[0][1]
+    scale = 1.0 / cam0.mm_per_px([L / 2, W / 2, z_ref])
     p0 = params_from_camera(cam0, True, fit_k2)
     if free_length:
         p0 = np.append(p0, 1.0)
@@ -157,7 +161,7 @@ def fit_edges(cam0: CameraModel, pts: dict[str, np.ndarray], L: float, W: float,
     def fun(p):
         cam = camera_from_params(p[:nk], cam0.image_size, fit_k1=True, fit_k2=fit_k2)
         ls = p[nk] if free_length else 1.0
-        r = _edge_resid_mm(cam, pts, L, W, z_mm, ls) * scale
+        r = _edge_resid_mm(cam, groups, L, W, ls) * scale
         if hfov_prior is not None:
             hfov = np.degrees(2 * np.arctan(w / 2.0 / p[0]))
             r = np.append(r, loss_scale_px * (hfov - hfov_prior[0]) / hfov_prior[1])
@@ -173,16 +177,14 @@ def fit_edges(cam0: CameraModel, pts: dict[str, np.ndarray], L: float, W: float,
                         x_scale="jac", max_nfev=200)
     cam = camera_from_params(res.x[:nk], cam0.image_size, fit_k1=True, fit_k2=fit_k2)
     ls = float(res.x[nk]) if free_length else 1.0
-    r_mm = _edge_resid_mm(cam, pts, L, W, z_mm, ls)
-    # local scale per point for the pixel residual
+    r_mm = _edge_resid_mm(cam, groups, L, W, ls)
     r_px = []
     i = 0
-    for side in SIDE_ORDER:
-        p = pts.get(side)
-        if p is None or len(p) == 0:
+    for side, z, p in groups:
+        if len(p) == 0:
             continue
-        xyz = cam.backproject(p, z_mm)
-        k = np.array([1.0 / cam.mm_per_px(q) for q in xyz[:: max(len(xyz) // 8, 1)]]).mean()
+        xyz = backproject_radial(cam, p, z)
+        k = np.mean([1.0 / cam.mm_per_px(q) for q in xyz[:: max(len(xyz) // 8, 1)]])
         r_px.append(r_mm[i: i + len(p)] * k)
         i += len(p)
     return EdgeFit(cam, r_mm, np.concatenate(r_px) if r_px else np.empty(0), ls)

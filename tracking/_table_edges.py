@@ -151,11 +151,13 @@ def _sample(gray: np.ndarray, pts: np.ndarray) -> np.ndarray:
 
 
 def nose_offset(profile: np.ndarray, step: float, plateau_n: int, settings: CalibrationSettings,
-                inner_n: int) -> tuple[float, float] | None:
-    """Offset (samples) of the nose edge along an outward profile, and its contrast.
+                inner_n: int) -> tuple[float, float, float | None] | None:
+    """Offsets (samples) of the nose edge along an outward profile, its contrast, and the band's inner edge.
 
-    ``inner_n`` leading samples are known cloth. Returns None when the profile
-    shows no clean cloth -> cushion transition (pocket, ball, clutter).
+    ``inner_n`` leading samples are known cloth. The third value is the offset
+    of the first (cloth-side) edge when a band lies between cloth and cushion
+    top, else None. Returns None when the profile shows no clean cloth ->
+    cushion transition (pocket, ball, clutter).
     """
     g = profile.astype(float)
     cloth = g[:inner_n]
@@ -206,14 +208,23 @@ def nose_offset(profile: np.ndarray, step: float, plateau_n: int, settings: Cali
     a, b, c = absd[k - 1], absd[k], absd[k + 1]
     den = a - 2 * b + c
     frac = 0.5 * (a - c) / den if den < 0 else 0.0
-    return k + float(np.clip(frac, -0.5, 0.5)), float(b)
+    inner = None
+    if k != i1 and i1 >= 1:
+        a1, b1, c1 = absd[i1 - 1], absd[i1], absd[i1 + 1]
+        den1 = a1 - 2 * b1 + c1
+        inner = i1 + (float(np.clip(0.5 * (a1 - c1) / den1, -0.5, 0.5)) if den1 < 0 else 0.0)
+    return k + float(np.clip(frac, -0.5, 0.5)), float(b), inner
 
 
 def edge_points_along(gray: np.ndarray, p0: np.ndarray, p1: np.ndarray, outward: np.ndarray,
                       s_ranges: list[tuple[float, float]], inner_px: float, outer_px: float,
                       plateau_px: float, settings: CalibrationSettings,
-                      curve=None, n_profiles: int | None = None) -> tuple[np.ndarray, np.ndarray]:
+                      curve=None, n_profiles: int | None = None
+                      ) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
     """Nose points along the segment p0->p1 (px), profiles taken along ``outward``.
+
+    Returns (nose points (N,2), edge contrast (N,), band inner-edge points
+    (N,2), NaN where the profile shows no band).
 
     s_ranges: fractions of the segment to use (pockets excluded). ``curve``
     optionally maps fractions s (M,) -> (points (M,2), outward normals (M,2)) to
@@ -228,7 +239,7 @@ def edge_points_along(gray: np.ndarray, p0: np.ndarray, p1: np.ndarray, outward:
         keep |= (s_all >= a) & (s_all <= b)
     s = s_all[keep]
     if s.size == 0:
-        return np.empty((0, 2)), np.empty(0)
+        return np.empty((0, 2)), np.empty(0), np.empty((0, 2))
     if curve is None:
         base = p0[None, :] + s[:, None] * (p1 - p0)[None, :]
         nrm = np.repeat((outward / np.linalg.norm(outward))[None, :], len(s), axis=0)
@@ -243,7 +254,7 @@ def edge_points_along(gray: np.ndarray, p0: np.ndarray, p1: np.ndarray, outward:
     prof = _sample(gray, pts).mean(axis=2)
     inner_n = max(int(0.35 * inner_px / step), 4)
     plateau_n = max(int(plateau_px / step), 4)
-    out, strength = [], []
+    out, strength, inner = [], [], []
     for i in range(len(s)):
         r = nose_offset(prof[i], step, plateau_n, settings, inner_n)
         if r is None:
@@ -251,6 +262,7 @@ def edge_points_along(gray: np.ndarray, p0: np.ndarray, p1: np.ndarray, outward:
         off = offs[0] + r[0] * step
         out.append(base[i] + off * nrm[i])
         strength.append(r[1])
+        inner.append(base[i] + (offs[0] + r[2] * step) * nrm[i] if r[2] is not None else (np.nan, np.nan))
     if not out:
-        return np.empty((0, 2)), np.empty(0)
-    return np.array(out), np.array(strength)
+        return np.empty((0, 2)), np.empty(0), np.empty((0, 2))
+    return np.array(out), np.array(strength), np.array(inner, float)

@@ -205,6 +205,7 @@ def calibrate_auto(frames: list[np.ndarray], table: TablePreset, ball_diameter_m
     plateau_px = settings.plateau_mm * px_mm0
     prior = (settings.hfov_prior_deg, settings.hfov_prior_sigma_deg)
     fit = None
+    inner: dict[str, np.ndarray] = {}
     for it in range(max(settings.passes, 1)):
         pts: dict[str, np.ndarray] = {}
         for i, side in enumerate(SIDE_ORDER):
@@ -215,54 +216,111 @@ def calibrate_auto(frames: list[np.ndarray], table: TablePreset, ball_diameter_m
                 nrm = np.array([-t[1], t[0]])
                 if np.dot(nrm, (p0 + p1) / 2 - corners.mean(axis=0)) < 0:
                     nrm = -nrm
-                found, _ = edge_points_along(gray, p0, p1, nrm, ranges, settings.search_in_frac * w_px,
-                                             settings.search_out_frac * w_px, plateau_px, settings)
+                found, _, band = edge_points_along(gray, p0, p1, nrm, ranges, settings.search_in_frac * w_px,
+                                                   settings.search_out_frac * w_px, plateau_px, settings)
             else:
                 win = settings.refine_window_px
-                found, _ = edge_points_along(gray, None, None, None, ranges, 1.5 * win + plateau_px / 2,
-                                             win + plateau_px * 1.5, plateau_px, settings,
-                                             curve=_curve(fit.camera, side, L, W, z_nose),
-                                             n_profiles=_n_profiles(fit.camera, side, L, W, z_nose,
-                                                                    settings))
-            if it > 0 and len(found):
-                r = np.abs(_point_resid_px(fit.camera, side, found, L, W, z_nose))
-                found = found[r < max(settings.outlier_px, 4 * settings.loss_scale_px) + (
-                    settings.refine_window_px if it == 1 else 0)]
+                found, _, band = edge_points_along(
+                    gray, None, None, None, ranges, 1.5 * win + plateau_px / 2, win + plateau_px * 1.5,
+                    plateau_px, settings, curve=_curve(fit.camera, side, L, W, z_nose),
+                    n_profiles=_n_profiles(fit.camera, side, L, W, z_nose, settings))
+                if len(found):
+                    r = np.abs(_point_resid_px(fit.camera, side, found, L, W, z_nose))
+                    ok = r < max(settings.outlier_px, 4 * settings.loss_scale_px) + (win if it == 1 else 0)
+                    found, band = found[ok], band[ok]
             pts[side] = found
+            inner[side] = band
         few = [s for s in SIDE_ORDER if len(pts[s]) < 8]
         if few:
             raise FeltlabError(
                 f"found too few cushion-nose points on side(s) {', '.join(few)}; is the whole table in view "
                 "and not covered? otherwise calibrate from a file")
-        fit = fit_edges(fit.camera if fit else cam, pts, L, W, z_nose, settings.fit_k2,
-                        settings.loss_scale_px, prior)
-        # drop outliers and refit
-        keep = np.abs(fit.resid_px) < max(settings.outlier_px, 4 * _robust_sigma(fit.resid_px))
-        if not keep.all():
-            i0 = 0
-            for side in SIDE_ORDER:
-                n = len(pts[side])
-                pts[side] = pts[side][keep[i0: i0 + n]]
-                i0 += n
-            fit = fit_edges(fit.camera, pts, L, W, z_nose, settings.fit_k2, settings.loss_scale_px, prior)
-    res_px = float(np.sqrt(np.mean(fit.resid_px ** 2)))
-    res_mm = float(np.sqrt(np.mean(fit.resid_mm ** 2)))
+        groups = [(side, z_nose, pts[side]) for side in SIDE_ORDER]
+        fit, groups = _fit_robust(fit.camera if fit else cam, groups, L, W, settings, prior)
+    nose_groups = groups
+    n_nose = sum(len(g[2]) for g in groups)
+    height_from = "focal-length prior (near-overhead view; see CalibrationSettings.hfov_prior_deg)"
+    # Vertical cushion faces in view: their foot (z = 0) fixes the camera height.
+    band = _band_check(fit.camera, pts, inner, L, W, settings)
+    if band is not None:
+        groups2 = nose_groups + [(side, 0.0, band[side]) for side in SIDE_ORDER]
+        fit2, groups2 = _fit_robust(fit.camera, groups2, L, W, settings, None)
+        n2 = sum(len(g[2]) for g in groups2[:4])
+        r_nose = np.sqrt(np.mean(fit2.resid_px[:n2] ** 2))
+        r_foot = np.sqrt(np.mean(fit2.resid_px[n2:] ** 2))
+        if r_foot < settings.band_resid_px and r_nose < 1.5 * np.sqrt(np.mean(fit.resid_px ** 2)) + 0.05:
+            fit, groups = fit2, groups2
+            n_nose = n2
+            height_from = "cushion faces (nose at z = h, foot at z = 0)"
+        else:
+            notes.append("cushion-face band seen but inconsistent with vertical faces; camera height from "
+                         "the focal-length prior")
+    res_px = float(np.sqrt(np.mean(fit.resid_px[:n_nose] ** 2)))
+    res_mm = float(np.sqrt(np.mean(fit.resid_mm[:n_nose] ** 2)))
     if not math.isfinite(res_px) or res_px > settings.max_residual_px:
         raise FeltlabError(
             f"table edges do not fit a camera model (RMS {res_px:.2f} px); check the table preset or "
             "calibrate from a file")
     # aspect check: refit with a free length factor
-    chk = fit_edges(fit.camera, pts, L, W, z_nose, settings.fit_k2, settings.loss_scale_px, prior,
-                    free_length=True)
+    chk = fit_edges(fit.camera, groups, L, W, settings.fit_k2, settings.loss_scale_px,
+                    prior if band is None else None, free_length=True)
     if abs(chk.length_scale - 1) > settings.aspect_warn_frac:
         notes.append(
             f"the table's length/width looks {chk.length_scale * L / W:.3f}, not {L / W:.3f} as for "
             f"{table.name}: is this the right table preset?")
     cam_fit = fit.camera
-    cam_fit.meta = {"layout": layout, "nose_height_mm": z_nose, "n_edge_points": int(len(fit.resid_px))}
-    cal = Calibration(camera=cam_fit, table=table, ball_diameter_mm=ball_d, residual_px=res_px,
-                      residual_mm=res_mm, method="auto", notes=notes)
-    return cal
+    cam_fit.meta = {"layout": layout, "nose_height_mm": z_nose, "n_edge_points": int(n_nose),
+                    "height_from": height_from}
+    return Calibration(camera=cam_fit, table=table, ball_diameter_mm=ball_d, residual_px=res_px,
+                       residual_mm=res_mm, method="auto", notes=notes)
+
+
+def _fit_robust(cam, groups, L, W, settings, prior):
+    """Fit, drop points beyond the outlier cut, refit. Returns (fit, kept groups)."""
+    fit = fit_edges(cam, groups, L, W, settings.fit_k2, settings.loss_scale_px, prior)
+    cut = max(settings.outlier_px, 4 * _robust_sigma(fit.resid_px))
+    keep = np.abs(fit.resid_px) < cut
+    if keep.all():
+        return fit, groups
+    out, i0 = [], 0
+    for side, z, p in groups:
+        out.append((side, z, p[keep[i0: i0 + len(p)]]))
+        i0 += len(p)
+    return fit_edges(fit.camera, out, L, W, settings.fit_k2, settings.loss_scale_px, prior), out
+
+
+def _band_check(cam, pts, inner, L, W, settings) -> dict[str, np.ndarray] | None:
+    """Inner band edges per side if they behave like the feet of vertical cushion faces.
+
+    A vertical face of height h on a side at horizontal distance d from the
+    camera's foot point appears as a band h * d / H wide (H: camera height).
+    Opposite sides' distances add up to the table's width (or length), so the
+    band widths summed over the two short sides (x0 + xL) and over the two
+    long sides (y0 + yW) stand in the ratio L / W. A shadow band lit from
+    above has no such ratio. Returns None when the check fails.
+    """
+    widths = {}
+    out = {}
+    for side in SIDE_ORDER:
+        b = inner.get(side)
+        if b is None or len(b) == 0:
+            return None
+        ok = np.isfinite(b[:, 0])
+        if ok.mean() < settings.band_min_frac or ok.sum() < 8:
+            return None
+        d_px = np.linalg.norm(pts[side][ok] - b[ok], axis=1)
+        xyz = cam.backproject(pts[side][ok][:: max(ok.sum() // 6, 1)], 0.0)
+        scale = np.mean([1.0 / cam.mm_per_px(q) for q in xyz])
+        widths[side] = float(np.median(d_px)) / scale
+        out[side] = b[ok]
+    long_sum = widths["y0"] + widths["yW"]
+    short_sum = widths["x0"] + widths["xL"]
+    if long_sum <= 0 or min(widths.values()) * 1.0 < settings.band_min_mm:
+        return None
+    ratio = short_sum / long_sum
+    if abs(ratio / (L / W) - 1) > settings.band_ratio_tol:
+        return None
+    return out
 
 
 def _robust_sigma(r: np.ndarray) -> float:

@@ -88,6 +88,16 @@ class CalibrationSettings:
     #: video lenses (from memory); it only matters when the tilt is tiny.
     hfov_prior_deg: float = 60.0
     hfov_prior_sigma_deg: float = 25.0
+    #: Cushion-face band (between cloth and cushion top) used to fix the
+    #: camera height: it must show on this fraction of a side's profiles, be
+    #: at least band_min_mm wide (mm on the table; narrower carries too little
+    #: height information), pass the L/W width-ratio test within
+    #: band_ratio_tol (see calibrate._band_check), and fit the face-foot line
+    #: to band_resid_px RMS.
+    band_min_frac: float = 0.5
+    band_min_mm: float = 1.5
+    band_ratio_tol: float = 0.25
+    band_resid_px: float = 0.6
     #: Warn when the observed table aspect ratio departs from the preset's by
     #: more than this fraction (a different table size; WPA tolerance is
     #: 3.2 mm on 1270 mm, 0.25%).
