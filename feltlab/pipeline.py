@@ -357,28 +357,16 @@ def write_outputs(folder: Path, *, clip: Path, sha: str, tr, ph, table: TablePre
             for c, tag, k, p in res["frames"]:
                 files.append(p)
                 by_contact.setdefault(c, []).append((tag, k, p))
-            cons = {c["contact"]: c for c in ov.contacts}
-            for c, items in by_contact.items():
-                con = cons[c]
-
-                def strip(c=c, con=con, items=items):
-                    import cv2
-
-                    imgs = []
-                    for tag, k, p in items:
-                        dt_ms = (k / float(tr.fps) - con["t_s"]) * 1000.0
-                        imgs.append((f"{tag} (frame {k}, {dt_ms:+.1f} ms)", cv2.imread(str(p))))
-                    return fr_out.contact_strip(imgs, con["cp_px"], ov.radius_px,
-                                                folder / "frames" / f"contact{c:02d}_closeup.png")
-
-                sp = attempt(f"close-up of contact {c}", strip)
-                if sp is not None:
-                    files.append(sp)
-                    contact_images.append((f"{con['label']} at {con['t_s']:.4f} s, close-up: just before, at, "
-                                           f"just after; {con['e_text']}", sp))
-                at = [p for tag, k, p in items if tag == "at"]
+            closeups = dict(res.get("closeups", []))
+            files += list(closeups.values())
+            for con in ov.contacts:
+                c = con["contact"]
+                if c in closeups:
+                    contact_images.append((f"{con['label']} at {con['t_s']:.4f} s: close-up just before, at and "
+                                           f"just after the contact; {con['e_text']}", closeups[c]))
+                at = [p for tag, k, p in by_contact.get(c, []) if tag == "at"]
                 if at:
-                    contact_images.append((f"{con['label']}: whole frame at the contact", at[0]))
+                    contact_images.append((f"{con['label']}: the whole frame nearest the contact", at[0]))
         timings["draw_s"] = time.perf_counter() - t
         log.info("frames: %s%d contact frames", "annotated.mp4, " if settings.video and out else "",
                  len(out[1]["frames"]) if out else 0)

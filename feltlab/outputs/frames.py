@@ -257,15 +257,30 @@ def _text_width(s: str, size: int) -> float:
 
 
 def draw_overlay(image: np.ndarray, ov: Overlay, frame: int, t_s: float | None = None,
-                 focus_contact: dict | None = None, caption: str | None = None) -> np.ndarray:
-    """A copy of ``image`` (BGR) with the overlay for ``frame``; pure apart from the copy."""
+                 focus_contact: dict | None = None, caption: str | None = None,
+                 view: tuple[float, float, float] | None = None) -> np.ndarray:
+    """A copy of ``image`` (BGR) with the overlay for ``frame``; pure apart from the copy.
+
+    ``view = (x0, y0, scale)``: ``image`` is a crop of the frame starting at
+    pixel (x0, y0), enlarged by ``scale`` (close-ups); geometry is mapped
+    accordingly and the legend panel and contact text are left out (the
+    close-up's caption bar carries them).
+    """
     img = image.copy()
     k = int(frame)
     t = k / ov.fps if t_s is None else t_s
     fs = ov.font_px
     texts: list = []
-    th = 2 if img.shape[0] >= 600 else 1
-    r = max(4, int(round(ov.radius_px)))
+    if view is None:
+        off, sc = np.zeros(2), 1.0
+    else:
+        off, sc = np.array(view[:2], float), float(view[2])
+
+    def T(p):
+        return (np.asarray(p, float) - off) * sc
+
+    th = 2 if img.shape[0] >= 600 or view is not None else 1
+    r = max(4, int(round(ov.radius_px * sc)))
     # Contacts: normal line, contact point and e, held for a while after the contact.
     shown = []
     for c in ov.contacts:
@@ -275,32 +290,33 @@ def draw_overlay(image: np.ndarray, ov: Overlay, frame: int, t_s: float | None =
             shown.append(c)
     for c in shown:
         if c["n_px"] is not None:
-            _line(img, c["n_px"], CONTACT_RGB, 1)
+            _line(img, T(c["n_px"]), CONTACT_RGB, 1 if view is None else 2)
         if c["cp_px"] is not None and np.isfinite(c["cp_px"]).all():
-            p = c["cp_px"]
-            cv2.drawMarker(img, _pt(p), (0, 0, 0), cv2.MARKER_TILTED_CROSS, 2 * r // 2 + 4, 4, cv2.LINE_AA)
-            cv2.drawMarker(img, _pt(p), bgr(CONTACT_RGB), cv2.MARKER_TILTED_CROSS, 2 * r // 2 + 4, 2, cv2.LINE_AA)
+            p = T(c["cp_px"])
+            cv2.drawMarker(img, _pt(p), (0, 0, 0), cv2.MARKER_TILTED_CROSS, r + 4, 4, cv2.LINE_AA)
+            cv2.drawMarker(img, _pt(p), bgr(CONTACT_RGB), cv2.MARKER_TILTED_CROSS, r + 4, 2, cv2.LINE_AA)
     # Trails, balls, labels, arrows.
     for b, p in ov.px.items():
         col = ov.colours[b]
-        hist = p[: k + 1]
-        _line(img, hist, col, 1)
+        _line(img, T(p[: k + 1]), col, 1 if view is None else 2)
         if k >= ov.n_frames or not np.isfinite(p[k]).all():
             continue
-        cv2.circle(img, _pt(p[k]), r + 1, (0, 0, 0), 3, cv2.LINE_AA)
-        cv2.circle(img, _pt(p[k]), r + 1, bgr(col), 1, cv2.LINE_AA)
+        q = T(p[k])
+        cv2.circle(img, _pt(q), r + 1, (0, 0, 0), 3, cv2.LINE_AA)
+        cv2.circle(img, _pt(q), r + 1, bgr(col), 1 if view is None else 2, cv2.LINE_AA)
         if ov.speed[b][k] >= MIN_ARROW_SPEED_MM_S:
-            _arrow(img, p[k], ov.tip[b][k], col, th)
-        texts.append((b, (p[k][0] + r + 3, p[k][1] - r - 2), col, fs))
-    for c in shown:
-        if c["cp_px"] is None or not np.isfinite(c["cp_px"]).all():
-            continue
-        p = c["cp_px"]
-        lines = [c["label"], c["e_text"]]
-        y0 = p[1] + 2 * r + fs
-        for i, s in enumerate(lines):
-            texts.append((s, (p[0] + 2 * r, y0 + i * 1.3 * fs), CONTACT_RGB, fs))
-    _panel(img, ov, k, t, caption, texts)
+            _arrow(img, q, T(ov.tip[b][k]), col, th)
+        texts.append((b, (q[0] + 0.75 * r + 3, q[1] - 0.75 * r - 3), col, fs))
+    if view is None:
+        for c in shown:
+            if c["cp_px"] is None or not np.isfinite(c["cp_px"]).all():
+                continue
+            p = c["cp_px"]
+            lines = [c["label"], c["e_text"]]
+            y0 = p[1] + 2 * r + fs
+            for i, s in enumerate(lines):
+                texts.append((s, (p[0] + 2 * r, y0 + i * 1.3 * fs), CONTACT_RGB, fs))
+        _panel(img, ov, k, t, caption, texts)
     _draw_texts(img, texts)
     return img
 
@@ -360,7 +376,8 @@ def render_annotations(video_path: Path, ov: Overlay, out_dir: Path, write_video
                        progress: Callable[[int, int], None] | None = None) -> dict:
     """Stream the clip once: write annotated.mp4 and the contact PNGs into ``out_dir``.
 
-    Returns {"video": path or None, "frames": [(contact, tag, frame, path), ...]}.
+    Returns {"video": path or None, "frames": [(contact, tag, frame, path), ...],
+    "closeups": [(contact, path), ...]} (close-ups: frames/contactNN_closeup.png).
     ``frame_times`` (s, per frame index) overrides k/fps in the captions.
     """
     out_dir = Path(out_dir)
@@ -369,6 +386,8 @@ def render_annotations(video_path: Path, ov: Overlay, out_dir: Path, write_video
     for c, tag, k in plan:
         want.setdefault(k, []).append((c, tag))
     cons = {c["contact"]: c for c in ov.contacts}
+    boxes = {c["contact"]: closeup_box(ov, c) for c in ov.contacts}
+    crops: dict[int, list] = {}
     cap = cv2.VideoCapture(str(video_path))
     if not cap.isOpened():
         raise FeltlabError(f"cannot re-open {video_path} to draw the annotated frames; check the file is readable",
@@ -407,6 +426,8 @@ def render_annotations(video_path: Path, ov: Overlay, out_dir: Path, write_video
                 if not cv2.imwrite(str(p), draw_overlay(img, ov, k, t, focus_contact=con, caption=caption)):
                     raise FeltlabError(f"could not write {p}; check free disk space", stage="outputs")
                 written.append((c, tag, k, p))
+                bx0, by0, bx1, by1 = boxes[c]
+                crops.setdefault(c, []).append((tag, k, t, img[by0:by1, bx0:bx1].copy()))
             k += 1
             if progress is not None:
                 progress(k, ov.n_frames)
@@ -414,36 +435,61 @@ def render_annotations(video_path: Path, ov: Overlay, out_dir: Path, write_video
         cap.release()
         if writer is not None:
             writer.release()
-    return {"video": video_path_out if writer is not None else None, "frames": written}
+    closeups = []
+    for c, items in crops.items():
+        p = frames_dir / f"contact{c:02d}_closeup.png"
+        closeups.append((c, contact_closeup(ov, cons[c], items, p)))
+    return {"video": video_path_out if writer is not None else None, "frames": written, "closeups": closeups}
 
 
-def contact_strip(images: list[tuple[str, np.ndarray]], centre_px, radius_px: float, out_path: Path,
-                  height_px: int = 320) -> Path:
-    """Close-up of one contact: the same crop of each (caption, annotated BGR frame), side by side.
+def closeup_box(ov: Overlay, contact: dict) -> tuple[int, int, int, int]:
+    """Crop (x0, y0, x1, y1) px around a contact: 16 x 10 ball radii, at least 240 x 150 px, inside the image."""
+    w, h = ov.image_size
+    hw = int(min(w // 2, max(120, 8 * ov.radius_px)))
+    hh = int(min(h // 2, max(75, 5 * ov.radius_px)))
+    cp = contact.get("cp_px")
+    cx, cy = (w // 2, h // 2) if cp is None or not np.isfinite(cp).all() else _pt(cp)
+    x0 = int(np.clip(cx - hw, 0, w - 2 * hw))
+    y0 = int(np.clip(cy - hh, 0, h - 2 * hh))
+    return x0, y0, x0 + 2 * hw, y0 + 2 * hh
 
-    The crop is centred on the contact point (px), 16 x 10 ball radii (at least
-    240 x 150 px), scaled to ``height_px``; each panel gets its caption.
+
+def contact_closeup(ov: Overlay, contact: dict, crops: list[tuple[str, int, float, np.ndarray]], out_path: Path,
+                    height_px: int = 300) -> Path:
+    """Close-up of one contact: (tag, frame, t_s, raw BGR crop) panels side by side, overlay redrawn at the zoom.
+
+    Each panel is captioned with its frame and time from the contact; a bar
+    below gives the contact, e ± sigma and the speed-arrow scale at this zoom.
     """
-    if not images:
-        raise ValueError("no frames for the contact strip")
-    h, w = images[0][1].shape[:2]
-    hw = int(max(120, 8 * radius_px))
-    hh = int(max(75, 5 * radius_px))
-    cx, cy = (w // 2, h // 2) if centre_px is None or not np.isfinite(centre_px).all() else _pt(centre_px)
-    x0 = int(np.clip(cx - hw, 0, max(0, w - 2 * hw)))
-    y0 = int(np.clip(cy - hh, 0, max(0, h - 2 * hh)))
+    if not crops:
+        raise ValueError("no frames for the contact close-up")
+    x0, y0, _, _ = closeup_box(ov, contact)
     panels = []
-    for cap, img in images:
-        crop = img[y0:y0 + 2 * hh, x0:x0 + 2 * hw]
-        f = height_px / crop.shape[0]
-        crop = cv2.resize(crop, (int(round(crop.shape[1] * f)), height_px), interpolation=cv2.INTER_CUBIC)
-        bar = np.full((int(height_px * 0.12) + 8, crop.shape[1], 3), 255, np.uint8)
-        size = int(height_px * 0.07)
-        panel = np.vstack([crop, bar])
-        _draw_texts_plain(panel, [(cap, (8, panel.shape[0] - bar.shape[0] / 2 + size * 0.35), (0, 0, 0), size)])
+    fs = max(14, int(height_px * 0.06))
+    scale = 1.0
+    for tag, k, t, crop in crops:
+        scale = height_px / crop.shape[0]
+        big = cv2.resize(crop, (int(round(crop.shape[1] * scale)), height_px), interpolation=cv2.INTER_CUBIC)
+        big = draw_overlay(big, ov, k, t, focus_contact=contact, view=(x0, y0, scale))
+        bar = np.full((int(1.8 * fs), big.shape[1], 3), 255, np.uint8)
+        panel = np.vstack([big, bar])
+        dt_ms = (t - contact["t_s"]) * 1000.0
+        _draw_texts_plain(panel, [(f"{tag}: frame {k}, {dt_ms:+.1f} ms", (8, panel.shape[0] - 0.55 * fs),
+                                   (0, 0, 0), fs)])
         panels.append(panel)
         panels.append(np.full((panel.shape[0], 6, 3), 255, np.uint8))
     strip = np.hstack(panels[:-1])
+    foot = np.full((int(2.0 * fs), strip.shape[1], 3), 255, np.uint8)
+    label = f"{contact['label']}   {contact['e_text']}   arrow"
+    wl = _text_width(label, fs)
+    L = ov.legend_px * scale
+    ay = int(foot.shape[0] * 0.5)
+    ax0 = int(8 + wl + 10)
+    cv2.arrowedLine(foot, (ax0, ay), (int(ax0 + L), ay), (0, 0, 0), 2, cv2.LINE_AA, tipLength=min(0.35, 12.0 / max(L, 1)))
+    _draw_texts_plain(foot, [(label, (8, foot.shape[0] * 0.5 + 0.35 * fs), (0, 0, 0), fs),
+                             (f"= {speed_text(ov.legend_mm_s)}", (ax0 + L + 8, foot.shape[0] * 0.5 + 0.35 * fs),
+                              (0, 0, 0), fs)])
+    strip = np.vstack([strip, foot])
     if not cv2.imwrite(str(out_path), strip):
         raise FeltlabError(f"could not write {out_path}; check free disk space", stage="outputs")
     return Path(out_path)

@@ -1,0 +1,439 @@
+"""Output writers: tables (units, round trip), shot.json, annotated frames/video, plots, report, atomic results.
+
+The writers are fed a synthetic shot built from closed forms (REFERENCES.md):
+a cue ball rolling straight into a resting ball of equal mass, restitution e,
+no friction (v_a' = (1 - e) v / 2, v_b' = (1 + e) v / 2), filmed by a camera
+from :meth:`tracking.camera.CameraModel.looking_down`. The stages are replaced
+by that data where the pipeline's own glue (atomic folders, re-run rules) is
+under test; the real stages are exercised in test_analyze_e2e.py.
+"""
+from __future__ import annotations
+
+import base64
+import hashlib
+import json
+import math
+import re
+import types
+from pathlib import Path
+
+import cv2
+import numpy as np
+import pandas as pd
+import pytest
+
+from feltlab.errors import FeltlabError
+from feltlab.outputs import frames as fr_out
+from feltlab.outputs import plots as plot_out
+from feltlab.outputs import report as rep_out
+from feltlab.outputs.shotfile import build_shot, jsonable, write_shot
+from feltlab.outputs.tables import CONTACT_COLUMNS, TRACK_COLUMNS, has_unit, tidy, write_table
+from feltlab.standards import table_preset
+from tracking.calibration import Calibration
+from tracking.camera import CameraModel
+
+TABLE = table_preset("pool-9ft")
+R = TABLE.ball.radius_mm
+FPS = 60.0
+N_FRAMES = 45
+V0 = 1500.0  # mm/s
+E = 0.9
+SIZE = (640, 352)  # non-square on purpose (catches x/y swaps)
+#: Settings without pictures, for the tests of the result-folder rules (faster).
+LIGHT = dict(video=False, frames=False, plots=False, report=False)
+
+
+def synthetic_calibration() -> Calibration:
+    cam = CameraModel.looking_down(table_centre_mm=(TABLE.length_mm / 2, TABLE.width_mm / 2), height_mm=3000,
+                                   focal_px=640, image_size=SIZE, roll_deg=0.7, pitch_deg=1.5, k1=-0.03)
+    return Calibration(camera=cam, table=TABLE, ball_diameter_mm=2 * R, residual_px=0.21, residual_mm=0.5,
+                       method="synthetic")
+
+
+def synthetic_shot(name_b: str = "red"):
+    """Head-on hit, equal masses, restitution E, frictionless: closed form (REFERENCES.md)."""
+    xa0, xb0, y = 800.0, 1400.0, 635.0
+    t_c = (xb0 - 2 * R - xa0) / V0
+    va_out = (1 - E) * V0 / 2
+    vb_out = (1 + E) * V0 / 2
+    t = np.arange(N_FRAMES) / FPS
+    rows = []
+    for k, tk in enumerate(t):
+        if tk < t_c:
+            xa, va, xb, vb = xa0 + V0 * tk, V0, xb0, 0.0
+        else:
+            xa, va = xa0 + V0 * t_c + va_out * (tk - t_c), va_out
+            xb, vb = xb0 + vb_out * (tk - t_c), vb_out
+        for ball, x, v in (("cue", xa, va), (name_b, xb, vb)):
+            rows.append(dict(frame=k, t_s=tk, ball=ball, x_mm=x, y_mm=y, vx_mm_s=v, vy_mm_s=0.0, sx_mm=0.2,
+                             sy_mm=0.2, visible=1))
+    tracks = pd.DataFrame(rows)
+    m = TABLE.ball.mass_kg
+    ke0 = 0.5 * m * (V0 / 1000) ** 2
+    ke1 = 0.5 * m * ((va_out / 1000) ** 2 + (vb_out / 1000) ** 2)
+    contacts = pd.DataFrame([dict(
+        contact=1, t_s=t_c, t_sigma_s=0.0004, kind="ball-ball", ball_a="cue", ball_b=name_b, cushion="",
+        nx=1.0, ny=0.0, va_in_x_mm_s=V0, va_in_y_mm_s=0.0, va_out_x_mm_s=va_out, va_out_y_mm_s=0.0,
+        vb_in_x_mm_s=0.0, vb_in_y_mm_s=0.0, vb_out_x_mm_s=vb_out, vb_out_y_mm_s=0.0, speed_in_mm_s=V0,
+        e=E, e_sigma=0.01, impulse_Ns=m * vb_out / 1000, impulse_n_Ns=m * vb_out / 1000, impulse_t_Ns=0.0,
+        momentum_residual_pct=0.0, ke_before_J=ke0, ke_after_J=ke1, ke_loss_frac=1 - ke1 / ke0,
+        cut_angle_deg=0.0, throw_deg=0.0, a_phase_in="roll", b_phase_in="rest", x_mm=xb0 - R, y_mm=y)])
+    segments = pd.DataFrame([
+        dict(ball="cue", segment=0, t0_s=0.0, t1_s=t_c, phase="roll"),
+        dict(ball="cue", segment=1, t0_s=t_c, t1_s=t[-1], phase="slide"),
+        dict(ball=name_b, segment=0, t0_s=0.0, t1_s=t_c, phase="rest"),
+        dict(ball=name_b, segment=1, t0_s=t_c, t1_s=t[-1], phase="slide"),
+    ])
+    events = pd.DataFrame([dict(event=0, t_s=t_c, t_sigma_s=0.0004, kind="ball-ball", ball="cue", other=name_b,
+                                contact=1)])
+    return tracks, contacts, segments, events
+
+
+def write_synthetic_video(path: Path, tracks: pd.DataFrame, cal: Calibration) -> Path:
+    """Green cloth with white/red discs at the projected ball centres."""
+    w, h = SIZE
+    vw = cv2.VideoWriter(str(path), cv2.VideoWriter_fourcc(*"mp4v"), FPS, (w, h))
+    assert vw.isOpened()
+    r_px = R * cal.px_per_mm
+    for k in range(N_FRAMES):
+        img = np.zeros((h, w, 3), np.uint8)
+        img[:] = (50, 120, 30)
+        for _, row in tracks[tracks["frame"] == k].iterrows():
+            p = cal.table_to_px([[row.x_mm, row.y_mm]])[0]
+            col = (235, 235, 235) if row.ball == "cue" else (40, 40, 200)
+            cv2.circle(img, (int(round(p[0])), int(round(p[1]))), int(round(r_px)), col, -1, cv2.LINE_AA)
+        vw.write(img)
+    vw.release()
+    return path
+
+
+def fake_stages(monkeypatch, name_b: str = "red", calls: list | None = None):
+    """Replace tracking and physics in feltlab.pipeline by the synthetic shot (glue tests only)."""
+    import feltlab.pipeline as P
+
+    tracks, contacts, segments, events = synthetic_shot(name_b)
+    cal = synthetic_calibration()
+
+    def _track(clip, table, c, settings, progress):
+        if calls is not None:
+            calls.append(("track", settings.fps))
+        return types.SimpleNamespace(tracks=tracks, detections=None, calibration=cal, fps=settings.fps or FPS,
+                                     fps_source="override" if settings.fps else "container", n_frames=N_FRAMES,
+                                     balls=None)
+
+    def _physics(tr, table, radius, mass, settings):
+        return types.SimpleNamespace(events=events, segments=segments, contacts=contacts, mu_s=0.21,
+                                     mu_s_sigma=0.02, mu_r=0.011, mu_r_sigma=0.001)
+
+    monkeypatch.setattr(P, "_track", _track)
+    monkeypatch.setattr(P, "_physics", _physics)
+    return tracks, contacts, cal
+
+
+# --------------------------------------------------------------------------- tables
+def test_tables_round_trip_with_units(tmp_path):
+    tracks, contacts, segments, events = synthetic_shot()
+    for kind, df in (("tracks", tracks), ("contacts", contacts), ("segments", segments), ("events", events)):
+        paths = write_table(df, kind, tmp_path)
+        assert [p.name for p in paths] == [f"{kind}.csv", f"{kind}.parquet"]
+        back_csv = pd.read_csv(paths[0], keep_default_na=False, na_values=[""])
+        import pyarrow.parquet as pq  # independent reader of the Parquet file
+
+        back_pq = pq.read_table(paths[1]).to_pandas()
+        assert list(back_csv.columns) == list(back_pq.columns)
+        assert all(has_unit(c) for c in back_csv.columns), [c for c in back_csv.columns if not has_unit(c)]
+        num = [c for c in df.columns if pd.api.types.is_float_dtype(df[c])]
+        for c in num:
+            np.testing.assert_allclose(back_csv[c].to_numpy(float), df[c].to_numpy(float), rtol=1e-8, atol=1e-9)
+            np.testing.assert_array_equal(back_pq[c].to_numpy(float), df[c].to_numpy(float))
+    # Documented order (DEVELOPERS.md) comes first.
+    assert list(pd.read_csv(tmp_path / "tracks.csv").columns[: len(TRACK_COLUMNS)]) == TRACK_COLUMNS
+    cols = list(pd.read_csv(tmp_path / "contacts.csv").columns)
+    assert cols[:5] == CONTACT_COLUMNS[:5]
+    # A cushion-free ball-ball row keeps an empty cushion field, not "nan".
+    assert pd.read_csv(tmp_path / "contacts.csv", keep_default_na=False)["cushion"].tolist() == [""]
+
+
+def test_unit_names():
+    assert has_unit("vx_mm_s") and has_unit("impulse_Ns") and has_unit("ke_loss_frac") and has_unit("x0_sigma_mm")
+    assert not has_unit("speed") and not has_unit("velocity")
+
+
+def test_table_missing_required_column_is_refused():
+    tracks, *_ = synthetic_shot()
+    with pytest.raises(ValueError, match="x_mm"):
+        tidy(tracks.drop(columns=["x_mm"]), "tracks")
+
+
+# --------------------------------------------------------------------------- shot.json
+def test_shot_json_strict_and_complete(tmp_path):
+    tracks, contacts, segments, _ = synthetic_shot()
+    contacts = contacts.copy()
+    contacts.loc[0, "throw_deg"] = float("nan")
+    clip = tmp_path / "bench shot.mp4"
+    clip.write_bytes(b"not really a video, only hashed here")
+    cal = synthetic_calibration()
+    shot = build_shot(clip_path=clip, sha256=hashlib.sha256(clip.read_bytes()).hexdigest(), n_frames=N_FRAMES,
+                      fps=FPS, fps_source="container", table=TABLE, calibration=cal, balls=["cue", "red"],
+                      contacts=contacts, friction={"mu_s": 0.2, "mu_s_sigma": float("nan")}, ball_mass_kg=0.163,
+                      settings={"fps": None, "table": "pool-9ft"}, version="9.9", files=["tracks.csv"])
+    p = write_shot(shot, tmp_path / "shot.json")
+
+    def no_nan(x):
+        raise AssertionError(f"non-JSON constant {x}")
+
+    d = json.loads(p.read_text(encoding="utf-8"), parse_constant=no_nan)
+    # sha256 checked against Python's hashlib on the same bytes.
+    assert d["clip"] == {"name": "bench shot.mp4", "path": str(clip),
+                         "sha256": hashlib.sha256(clip.read_bytes()).hexdigest()}
+    assert d["n_frames"] == N_FRAMES and d["fps"] == FPS and d["fps_source"] == "container"
+    assert d["table"]["preset"] == "pool-9ft"
+    assert d["calibration"]["method"] == "synthetic"
+    assert d["calibration"]["residual_px"] == pytest.approx(0.21)
+    assert d["calibration"]["px_per_mm"] == pytest.approx(cal.px_per_mm)
+    assert [b["ball"] for b in d["balls"]] == ["cue", "red"]
+    assert d["contacts"][0]["e"] == pytest.approx(E) and d["contacts"][0]["throw_deg"] is None
+    assert d["friction"]["mu_s_sigma"] is None
+    assert d["software"]["version"] == "9.9" and d["settings"]["table"] == "pool-9ft"
+    assert jsonable(np.float32(1.5)) == 1.5
+
+
+# --------------------------------------------------------------------------- frames and video
+def test_overlay_positions_match_opencv_projection():
+    """Overlay pixels come from the calibration; checked against OpenCV's own cv2.projectPoints."""
+    tracks, contacts, *_ = synthetic_shot()
+    cal = synthetic_calibration()
+    ov = fr_out.build_overlay(tracks, contacts, cal, FPS, N_FRAMES)
+    cam = cal.camera
+    g = tracks[tracks["ball"] == "cue"]
+    pts = np.column_stack([g["x_mm"], g["y_mm"], np.full(len(g), R)])
+    rvec, _ = cv2.Rodrigues(cam.R)
+    ref, _ = cv2.projectPoints(pts, rvec, cam.t, cam.K, cam.dist)
+    np.testing.assert_allclose(ov.px["cue"], ref.reshape(-1, 2), atol=1e-3)
+    # Arrow length proportional to speed: tip - centre = v * arrow_s mapped through the camera.
+    k = 3
+    tip_ref, _ = cv2.projectPoints(pts[k:k + 1] + [V0 * ov.arrow_s, 0, 0], rvec, cam.t, cam.K, cam.dist)
+    np.testing.assert_allclose(ov.tip["cue"][k], tip_ref.reshape(2), atol=1e-3)
+
+
+def test_annotated_video_and_contact_frames(tmp_path):
+    tracks, contacts, *_ = synthetic_shot()
+    cal = synthetic_calibration()
+    clip = write_synthetic_video(tmp_path / "clip.mp4", tracks, cal)
+    ov = fr_out.build_overlay(tracks, contacts, cal, FPS, N_FRAMES)
+    out = tmp_path / "out"
+    out.mkdir()
+    res = fr_out.render_annotations(clip, ov, out)
+    cap = cv2.VideoCapture(str(res["video"]))
+    n, size = 0, None
+    while True:
+        ok, img = cap.read()
+        if not ok:
+            break
+        n += 1
+        size = img.shape[1], img.shape[0]
+    cap.release()
+    assert n == N_FRAMES and size == SIZE
+    tags = [(c, tag) for c, tag, k, p in res["frames"]]
+    assert tags == [(1, "before"), (1, "at"), (1, "after")]
+    at_frame = [k for c, tag, k, p in res["frames"] if tag == "at"][0]
+    assert at_frame == round(contacts["t_s"][0] * FPS)
+    # The overlay actually changed the frame around the ball (it is drawn, not a copy).
+    raw = cv2.VideoCapture(str(clip))
+    for _ in range(at_frame + 1):
+        ok, raw_img = raw.read()
+    raw.release()
+    ann = cv2.imread(str(res["frames"][1][3]))
+    assert ann.shape == raw_img.shape
+    x, y = np.round(ov.px["cue"][at_frame]).astype(int)
+    box = (slice(y - 20, y + 20), slice(x - 20, x + 20))
+    assert np.abs(ann[box].astype(int) - raw_img[box].astype(int)).mean() > 5
+    closeups = dict(res["closeups"])
+    assert set(closeups) == {1}
+    img = cv2.imread(str(closeups[1]))
+    assert img is not None and img.shape[1] > img.shape[0]
+
+
+def test_contact_frame_plan_offsets():
+    plan = fr_out.contact_frame_plan(pd.DataFrame({"contact": [3], "t_s": [0.5]}), 1000.0, 2000)
+    # 10 ms either side at 1000 frames/s.
+    assert plan == [(3, "before", 490), (3, "at", 500), (3, "after", 510)]
+    plan = fr_out.contact_frame_plan(pd.DataFrame({"contact": [1], "t_s": [0.001]}), 60.0, 10)
+    assert [k for *_, k in plan] == [0, 0, 1]
+
+
+# --------------------------------------------------------------------------- plots
+def test_departure_angles_against_closed_form():
+    """Frictionless cut on a resting ball of equal mass: separation angle arctan(2 tan(phi) / (1 - e))
+    (REFERENCES.md closed form; e = 0.95, phi = 30 deg -> 87.5 deg; 90 deg when e = 1)."""
+    for e, phi_deg in ((0.95, 30.0), (1.0, 30.0), (0.9, 15.0), (0.93, 55.0)):
+        phi = math.radians(phi_deg)
+        v = np.array([1000.0, 0.0])
+        n = np.array([math.cos(phi), -math.sin(phi)])  # line of centres, phi off the cue's path
+        vb = (1 + e) / 2 * (v @ n) * n
+        va = v - vb
+        c = dict(kind="ball-ball", va_in_x_mm_s=v[0], va_in_y_mm_s=v[1], va_out_x_mm_s=va[0], va_out_y_mm_s=va[1],
+                 vb_out_x_mm_s=vb[0], vb_out_y_mm_s=vb[1])
+        a = plot_out.departure_angles(c)
+        sep = 90.0 if e == 1.0 else math.degrees(math.atan(2 * math.tan(phi) / (1 - e)))
+        assert a["object_deg"] == pytest.approx(phi_deg, abs=1e-9)
+        assert a["object_deg"] + a["cue_deg"] == pytest.approx(sep, abs=1e-6)
+
+
+def test_plots_are_written(tmp_path):
+    tracks, contacts, segments, _ = synthetic_shot()
+    p1 = plot_out.speed_plot(tracks, segments, contacts, tmp_path / "speed.png")
+    p2 = plot_out.table_diagram(tracks, contacts, TABLE, R, tmp_path / "table.png")
+    for p in (p1, p2):
+        img = cv2.imread(str(p))
+        assert img is not None and img.std() > 10
+    # The diagram is to scale: the figure's aspect follows the table's 2:1 (WPA playing surface).
+    img = cv2.imread(str(p2))
+    assert 1.4 < img.shape[1] / img.shape[0] < 2.2
+
+
+# --------------------------------------------------------------------------- report
+def _report_context(tmp_path, clip_name="shot.mp4", ball="red"):
+    tracks, contacts, segments, _ = synthetic_shot(ball)
+    cal = synthetic_calibration()
+    p1 = plot_out.speed_plot(tracks, segments, contacts, tmp_path / "speed.png")
+    shot = build_shot(clip_path=tmp_path / clip_name, sha256="0" * 64, n_frames=N_FRAMES, fps=FPS,
+                      fps_source="container", table=TABLE, calibration=cal, balls=["cue", ball], contacts=contacts,
+                      friction={"mu_s": 0.2, "mu_s_sigma": 0.02, "mu_r": 0.01, "mu_r_sigma": 0.001},
+                      ball_mass_kg=0.163, settings={}, version="0.1.0", files=[])
+    return rep_out.build_context(shot, contacts, {f"speed of {ball}": p1}, [(f"frame of {ball}", p1)],
+                                 ["tracks.csv", clip_name])
+
+
+def test_report_escapes_names_and_embeds_images(tmp_path):
+    evil = '<script>alert("x")</script>&<b>'
+    html = rep_out.render_report(_report_context(tmp_path, clip_name=evil + ".mp4", ball='<img src=x onerror=1>'))
+    assert "<script>" not in html and "<b>" not in html and "<img src=x" not in html
+    assert "&lt;script&gt;" in html and "&lt;img src=x onerror=1&gt;" in html
+    srcs = re.findall(r'<img src="([^"]*)"', html)
+    assert len(srcs) == 2
+    for s in srcs:
+        assert s.startswith("data:image/png;base64,")
+        img = cv2.imdecode(np.frombuffer(base64.b64decode(s.split(",", 1)[1]), np.uint8), cv2.IMREAD_COLOR)
+        assert img is not None and img.size > 0
+    assert "http://" not in html and "https://" not in html
+
+
+def test_report_sentence_closed_form(tmp_path):
+    """Head-on, equal masses: object ball leaves at (1 + e) v / 2, cue at (1 - e) v / 2, and the fraction
+    of kinetic energy lost is (1 - e^2) / 2 (REFERENCES.md closed forms; 1.5 m/s, e = 0.9 -> 1.43, 0.07 m/s, 9.5%)."""
+    ctx = _report_context(tmp_path)
+    s = ctx["sentences"][0]
+    assert "cue arrived at 1.50 m/s (rolling)" in s
+    assert f"red left at {(1 + E) * V0 / 2000:.2f} m/s" in s
+    assert f"cue at {(1 - E) * V0 / 2000:.2f} m/s" in s
+    assert f"e = {E:.3f} ± 0.010" in s
+    assert f"{100 * (1 - E ** 2) / 2:.1f}% of the kinetic energy lost" in s
+
+
+# --------------------------------------------------------------------------- pipeline glue
+def test_analyze_writes_everything_atomically(tmp_path, monkeypatch):
+    from feltlab.pipeline import AnalyzeSettings, analyze_clip
+
+    tracks, contacts, cal = fake_stages(monkeypatch)
+    clip = write_synthetic_video(tmp_path / "drill.mp4", tracks, cal)
+    dest = tmp_path / "results" / "drill"
+    res = analyze_clip(clip, dest, AnalyzeSettings())
+    assert not res.reused and res.warnings == []
+    names = {p.name for p in dest.iterdir()}
+    for f in ("tracks.csv", "tracks.parquet", "segments.csv", "segments.parquet", "contacts.csv",
+              "contacts.parquet", "shot.json", "report.html", "speed.png", "table.png", "annotated.mp4", "frames"):
+        assert f in names, f
+    shot = json.loads((dest / "shot.json").read_text())
+    assert shot["clip"]["sha256"] == hashlib.sha256(clip.read_bytes()).hexdigest()
+    for f in shot["files"]:
+        assert (dest / f).is_file(), f
+    # nothing left beside the result
+    assert sorted(p.name for p in dest.parent.iterdir()) == ["drill"]
+
+
+def test_failure_leaves_no_half_result(tmp_path, monkeypatch):
+    import feltlab.outputs.shotfile as sf
+    from feltlab.pipeline import AnalyzeSettings, analyze_clip
+
+    tracks, contacts, cal = fake_stages(monkeypatch)
+    clip = write_synthetic_video(tmp_path / "drill.mp4", tracks, cal)
+
+    def boom(*a, **k):
+        raise OSError("disk full (simulated)")
+
+    monkeypatch.setattr(sf, "write_shot", boom)
+    dest = tmp_path / "results" / "drill"
+    with pytest.raises(OSError):
+        analyze_clip(clip, dest, AnalyzeSettings(**LIGHT))
+    assert not dest.exists()
+    assert list((tmp_path / "results").iterdir()) == []  # the temporary folder is gone too
+
+
+def test_no_silent_overwrite(tmp_path, monkeypatch):
+    from feltlab.pipeline import AnalyzeSettings, analyze_clip
+
+    calls: list = []
+    tracks, contacts, cal = fake_stages(monkeypatch, calls=calls)
+    clip = write_synthetic_video(tmp_path / "drill.mp4", tracks, cal)
+    dest = tmp_path / "res" / "drill"
+    s = AnalyzeSettings(**LIGHT)
+    analyze_clip(clip, dest, s)
+    before = (dest / "shot.json").stat().st_mtime_ns
+    # Same clip, same settings: the finished result is reused, not redone.
+    again = analyze_clip(clip, dest, AnalyzeSettings(**LIGHT))
+    assert again.reused and len(calls) == 1
+    assert (dest / "shot.json").stat().st_mtime_ns == before
+    assert len(again.contacts) == 1
+    # Different settings: refused with a one-line reason, result untouched.
+    with pytest.raises(FeltlabError, match="different settings.*--replace"):
+        analyze_clip(clip, dest, AnalyzeSettings(**LIGHT, fps=240.0))
+    assert (dest / "shot.json").stat().st_mtime_ns == before
+    # Different clip into the same folder: refused too.
+    other = tmp_path / "other.mp4"
+    other.write_bytes(clip.read_bytes() + b"\0")
+    with pytest.raises(FeltlabError, match="different clip"):
+        analyze_clip(other, dest, AnalyzeSettings(**LIGHT))
+    # Asked to replace: done, with the new settings recorded.
+    res = analyze_clip(clip, dest, AnalyzeSettings(**LIGHT, fps=240.0), replace=True)
+    assert not res.reused
+    assert json.loads((dest / "shot.json").read_text())["settings"]["fps"] == 240.0
+    assert sorted(p.name for p in dest.parent.iterdir()) == ["drill"]
+    # A folder that is not a result is not taken over.
+    stranger = tmp_path / "res" / "notes"
+    stranger.mkdir()
+    (stranger / "mine.txt").write_text("keep me")
+    with pytest.raises(FeltlabError, match="not an empty folder"):
+        analyze_clip(clip, stranger, AnalyzeSettings(**LIGHT))
+    assert (stranger / "mine.txt").read_text() == "keep me"
+
+
+def test_cli_bad_input_one_line_exit_2(tmp_path):
+    from click.testing import CliRunner
+
+    from feltlab.cli import main
+
+    r = CliRunner().invoke(main, ["analyze", str(tmp_path / "missing.mp4"), "--out", str(tmp_path)])
+    assert r.exit_code == 2
+    assert r.output.strip().count("\n") == 0 and "does not exist" in r.output
+    (tmp_path / "x.mp4").write_bytes(b"x")
+    r = CliRunner().invoke(main, ["analyze", str(tmp_path / "x.mp4"), "--ball-mass", "163"])
+    assert r.exit_code == 2 and "kg" in r.output
+    r = CliRunner().invoke(main, ["analyze", str(tmp_path / "x.mp4"), "--table", "pool-10ft"])
+    assert r.exit_code == 2 and "pool-9ft" in r.output
+    assert not (Path("results") / "x").exists()
+
+
+def test_cli_writes_result_folder(tmp_path, monkeypatch):
+    from click.testing import CliRunner
+
+    from feltlab.cli import main
+
+    tracks, contacts, cal = fake_stages(monkeypatch)
+    clip = write_synthetic_video(tmp_path / "drill.mp4", tracks, cal)
+    r = CliRunner().invoke(main, ["analyze", str(clip), "--out", str(tmp_path / "o"), "--no-video", "--fps", "60"])
+    assert r.exit_code == 0, r.output
+    assert (tmp_path / "o" / "drill" / "report.html").is_file()
+    assert not (tmp_path / "o" / "drill" / "annotated.mp4").exists()
+    shot = json.loads((tmp_path / "o" / "drill" / "shot.json").read_text())
+    assert shot["fps_source"] == "override" and shot["settings"]["fps"] == 60.0
