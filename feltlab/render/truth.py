@@ -1,0 +1,110 @@
+"""The truth file written beside every rendered clip (``CLIP.truth.json``).
+
+Layout (our own; all lengths mm, times s, speeds mm/s, pixels in the
+distorted image with the origin at the centre of the top-left pixel)::
+
+    {
+      "kind": "feltlab-render-truth", "version": 1,
+      "clip": "name.mp4", "codec": "mp4v", "seed": 1,
+      "fps": 240.0, "n_frames": 360, "t0_s": 0.0,
+      "exposure_fraction": 0.5, "exposure_s": 0.00208,
+      "resolution": [1280, 720],
+      "table": {"preset", "length_mm", "width_mm", "nose_height_mm", "pockets"},
+      "ball": {"diameter_mm", "mass_kg"},
+      "balls": [{"label", "rgb", "pattern", "number"}],
+      "camera": CameraModel.to_dict(),
+      "corners_px": {"cloth": [[x, y] x4], "ball_centre": [...]}   # (0,0), (L,0), (L,W), (0,W)
+      "frames_t_s": [...],                                          # mid-exposure time of frame k
+      "tracks": {label: {"x_mm", "y_mm", "vx_mm_s", "vy_mm_s", "x_px", "y_px", "on_table"}},
+      "contacts": [TrueContact.to_dict(), ...],
+      "scenario": {... the validated scenario ...}
+    }
+
+``tracks`` are columns (one value per frame) for compactness; positions and
+velocities are exact states at mid-exposure, ``x_px, y_px`` the projection of
+the ball centre (z = R) through the camera (not the silhouette centre).
+"""
+from __future__ import annotations
+
+import json
+import math
+from pathlib import Path
+
+import numpy as np
+
+from tracking.camera import CameraModel
+
+KIND = "feltlab-render-truth"
+VERSION = 1
+
+
+def _clean(v):
+    if isinstance(v, dict):
+        return {str(k): _clean(x) for k, x in v.items()}
+    if isinstance(v, (list, tuple)):
+        return [_clean(x) for x in v]
+    if isinstance(v, np.ndarray):
+        return _clean(v.tolist())
+    if isinstance(v, (np.floating, float)):
+        f = float(v)
+        return None if not math.isfinite(f) else round(f, 6)
+    if isinstance(v, (np.integer,)):
+        return int(v)
+    if isinstance(v, np.bool_):
+        return bool(v)
+    return v
+
+
+def build_truth(*, clip_name: str, codec: str, seed: int, fps: float, t0_s: float, exposure: float,
+                camera: CameraModel, table: dict, ball: dict, balls: list[dict], times_s: np.ndarray,
+                pos: np.ndarray, vel: np.ndarray, on_table: np.ndarray, corners_mm: dict[str, np.ndarray],
+                contacts: list[dict], scenario: dict) -> dict:
+    """Assemble the truth dictionary (see the module docstring). pos/vel (T,N,2), on_table (T,N)."""
+    R = ball["diameter_mm"] / 2.0
+    tracks = {}
+    T, N = pos.shape[:2]
+    for i, b in enumerate(balls):
+        px = camera.project(np.column_stack([pos[:, i], np.full(T, R)]))
+        tracks[b["label"]] = {
+            "x_mm": pos[:, i, 0], "y_mm": pos[:, i, 1],
+            "vx_mm_s": vel[:, i, 0], "vy_mm_s": vel[:, i, 1],
+            "x_px": px[:, 0], "y_px": px[:, 1],
+            "on_table": [bool(x) for x in on_table[:, i]],
+        }
+    out = {
+        "kind": KIND, "version": VERSION,
+        "clip": clip_name, "codec": codec, "seed": int(seed),
+        "fps": float(fps), "n_frames": int(T), "t0_s": float(t0_s),
+        "exposure_fraction": float(exposure), "exposure_s": float(exposure / fps),
+        "resolution": list(camera.image_size),
+        "table": table, "ball": ball, "balls": balls,
+        "camera": camera.to_dict(),
+        "corners_px": {k: camera.project(v).tolist() for k, v in corners_mm.items()},
+        "frames_t_s": np.asarray(times_s, float),
+        "tracks": tracks,
+        "contacts": contacts,
+        "scenario": scenario,
+    }
+    return _clean(out)
+
+
+def write_truth(truth: dict, path: str | Path) -> None:
+    """Write JSON via a temporary name, then rename (never a half-written truth file)."""
+    p = Path(path)
+    tmp = p.with_name(f".{p.name}.partial")
+    tmp.write_text(json.dumps(truth, separators=(",", ":")), encoding="utf-8")
+    tmp.replace(p)
+
+
+def read_truth(path: str | Path) -> dict:
+    """Read a truth file and check its kind/version."""
+    d = json.loads(Path(path).read_text(encoding="utf-8"))
+    if d.get("kind") != KIND:
+        raise ValueError(f"{path} is not a feltlab render truth file")
+    return d
+
+
+def truth_path_for(clip_path: str | Path) -> Path:
+    """``clip.mp4`` -> ``clip.truth.json`` (a PNG folder ``frames`` -> ``frames.truth.json``)."""
+    p = Path(clip_path)
+    return p.with_name(p.stem + ".truth.json") if p.suffix else p.with_name(p.name + ".truth.json")
