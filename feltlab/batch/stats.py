@@ -79,7 +79,8 @@ def t_mean_ci(x, confidence: float = CONFIDENCE) -> MeanCI:
 class WeightedMean:
     """Inverse-variance (fixed-effect) and DerSimonian-Laird (random-effects) means.
 
-    n: contacts with a usable sigma; fixed_*: weights 1/sigma^2; q: Cochran's Q
+    n: contacts with a usable sigma; fixed_*: weights 1/sigma^2; fixed_se_scaled: fixed_se
+    times the Birge ratio (scatter sets the scale, sigmas the relative weights); q: Cochran's Q
     (= chi^2 about the fixed mean); birge_ratio: sqrt(q/(n-1)); tau: between-contact
     SD (DL); combined_*: DL mean, its standard error and z-interval.
     """
@@ -87,6 +88,7 @@ class WeightedMean:
     n: int
     fixed_mean: float
     fixed_se: float
+    fixed_se_scaled: float
     q: float
     birge_ratio: float
     tau: float
@@ -111,7 +113,7 @@ def weighted_mean(x, sigma, confidence: float = CONFIDENCE) -> WeightedMean:
     x, s = x[ok], s[ok]
     n = int(x.size)
     if n == 0:
-        return WeightedMean(0, NAN, NAN, NAN, NAN, NAN, NAN, NAN, NAN, NAN, confidence)
+        return WeightedMean(0, NAN, NAN, NAN, NAN, NAN, NAN, NAN, NAN, NAN, NAN, confidence)
     w = 1.0 / s**2
     sw = w.sum()
     mu = float((w * x).sum() / sw)
@@ -127,7 +129,7 @@ def weighted_mean(x, sigma, confidence: float = CONFIDENCE) -> WeightedMean:
     mu_r = float((wr * x).sum() / wr.sum())
     se_r = float(1.0 / math.sqrt(wr.sum()))
     z = float(sps.norm.ppf(0.5 + confidence / 2))
-    return WeightedMean(n, mu, se, q, birge, math.sqrt(tau2), mu_r, se_r, mu_r - z * se_r, mu_r + z * se_r,
+    return WeightedMean(n, mu, se, se * birge, q, birge, math.sqrt(tau2), mu_r, se_r, mu_r - z * se_r, mu_r + z * se_r,
                         confidence)
 
 
@@ -277,6 +279,7 @@ def kind_summary(contacts: pd.DataFrame, confidence: float = CONFIDENCE) -> pd.D
             "n": m.n,
             "e_mean": m.mean, "e_sd": m.sd, "e_sem": m.sem, "e_ci_low": m.ci_low, "e_ci_high": m.ci_high,
             "n_weighted": wm.n, "e_weighted": wm.fixed_mean, "e_weighted_se": wm.fixed_se,
+            "e_weighted_se_birge": wm.fixed_se_scaled,
             "birge_ratio": wm.birge_ratio, "tau_dl": wm.tau,
             "e_combined": wm.combined_mean, "e_combined_se": wm.combined_se,
             "e_combined_ci_low": wm.combined_ci_low, "e_combined_ci_high": wm.combined_ci_high,
