@@ -65,12 +65,15 @@ def has_unit(column: str) -> bool:
 def tidy(df: pd.DataFrame, kind: str) -> pd.DataFrame:
     """Documented columns first, label columns as text, checked for required columns and units.
 
+    Columns whose names start with "_" are a stage's internals and are left out.
+
     Raises ValueError (a stage bug, not a user error) if a required column is
     missing; a column name without a unit is logged as a warning (the tests
     pin the documented tables, and a stage's new column must not lose a result).
     """
     if kind not in ORDER:
         raise ValueError(f"unknown table kind {kind!r}")
+    df = df.loc[:, [c for c in df.columns if not str(c).startswith("_")]]  # a stage's private columns
     missing = [c for c in REQUIRED[kind] if c not in df.columns]
     if missing:
         raise ValueError(f"{kind} table lacks column(s) {missing}")
