@@ -33,6 +33,7 @@ from pathlib import Path
 from typing import Any, Callable
 
 from feltlab.batch import resume
+from feltlab.batch import settings as batch_settings
 from feltlab.batch.discover import Clip, discover_clips, file_sha256
 from feltlab.batch.settings import WORKER_DEATH_RETRIES
 from feltlab.errors import FeltlabError
@@ -230,7 +231,7 @@ def connect_scheduler(scheduler: Any):
     if "://" not in address:
         address = f"tcp://{address}"
     try:
-        return distributed.Client(address, timeout="10s"), True
+        return distributed.Client(address, timeout=f"{batch_settings.SCHEDULER_CONNECT_TIMEOUT_S}s"), True
     except (OSError, TimeoutError, ValueError) as exc:
         raise FeltlabError(
             f"could not reach the dask scheduler at {address} ({one_line(str(exc), 120)}); check the address "

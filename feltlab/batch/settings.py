@@ -34,6 +34,10 @@ MEANAD_SCALE: float = 1.253314
 #: failures.csv (a clip that crashes the decoder every time must not stop the batch).
 WORKER_DEATH_RETRIES: int = 1
 
+#: How long to try reaching a dask scheduler before giving up, s (our choice: long enough
+#: for a scheduler across a LAN, short enough that a wrong address fails fast).
+SCHEDULER_CONNECT_TIMEOUT_S: float = 10.0
+
 #: Minimum contacts for a series estimate; below this the statistics are reported as
 #: NaN (a t-interval needs n >= 2; a line fit with a band needs n >= 3).
 MIN_N_MEAN: int = 2
