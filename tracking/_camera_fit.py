@@ -191,8 +191,14 @@ def fit_edges(cam0: CameraModel, groups: list[Group], L: float, W: float,
 
 
 def fit_points(cam0: CameraModel, px: np.ndarray, xyz_mm: np.ndarray, fit_focal: bool,
-               fit_k1: bool) -> tuple[CameraModel, np.ndarray]:
-    """Fit pose (and focal, k1 if asked) to point correspondences; returns (camera, residuals px)."""
+               fit_k1: bool, hfov_prior: tuple[float, float] | None = None,
+               prior_px: float = 0.5) -> tuple[CameraModel, np.ndarray]:
+    """Fit pose (and focal, k1 if asked) to point correspondences; returns (camera, residuals px).
+
+    hfov_prior: (deg, sigma deg) weak prior on the horizontal field of view,
+    weighted as ``prior_px`` of image residual per sigma.
+    """
+    w = cam0.image_size[0]
     k1_fixed = float(cam0.dist[0])
     f_fixed = float(cam0.K[0, 0])
     p_all = params_from_camera(cam0, True, False)
@@ -209,7 +215,12 @@ def fit_points(cam0: CameraModel, px: np.ndarray, xyz_mm: np.ndarray, fit_focal:
         return camera_from_params(p, cam0.image_size, fit_k1=True)
 
     def fun(q):
-        return (build(q).project(xyz_mm) - px).ravel()
+        cam = build(q)
+        r = (cam.project(xyz_mm) - px).ravel()
+        if hfov_prior is not None and fit_focal:
+            hfov = np.degrees(2 * np.arctan(w / 2.0 / cam.K[0, 0]))
+            r = np.append(r, prior_px * (hfov - hfov_prior[0]) / hfov_prior[1])
+        return r
 
     res = least_squares(fun, p_all[idx], x_scale="jac", max_nfev=400)
     cam = build(res.x)

@@ -339,3 +339,258 @@ def _point_resid_px(cam: CameraModel, side: str, px: np.ndarray, L: float, W: fl
     dim = L if ax == 0 else W
     scale = 1.0 / cam.mm_per_px([L / 2, W / 2, z])
     return (xyz[:, ax] - fr * dim) * scale
+
+
+# --------------------------------------------------------------------------- files
+_PLANES = ("cloth", "nose")
+
+
+def _toml_error(path: Path, msg: str) -> FeltlabError:
+    return FeltlabError(f"{path.name}: {msg}")
+
+
+def _num_list(path: Path, d: dict, key: str, shape: tuple[int, ...]) -> np.ndarray:
+    try:
+        a = np.asarray(d[key], dtype=float)
+    except (TypeError, ValueError):
+        raise _toml_error(path, f"'{key}' must be numbers, shaped {list(shape)}") from None
+    if a.shape != shape or not np.all(np.isfinite(a)):
+        raise _toml_error(path, f"'{key}' must be finite numbers shaped {list(shape)}, got {a.tolist()!r}")
+    return a
+
+
+def calibration_from_file(path: str | os.PathLike, table: TablePreset | None = None,
+                          hfov_prior: tuple[float, float] | None = None) -> Calibration:
+    """Read a calibration TOML: a saved calibration, or manual corners (schema in the module docstring).
+
+    ``table`` overrides the file's table preset. Manual corners are fitted
+    with :func:`tracking._camera_fit.fit_points` (focal too unless given, with
+    the weak field-of-view prior of CalibrationSettings).
+    """
+    p = Path(path)
+    if not p.is_file():
+        raise FeltlabError(f"{p}: no such calibration file; check the path")
+    try:
+        d = tomllib.loads(p.read_text(encoding="utf-8"))
+    except (tomllib.TOMLDecodeError, UnicodeDecodeError) as exc:
+        raise _toml_error(p, f"not valid TOML ({exc})") from None
+    if table is None:
+        if "table" not in d:
+            raise _toml_error(p, "missing 'table' (a preset name such as \"pool-9ft\")")
+        try:
+            table = table_preset(str(d["table"]))
+        except ValueError as exc:
+            raise _toml_error(p, str(exc)) from None
+    ball_d = float(d.get("ball_diameter_mm", table.ball.diameter_mm))
+    if not (0 < ball_d < 200):
+        raise _toml_error(p, f"ball_diameter_mm = {ball_d} is not plausible (millimetres)")
+    notes = [str(n) for n in d.get("notes", [])]
+    if "camera" in d:  # a saved calibration: the camera is exact
+        c = d["camera"]
+        try:
+            cam = CameraModel(K=_num_list(p, c, "K", (3, 3)), dist=_num_list(p, c, "dist", (5,)),
+                              R=_num_list(p, c, "R", (3, 3)), t=_num_list(p, c, "t_mm", (3,)),
+                              image_size=tuple(int(v) for v in _num_list(p, c, "image_size", (2,))))
+        except KeyError as exc:
+            raise _toml_error(p, f"[camera] is missing {exc.args[0]!r}") from None
+        cam.meta = {k: v for k, v in d.get("camera_meta", {}).items()}
+        return Calibration(camera=cam, table=table, ball_diameter_mm=ball_d,
+                           residual_px=float(d.get("residual_px", float("nan"))),
+                           residual_mm=float(d.get("residual_mm", float("nan"))),
+                           method=str(d.get("method", "manual")), notes=notes)
+    for key in ("image_size", "corners_px", "corners_plane"):
+        if key not in d:
+            hint = {"corners_plane": " (\"cloth\" or \"nose\": the plane your corner pixels lie in)",
+                    "image_size": " ([width, height] in px)",
+                    "corners_px": " (four [x, y] pixels in table order (0,0), (L,0), (L,W), (0,W))"}[key]
+            raise _toml_error(p, f"missing '{key}'{hint}")
+    size = _num_list(p, d, "image_size", (2,))
+    if np.any(size < 16) or np.any(size != np.round(size)):
+        raise _toml_error(p, f"image_size must be two whole pixel counts, got {size.tolist()}")
+    w, h = int(size[0]), int(size[1])
+    px = _num_list(p, d, "corners_px", (4, 2))
+    plane = str(d["corners_plane"]).lower()
+    if plane not in _PLANES:
+        raise _toml_error(p, f"corners_plane must be \"cloth\" or \"nose\", got {d['corners_plane']!r}")
+    z = 0.0 if plane == "cloth" else float(d.get("nose_height_mm", nose_height_mm(table, ball_d)))
+    if "rect_mm" in d:
+        x0, y0, x1, y1 = _num_list(p, d, "rect_mm", (4,))
+        if x1 <= x0 or y1 <= y0:
+            raise _toml_error(p, "rect_mm must be [x0, y0, x1, y1] with x1 > x0 and y1 > y0 (mm)")
+    else:
+        x0, y0, x1, y1 = 0.0, 0.0, table.length_mm, table.width_mm
+    xyz = np.array([[x0, y0, z], [x1, y0, z], [x1, y1, z], [x0, y1, z]])
+    k1 = float(d.get("k1", 0.0))
+    if not (-1 < k1 < 1):
+        raise _toml_error(p, f"k1 = {k1} is outside (-1, 1); give the OpenCV radial coefficient")
+    focal = d.get("focal_px")
+    if focal is not None:
+        focal = float(focal)
+        if not (0 < focal < 100 * w):
+            raise _toml_error(p, f"focal_px = {focal} is not plausible for a {w} px wide image")
+    # the corners must form a convex quadrilateral in the stated order
+    cross = [np.cross(px[(i + 1) % 4] - px[i], px[(i + 2) % 4] - px[(i + 1) % 4]) for i in range(4)]
+    if not (all(c > 0 for c in cross) or all(c < 0 for c in cross)):
+        raise _toml_error(p, "corners_px do not form a convex quadrilateral in the order "
+                             "(0,0), (L,0), (L,W), (0,W); check their order")
+    try:
+        cam0 = initial_camera(px, xyz, (w, h), focal_px=focal, k1=k1)
+    except ValueError:
+        raise _toml_error(p, "no camera fits these corners; check their order and the table preset") from None
+    s = CalibrationSettings()
+    prior = hfov_prior or (s.hfov_prior_deg, s.hfov_prior_sigma_deg)
+    cam, r = fit_points(cam0, px, xyz, fit_focal=focal is None, fit_k1=False,
+                        hfov_prior=None if focal is not None else prior)
+    res_px = float(np.sqrt(np.mean(r ** 2)))
+    res_mm = res_px * cam.mm_per_px(xyz.mean(axis=0))
+    cam.meta = {"corners_plane": plane}
+    if focal is None:
+        notes.append("focal length fitted from four corners: poorly determined for a camera looking "
+                     "straight down; give focal_px if you know it")
+    return Calibration(camera=cam, table=table, ball_diameter_mm=ball_d, residual_px=res_px,
+                       residual_mm=res_mm, method="manual", notes=notes)
+
+
+def _toml_value(v) -> str:
+    if isinstance(v, str):
+        return '"' + v.replace("\\", "\\\\").replace('"', '\\"') + '"'
+    if isinstance(v, bool):
+        return "true" if v else "false"
+    if isinstance(v, (int, np.integer)):
+        return str(int(v))
+    if isinstance(v, (float, np.floating)):
+        f = float(v)
+        if math.isnan(f):
+            return "nan"
+        if math.isinf(f):
+            return "inf" if f > 0 else "-inf"
+        return repr(f)
+    if isinstance(v, (list, tuple, np.ndarray)):
+        return "[" + ", ".join(_toml_value(x) for x in list(v)) + "]"
+    raise TypeError(f"cannot write {type(v)} to TOML")
+
+
+def save_calibration(cal: Calibration, path_toml: str | os.PathLike, overwrite: bool = False) -> Path:
+    """Write ``cal`` as TOML (read back exactly by :func:`calibration_from_file`).
+
+    Written to a temporary name and renamed, so a half-written file never
+    looks like a result. Refuses to replace an existing file unless
+    ``overwrite``.
+    """
+    p = Path(path_toml)
+    if p.exists() and not overwrite:
+        raise FeltlabError(f"{p} already exists; remove it or choose another output folder")
+    cam = cal.camera
+    L, W = cal.table.length_mm, cal.table.width_mm
+    z = nose_height_mm(cal.table, cal.ball_diameter_mm)
+    corners = cam.project([[0, 0, z], [L, 0, z], [L, W, z], [0, W, z]])
+    lines = [
+        "# feltlab camera calibration. Table frame: mm, origin at a playing-surface corner",
+        "# (cushion-nose lines), x along the long side, y along the short side, z up from the cloth.",
+        "# Camera: OpenCV pinhole + distortion, X_cam = R X_table + t_mm.",
+        f"table = {_toml_value(cal.table.name)}",
+        f"method = {_toml_value(cal.method)}",
+        f"ball_diameter_mm = {_toml_value(float(cal.ball_diameter_mm))}",
+        f"residual_px = {_toml_value(float(cal.residual_px))}",
+        f"residual_mm = {_toml_value(float(cal.residual_mm))}",
+        f"px_per_mm = {_toml_value(float(cal.px_per_mm))}  # at the table centre, ball-centre plane",
+        f"image_size = {_toml_value(list(cam.image_size))}",
+        "# playing-surface corners (0,0), (L,0), (L,W), (0,W) at cushion-nose height, for reference",
+        'corners_plane = "nose"',
+        f"nose_height_mm = {_toml_value(float(z))}",
+        f"corners_px = {_toml_value([[round(float(a), 3), round(float(b), 3)] for a, b in corners])}",
+        f"notes = {_toml_value([str(n) for n in cal.notes])}",
+        "",
+        "[camera]",
+        f"K = {_toml_value(cam.K.tolist())}",
+        f"dist = {_toml_value(cam.dist.tolist())}",
+        f"R = {_toml_value(cam.R.tolist())}",
+        f"t_mm = {_toml_value(cam.t.tolist())}",
+        f"image_size = {_toml_value(list(cam.image_size))}",
+    ]
+    meta = {k: v for k, v in (cam.meta or {}).items() if isinstance(v, (str, int, float, bool))}
+    if meta:
+        lines += ["", "[camera_meta]"] + [f"{k} = {_toml_value(v)}" for k, v in meta.items()]
+    text = "\n".join(lines) + "\n"
+    p.parent.mkdir(parents=True, exist_ok=True)
+    fd, tmp = tempfile.mkstemp(prefix=".tmp-", suffix=".toml", dir=p.parent)
+    try:
+        with os.fdopen(fd, "w", encoding="utf-8") as fh:
+            fh.write(text)
+        if p.exists() and not overwrite:
+            raise FeltlabError(f"{p} already exists; remove it or choose another output folder")
+        os.replace(tmp, p)
+    except BaseException:
+        if os.path.exists(tmp):
+            os.unlink(tmp)
+        raise
+    return p
+
+
+# --------------------------------------------------------------------------- drawing
+#: Overlay colours (BGR): outline, grid, x axis, y axis, legend text.
+_OUTLINE = (0, 215, 255)
+_GRID = (255, 255, 255)
+_X_AXIS = (60, 60, 255)
+_Y_AXIS = (80, 220, 80)
+
+
+def _polyline(cam: CameraModel, pts_mm: np.ndarray) -> np.ndarray:
+    return np.round(cam.project(pts_mm) * 16).astype(np.int32).reshape(-1, 1, 2)
+
+
+def draw_calibration(image: np.ndarray, cal: Calibration, grid_mm: float = 100.0) -> np.ndarray:
+    """A copy of ``image`` with the fitted playing-surface outline, a grid and a legend.
+
+    Outline: the cushion-nose lines (where the edges were measured). Grid:
+    every ``grid_mm`` on the cloth (z = 0), drawn through the lens model so
+    it bends with the image. Legend: table, residual, scale, focal and k1.
+    """
+    img = np.asarray(image)
+    if img.ndim == 2:
+        img = cv2.cvtColor(img, cv2.COLOR_GRAY2BGR)
+    out = img.copy()
+    cam = cal.camera
+    L, W = cal.table.length_mm, cal.table.width_mm
+    z = nose_height_mm(cal.table, cal.ball_diameter_mm)
+    h, w = out.shape[:2]
+    th = max(1, int(round(w / 900)))
+    lay = out.copy()
+    n = 200
+    for x in np.arange(0, L + 1e-6, grid_mm):
+        pts = np.column_stack([np.full(n, x), np.linspace(0, W, n), np.zeros(n)])
+        cv2.polylines(lay, [_polyline(cam, pts)], False, _GRID, 1, cv2.LINE_AA, shift=4)
+    for y in np.arange(0, W + 1e-6, grid_mm):
+        pts = np.column_stack([np.linspace(0, L, n), np.full(n, y), np.zeros(n)])
+        cv2.polylines(lay, [_polyline(cam, pts)], False, _GRID, 1, cv2.LINE_AA, shift=4)
+    out = cv2.addWeighted(lay, 0.35, out, 0.65, 0)
+    ring = np.array([[0, 0], [L, 0], [L, W], [0, W], [0, 0]], float)
+    pts = np.concatenate([np.column_stack([np.linspace(a[0], b[0], n), np.linspace(a[1], b[1], n)])
+                          for a, b in zip(ring[:-1], ring[1:])])
+    cv2.polylines(out, [_polyline(cam, np.column_stack([pts, np.full(len(pts), z)]))], True, _OUTLINE, th,
+                  cv2.LINE_AA, shift=4)
+    # axes from the origin, 300 mm long
+    o = cam.project([[0, 0, 0], [300, 0, 0], [0, 300, 0]])
+    for tip, col, lab in ((o[1], _X_AXIS, "x"), (o[2], _Y_AXIS, "y")):
+        cv2.arrowedLine(out, tuple(np.round(o[0]).astype(int)), tuple(np.round(tip).astype(int)), col, th + 1,
+                        cv2.LINE_AA, tipLength=0.15)
+        cv2.putText(out, lab, tuple(np.round(tip + 6).astype(int)), cv2.FONT_HERSHEY_SIMPLEX, 0.5 * th + 0.2,
+                    col, th, cv2.LINE_AA)
+    legend = [
+        f"{cal.table.name}: {L:.0f} x {W:.0f} mm  ({cal.method} calibration)",
+        f"edge residual RMS {cal.residual_px:.2f} px = {cal.residual_mm:.2f} mm",
+        f"scale {cal.px_per_mm:.3f} px/mm  |  ball {2 * cal.ball_radius_px([[L / 2, W / 2]])[0]:.1f} px across",
+        f"focal {cam.K[0, 0]:.0f} px  k1 {cam.dist[0]:+.4f}  camera {cam.centre_mm[2] / 1000:.2f} m above cloth",
+        f"outline: cushion noses ({z:.1f} mm up)  grid: {grid_mm:.0f} mm on the cloth",
+    ] + [f"note: {t}" for t in cal.notes]
+    scale = 0.42 * max(w / 1280, 0.6)
+    lh = int(22 * scale / 0.42)
+    bw = int(max(cv2.getTextSize(t, cv2.FONT_HERSHEY_SIMPLEX, scale, 1)[0][0] for t in legend)) + 16
+    bh = lh * len(legend) + 10
+    y0 = 6
+    box = out[y0: y0 + bh, 6: 6 + bw]
+    out[y0: y0 + bh, 6: 6 + bw] = (box * 0.35).astype(out.dtype)
+    for i, t in enumerate(legend):
+        cv2.putText(out, t, (14, y0 + lh * (i + 1) - 4), cv2.FONT_HERSHEY_SIMPLEX, scale, (255, 255, 255), 1,
+                    cv2.LINE_AA)
+    return out
