@@ -15,6 +15,7 @@ table; the tiny hops they would cause are ignored).
 """
 from __future__ import annotations
 
+import math
 from dataclasses import dataclass
 
 import numpy as np
@@ -24,6 +25,13 @@ Z = np.array([0.0, 0.0, 1.0])
 
 def _as3(v2: np.ndarray) -> np.ndarray:
     return np.array([v2[0], v2[1], 0.0])
+
+
+def _cross(a, b) -> np.ndarray:
+    """3-D cross product of two length-3 sequences (faster than np.cross for one pair)."""
+    a0, a1, a2 = float(a[0]), float(a[1]), float(a[2])
+    b0, b1, b2 = float(b[0]), float(b[1]), float(b[2])
+    return np.array([a1 * b2 - a2 * b1, a2 * b0 - a0 * b2, a0 * b1 - a1 * b0])
 
 
 def _friction(slip: np.ndarray, compliance: np.ndarray, limit: float) -> np.ndarray:
@@ -79,9 +87,9 @@ def ball_ball(
     sep = max(e * w_app, min_separation_mm_s)
     jn = m_eff * (w_app + sep)
 
-    t3 = np.cross(Z, n3)
-    ca = _as3(va) + np.cross(wa, Ra * n3)
-    cb = _as3(vb) + np.cross(wb, -Rb * n3)
+    t3 = _cross(Z, n3)
+    ca = _as3(va) + _cross(wa, Ra * n3)
+    cb = _as3(vb) + _cross(wb, -Rb * n3)
     slip = ca - cb
     s_tz = np.array([slip @ t3, slip @ Z])
     inv = 1.0 / ma + 1.0 / mb
@@ -93,30 +101,33 @@ def ball_ball(
     ja_h = -jn * n + p3[:2]
     va2 = va + ja_h / ma
     vb2 = vb - ja_h / mb
-    wa2 = wa + np.cross(Ra * n3, p3) / (0.4 * ma * Ra * Ra)
-    wb2 = wb + np.cross(-Rb * n3, -p3) / (0.4 * mb * Rb * Rb)
+    wa2 = wa + _cross(Ra * n3, p3) / (0.4 * ma * Ra * Ra)
+    wb2 = wb + _cross(-Rb * n3, -p3) / (0.4 * mb * Rb * Rb)
     return ContactOutcome(va2, wa2, vb2, wb2, ja_h, jn, p3)
 
 
 def ball_cushion(
     v: np.ndarray, w: np.ndarray, m: float, R: float, n: np.ndarray,
-    height_mm: float, e: float, mu: float, min_speed_mm_s: float,
+    height_mm: float, e: float, mu: float, mu_cloth: float, min_speed_mm_s: float,
+    steps: int = 1000,
 ) -> ContactOutcome:
-    """Bounce a ball off a cushion whose inward unit normal is n (2,).
+    """Bounce a ball off a rigid cushion whose inward unit normal is n (2,).
 
-    Rigid-cushion model with the contact at the cushion nose height h above
-    the cloth (Mathavan, Jackson & Parkin, Proc. IMechE C 224(9):1863, 2010,
-    describe this geometry): the contact point sits at ``r_c = -R cos(theta) n
-    + (h - R) z`` from the centre, ``sin(theta) = (h - R) / R``, and the
-    contact normal ``N = -r_c / R`` is tilted downwards. The normal impulse
-    along N is sized so the centre's horizontal normal velocity is reversed
-    times e (its vertical part goes into the cloth); Coulomb friction acts in
-    the plane normal to N, limited by mu times the impulse along N, with
-    compliance 7/(2m) along the cushion and ((b.n)^2 + 5/2)/m along the tilted
-    direction b. Side spin therefore changes the rebound angle and top/back
-    spin the rebound speed, so the measured restitution differs from e.
-    Simplification: friction between ball and cloth during the impact is
-    ignored.
+    Model (after Mathavan, Jackson & Parkin, Proc. IMechE C 224(9):1863,
+    2010): the cushion touches the ball at the nose height h above the cloth,
+    at ``r_c = -R cos(theta) n + (h - R) z`` from the centre with
+    ``sin(theta) = (h - R) / R``; its normal impulse acts along
+    ``N = -r_c / R`` (tilted down into the cloth). The cloth carries the
+    downward part, so it pushes back at the ball's bottom point, with sliding
+    friction ``mu_cloth`` there; Coulomb friction ``mu`` acts at the cushion
+    contact. The impact is integrated in small steps of normal impulse with
+    each friction force against its contact's current slip (sticking when the
+    slip reaches zero), and ends by Stronge's energetic restitution: the
+    work of the normal force during restitution is e^2 times that during
+    compression (W. J. Stronge, Impact Mechanics, CUP 2000). Without friction
+    this reverses the horizontal normal velocity times e exactly; with
+    friction, spin changes the rebound and the measured e differs.
+    Every step removes energy (friction against slip, e <= 1).
 
     Low-speed rule: below ``min_speed_mm_s`` approach speed the ball comes to
     rest against the cushion in the normal direction and the spin that would
@@ -126,30 +137,91 @@ def ball_cushion(
     v_n = float(v @ n)  # < 0 when approaching
     if -v_n < min_speed_mm_s:
         v2 = v - v_n * n
-        m_dir = np.cross(Z, n3)  # spin along z x n curves the ball into the cushion
+        m_dir = _cross(Z, n3)  # spin along z x n curves the ball into the cushion
         w2 = w - (w @ m_dir) * m_dir
         imp = m * (v2 - v)
         return ContactOutcome(v2, w2, None, None, imp, m * (-v_n), np.zeros(3), resting=True)
 
     sin_t = (height_mm - R) / R
-    cos_t = np.sqrt(max(1.0 - sin_t * sin_t, 0.0))
-    r_c = -R * cos_t * n3 + (height_mm - R) * Z
-    N = -r_c / R
-    j_h = m * (1.0 + e) * (-v_n)  # horizontal normal impulse
-    j_N = j_h / cos_t
-    t3 = np.cross(Z, n3)
-    b3 = np.cross(N, t3)
-    c_vel = _as3(v) + np.cross(w, r_c)
-    s_tb = np.array([c_vel @ t3, c_vel @ b3])
-    p3 = np.zeros(3)
-    if mu > 0.0:
-        bn = float(b3 @ n3)
-        p_tb = _friction(s_tb, np.array([3.5 / m, (bn * bn + 2.5) / m]), mu * j_N)
-        p3 = p_tb[0] * t3 + p_tb[1] * b3
-    imp = j_h * n + p3[:2]
-    v2 = v + imp / m
-    w2 = w + np.cross(r_c, p3) / (0.4 * m * R * R)
+    cos_t = math.sqrt(max(1.0 - sin_t * sin_t, 0.0))
+    nx, ny = float(n[0]), float(n[1])
+    # Contact offset r_c and normal N (into the ball), as plain floats.
+    rcx, rcy, rcz = -R * cos_t * nx, -R * cos_t * ny, height_mm - R
+    Nx, Ny, Nz = cos_t * nx, cos_t * ny, -sin_t
+    inv_m = 1.0 / m
+    inv_i = 1.0 / (0.4 * m * R * R)
+    k_rot = R * R * inv_i  # 5 / (2 m)
+    vx, vy = float(v[0]), float(v[1])
+    wx, wy, wz = (float(x) for x in w)
+    # Normal impulse to end compression without friction: m |c_N| / cos^2.
+    p_comp = m * (-v_n) / max(cos_t, 1e-6)
+    dp = p_comp / (0.5 * steps)
+    work = 0.0
+    work_min = 0.0
+    p_total = 0.0
+    fcx = fcy = fcz = 0.0
+
+    def contact_vel(vx, vy, wx, wy, wz):
+        # v + w x r_c
+        return (vx + wy * rcz - wz * rcy, vy + wz * rcx - wx * rcz, wx * rcy - wy * rcx)
+
+    def step(state, d):
+        vx, vy, wx, wy, wz = state
+        cx, cy, cz = contact_vel(vx, vy, wx, wy, wz)
+        cn = cx * Nx + cy * Ny + cz * Nz
+        sx, sy, sz = cx - cn * Nx, cy - cn * Ny, cz - cn * Nz
+        s = math.sqrt(sx * sx + sy * sy + sz * sz)
+        fx = fy = fz = 0.0
+        if mu > 0.0 and s > 0.0:
+            ux, uy, uz = sx / s, sy / s, sz / s
+            k = (ux * ux + uy * uy) * inv_m + k_rot  # compliance along the slip
+            f = min(mu * d, s / k)
+            fx, fy, fz = -f * ux, -f * uy, -f * uz
+        jx, jy, jz = d * Nx + fx, d * Ny + fy, d * Nz + fz  # cushion impulse
+        pt = max(0.0, -jz)  # cloth normal impulse keeps the ball on the cloth
+        tx = ty = 0.0
+        if mu_cloth > 0.0 and pt > 0.0:
+            bx, by = vx - R * wy, vy + R * wx  # bottom-point slip
+            b = math.hypot(bx, by)
+            if b > 0.0:
+                f = min(mu_cloth * pt, b / (inv_m + k_rot))
+                tx, ty = -f * bx / b, -f * by / b
+        vx2 = vx + (jx + tx) * inv_m
+        vy2 = vy + (jy + ty) * inv_m
+        # r_c x J + (-R z) x (T + pt z); (-R z) x (tx, ty, 0) = (R ty, -R tx, 0)
+        wx2 = wx + (rcy * jz - rcz * jy + R * ty) * inv_i
+        wy2 = wy + (rcz * jx - rcx * jz - R * tx) * inv_i
+        wz2 = wz + (rcx * jy - rcy * jx) * inv_i
+        new = (vx2, vy2, wx2, wy2, wz2)
+        cx2, cy2, cz2 = contact_vel(vx2, vy2, wx2, wy2, wz2)
+        cn2 = cx2 * Nx + cy2 * Ny + cz2 * Nz
+        return new, cn, cn2, (fx, fy, fz)
+
+    state = (vx, vy, wx, wy, wz)
+    compressed = False
+    for _ in range(50 * steps):
+        new, cn, cn2, fr = step(state, dp)
+        dw = 0.5 * (cn + cn2) * dp
+        if cn2 > 0.0:
+            compressed = True
+        target = -(1.0 - e * e) * (-work_min) if compressed else None
+        if compressed and cn > 0.0 and work + dw >= target:
+            frac = (target - work) / dw if dw > 0 else 0.0
+            new, cn, cn2, fr = step(state, frac * dp)
+            state = new
+            p_total += frac * dp
+            fcx, fcy, fcz = fcx + fr[0], fcy + fr[1], fcz + fr[2]
+            break
+        state = new
+        work += dw
+        work_min = min(work_min, work)
+        p_total += dp
+        fcx, fcy, fcz = fcx + fr[0], fcy + fr[1], fcz + fr[2]
+        if compressed and e == 0.0:
+            break
+    v2 = np.array(state[:2])
+    w2 = np.array(state[2:])
     if float(v2 @ n) < 0.0:  # friction overwhelmed the rebound: stop normal motion
         v2 = v2 - float(v2 @ n) * n
-        imp = m * (v2 - v)
-    return ContactOutcome(v2, w2, None, None, imp, j_N, p3)
+    imp = m * (v2 - v)
+    return ContactOutcome(v2, w2, None, None, imp, p_total, np.array([fcx, fcy, fcz]))

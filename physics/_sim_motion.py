@@ -223,9 +223,10 @@ def cushion_time(
     ``normal`` is the cushion's inward unit normal; the ball touches when the
     gap is 0. Returns None if it does not happen within ``horizon_s``.
     """
-    g0 = float(normal @ r) - offset_mm
-    g1 = float(normal @ v)
-    g2 = 0.5 * float(normal @ a)
+    nx, ny = normal[0], normal[1]
+    g0 = float(nx * r[0] + ny * r[1]) - offset_mm
+    g1 = float(nx * v[0] + ny * v[1])
+    g2 = 0.5 * float(nx * a[0] + ny * a[1])
     if g0 <= TOUCH_TOL_MM and g1 < -APPROACH_TOL_MM_S:
         return 0.0
     best = None

@@ -369,9 +369,10 @@ def test_properties_no_overlap_energy_on_table(scene):
             d = np.hypot(*(s.pos[:, i] - s.pos[:, j]).T)
             assert d.min() >= 2 * R_ - tol
     ke = res.kinetic_energy_J(times)
-    n_micro = sum(c.micro for c in res.contacts) + 1
-    assert np.all(np.diff(ke) <= 1e-7 * n_micro)
-    assert ke[-1] <= ke[0] + 1e-7 * n_micro
+    n_micro = sum(c.micro for c in res.contacts)
+    allow = n_micro * 0.5 * 0.11 * (params.min_bounce_mm_s * 1e-3) ** 2 + 1e-12 * ke[0]
+    assert np.all(np.diff(ke) <= allow)
+    assert ke[-1] <= ke[0] + allow
 
 
 # --------------------------------------------------------------------------
