@@ -70,8 +70,13 @@ def command(folder: Path, out_dir: Path, workers: int | None, scheduler: str | N
     spec = load_spec(spec_path) if spec_path is not None else None
     settings = analyze_settings(table)
     show = not quiet and sys.stderr.isatty()
-    report = run_batch(folder, out_dir, settings, workers=workers or os.cpu_count(), scheduler=scheduler,
-                       progress=show, log=lambda m: click.echo(f"feltlab: warning: {m}", err=True), spec=spec)
+    try:
+        report = run_batch(folder, out_dir, settings, workers=workers or os.cpu_count(), scheduler=scheduler,
+                           progress=show, log=lambda m: click.echo(f"feltlab: warning: {m}", err=True), spec=spec)
+    except KeyboardInterrupt:
+        click.echo("feltlab: interrupted; finished clips are kept, run the same command again to resume",
+                   err=True)
+        sys.exit(130)
     n = len(report.outcomes)
     click.echo(f"{n} clips: {report.count('analysed')} analysed, {report.count('skipped')} already finished, "
                f"{report.count('copied')} copied from identical clips, {report.count('failed')} failed")

@@ -346,3 +346,22 @@ def test_killed_run_resumes_without_loss_or_repeats(six_clips: Path, tmp_path: P
     assert redone.isdisjoint(finished_before)  # nothing done twice
     assert redone | finished_before == {f"drill_{i}" for i in range(6)}  # nothing lost
     assert not rep.failed and not any((out / resume.STAGING_NAME).iterdir())
+
+
+def test_a_result_made_by_single_clip_analysis_is_reused(clip_folder: Path, tmp_path: Path) -> None:
+    """A folder written by `feltlab analyze` (shot.json with the clip hash and settings, no batch
+    manifest) counts as finished when hash and settings agree, and is kept aside otherwise."""
+    out = tmp_path / "out"
+    clip = clip_folder / "bench_2.mp4"
+    sha = hashlib.sha256(clip.read_bytes()).hexdigest()
+    fake_analyze(clip, out / "bench_2", SETTINGS)  # writes shot.json with sha256 + settings
+    shot = json.loads((out / "bench_2" / "shot.json").read_text())
+    shot["clip"] = {"sha256": sha}
+    (out / "bench_2" / "shot.json").write_text(json.dumps(shot))
+    rep = run_batch(clip_folder, out, SETTINGS, analyze=fake_analyze, workers=1, series=False)
+    assert next(o for o in rep.outcomes if o.clip_rel == "bench_2.mp4").status == "skipped"
+    assert resume.read_manifest(out / "bench_2") is None  # left untouched
+    other = run_batch(clip_folder, out, {"table": "snooker"}, analyze=fake_analyze, workers=1, series=False)
+    o = next(o for o in other.outcomes if o.clip_rel == "bench_2.mp4")
+    assert o.status == "analysed" and Path(o.result_dir).name.startswith("bench_2__")
+    assert any("did not make" in w for w in other.warnings)

@@ -41,7 +41,9 @@ def settings_to_dict(settings: Any) -> dict:
     """A settings object as plain JSON-able data (dataclass, mapping, or object with __dict__)."""
     if settings is None:
         return {}
-    if dataclasses.is_dataclass(settings) and not isinstance(settings, type):
+    if callable(getattr(settings, "identity", None)):  # AnalyzeSettings: includes the calibration file's hash
+        data = settings.identity()
+    elif dataclasses.is_dataclass(settings) and not isinstance(settings, type):
         data = dataclasses.asdict(settings)
     elif isinstance(settings, dict):
         data = dict(settings)
@@ -86,10 +88,30 @@ def manifest_matches(result_dir: Path, clip_sha256: str, settings_hash: str) -> 
     return bool(m) and m.get("clip_sha256") == clip_sha256 and m.get("settings_sha256") == settings_hash
 
 
+def shot_matches(result_dir: Path, clip_sha256: str, settings_hash: str) -> bool:
+    """True when a result without a batch manifest (e.g. made by ``feltlab analyze``) has a
+    shot.json recording this clip's SHA-256 and these settings."""
+    try:
+        shot = json.loads((Path(result_dir) / "shot.json").read_text(encoding="utf-8"))
+    except (OSError, ValueError):
+        return False
+    clip = shot.get("clip") if isinstance(shot, dict) else None
+    sha = clip.get("sha256") if isinstance(clip, dict) else None
+    return sha == clip_sha256 and "settings" in shot and settings_sha256(shot["settings"]) == settings_hash
+
+
 def find_finished(out_dir: Path, result_rel: str, clip_sha256: str, settings_hash: str) -> Path | None:
-    """The finished result for this clip content + settings at its place or side place, else None."""
+    """The finished result for this clip content + settings at its place or side place, else None.
+
+    A folder without a batch manifest counts when its shot.json names the same clip hash
+    and settings (a result made by ``feltlab analyze`` into the same output folder).
+    """
     for cand in (Path(out_dir) / result_rel, Path(out_dir) / f"{result_rel}__{side_key(clip_sha256, settings_hash)}"):
-        if cand.is_dir() and manifest_matches(cand, clip_sha256, settings_hash):
+        if not cand.is_dir():
+            continue
+        if manifest_matches(cand, clip_sha256, settings_hash):
+            return cand
+        if read_manifest(cand) is None and shot_matches(cand, clip_sha256, settings_hash):
             return cand
     return None
 

@@ -286,17 +286,27 @@ class _Progress:
                                    TimeRemainingColumn)
 
         self.bar = Progress(
-            TextColumn("clips"), BarColumn(), MofNCompleteColumn(),
-            TextColumn("failed {task.fields[failed]}"), TimeElapsedColumn(), TextColumn("ETA"),
+            TextColumn("{task.description}"), BarColumn(), MofNCompleteColumn(),
+            TextColumn("{task.fields[extra]}"), TimeElapsedColumn(), TextColumn("ETA"),
             TimeRemainingColumn(), console=Console(stderr=True), transient=False,
         )
         self.bar.start()
-        self.task = self.bar.add_task("clips", total=total, failed=0)
+        self.hash_task = self.bar.add_task("hashing", total=total, extra="")
+        self.task = self.bar.add_task("clips", total=total, extra="failed 0", start=False)
+
+    def hashed(self) -> None:
+        if self.enabled:
+            self.bar.update(self.hash_task, advance=1)
+
+    def start_clips(self) -> None:
+        if self.enabled:
+            self.bar.remove_task(self.hash_task)
+            self.bar.start_task(self.task)
 
     def advance(self, outcome: ClipOutcome) -> None:
         self.failed += outcome.status == "failed"
         if self.enabled:
-            self.bar.update(self.task, advance=1, failed=self.failed)
+            self.bar.update(self.task, advance=1, extra=f"failed {self.failed}")
 
     def log(self, text: str) -> None:
         if self.enabled:
@@ -368,7 +378,11 @@ def run_batch(
     try:
         with resume.OutputLock(out):
             resume.clear_staging(out)
-            shas = {c.rel: _hash_clip(c) for c in clips}
+            shas = {}
+            for c in clips:
+                shas[c.rel] = _hash_clip(c)
+                bar.hashed()
+            bar.start_clips()
             tasks, waiting, ready = _plan(clips, shas, out, settings, settings_hash, outcomes)
             for o in outcomes.values():
                 bar.advance(o)

@@ -95,7 +95,7 @@ def _read_table(result_dir: Path, name: str, columns: list[str] | None = None) -
         if pq.is_file():
             return pd.read_parquet(pq, columns=columns) if columns is None else _pq_cols(pq, columns)
         if csv.is_file():
-            df = pd.read_csv(csv)
+            df = pd.read_csv(csv, keep_default_na=False, na_values=[""])
             return df if columns is None else df[[c for c in columns if c in df.columns]]
     except (OSError, ValueError, pd.errors.EmptyDataError):
         return pd.DataFrame()
@@ -135,8 +135,9 @@ def load_series(outcomes) -> SeriesData:
             shot = json.loads((rd / "shot.json").read_text(encoding="utf-8"))
         except (OSError, ValueError):
             shot = {}
+        fric = shot.get("friction") if isinstance(shot, dict) and isinstance(shot.get("friction"), dict) else shot
         for k in ("mu_s", "mu_s_sigma", "mu_r", "mu_r_sigma"):
-            row[k] = _num(_find_key(shot, k))
+            row[k] = _num(fric.get(k) if isinstance(fric, dict) and k in fric else _find_key(shot, k))
         c = _read_table(rd, "contacts")
         if c is None:
             problems.append(f"{o.clip_rel}: no contacts table in {rd}")
