@@ -130,10 +130,15 @@ class DetectionSettings:
     #: whatever the noise estimate (compression blocks reach ~5-8 DN; from
     #: inspecting MPEG-4 part 2 output at default quality, from memory).
     fg_min_dn: float = 14.0
-    #: A candidate's mean foreground over its disc must exceed this many times
-    #: the pixel threshold (fraction; 0.5 lets through a ball half the disc of
-    #: which is above threshold, e.g. a dark ball half in its own shadow).
-    disc_score_min: float = 0.45
+    #: Minimum Gaussian-weighted (sigma = r/2) foreground of a candidate (0..1;
+    #: a filled disc scores 0.86; 0.6 keeps a ball whose disc is mostly above
+    #: threshold, e.g.
+    #: a dark ball partly in its own shadow, and drops thin edge strips).
+    disc_score_min: float = 0.6
+    #: Mean foreground strength inside 0.6 radius of an accepted centre must
+    #: reach this many thresholds (a ball differs from the cloth over its whole
+    #: disc; compression ringing along cushion edges does not).
+    min_inner_contrast: float = 1.0
     #: Local maxima of the disc score closer than this (x radius) are merged.
     #: Two touching balls have centres 2 radii apart, so anything < 2 keeps them.
     nms_radius: float = 1.3

@@ -1,0 +1,555 @@
+"""Ball detection in one frame: candidates, sub-pixel centres, colour summary.
+
+Method (all lengths in px unless named ``_mm``; image frame: x right, y down,
+origin at the centre of the top-left pixel):
+
+1. Background: the temporal median of frames sampled over the clip
+   (:func:`build_background`). Balls that never move survive a median, so
+   ball-sized blobs that differ from a large-kernel median of the cloth are
+   painted over with the surrounding cloth (``cv2.inpaint``); the result is the
+   empty cloth, and a resting ball shows up as foreground in every frame.
+2. Foreground strength ``d`` = colour distance |frame - background| (DN).
+   Candidates are the peaks of ``d > threshold`` correlated with a paraboloid
+   disc of the expected ball radius (from the calibration), so touching balls
+   in a cluster give one peak each (their centres are two radii apart).
+3. Sub-pixel centre: rays are cast from the candidate; along each ray the
+   silhouette edge is the steepest *drop* of ``d`` (ball -> empty cloth), found
+   to sub-sample precision by a parabola through the peak. A circle is fitted
+   to these edge points with Tukey-biweight IRLS (free radius when it agrees
+   with the expected one, else fixed at the expected radius). This uses the
+   silhouette only, so stripes, numbers and the specular highlight (all
+   inside the ball, where ``d`` stays high) do not pull the centre; a shadow
+   (low ``d``, one side only) is down-weighted as outlying rays.
+   Motion blur: a disc swept over the exposure has a coverage image that is
+   point-symmetric about the mid-exposure centre, and its half-coverage
+   contour lies at ~1 radius along the motion, so the symmetric fit returns
+   the mid-exposure centre; the contour's elongation is not used.
+4. Perspective: the silhouette of a sphere is the image of its tangent cone,
+   whose centre is not exactly the projection of the sphere centre. We
+   project the exact tangent circle through the calibrated camera (with lens
+   distortion), fit it the same way and subtract the offset
+   (:func:`silhouette_offset_px`); at 3 m camera height it is <= ~0.05 px.
+5. Table position through the ball-centre plane z = R
+   (``Calibration.px_to_table``) and an honest sigma from the fit residuals.
+
+References: circle fitting, N. Chernov, *Circular and Linear Regression*
+(CRC, 2010); Tukey biweight, Holland & Welsch, Commun. Stat. 6:813 (1977);
+sub-pixel localisation accuracy, Crocker & Grier, J. Colloid Interface Sci.
+179:298 (1996).
+"""
+from __future__ import annotations
+
+from dataclasses import dataclass, field
+
+import cv2
+import numpy as np
+import pandas as pd
+
+from tracking.calibration import Calibration
+from tracking.settings import DetectionSettings
+
+DETECTION_COLUMNS = [
+    "x_px", "y_px", "x_mm", "y_mm", "sx_mm", "sy_mm", "sigma_px", "confidence",
+    "radius_px", "radius_expected_px", "support", "contrast_dn",
+    "r", "g", "b", "hue_deg", "sat", "val", "white_frac", "dark_frac",
+]
+
+
+# --------------------------------------------------------------------------- geometry
+def surface_polygon_px(calibration: Calibration, margin_mm: float, z_mm: float | None = None,
+                       n_per_edge: int = 24) -> np.ndarray:
+    """Image polygon (N,2) px of the playing surface grown by ``margin_mm`` on each side."""
+    L, W = calibration.table.length_mm, calibration.table.width_mm
+    m = margin_mm
+    s = np.linspace(0.0, 1.0, n_per_edge, endpoint=False)
+    edges = [
+        np.column_stack([-m + s * (L + 2 * m), np.full_like(s, -m)]),
+        np.column_stack([np.full_like(s, L + m), -m + s * (W + 2 * m)]),
+        np.column_stack([L + m - s * (L + 2 * m), np.full_like(s, W + m)]),
+        np.column_stack([np.full_like(s, -m), W + m - s * (W + 2 * m)]),
+    ]
+    return calibration.table_to_px(np.vstack(edges), z_mm)
+
+
+def expected_radius_px(calibration: Calibration, px: np.ndarray) -> np.ndarray:
+    """Apparent ball radius (px) at image points (N,2) taken as ball centres."""
+    xy = calibration.px_to_table(np.asarray(px, float).reshape(-1, 2))
+    return calibration.ball_radius_px(xy)
+
+
+def silhouette_offset_px(calibration: Calibration, xy_mm: np.ndarray, n: int = 48) -> np.ndarray:
+    """Silhouette-centre minus projected-centre offset (N,2) px for balls at table (N,2) mm.
+
+    The tangent cone from the camera centre O touches a sphere (centre C,
+    radius R, distance d) along a circle of centre C + (R^2/d) n and radius
+    R sqrt(1 - R^2/d^2), n = (O - C)/d. Its image, fitted by the same
+    algebraic circle fit as the detector uses, minus the image of C.
+    """
+    xy = np.asarray(xy_mm, float).reshape(-1, 2)
+    R = calibration.ball_radius_mm
+    O = calibration.camera.centre_mm
+    phi = np.linspace(0, 2 * np.pi, n, endpoint=False)
+    out = np.zeros((len(xy), 2))
+    for i, (x, y) in enumerate(xy):
+        C = np.array([x, y, R])
+        v = O - C
+        d = np.linalg.norm(v)
+        nvec = v / d
+        e1 = np.cross(nvec, [0.0, 0.0, 1.0])
+        if np.linalg.norm(e1) < 1e-9:
+            e1 = np.array([1.0, 0.0, 0.0])
+        e1 /= np.linalg.norm(e1)
+        e2 = np.cross(nvec, e1)
+        rho = R * np.sqrt(1 - (R / d) ** 2)
+        pts = C + (R * R / d) * nvec + rho * (np.cos(phi)[:, None] * e1 + np.sin(phi)[:, None] * e2)
+        sil = calibration.camera.project(pts)
+        cx, cy, _ = fit_circle_algebraic(sil)
+        out[i] = [cx, cy] - calibration.camera.project(C[None])[0]
+    return out
+
+
+# --------------------------------------------------------------------------- circle fits
+def fit_circle_algebraic(pts: np.ndarray, w: np.ndarray | None = None) -> tuple[float, float, float]:
+    """Weighted Kasa fit (x-a)^2+(y-b)^2=r^2 to points (N,2); returns (a, b, r) px."""
+    p = np.asarray(pts, float)
+    w = np.ones(len(p)) if w is None else np.asarray(w, float)
+    x, y = p[:, 0], p[:, 1]
+    m = np.average(p, axis=0, weights=w)
+    u, v = x - m[0], y - m[1]
+    A = np.column_stack([u, v, np.ones_like(u)])
+    rhs = u * u + v * v
+    sw = np.sqrt(w)
+    sol, *_ = np.linalg.lstsq(A * sw[:, None], rhs * sw, rcond=None)
+    a, b = sol[0] / 2, sol[1] / 2
+    r = np.sqrt(max(sol[2] + a * a + b * b, 1e-12))
+    return float(a + m[0]), float(b + m[1]), float(r)
+
+
+def fit_circle_robust(pts: np.ndarray, w0: np.ndarray, centre0: np.ndarray, radius: float | None,
+                      tukey_c: float = 4.685, iters: int = 6) -> dict:
+    """Tukey-IRLS geometric circle fit to edge points (N,2) with prior weights w0.
+
+    ``radius`` None fits the radius, else it is held fixed. Returns dict with
+    centre (2,), radius, residuals (N,), weights (N,), scale (robust residual
+    sigma, px), cov (2x2 centre covariance, px^2).
+    """
+    c = np.asarray(centre0, float).copy()
+    rr = float(radius) if radius is not None else float(np.median(np.linalg.norm(pts - c, axis=1)))
+    w = np.asarray(w0, float).copy()
+    scale = 1.0
+    res = np.zeros(len(pts))
+    J = np.zeros((len(pts), 3))
+    for it in range(iters):
+        dvec = pts - c
+        dist = np.linalg.norm(dvec, axis=1) + 1e-12
+        res = dist - rr
+        if it == 0:
+            med = np.median(res)
+            scale = max(1.4826 * np.median(np.abs(res - med)), 0.15)
+        else:
+            scale = max(1.4826 * np.median(np.abs(res[w > 0])) if np.any(w > 0) else 1.0, 0.1)
+        z = res / (tukey_c * scale)
+        tw = np.where(np.abs(z) < 1, (1 - z * z) ** 2, 0.0)
+        w = w0 * tw
+        if w.sum() < 3:
+            break
+        # Gauss-Newton on residual_i = |p_i - c| - r
+        J = np.column_stack([-dvec[:, 0] / dist, -dvec[:, 1] / dist, -np.ones(len(pts))])
+        if radius is not None:
+            J = J[:, :2]
+        Jw = J * w[:, None]
+        try:
+            step = np.linalg.solve(Jw.T @ J, -(Jw.T @ res))
+        except np.linalg.LinAlgError:
+            break
+        c = c + step[:2]
+        if radius is None:
+            rr = rr + step[2]
+        if np.max(np.abs(step)) < 1e-4:
+            break
+    dvec = pts - c
+    dist = np.linalg.norm(dvec, axis=1) + 1e-12
+    res = dist - rr
+    inl = w > 0
+    sig = np.sqrt(np.sum(w * res * res) / max(np.sum(w) - (3 if radius is None else 2), 1.0)) if inl.sum() > 3 else np.inf
+    Jc = np.column_stack([-dvec[:, 0] / dist, -dvec[:, 1] / dist, -np.ones(len(pts))])
+    if radius is not None:
+        Jc = Jc[:, :2]
+    try:
+        cov = np.linalg.inv((Jc * w[:, None]).T @ Jc / max(w.max(), 1e-12) * 1.0) * sig ** 2
+        cov = cov[:2, :2]
+    except np.linalg.LinAlgError:
+        cov = np.full((2, 2), np.inf)
+    return {"centre": c, "radius": rr, "residuals": res, "weights": w, "scale": sig, "cov": cov}
+
+
+# --------------------------------------------------------------------------- background
+@dataclass
+class Background:
+    """Empty-cloth image and the masks/levels detection needs.
+
+    image: float32 (H, W, 3) BGR, DN, the cloth with no balls; median: the raw
+    temporal median (uint8); mask: uint8 (H, W), 1 where a ball's silhouette
+    may appear; roi: (x0, y0, x1, y1) bounding box of ``mask``;
+    noise_dn: per-channel noise sigma (DN); threshold_dn: foreground level;
+    radius_px: median expected ball radius over the table;
+    static_px: (N,2) centres of blobs painted out of the median (balls that
+    never moved).
+    """
+
+    image: np.ndarray
+    median: np.ndarray
+    mask: np.ndarray
+    roi: tuple[int, int, int, int]
+    noise_dn: float
+    threshold_dn: float
+    radius_px: float
+    static_px: np.ndarray = field(default_factory=lambda: np.zeros((0, 2)))
+    #: Expected ball radius (px) and silhouette-centre offset (px, 2 planes)
+    #: sampled every ``grid_step`` px over the image; see :meth:`lookup`.
+    radius_grid: np.ndarray | None = None
+    offset_grid: np.ndarray | None = None
+    grid_step: int = 32
+
+    def lookup(self, x: float, y: float) -> tuple[float, float, float]:
+        """(expected radius px, offset x px, offset y px) at image point (x, y), bilinear."""
+        g = self.grid_step
+        gy, gx = self.radius_grid.shape
+        fx = min(max(x / g, 0.0), gx - 1.000001)
+        fy = min(max(y / g, 0.0), gy - 1.000001)
+        i, j = int(fy), int(fx)
+        ty, tx = fy - i, fx - j
+
+        def bil(a):
+            return ((1 - ty) * ((1 - tx) * a[i, j] + tx * a[i, j + 1])
+                    + ty * ((1 - tx) * a[i + 1, j] + tx * a[i + 1, j + 1]))
+        return float(bil(self.radius_grid)), float(bil(self.offset_grid[..., 0])), float(bil(self.offset_grid[..., 1]))
+
+
+def _colour_distance(a: np.ndarray, b: np.ndarray) -> np.ndarray:
+    diff = a.astype(np.float32) - b.astype(np.float32)
+    return np.sqrt(np.sum(diff * diff, axis=2))
+
+
+def build_background(frames: list[np.ndarray], calibration: Calibration,
+                     settings: DetectionSettings = DetectionSettings()) -> Background:
+    """Empty-cloth background from sampled frames (each HxWx3 uint8 BGR)."""
+    if not frames:
+        raise ValueError("no frames to build a background from")
+    h, w = frames[0].shape[:2]
+    stack = np.stack(frames, axis=0)
+    med = np.median(stack, axis=0).astype(np.uint8)
+    cal = calibration
+    R = cal.ball_radius_mm
+    centre = np.array([[cal.table.length_mm / 2, cal.table.width_mm / 2]])
+    r_px = float(cal.ball_radius_px(centre)[0])
+    # Pixel mask: ball centres up to one radius beyond the cushion nose (a ball
+    # dropping into a pocket), plus the silhouette radius (x1.3 for blur).
+    poly = surface_polygon_px(cal, margin_mm=R + 1.3 * R)
+    mask = np.zeros((h, w), np.uint8)
+    cv2.fillPoly(mask, [np.round(poly * 16).astype(np.int32)], 1, lineType=cv2.LINE_8, shift=4)
+    ys, xs = np.nonzero(mask)
+    if len(xs) == 0:
+        raise ValueError("the calibrated playing surface does not fall inside the image")
+    roi = (int(xs.min()), int(ys.min()), int(xs.max()) + 1, int(ys.max()) + 1)
+
+    # Cloth model: a median over a window ~4.4 ball radii wide removes any
+    # ball (a ball covers < 1/4 of the window) but keeps the slow vignetting.
+    k = int(2 * round(2.2 * r_px) + 1)
+    cloth = cv2.medianBlur(med, max(k, 5))
+    d0 = _colour_distance(med, cloth)
+    inner = np.abs(d0[mask > 0] - np.median(d0[mask > 0]))
+    noise0 = max(1.4826 * np.median(inner), 1.0)
+    blob = ((d0 > max(settings.fg_min_dn, 4 * noise0)) & (mask > 0)).astype(np.uint8)
+    n, lab, stats, cents = cv2.connectedComponentsWithStats(blob, connectivity=8)
+    paint = np.zeros_like(blob)
+    static = []
+    if n > 1:
+        dt = cv2.distanceTransform(blob, cv2.DIST_L2, 5)
+        L, W = cal.table.length_mm, cal.table.width_mm
+        for i in range(1, n):
+            if stats[i, cv2.CC_STAT_AREA] < 0.25 * np.pi * r_px ** 2:
+                continue
+            sel = lab == i
+            if dt[sel].max() < 0.55 * r_px:
+                continue  # thin: cushion line, shadow edge, cloth seam
+            txy = cal.px_to_table(cents[i][None])[0]
+            if not (0 <= txy[0] <= L and 0 <= txy[1] <= W):
+                continue  # a pocket or rail feature, not a ball on the cloth
+            paint |= sel.astype(np.uint8)
+            static.append(cents[i])
+    img = med.copy()
+    if paint.any():
+        grow = int(round(0.6 * r_px)) * 2 + 1
+        paint = cv2.dilate(paint, cv2.getStructuringElement(cv2.MORPH_ELLIPSE, (grow, grow)))
+        img = cv2.inpaint(med, paint, int(round(r_px)), cv2.INPAINT_TELEA)
+    bg = img.astype(np.float32)
+
+    # Noise: per-channel sigma from the frame-to-background distance (the
+    # distance of 3-channel Gaussian noise is sigma * chi_3, median 1.538 sigma).
+    x0, y0, x1, y1 = roi
+    samples = []
+    for f in frames[:: max(1, len(frames) // 5)]:
+        dd = _colour_distance(f[y0:y1, x0:x1], bg[y0:y1, x0:x1])[mask[y0:y1, x0:x1] > 0]
+        samples.append(np.median(dd) / 1.538)
+    noise = float(max(np.median(samples), 0.5))
+    thr = float(max(settings.fg_sigma * noise, settings.fg_min_dn))
+    step = 32
+    gxs = np.arange(0, w + step, step, dtype=float)
+    gys = np.arange(0, h + step, step, dtype=float)
+    grid_px = np.array([[x, y] for y in gys for x in gxs])
+    grid_xy = cal.px_to_table(grid_px)
+    rad = cal.ball_radius_px(grid_xy).reshape(len(gys), len(gxs))
+    off = silhouette_offset_px(cal, grid_xy, n=24).reshape(len(gys), len(gxs), 2)
+    return Background(image=bg, median=med, mask=mask, roi=roi, noise_dn=noise, threshold_dn=thr,
+                      radius_px=r_px, static_px=np.array(static).reshape(-1, 2),
+                      radius_grid=rad, offset_grid=off, grid_step=step)
+
+
+# --------------------------------------------------------------------------- candidates
+
+def find_candidates(fg: np.ndarray, radius_px: float, settings: DetectionSettings) -> np.ndarray:
+    """Peaks (N,3: x, y, score) of the foreground map correlated with a ball-sized disc.
+
+    Balls wider than ~12 px are searched on a half-resolution map (the
+    candidate only seeds the sub-pixel fit).
+    """
+    if radius_px >= 6.0:
+        small = cv2.resize(fg, (fg.shape[1] // 2, fg.shape[0] // 2), interpolation=cv2.INTER_AREA)
+        c = _find_candidates(small, radius_px / 2.0, settings)
+        c[:, :2] = c[:, :2] * 2.0 + 0.5
+        return c
+    return _find_candidates(fg, radius_px, settings)
+
+
+def _find_candidates(fg: np.ndarray, radius_px: float, settings: DetectionSettings) -> np.ndarray:
+    # Gaussian-weighted disc score (sigma r/2): a filled ball-sized disc scores
+    # 1 - exp(-2) = 0.86 at its centre and peaks there; separable, so cheap.
+    score = cv2.GaussianBlur(fg, (0, 0), 0.5 * radius_px, borderType=cv2.BORDER_CONSTANT)
+    nr = max(1, int(round(settings.nms_radius * radius_px)))
+    se = cv2.getStructuringElement(cv2.MORPH_ELLIPSE, (2 * nr + 1, 2 * nr + 1))
+    dil = cv2.dilate(score, se)
+    peaks = ((score >= dil - 1e-6) & (score > settings.disc_score_min)).astype(np.uint8)
+    n, lab, stats, cents = cv2.connectedComponentsWithStats(peaks, connectivity=8)
+    out = []
+    for i in range(1, n):
+        x, y = cents[i]
+        out.append((x, y, float(score[int(round(y)), int(round(x))])))
+    out.sort(key=lambda t: -t[2])
+    kept: list[tuple[float, float, float]] = []
+    for c in out:
+        if all((c[0] - k[0]) ** 2 + (c[1] - k[1]) ** 2 > (settings.nms_radius * radius_px) ** 2 for k in kept):
+            kept.append(c)
+    return np.array(kept, float).reshape(-1, 3)
+
+
+# --------------------------------------------------------------------------- refinement
+def _edge_points(dsm: np.ndarray, centre: np.ndarray, r_exp: float, settings: DetectionSettings):
+    """Steepest drop of the smoothed foreground ``dsm`` along rays; returns (pts, strength, valid)."""
+    n = settings.n_rays
+    th = np.linspace(0, 2 * np.pi, n, endpoint=False).astype(np.float32)
+    s = np.arange(settings.ray_min * r_exp, settings.ray_max * r_exp + 1e-6, settings.ray_step_px,
+                  dtype=np.float32)
+    mx = (centre[0] + np.cos(th)[:, None] * s[None, :]).astype(np.float32)
+    my = (centre[1] + np.sin(th)[:, None] * s[None, :]).astype(np.float32)
+    h, w = dsm.shape
+    inside = (mx >= 0) & (mx <= w - 1) & (my >= 0) & (my <= h - 1)
+    prof = cv2.remap(dsm, mx, my, cv2.INTER_LINEAR, borderMode=cv2.BORDER_REPLICATE)
+    drop = -(prof[:, 2:] - prof[:, :-2]) / (2 * settings.ray_step_px)  # -d/ds at s[1:-1]
+    # Prefer drops near the expected radius (soft prior, sd 0.35 r).
+    sm = s[1:-1]
+    prior = np.exp(-0.5 * ((sm - r_exp) / (0.35 * r_exp)) ** 2)
+    score = drop * prior[None, :]
+    j = np.argmax(score, axis=1)
+    j = np.clip(j, 1, len(sm) - 2)
+    idx = np.arange(n)
+    y0, y1, y2 = drop[idx, j - 1], drop[idx, j], drop[idx, j + 1]
+    den = y0 - 2 * y1 + y2
+    with np.errstate(divide="ignore", invalid="ignore"):
+        off = np.where(np.abs(den) > 1e-9, 0.5 * (y0 - y2) / den, 0.0)
+    off = np.clip(off, -1, 1)
+    rad = sm[j] + off * settings.ray_step_px
+    strength = y1
+    valid = inside.all(axis=1) & (strength > 0)
+    pts = np.column_stack([centre[0] + np.cos(th) * rad, centre[1] + np.sin(th) * rad])
+    return pts, np.clip(strength, 0, None), valid
+
+
+def refine_centre(d: np.ndarray, x0: float, y0: float, r_exp: float,
+                  settings: DetectionSettings = DetectionSettings()) -> dict | None:
+    """Sub-pixel silhouette centre near (x0, y0) in foreground-strength image ``d`` (DN).
+
+    Returns dict(x, y, radius, sigma_px, support, fixed_radius) or None when
+    the silhouette is not ball-like.
+    """
+    h, w = d.shape
+    half = int(np.ceil(settings.ray_max * r_exp + 3 * settings.edge_smooth_px + 3))
+    xa, ya = max(0, int(x0) - half), max(0, int(y0) - half)
+    xb, yb = min(w, int(x0) + half + 2), min(h, int(y0) + half + 2)
+    patch = d[ya:yb, xa:xb]
+    if patch.size == 0:
+        return None
+    dsm = cv2.GaussianBlur(patch, (0, 0), settings.edge_smooth_px)
+    c = np.array([x0 - xa, y0 - ya], float)
+    fit = None
+    fixed = False
+    for it in range(2):
+        pts, stren, valid = _edge_points(dsm, c, r_exp, settings)
+        if valid.sum() < 6:
+            return None
+        w0 = np.where(valid, stren / (stren[valid].max() + 1e-9), 0.0)
+        w0 = np.sqrt(w0)  # weak edges still vote, less
+        fit = fit_circle_robust(pts, w0, c, None, settings.tukey_c)
+        fixed = False
+        if not np.isfinite(fit["radius"]) or abs(fit["radius"] - r_exp) > settings.radius_tol * r_exp:
+            fit = fit_circle_robust(pts, w0, c, r_exp, settings.tukey_c)
+            fixed = True
+        step = np.linalg.norm(fit["centre"] - c)
+        c = fit["centre"]
+        if step < 0.02:
+            break
+    support = float(np.mean(fit["weights"] > 0.05))
+    if support < settings.min_support or np.linalg.norm(c - [x0 - xa, y0 - ya]) > 0.8 * r_exp:
+        return None
+    # Centre sigma: residual scale over the effective number of independent
+    # rays (neighbouring rays closer than ~1.5 px share pixels).
+    n_in = float(np.sum(fit["weights"] > 0.05))
+    n_eff = max(3.0, min(n_in, 2 * np.pi * r_exp * support / 1.5))
+    sig = fit["scale"] * np.sqrt(2.0 / n_eff)
+    sig = float(max(sig, settings.sigma_floor_px))
+    return {"x": c[0] + xa, "y": c[1] + ya, "radius": float(fit["radius"]), "sigma_px": sig,
+            "support": support, "fixed_radius": fixed}
+
+
+# --------------------------------------------------------------------------- colour
+def colour_summary(image: np.ndarray, x: float, y: float, r: float,
+                   settings: DetectionSettings = DetectionSettings()) -> dict:
+    """Colour of the ball disc (inner 75% radius) in a BGR uint8 image.
+
+    r, g, b: mean (0-255); hue_deg, sat, val: circular-mean hue (0-360) and
+    medians (0-1) of the coloured pixels (neither white nor dark);
+    white_frac, dark_frac: fractions of white / dark pixels (stripes, cue, black).
+    """
+    rr = 0.75 * r
+    n = int(np.ceil(rr))
+    h, w = image.shape[:2]
+    xi, yi = int(round(x)), int(round(y))
+    xa, ya, xb, yb = max(0, xi - n), max(0, yi - n), min(w, xi + n + 1), min(h, yi + n + 1)
+    patch = image[ya:yb, xa:xb]
+    if patch.size == 0:
+        return {"r": np.nan, "g": np.nan, "b": np.nan, "hue_deg": np.nan, "sat": np.nan, "val": np.nan,
+                "white_frac": np.nan, "dark_frac": np.nan}
+    yy, xx = np.mgrid[ya:yb, xa:xb]
+    inside = (xx - x) ** 2 + (yy - y) ** 2 <= rr * rr
+    px = patch[inside].astype(np.float32)
+    hsv = cv2.cvtColor(patch, cv2.COLOR_BGR2HSV_FULL)[inside].astype(np.float32)
+    hue = hsv[:, 0] * (360.0 / 256.0)
+    sat = hsv[:, 1] / 255.0
+    val = hsv[:, 2] / 255.0
+    white = (sat < settings.white_saturation) & (val > settings.white_value)
+    dark = val < 0.22
+    col = ~white & ~dark
+    if col.sum() >= 3:
+        ang = np.radians(hue[col])
+        wgt = sat[col]
+        hmean = float(np.degrees(np.arctan2(np.sum(wgt * np.sin(ang)), np.sum(wgt * np.cos(ang)))) % 360)
+        smed, vmed = float(np.median(sat[col])), float(np.median(val[col]))
+    else:
+        hmean, smed, vmed = np.nan, float(np.median(sat)), float(np.median(val))
+    mean = px.mean(axis=0)
+    return {"r": float(mean[2]), "g": float(mean[1]), "b": float(mean[0]), "hue_deg": hmean, "sat": smed,
+            "val": vmed, "white_frac": float(white.mean()), "dark_frac": float(dark.mean())}
+
+
+# --------------------------------------------------------------------------- one frame
+def foreground_strength(image: np.ndarray, background: Background) -> np.ndarray:
+    """Colour distance |image - background| (DN) inside the surface ROI, 0 elsewhere (float32)."""
+    x0, y0, x1, y1 = background.roi
+    d = np.zeros(image.shape[:2], np.float32)
+    diff = cv2.subtract(image[y0:y1, x0:x1].astype(np.float32), background.image[y0:y1, x0:x1])
+    sq = cv2.multiply(diff, diff)
+    d[y0:y1, x0:x1] = cv2.sqrt(cv2.transform(sq, np.ones((1, 3), np.float32))) * background.mask[y0:y1, x0:x1]
+    return d
+
+
+def detect_frame(image: np.ndarray, calibration: Calibration, settings: DetectionSettings = DetectionSettings(),
+                 background: Background | None = None) -> pd.DataFrame:
+    """Balls in one BGR uint8 frame -> DataFrame with :data:`DETECTION_COLUMNS`.
+
+    Without a ``background`` the frame's own large-kernel median stands in for
+    the empty cloth (fine for a single still; a clip should pass the
+    temporal background from :func:`build_background`).
+    """
+    if image is None or image.ndim != 3 or image.shape[2] != 3:
+        raise ValueError("detect_frame needs an HxWx3 BGR image")
+    if background is None:
+        background = build_background([image], calibration, settings)
+    cal = calibration
+    r0 = background.radius_px
+    x0, y0, x1, y1 = background.roi
+    d = foreground_strength(image, background)
+    dcrop = d[y0:y1, x0:x1]
+    fg = np.clip(dcrop / background.threshold_dn - 0.5, 0, 1).astype(np.float32)
+    cands = find_candidates(fg, r0, settings)
+    thr = background.threshold_dn
+    found = []
+    for cx, cy, sc in cands:
+        gx, gy = cx + x0, cy + y0
+        if _disc_mean(d, gx, gy, 0.6 * r0) < settings.min_inner_contrast * thr:
+            continue  # not a ball-sized patch that differs from the cloth
+        r_exp, _, _ = background.lookup(gx, gy)
+        ref = refine_centre(d, gx, gy, r_exp, settings)
+        if ref is None:
+            continue
+        r_exp, ox, oy = background.lookup(ref["x"], ref["y"])
+        if _disc_mean(d, ref["x"], ref["y"], 0.6 * r_exp) < settings.min_inner_contrast * thr:
+            continue
+        found.append((ref, r_exp, ox, oy))
+    rows = []
+    if found:
+        pc = np.array([[f[0]["x"] - f[2], f[0]["y"] - f[3]] for f in found])
+        xy_all = cal.px_to_table(pc)
+        L, W = cal.table.length_mm, cal.table.width_mm
+        m = cal.ball_radius_mm  # centres up to one radius past the cushion nose
+        for (ref, r_exp, ox, oy), p, xy in zip(found, pc, xy_all):
+            if not (-m <= xy[0] <= L + m and -m <= xy[1] <= W + m):
+                continue
+            mmpp = cal.ball_radius_mm / r_exp  # local scale in the ball-centre plane
+            col = colour_summary(image, ref["x"], ref["y"], r_exp, settings)
+            contrast = _disc_mean(d, ref["x"], ref["y"], 0.6 * r_exp)
+            conf = float(np.clip(ref["support"], 0, 1) * np.clip(contrast / (3 * thr), 0, 1)
+                         * (0.7 if ref["fixed_radius"] else 1.0))
+            rows.append({
+                "x_px": p[0], "y_px": p[1], "x_mm": xy[0], "y_mm": xy[1],
+                "sx_mm": ref["sigma_px"] * mmpp, "sy_mm": ref["sigma_px"] * mmpp, "sigma_px": ref["sigma_px"],
+                "confidence": conf, "radius_px": ref["radius"], "radius_expected_px": r_exp,
+                "support": ref["support"], "contrast_dn": contrast, **col,
+            })
+    df = pd.DataFrame(rows, columns=DETECTION_COLUMNS)
+    return _drop_duplicates(df, r0)
+
+
+def _disc_mean(d: np.ndarray, x: float, y: float, r: float) -> float:
+    """Mean of image ``d`` over the disc of radius r (px) centred at (x, y)."""
+    n = int(np.ceil(r))
+    h, w = d.shape
+    xi, yi = int(round(x)), int(round(y))
+    xa, ya, xb, yb = max(0, xi - n), max(0, yi - n), min(w, xi + n + 1), min(h, yi + n + 1)
+    if xb <= xa or yb <= ya:
+        return 0.0
+    yy, xx = np.mgrid[ya:yb, xa:xb]
+    inside = (xx - x) ** 2 + (yy - y) ** 2 <= r * r
+    return float(d[ya:yb, xa:xb][inside].mean()) if inside.any() else 0.0
+
+
+def _drop_duplicates(df: pd.DataFrame, r_px: float) -> pd.DataFrame:
+    """Two candidates refined onto the same ball: keep the more confident."""
+    if len(df) < 2:
+        return df.reset_index(drop=True)
+    df = df.sort_values("confidence", ascending=False).reset_index(drop=True)
+    keep = []
+    xy = df[["x_px", "y_px"]].to_numpy()
+    for i in range(len(df)):
+        if all(np.hypot(*(xy[i] - xy[k])) > 1.2 * r_px for k in keep):
+            keep.append(i)
+    return df.iloc[keep].reset_index(drop=True)
