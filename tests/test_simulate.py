@@ -111,6 +111,102 @@ def test_side_spin_decays_linearly_at_documented_rate():
     assert wz[2] == 0.0
 
 
+def test_state_at_consistent_with_mechanics():
+    """Between events: position is the integral of velocity (finite differences),
+    sliding conserves angular momentum about the cloth contact point
+    (REFERENCES.md slide-to-roll note: L = I w + R z x m v, I = 2/5 m R^2),
+    and rolling keeps the contact point still (u = v + w x (-R z) = 0)."""
+    p = SimParams.for_table(TABLES["pool-9ft"], mu_ball_ball=0.05)
+    balls = [BallInit.struck("cue", 400.0, 300.0, 2500.0, 25.0, top_rad_s=-70.0, side_rad_s=30.0),
+             BallInit("red", 1400.0, 760.0)]
+    res = simulate(balls, p, 6.0)
+    t = np.linspace(0.0, 6.0, 24001)
+    s = res.state_at(t)
+    ph = res.phase_at(t)
+    ev = np.array([e.t_s for e in res.events])
+    dt = t[1] - t[0]
+    # Finite differences away from events (central difference, exact for quadratics).
+    clean = np.array([np.all(np.abs(ev - tt) > 1.5 * dt) for tt in t[1:-1]])
+    fd = (s.pos[2:] - s.pos[:-2]) / (2 * dt)
+    np.testing.assert_allclose(fd[clean], s.vel[1:-1][clean], atol=1e-6)
+    I = 0.4 * M * R**2
+    for k in range(2):
+        v3 = np.concatenate([s.vel[:, k], np.zeros((t.size, 1))], axis=1)
+        L = I * s.omega[:, k] + M * R * np.cross([0.0, 0.0, 1.0], v3)
+        slide = ph[:, k] == "slide"
+        # Within one sliding segment L_xy is constant.
+        seg_id = np.searchsorted(ev, t, side="right")
+        for sid in np.unique(seg_id[slide]):
+            sel = slide & (seg_id == sid)
+            np.testing.assert_allclose(L[sel, :2], np.broadcast_to(L[sel][0, :2], L[sel, :2].shape),
+                                       atol=1e-9 * np.abs(L[:, :2]).max())
+        roll = ph[:, k] == "roll"
+        u = s.vel[roll, k] + R * np.stack([-s.omega[roll, k, 1], s.omega[roll, k, 0]], axis=1)
+        np.testing.assert_allclose(u, 0.0, atol=1e-9)
+
+
+def test_frictionless_elastic_table_conserves_energy():
+    """With every friction off and e = 1 (ball-ball and cushion), kinetic
+    energy is conserved exactly (elastic collisions, no dissipation), through
+    many collisions."""
+    p = SimParams(2540.0, 1270.0, e_ball_ball=1.0, e_cushion=1.0, mu_ball_ball=0.0, mu_cushion=0.0,
+                  mu_slide=0.0, mu_roll=0.0, mu_spin=0.0)
+    balls = [BallInit("a", 600.0, 300.0, 3000.0, 1700.0), BallInit("b", 1600.0, 800.0, -2000.0, 900.0),
+             BallInit("c", 1200.0, 600.0, 500.0, -2500.0)]
+    res = simulate(balls, p, 10.0)
+    assert len(res.contacts) > 20
+    ke = res.kinetic_energy_J(np.linspace(0.0, 10.0, 101))
+    np.testing.assert_allclose(ke, ke[0], rtol=1e-9)
+
+
+def _rack(gap_mm, x0=1905.0, y0=635.0):
+    balls = []
+    for row in range(5):
+        for col in range(row + 1):
+            x = x0 + row * (2 * R + gap_mm) * math.sqrt(3) / 2
+            y = y0 + (col - row / 2) * (2 * R + gap_mm)
+            balls.append(BallInit(f"o{len(balls)}", x, y))
+    return balls
+
+
+@pytest.mark.parametrize("gap", [0.0, 0.2])
+def test_break_shot_touching_rack(gap):
+    """A 15-ball rack with touching (or nearly) balls broken at 11 m/s (the
+    break speed in REFERENCES.md): many simultaneous contacts, no overlap,
+    nobody leaves the table, energy never rises, momentum conserved per
+    contact, and everything comes to rest."""
+    p = SimParams.for_table(TABLES["pool-9ft"], mu_ball_ball=0.06)
+    balls = [BallInit.struck("cue", 635.0, 636.0, 11000.0, 0.0)] + _rack(gap)
+    res = simulate(balls, p, 25.0)
+    times = np.unique(np.concatenate([np.linspace(0.0, 25.0, 2501), [e.t_s for e in res.events]]))
+    s = res.state_at(times)
+    for i in range(16):
+        d = np.hypot(*(s.pos[:, i + 1:] - s.pos[:, i:i + 1]).transpose(2, 0, 1))
+        assert d.size == 0 or d.min() >= 2 * R - 1e-6
+    assert s.pos[..., 0].min() >= R - 1e-6 and s.pos[..., 0].max() <= p.length_mm - R + 1e-6
+    assert s.pos[..., 1].min() >= R - 1e-6 and s.pos[..., 1].max() <= p.width_mm - R + 1e-6
+    ke = res.kinetic_energy_J(times)
+    n_micro = sum(c.micro for c in res.contacts)
+    assert np.all(np.diff(ke) <= n_micro * 0.5 * 0.0815 * (p.min_bounce_mm_s * 1e-3) ** 2 + 1e-12)
+    assert np.all(res.phase_at([25.0]) == "rest")
+    assert sum(c.kind == "ball-ball" for c in res.contacts) >= 15
+
+
+def test_follow_shot_pushing_a_ball_terminates():
+    """A heavily spun cue ball pressed into an object ball by cloth friction
+    (a push) ends in a bounded number of events (documented separation floor)
+    and the balls never overlap."""
+    p = SimParams(2540.0, 1270.0, mu_ball_ball=0.05)
+    balls = [BallInit.struck("cue", 1000.0, 600.0, 300.0, 0.0, top_rad_s=300.0),
+             BallInit("b", 1000.0 + 2 * R + 5.0, 600.0)]
+    res = simulate(balls, p, 5.0)
+    assert len(res.events) < 3000
+    t = np.unique(np.concatenate([np.linspace(0.0, 5.0, 5001), [e.t_s for e in res.events]]))
+    s = res.state_at(t)
+    assert np.hypot(*(s.pos[:, 1] - s.pos[:, 0]).T).min() >= 2 * R - 1e-6
+    assert any(c.micro for c in res.contacts)
+
+
 # --------------------------------------------------------------------------
 # Ball-ball contacts (frictionless unless stated; cloth friction off where the
 # contact law is isolated, which the closed forms assume)
