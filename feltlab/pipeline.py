@@ -322,12 +322,17 @@ def write_outputs(folder: Path, *, clip: Path, sha: str, tr, ph, table: TablePre
 
     if settings.plots:
         t = time.perf_counter()
+        model = None
+        if callable(getattr(ph, "state", None)):
+            def model(ball, t):
+                return ph.state(ball, t)[1]
         p = attempt("speed plot", lambda: plot_out.speed_plot(tr.tracks, ph.segments, ph.contacts,
                                                                folder / "speed.png",
-                                                               title=f"Ball speed against time: {stem}"))
+                                                               title=f"Ball speed against time: {stem}",
+                                                               model=model))
         if p:
-            plots["Speed of each moving ball against time; fitted sliding (orange) and rolling (blue) "
-                  "phases shaded, contacts dashed."] = p
+            plots["Speed of each moving ball against time: smoothed track (solid) and fitted motion model "
+                  "(dashed); fitted sliding (orange) and rolling (blue) phases shaded; contacts dotted."] = p
         p = attempt("table diagram", lambda: plot_out.table_diagram(tr.tracks, ph.contacts, table, cal.ball_radius_mm,
                                                                      folder / "table.png"))
         if p:
@@ -387,7 +392,7 @@ def write_outputs(folder: Path, *, clip: Path, sha: str, tr, ph, table: TablePre
     if settings.report:
         def report():
             shot = shot_dict(rel)
-            ctx = rep_out.build_context(shot, ph.contacts, plots, contact_images, rel)
+            ctx = rep_out.build_context(shot, ph.contacts, plots, contact_images, rel, tracks=tr.tracks)
             return rep_out.write_report(folder / "report.html", ctx)
 
         if attempt("report", report) is None:

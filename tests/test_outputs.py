@@ -302,7 +302,7 @@ def _report_context(tmp_path, clip_name="shot.mp4", ball="red"):
                       friction={"mu_s": 0.2, "mu_s_sigma": 0.02, "mu_r": 0.01, "mu_r_sigma": 0.001},
                       ball_mass_kg=0.163, settings={}, version="0.1.0", files=[])
     return rep_out.build_context(shot, contacts, {f"speed of {ball}": p1}, [(f"frame of {ball}", p1)],
-                                 ["tracks.csv", clip_name])
+                                 ["tracks.csv", clip_name], tracks=tracks)
 
 
 def test_report_escapes_names_and_embeds_images(tmp_path):
@@ -329,6 +329,10 @@ def test_report_sentence_closed_form(tmp_path):
     assert f"cue at {(1 - E) * V0 / 2000:.2f} m/s" in s
     assert f"e = {E:.3f} ± 0.010" in s
     assert f"{100 * (1 - E ** 2) / 2:.1f}% of the kinetic energy lost" in s
+    # 1.5 m/s lies in the "medium" band, 0.89-1.9 m/s (Physics of Pool FAQ, Colorado State University).
+    assert ctx["summary"][0] == "cue moved at up to 1.50 m/s before its first contact " \
+                                "(a medium shot by the Physics of Pool FAQ speed bands)."
+    assert ctx["summary"][1] == "1 contact found: 1 ball-ball, 0 ball-cushion."
 
 
 # --------------------------------------------------------------------------- pipeline glue

@@ -48,8 +48,12 @@ def moving_balls(tracks: pd.DataFrame) -> list[str]:
 
 
 def speed_plot(tracks: pd.DataFrame, segments: pd.DataFrame | None, contacts: pd.DataFrame | None,
-               path: Path, title: str = "") -> Path:
-    """Write the speed-time plot (PNG) and return its path."""
+               path: Path, title: str = "", model=None) -> Path:
+    """Write the speed-time plot (PNG) and return its path.
+
+    ``model(ball, t_s array) -> velocities (T, 2) mm/s``, if given, adds the
+    fitted motion model's speed as a dashed line over the smoothed track.
+    """
     balls = moving_balls(tracks) or ball_order(tracks["ball"].unique())[:1]
     cols = ball_colours(tracks["ball"].unique(), on_paper=True)
     n = max(1, len(balls))
@@ -70,6 +74,14 @@ def speed_plot(tracks: pd.DataFrame, segments: pd.DataFrame | None, contacts: pd
                                alpha=0.22 if ph == "slide" else 0.16, lw=0)
         vis = g["visible"].to_numpy(float) if "visible" in g else np.ones(len(g))
         ax.plot(g["t_s"], sp, color=mpl(cols[b]), lw=1.6, label="speed (smoothed track)")
+        if model is not None and len(g):
+            try:
+                tt = np.linspace(float(g["t_s"].min()), float(g["t_s"].max()), 600)
+                vm = np.asarray(model(b, tt), float).reshape(-1, 2)
+                ax.plot(tt, np.hypot(vm[:, 0], vm[:, 1]) / 1000.0, color="0.35", lw=1.0, ls=(0, (4, 2)),
+                        label="fitted model")
+            except Exception:  # noqa: BLE001 - a ball without a fitted model keeps its track only
+                pass
         pred = vis < 0.5
         if pred.any():
             ax.plot(g["t_s"].to_numpy()[pred], sp[pred], ".", color="0.5", ms=3, label="predicted (ball not seen)")
@@ -79,7 +91,7 @@ def speed_plot(tracks: pd.DataFrame, segments: pd.DataFrame | None, contacts: pd
         ax.set_ylim(0, max(0.1, vmax * 1.12))
         if contacts is not None:
             for _, c in contacts.iterrows():
-                ax.axvline(c["t_s"], color="0.25", ls="--", lw=0.9)
+                ax.axvline(c["t_s"], color="0.3", ls=":", lw=1.3)
     if contacts is not None and len(contacts):
         for _, c in contacts.iterrows():
             axes[0].annotate(f"C{c['contact']}", (c["t_s"], 1.0), xycoords=("data", "axes fraction"),
@@ -88,10 +100,13 @@ def speed_plot(tracks: pd.DataFrame, segments: pd.DataFrame | None, contacts: pd
     axes[-1].set_xlim(tmin, tmax)
     from matplotlib.patches import Patch
     from matplotlib.lines import Line2D
-    handles = [Patch(color=mpl(SLIDE_RGB), alpha=0.35, label="sliding (fitted)"),
-               Patch(color=mpl(ROLL_RGB), alpha=0.3, label="rolling (fitted)"),
-               Line2D([], [], color="0.25", ls="--", lw=0.9, label="contact")]
-    fig.legend(handles=handles, loc="upper right", ncol=3, fontsize=9, frameon=False)
+    handles = [Line2D([], [], color="0.4", lw=1.6, label="smoothed track")]
+    if model is not None:
+        handles.append(Line2D([], [], color="0.35", lw=1.0, ls=(0, (4, 2)), label="fitted model"))
+    handles += [Patch(color=mpl(SLIDE_RGB), alpha=0.35, label="sliding"),
+                Patch(color=mpl(ROLL_RGB), alpha=0.3, label="rolling"),
+                Line2D([], [], color="0.3", ls=":", lw=1.3, label="contact")]
+    fig.legend(handles=handles, loc="upper right", ncol=len(handles), fontsize=9, frameon=False)
     fig.suptitle(title or "Ball speed against time", x=0.02, ha="left", fontsize=11)
     fig.tight_layout(rect=(0, 0, 1, 0.97 if n > 1 else 0.93))
     fig.savefig(path, dpi=DPI)

@@ -67,7 +67,7 @@ def describe_contact(c: dict) -> str:
     >>> describe_contact({"contact": 1, "t_s": 0.5, "kind": "ball-cushion", "ball_a": "red", "cushion": "y0",
     ...     "nx": 0.0, "ny": 1.0, "va_in_x_mm_s": 0.0, "va_in_y_mm_s": -1000.0, "va_out_x_mm_s": 0.0,
     ...     "va_out_y_mm_s": 800.0, "speed_in_mm_s": 1000.0, "e": 0.8, "e_sigma": 0.01, "ke_loss_frac": 0.36})
-    'C1 at 0.500 s: red reached cushion y0 at 1.00 m/s (1.00 m/s into the cushion), 0° from the normal, and came off at 0.80 m/s, 0° from the normal; e = 0.80 ± 0.01; 36.0% of the kinetic energy lost.'
+    'C1 at 0.500 s: red reached cushion y0 at 1.00 m/s (1.00 m/s into the cushion), 0° from the normal, and came off at 0.80 m/s, 0° from the normal; e = 0.800 ± 0.010; 36.0% of the kinetic energy lost.'
     """
     parts = []
     ang = departure_angles(c)
@@ -105,6 +105,53 @@ def describe_contact(c: dict) -> str:
     if _ok(c.get("ke_loss_frac")):
         parts.append(f"{100 * _f(c['ke_loss_frac']):.1f}% of the kinetic energy lost")
     return head + "; ".join(parts) + "."
+
+
+def speed_band(v_mm_s: float) -> str | None:
+    """Name of the shot-speed band (Physics of Pool FAQ, Colorado State University; feltlab.standards).
+
+    >>> speed_band(2200.0)
+    'fast'
+    """
+    from feltlab.standards import SHOT_SPEED_BANDS_MM_S
+
+    for name, (lo, hi) in SHOT_SPEED_BANDS_MM_S.items():
+        if lo <= v_mm_s < hi:
+            return name
+    return None
+
+
+def shot_summary(tracks: pd.DataFrame | None, contacts: pd.DataFrame | None) -> list[str]:
+    """A few plain sentences about the whole shot: the striking speed and what was hit."""
+    out = []
+    if tracks is not None and len(tracks):
+        balls = [str(b) for b in tracks["ball"].unique()]
+        striker = "cue" if "cue" in balls else None
+        sp = np.hypot(tracks["vx_mm_s"].to_numpy(float), tracks["vy_mm_s"].to_numpy(float))
+        if striker is None:  # the first ball to move
+            moving = tracks[sp > 100.0]
+            striker = str(moving.sort_values("t_s")["ball"].iloc[0]) if len(moving) else None
+        if striker is not None:
+            g = tracks["ball"].astype(str) == striker
+            t_first = np.inf
+            if contacts is not None and len(contacts):
+                inv = contacts[(contacts["ball_a"].astype(str) == striker) | (contacts["ball_b"].astype(str) == striker)]
+                if len(inv):
+                    t_first = float(inv["t_s"].min())
+            before = g & (tracks["t_s"].to_numpy(float) < t_first)
+            if before.any() and np.isfinite(sp[before]).any():
+                v = float(np.nanmax(sp[before]))
+                band = speed_band(v)
+                s = f"{striker} moved at up to {ms(v)} before its first contact"
+                if band:
+                    s += f" (a {band} shot by the Physics of Pool FAQ speed bands)"
+                out.append(s + ".")
+    if contacts is not None:
+        nb = int((contacts["kind"] == "ball-ball").sum()) if len(contacts) else 0
+        nc = int((contacts["kind"] == "ball-cushion").sum()) if len(contacts) else 0
+        out.append(f"{len(contacts)} contact{'s' if len(contacts) != 1 else ''} found: {nb} ball-ball, "
+                   f"{nc} ball-cushion.")
+    return out
 
 
 def embed_png(path: Path, max_width: int = EMBED_MAX_WIDTH_PX) -> str:
@@ -161,7 +208,8 @@ def render_report(context: dict) -> str:
 
 
 def build_context(shot: dict, contacts: pd.DataFrame | None, plots: dict[str, Path],
-                  contact_images: list[tuple[str, Path]], files: list[str]) -> dict:
+                  contact_images: list[tuple[str, Path]], files: list[str],
+                  tracks: pd.DataFrame | None = None) -> dict:
     """Everything the template shows. ``plots``: caption -> PNG; ``contact_images``: (caption, PNG)."""
     cal = shot.get("calibration", {})
     fr = shot.get("friction", {})
@@ -186,6 +234,8 @@ def build_context(shot: dict, contacts: pd.DataFrame | None, plots: dict[str, Pa
         "title": f"Shot report: {shot['clip']['name']}",
         "facts": facts,
         "sentences": sentences,
+        "summary": shot_summary(tracks, contacts),
+        "warnings": [str(w) for w in shot.get("warnings", [])],
         "notes": [str(n) for n in cal.get("notes", [])],
         "table_heads": heads,
         "table_rows": rows,
