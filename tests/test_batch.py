@@ -110,7 +110,7 @@ def clip_folder(tmp_path: Path) -> Path:
 
 def read_failures(path: Path) -> dict[str, dict]:
     with open(path, newline="") as fh:
-        return {r["clip"]: r for r in csv.DictReader(fh)}
+        return {r["path"]: r for r in csv.DictReader(fh)}
 
 
 def log_lines(path: Path) -> list[str]:

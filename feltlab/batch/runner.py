@@ -10,7 +10,7 @@ for a clip it cannot analyse. For every clip the runner
 2. analyses each distinct content once; a second file with the same content
    (a copy) gets a copy of the finished result, its manifest naming the source;
 3. isolates failures: a clip that raises, or whose worker process dies twice,
-   is listed in ``failures.csv`` (clip, stage, reason) and the batch goes on.
+   is listed in ``failures.csv`` (path, stage, reason) and the batch goes on.
 
 Locally clips run in a ``concurrent.futures.ProcessPoolExecutor``; with
 ``scheduler`` (``tcp://HOST:PORT`` or a ``distributed.Client``) they run on an
@@ -156,6 +156,16 @@ def run_one(task: ClipTask, analyze: Analyzer) -> ClipOutcome:
 # executors
 # ---------------------------------------------------------------------------
 
+def _worker_init() -> None:
+    """Each worker process uses one OpenCV thread: the pool already fills the cores."""
+    try:
+        import cv2
+
+        cv2.setNumThreads(1)
+    except ImportError:  # pragma: no cover
+        pass
+
+
 def _run_local(tasks: list[ClipTask], analyze: Analyzer, workers: int, on_done: Callable[[ClipOutcome], None],
                log: Log) -> None:
     """ProcessPoolExecutor with at most ``workers`` clips in flight.
@@ -166,7 +176,7 @@ def _run_local(tasks: list[ClipTask], analyze: Analyzer, workers: int, on_done: 
     """
     pending: deque[ClipTask] = deque(tasks)
     strikes: dict[str, int] = {}
-    pool = ProcessPoolExecutor(max_workers=workers)
+    pool = ProcessPoolExecutor(max_workers=workers, initializer=_worker_init)
     inflight: dict[Any, ClipTask] = {}
     try:
         while pending or inflight:
@@ -210,7 +220,7 @@ def _run_local(tasks: list[ClipTask], analyze: Analyzer, workers: int, on_done: 
                     log(f"a worker process died; retrying {task.clip_rel}")
                     retry.append(task)
             pending.extendleft(reversed(retry))
-            pool = ProcessPoolExecutor(max_workers=workers)
+            pool = ProcessPoolExecutor(max_workers=workers, initializer=_worker_init)
     finally:
         pool.shutdown(wait=True, cancel_futures=True)
 
@@ -317,11 +327,11 @@ class _Progress:
             self.bar.stop()
 
 
-FAILURE_COLUMNS = ["clip", "stage", "reason"]
+FAILURE_COLUMNS = ["path", "stage", "reason"]
 
 
 def write_failures(path: Path, outcomes: list[ClipOutcome]) -> Path:
-    """failures.csv (clip, stage, reason) for this run's failed clips; header only when none."""
+    """failures.csv (path relative to the batch folder, stage, reason) for this run's failed clips; header only when none."""
     buf = io.StringIO()
     w = csv.writer(buf, lineterminator="\n")
     w.writerow(FAILURE_COLUMNS)
