@@ -88,6 +88,9 @@ def command(clip: Path, table: str | None, calib: Path | None, fps: float | None
 
             def progress(stage: str, done: int, total: int) -> None:
                 if stage not in tasks:
+                    for old in tasks.values():  # one bar at a time: the stage now running
+                        bar.remove_task(old)
+                    tasks.clear()
                     tasks[stage] = bar.add_task(labels.get(stage, stage), total=total or None)
                 bar.update(tasks[stage], completed=done, total=total or None)
 
