@@ -365,3 +365,23 @@ def test_a_result_made_by_single_clip_analysis_is_reused(clip_folder: Path, tmp_
     o = next(o for o in other.outcomes if o.clip_rel == "bench_2.mp4")
     assert o.status == "analysed" and Path(o.result_dir).name.startswith("bench_2__")
     assert any("did not make" in w for w in other.warnings)
+
+
+def test_series_html_is_self_contained_and_escapes_file_names(tmp_path: Path) -> None:
+    import base64
+    import re
+
+    root = tmp_path / "in"
+    write_clip(root / "drill <1>&.mp4", seed=5)
+    write_clip(root / "drill_2.mp4", seed=6)
+    write_clip(root / "drill_3.mp4", seed=7)
+    out = tmp_path / "out"
+    run_batch(root, out, SETTINGS, analyze=fake_analyze, workers=1)
+    html = (out / "series.html").read_text()
+    assert "drill &lt;1&gt;&amp;.mp4" in html and "drill <1>" not in html
+    srcs = re.findall(r'<img[^>]*src="([^"]+)"', html)
+    assert len(srcs) >= 2 and all(s.startswith("data:image/png;base64,") for s in srcs)
+    for s in srcs:  # every embedded image decodes (OpenCV's PNG decoder) and is not blank
+        img = cv2.imdecode(np.frombuffer(base64.b64decode(s.split(",", 1)[1]), np.uint8), cv2.IMREAD_COLOR)
+        assert img is not None and img.shape[0] > 100 and img.std() > 5
+    assert "http://" not in html and "https://" not in html  # nothing fetched from a network
