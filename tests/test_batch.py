@@ -385,3 +385,56 @@ def test_series_html_is_self_contained_and_escapes_file_names(tmp_path: Path) ->
         img = cv2.imdecode(np.frombuffer(base64.b64decode(s.split(",", 1)[1]), np.uint8), cv2.IMREAD_COLOR)
         assert img is not None and img.shape[0] > 100 and img.std() > 5
     assert "http://" not in html and "https://" not in html  # nothing fetched from a network
+
+
+# ---------------------------------------------------------------------------
+# end to end with the real single-clip analyser
+# ---------------------------------------------------------------------------
+
+FOOTAGE = Path(__file__).resolve().parents[2] / "shared" / "footage"
+
+
+def _real_clips() -> list[Path]:
+    """The smallest bundled clip (clips/*.mp4); else the outside footage D1 when present."""
+    bundled = sorted((REPO / "clips").glob("*.mp4"), key=lambda p: p.stat().st_size)
+    if bundled:
+        return bundled[:1]
+    return [p for p in (FOOTAGE / "D1.mp4",) if p.is_file()]
+
+
+@pytest.mark.slow
+def test_batch_with_the_real_analyser(tmp_path: Path) -> None:
+    pipeline = pytest.importorskip("feltlab.pipeline")
+    pytest.importorskip("tracking.pipeline")
+    clips = _real_clips()
+    if not clips:
+        pytest.skip("no bundled clips (run `make clips`) and no ../shared/footage")
+    root = tmp_path / "in"
+    (root / "copies").mkdir(parents=True)
+    for c in clips:
+        os.symlink(c, root / c.name)  # link, never copy the footage
+        os.symlink(c, root / "copies" / c.name)
+    (root / "not_a_video.mp4").write_text("plain text renamed to .mp4\n")
+    settings = pipeline.AnalyzeSettings(video=False, frames=False)
+    out = tmp_path / "out"
+    rep = run_batch(root, out, settings, workers=2)
+    status = {o.clip_rel: o for o in rep.outcomes}
+    for c in clips:
+        assert status[c.name].status == "analysed", status[c.name]
+        assert status[f"copies/{c.name}"].status == "copied"
+        rd = Path(status[c.name].result_dir)
+        shot = json.loads((rd / "shot.json").read_text())
+        # the content hash the analyser recorded equals an independent hashlib digest of the file
+        assert shot["clip"]["sha256"] == hashlib.sha256(c.read_bytes()).hexdigest()
+        n = len(pd.read_csv(rd / "contacts.csv"))
+        allc = pd.read_csv(out / "all_contacts.csv")
+        assert (allc["clip"] == c.name).sum() == n  # copies counted once
+    bad = status["not_a_video.mp4"]
+    assert bad.status == "failed" and bad.stage != "internal" and bad.reason and "\n" not in bad.reason
+    assert set(read_failures(out / "failures.csv")) == {"not_a_video.mp4"}
+    series = pd.read_csv(out / "series.csv")
+    allc = pd.read_csv(out / "all_contacts.csv")
+    for _, row in series.iterrows():
+        assert row["n"] == (allc["kind"] == row["kind"]).sum()
+    again = run_batch(root, out, settings, workers=2, series=False)
+    assert {o.status for o in again.outcomes if o.clip_rel != "not_a_video.mp4"} == {"skipped"}
