@@ -227,8 +227,8 @@ def cushion_time(
     g0 = float(nx * r[0] + ny * r[1]) - offset_mm
     g1 = float(nx * v[0] + ny * v[1])
     g2 = 0.5 * float(nx * a[0] + ny * a[1])
-    if g0 <= TOUCH_TOL_MM and g1 < -APPROACH_TOL_MM_S:
-        return 0.0
+    if g0 <= TOUCH_TOL_MM and (g1 < -APPROACH_TOL_MM_S or (g1 <= APPROACH_TOL_MM_S and g2 < 0.0)):
+        return 0.0  # touching and approaching, or at rest against it and being pushed in
     best = None
     for tau in _quadratic_roots(g2, g1, g0):
         if 0.0 < tau <= horizon_s and g1 + 2.0 * g2 * tau < 0.0:
@@ -269,8 +269,9 @@ def pair_time(
         return (((c4 * t + c3) * t + c2) * t + c1) * t + c0
 
     touch_f = 2.0 * contact_mm * TOUCH_TOL_MM
-    if c0 <= touch_f and c1 < -2.0 * contact_mm * APPROACH_TOL_MM_S:
-        return 0.0
+    tol1 = 2.0 * contact_mm * APPROACH_TOL_MM_S
+    if c0 <= touch_f and (c1 < -tol1 or (c1 <= tol1 and c2 < 0.0)):
+        return 0.0  # touching and approaching, or touching and being pushed together
     crit = [x for x in _cubic_real_roots(4.0 * c4, 3.0 * c3, 2.0 * c2, c1) if 0.0 < x < horizon_s]
     points = [0.0] + sorted(crit) + [horizon_s]
     f_prev = f(0.0)

@@ -572,7 +572,11 @@ def simulate(balls: list[BallInit], params: SimParams, t_end_s: float) -> SimRes
     balls, bad coefficients) or when ``params.max_events`` is exceeded.
     """
     params.check()
-    if not (isinstance(t_end_s, (int, float)) and math.isfinite(t_end_s) and t_end_s > 0):
+    try:
+        t_end_s = float(t_end_s)
+    except (TypeError, ValueError):
+        raise FeltlabError(f"simulate: t_end_s must be a number of seconds, got {t_end_s!r}") from None
+    if not (math.isfinite(t_end_s) and t_end_s > 0):
         raise FeltlabError(f"simulate: t_end_s must be a positive number of seconds, got {t_end_s!r}")
     balls = [replace(b) for b in balls]
     _check_balls(balls, params)

@@ -207,6 +207,25 @@ def test_follow_shot_pushing_a_ball_terminates():
     assert any(c.micro for c in res.contacts)
 
 
+@pytest.mark.parametrize("balls", [
+    [BallInit("cue", 1000.0, 600.0, wy=100.0), BallInit("b", 1000.0 + 2 * R, 600.0)],  # spin drives it into b
+    [BallInit("cue", R, 600.0, wy=-100.0)],  # spin drives it into the x0 cushion
+    [BallInit("cue", 900.0, 1270.0 - R, wx=-80.0, wz=20.0)],  # into yW
+])
+def test_spinning_ball_at_rest_against_contact_does_not_penetrate(balls):
+    """A ball touching a ball or cushion with zero speed but spin that drives it
+    in (the cloth friction accelerates it at mu_s g) must not pass through
+    (rigid bodies: basic mechanics)."""
+    p = SimParams(2540.0, 1270.0)
+    res = simulate(balls, p, 3.0)
+    t = np.unique(np.concatenate([np.linspace(0.0, 3.0, 3001), [e.t_s for e in res.events]]))
+    s = res.state_at(t)
+    assert s.pos[..., 0].min() >= R - 1e-6 and s.pos[..., 1].max() <= 1270.0 - R + 1e-6
+    if len(balls) == 2:
+        assert np.hypot(*(s.pos[:, 1] - s.pos[:, 0]).T).min() >= 2 * R - 1e-6
+        assert s.pos[-1, 1, 0] > balls[1].x_mm + 10.0  # b was pushed along
+
+
 # --------------------------------------------------------------------------
 # Ball-ball contacts (frictionless unless stated; cloth friction off where the
 # contact law is isolated, which the closed forms assume)
