@@ -188,35 +188,46 @@ def _circle_overlap(r1, r2, d):
     return out
 
 
-def shade_background(points: np.ndarray, normals: np.ndarray, ambient: np.ndarray, direct: list[np.ndarray],
-                     centres: np.ndarray, radius: float, lamps: LampSet) -> np.ndarray:
-    """Table radiance (M,3) with ball shadows: ambient (M,3) * sphere AO + sum_k direct_k (M,3) * visible fraction."""
-    vis = np.ones((len(lamps.pos), len(points)))
+def ball_shadow(points: np.ndarray, normals: np.ndarray, centre: np.ndarray, radius: float,
+                lamps: LampSet) -> tuple[np.ndarray, np.ndarray]:
+    """One ball's effect on table points (M,3) with normals (M,3).
+
+    Returns (ambient factor (M,), visible lamp fractions (K, M)): multiply the
+    ambient and each lamp's direct light by them.
+    """
+    K = len(lamps.pos)
     ao = np.ones(len(points))
-    for c in centres:
-        a = c[None, :] - points
-        da = np.linalg.norm(a, axis=1)
-        near = da < radius * SHADOW_REACH
-        if not np.any(near):
-            continue
-        an = a[near] / da[near, None]
-        alpha = np.arcsin(np.clip(radius / da[near], 0, 1))
-        cos_t = np.sum(an * normals[near], axis=1)
-        # sphere form factor, faded out between 2R and AO_REACH R (it is < 3 % there)
-        fade = np.clip((AO_REACH * radius - da[near]) / ((AO_REACH - 2.0) * radius), 0, 1)
+    vis = np.ones((K, len(points)))
+    a = centre[None, :] - points
+    da2 = np.einsum("ij,ij->i", a, a)
+    # ambient occlusion: sphere form factor, faded out between 2R and AO_REACH R (< 3 % there)
+    near = np.nonzero(da2 < (AO_REACH * radius) ** 2)[0]
+    if near.size:
+        da = np.sqrt(da2[near])
+        cos_t = np.einsum("ij,ij->i", a[near], normals[near]) / da
+        fade = np.clip((AO_REACH * radius - da) / ((AO_REACH - 2.0) * radius), 0, 1)
         fade = fade * fade * (3 - 2 * fade)
-        ao[near] *= 1.0 - np.clip(cos_t, 0, 1) * np.clip(radius / da[near], 0, 1) ** 2 * fade
-        for k in range(len(lamps.pos)):
-            b = lamps.pos[k][None, :] - points[near]
-            db = np.linalg.norm(b, axis=1)
-            beta = np.arctan(lamps.radius[k] / db)
-            gamma = np.arccos(np.clip(np.sum(an * b, axis=1) / db, -1, 1))
-            frac = _circle_overlap(alpha, beta, gamma) / (np.pi * beta * beta)
-            vis[k, near] *= 1.0 - np.clip(frac, 0, 1)
-    out = ambient * ao[:, None]
-    for k, dk in enumerate(direct):
-        out = out + dk * vis[k][:, None]
-    return out
+        ao[near] = 1.0 - np.clip(cos_t, 0, 1) * np.minimum(radius * radius / da2[near], 1.0) * fade
+    for k in range(K):
+        lp = lamps.pos[k]
+        hgt = max(lp[2] - centre[2], 1e-6)
+        f = lp[2] / hgt
+        sc = lp[:2] + (centre[:2] - lp[:2]) * f  # shadow centre on the cloth
+        reach = radius * (1.3 + np.hypot(*(centre[:2] - lp[:2])) / hgt) * f + lamps.radius[k] * radius / hgt + 2.0
+        dxy = points[:, :2] - sc[None, :]
+        m = np.nonzero(np.einsum("ij,ij->i", dxy, dxy) < reach * reach)[0]
+        if not m.size:
+            continue
+        am = a[m]
+        da = np.sqrt(da2[m])
+        alpha = np.arcsin(np.clip(radius / da, 0, 1))
+        bv = lp[None, :] - points[m]
+        db = np.sqrt(np.einsum("ij,ij->i", bv, bv))
+        beta = np.arctan(lamps.radius[k] / db)
+        gamma = np.arccos(np.clip(np.einsum("ij,ij->i", am, bv) / (da * db), -1, 1))
+        frac = _circle_overlap(alpha, beta, gamma) / (np.pi * beta * beta)
+        vis[k, m] = 1.0 - np.clip(frac, 0, 1)
+    return ao, vis
 
 
 # ------------------------------------------------------------ ball shading

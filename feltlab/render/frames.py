@@ -14,10 +14,11 @@ from __future__ import annotations
 from dataclasses import dataclass
 from typing import Protocol
 
+import cv2
 import numpy as np
 
 from feltlab.render import settings as S
-from feltlab.render.balls import AO_REACH, BallLook, LampSet, integrate_orientations, shade_background, shade_ball
+from feltlab.render.balls import AO_REACH, BallLook, LampSet, ball_shadow, integrate_orientations, shade_ball
 from feltlab.render.effects import (add_sensor_noise, encode_srgb8, flicker_gain, optical_blur, srgb_to_linear,
                                     vignetting_map)
 from feltlab.render.scene import RayField, TableGeometry, lamp_irradiance, trace_table
@@ -117,9 +118,9 @@ class FrameRenderer:
         self.ambient = look.ambient * scale * e_centre
         self.cloth_lin = srgb_to_linear(look.cloth_rgb)
         self._build_background()
+        self._still_cache: dict = {}
         gain = np.asarray(look.white_balance, np.float32) * np.float32(look.brightness)
         self.gain = gain
-        self._base_blurred = optical_blur(self.bg * self.vig[..., None], look.blur_px)
         self.px_per_mm = self._max_px_per_mm()
 
     # ------------------------------------------------------------ background
@@ -183,35 +184,41 @@ class FrameRenderer:
             out.append(t + ((np.arange(n) + 0.5) / n - 0.5) * exposure_s)
         return out
 
-    def _box(self, centres: np.ndarray, margin_px: float) -> tuple[int, int, int, int] | None:
-        """Pixel box (x0, y0, x1, y1) covering balls at centres (M,3) and their shadows."""
-        R = self.R
-        pts = []
-        for c in centres:
-            cube = c[None, :] + R * 1.05 * np.array([[i, j, k] for i in (-1, 1) for j in (-1, 1) for k in (-1, 1)])
-            pts.append(cube)
-            foot = [(c[0], c[1], AO_REACH * R)]
-            for lp, lr in zip(self.lamps.pos, self.lamps.radius):
-                f = lp[2] / max(lp[2] - c[2], 1e-6)
-                sx, sy = lp[:2] + (c[:2] - lp[:2]) * f  # shadow centre on the cloth
-                obl = np.hypot(*(c[:2] - lp[:2])) / max(lp[2] - c[2], 1e-6)  # elongation of an oblique shadow
-                foot.append((sx, sy, R * (1.2 + obl) * f + lr * R / max(lp[2] - c[2], 1e-6) + 2.0))
-            for fx, fy, rad in foot:
-                pts.append(np.array([[fx + i * rad, fy + j * rad, 0.0] for i in (-1, 1) for j in (-1, 1)]))
-        P = np.vstack(pts)
+    def _rect(self, P: np.ndarray, margin_px: float) -> tuple[int, int, int, int] | None:
+        """Pixel rectangle (x0, y0, x1, y1), clipped to the image, around the projections of points P (M,3)."""
         pc = self.camera.to_camera(P)
         P = P[pc[:, 2] > 1.0]
         if len(P) == 0:
             return None
         q = self.camera.project(P)
-        x0 = int(np.floor(q[:, 0].min() - margin_px))
-        y0 = int(np.floor(q[:, 1].min() - margin_px))
-        x1 = int(np.ceil(q[:, 0].max() + margin_px)) + 1
-        y1 = int(np.ceil(q[:, 1].max() + margin_px)) + 1
-        x0, y0, x1, y1 = max(x0, 0), max(y0, 0), min(x1, self.w), min(y1, self.h)
+        x0 = max(int(np.floor(q[:, 0].min() - margin_px)), 0)
+        y0 = max(int(np.floor(q[:, 1].min() - margin_px)), 0)
+        x1 = min(int(np.ceil(q[:, 0].max() + margin_px)) + 1, self.w)
+        y1 = min(int(np.ceil(q[:, 1].max() + margin_px)) + 1, self.h)
         if x1 <= x0 or y1 <= y0:
             return None
         return x0, y0, x1, y1
+
+    def _silhouette_points(self, c: np.ndarray) -> np.ndarray:
+        """Corners of a cube around the ball (8,3): its projection contains the silhouette."""
+        return c[None, :] + self.R * 1.02 * np.array([[i, j, k] for i in (-1, 1) for j in (-1, 1) for k in (-1, 1)])
+
+    def _shadow_points(self, c: np.ndarray) -> np.ndarray:
+        """Cloth points bounding a ball's ambient occlusion and lamp shadows (M,3)."""
+        R = self.R
+        foot = [(c[0], c[1], AO_REACH * R)]
+        for lp, lr in zip(self.lamps.pos, self.lamps.radius):
+            hgt = max(lp[2] - c[2], 1e-6)
+            f = lp[2] / hgt
+            sx, sy = lp[:2] + (c[:2] - lp[:2]) * f  # shadow centre on the cloth
+            obl = np.hypot(*(c[:2] - lp[:2])) / hgt  # elongation of an oblique shadow
+            foot.append((sx, sy, R * (1.2 + obl) * f + lr * R / hgt + 2.0))
+        return np.array([[fx + i * rad, fy + j * rad, 0.0] for fx, fy, rad in foot for i in (-1, 1) for j in (-1, 1)])
+
+    def _box(self, centres: np.ndarray, margin_px: float) -> tuple[int, int, int, int] | None:
+        """Pixel box covering balls at centres (M,3) and their shadows."""
+        P = np.vstack([np.vstack([self._silhouette_points(c), self._shadow_points(c)]) for c in centres])
+        return self._rect(P, margin_px)
 
     @staticmethod
     def _merge(boxes: list[tuple[int, int, int, int]]) -> list[tuple[int, int, int, int]]:
@@ -237,11 +244,8 @@ class FrameRenderer:
 
         pos (n,N,2) mm, on_table (n,N), orient (n,N,3,3): the n sub-frame states to average.
         """
-        frame = self._base_blurred.copy()
         n_sub, N = pos.shape[:2]
         centres = np.concatenate([pos, np.full(pos.shape[:2] + (1,), self.R)], axis=2)
-        blur = self.look.blur_px
-        pad = int(np.ceil(3.5 * blur)) + 1 if blur > 0 else 0
         proj = self.camera.project(centres.reshape(-1, 3)).reshape(n_sub, N, 2)
         boxes = []
         for i in range(N):
@@ -250,48 +254,79 @@ class FrameRenderer:
             b = self._box(centres[on_table[:, i], i], margin_px=2.0)
             if b is not None:
                 boxes.append(b)
+        lin = self.bg.copy()
+        new_cache: dict = {}
         for (x0, y0, x1, y1) in self._merge(boxes):
-            hh, ww = y1 - y0, x1 - x0
-            dirs = self.rays[y0:y1, x0:x1].reshape(-1, 3).astype(float)
-            pts = self.pts[y0:y1, x0:x1].reshape(-1, 3).astype(float)
-            nrm = self.nrm[y0:y1, x0:x1].reshape(-1, 3).astype(float)
-            amb = self.amb[y0:y1, x0:x1].reshape(-1, 3)
-            direct = [self.direct[k, y0:y1, x0:x1].reshape(-1, 3) for k in range(len(self.lamps.pos))]
-            yc, xc = (y0 + y1) // 2, min((x0 + x1) // 2, self.w - 2)
-            pitch = float(np.arccos(np.clip(self.rays[yc, xc].astype(float) @ self.rays[yc, xc + 1].astype(float), -1, 1)))
-            acc = np.zeros((hh * ww, 3))
             # balls inside this box; if none of them moves during the exposure, one sample suffices
             inside = [i for i in range(N) if np.any(on_table[:, i]) and np.any(
                 (proj[:, i, 0] >= x0 - 1) & (proj[:, i, 0] <= x1) & (proj[:, i, 1] >= y0 - 1) & (proj[:, i, 1] <= y1))]
             still = all(np.all(on_table[:, i] == on_table[0, i]) and
                         float(np.max(np.abs(pos[:, i] - pos[0, i]))) * self.px_per_mm < 0.02 for i in inside)
-            subs = [n_sub // 2] if still else range(n_sub)
+            subs = [n_sub // 2] if still else list(range(n_sub))
+            key = None
+            if still:  # unchanged since the last frame -> reuse
+                j = subs[0]
+                key = ((x0, y0, x1, y1), tuple(inside), np.round(centres[j, inside], 6).tobytes(),
+                       np.round(orient[j, inside], 6).tobytes(), on_table[j].tobytes())
+                if key in self._still_cache:
+                    lin[y0:y1, x0:x1] = self._still_cache[key]
+                    new_cache[key] = self._still_cache[key]
+                    continue
+            acc = np.zeros((y1 - y0, x1 - x0, 3), np.float32)
             for j in subs:
-                live = np.nonzero(on_table[j])[0]
-                cs = centres[j, live]
-                img = shade_background(pts, nrm, amb, direct, cs, self.R, self.lamps)
-                order = live[np.argsort(-np.linalg.norm(cs - self.origin[None, :], axis=1))]
-                for i in order:
-                    cov, col = shade_ball(self.origin, dirs, pitch, centres[j, i], self.R, orient[j, i], self.looks[i],
-                                          self.lamps, self.ambient, self.cloth_lin * self.ambient)
-                    img = img * (1.0 - cov[:, None]) + col * cov[:, None]
-                acc += img
-            delta = (acc / len(subs)).reshape(hh, ww, 3).astype(np.float32) - self.bg[y0:y1, x0:x1]
-            delta *= self.vig[y0:y1, x0:x1, None]
-            if pad:
-                X0, Y0, X1, Y1 = max(x0 - pad, 0), max(y0 - pad, 0), min(x1 + pad, self.w), min(y1 + pad, self.h)
-                big = np.zeros((Y1 - Y0, X1 - X0, 3), np.float32)
-                big[y0 - Y0:y1 - Y0, x0 - X0:x1 - X0] = delta
-                frame[Y0:Y1, X0:X1] += optical_blur(big, blur)
-            else:
-                frame[y0:y1, x0:x1] += delta
-        return frame
+                acc += self._shade_box(x0, y0, x1, y1, centres[j], on_table[j], orient[j])
+            lin[y0:y1, x0:x1] = acc / len(subs)
+            if key is not None:
+                new_cache[key] = lin[y0:y1, x0:x1].copy()
+        self._still_cache = new_cache
+        lin *= self.vig[..., None]
+        return optical_blur(lin, self.look.blur_px)
+
+    def _shade_box(self, x0: int, y0: int, x1: int, y1: int, centres: np.ndarray, on: np.ndarray,
+                   orient: np.ndarray) -> np.ndarray:
+        """Linear radiance (h,w,3) of one image box at one instant: table with shadows, then balls."""
+        K = len(self.lamps.pos)
+        live = np.nonzero(on)[0]
+        ao = np.ones((y1 - y0, x1 - x0), np.float32)
+        vis = np.ones((K, y1 - y0, x1 - x0), np.float32)
+        for i in live:
+            r = self._rect(self._shadow_points(centres[i]), 1.0)
+            if r is None:
+                continue
+            a0, b0, a1, b1 = max(r[0], x0), max(r[1], y0), min(r[2], x1), min(r[3], y1)
+            if a1 <= a0 or b1 <= b0:
+                continue
+            pts = self.pts[b0:b1, a0:a1].reshape(-1, 3).astype(float)
+            nrm = self.nrm[b0:b1, a0:a1].reshape(-1, 3).astype(float)
+            ao_i, vis_i = ball_shadow(pts, nrm, centres[i], self.R, self.lamps)
+            ao[b0 - y0:b1 - y0, a0 - x0:a1 - x0] *= ao_i.reshape(b1 - b0, a1 - a0)
+            vis[:, b0 - y0:b1 - y0, a0 - x0:a1 - x0] *= vis_i.reshape(K, b1 - b0, a1 - a0)
+        img = self.amb[y0:y1, x0:x1] * ao[..., None]
+        for k in range(K):
+            img += self.direct[k, y0:y1, x0:x1] * vis[k][..., None]
+        order = live[np.argsort(-np.linalg.norm(centres[live] - self.origin[None, :], axis=1))]
+        for i in order:
+            r = self._rect(self._silhouette_points(centres[i]), 2.0)
+            if r is None:
+                continue
+            a0, b0, a1, b1 = max(r[0], x0), max(r[1], y0), min(r[2], x1), min(r[3], y1)
+            if a1 <= a0 or b1 <= b0:
+                continue
+            dirs = self.rays[b0:b1, a0:a1].reshape(-1, 3).astype(float)
+            yc, xc = (b0 + b1) // 2, min((a0 + a1) // 2, self.w - 2)
+            pitch = float(np.arccos(np.clip(self.rays[yc, xc].astype(float) @ self.rays[yc, xc + 1].astype(float), -1, 1)))
+            cov, col = shade_ball(self.origin, dirs, pitch, centres[i], self.R, orient[i], self.looks[i],
+                                  self.lamps, self.ambient, self.cloth_lin * self.ambient)
+            sub = img[b0 - y0:b1 - y0, a0 - x0:a1 - x0]
+            cov = cov.reshape(b1 - b0, a1 - a0, 1)
+            sub[...] = sub * (1.0 - cov) + col.reshape(b1 - b0, a1 - a0, 3) * cov
+        return img
 
     def finish(self, frame_lin: np.ndarray, t_mid: float, exposure_s: float) -> np.ndarray:
         """Gain, white balance, flicker, sensor noise, sRGB encoding -> uint8 BGR (H,W,3)."""
         g = self.gain * np.float32(flicker_gain(t_mid, exposure_s, self.look.flicker, self.look.flicker_hz))
         frame_lin *= g
-        add_sensor_noise(frame_lin, self.rng, self.look.read_noise, self.look.shot_noise)
+        add_sensor_noise(frame_lin, self.look.read_noise, self.look.shot_noise)
         return encode_srgb8(frame_lin)
 
 
@@ -306,6 +341,7 @@ def render_frames(renderer: FrameRenderer, motion: Motion, times_s: np.ndarray, 
         if v2.shape[1]:
             speeds = np.maximum(speeds, np.linalg.norm(v2, axis=2).max(axis=1))
     subs = renderer.subframe_times(times_s, exposure_s, speeds)
+    cv2.setRNGSeed(int(renderer.seed) + 1)
     all_t = np.concatenate(subs)
     all_t = np.clip(all_t, 0.0, None)
     n_balls = len(motion.ball_ids)
@@ -313,7 +349,11 @@ def render_frames(renderer: FrameRenderer, motion: Motion, times_s: np.ndarray, 
     def omega_at(t):
         return motion.states(np.asarray(t, float))[2]
 
-    orient = integrate_orientations(all_t, omega_at, n_balls, t_end_s)
+    # each ball starts in its own seeded random orientation (numbers and stripes show at random angles)
+    from scipy.spatial.transform import Rotation
+
+    start_q = Rotation.random(n_balls, random_state=int(renderer.seed) + 17).as_matrix() if n_balls else None
+    orient = integrate_orientations(all_t, omega_at, n_balls, t_end_s, initial=start_q)
     pos_all, _, _, on_all = motion.states(all_t)
     start = 0
     for k, sub in enumerate(subs):

@@ -240,11 +240,12 @@ class RayField:
 
         self.camera, self.step = camera, step
         w, h = camera.image_size
-        self.gx = np.arange(-2 * step, w + 2 * step + 1, step, dtype=float)
-        self.gy = np.arange(-2 * step, h + 2 * step + 1, step, dtype=float)
+        # a margin of 10 cells keeps the spline's boundary effects (decaying ~0.27x per cell) out of the image
+        self.gx = np.arange(-10 * step, w + 10 * step + 1, step, dtype=float)
+        self.gy = np.arange(-10 * step, h + 10 * step + 1, step, dtype=float)
         GY, GX = np.meshgrid(self.gy, self.gx, indexing="ij")
         xy = camera.undistort_pixels(np.column_stack([GX.ravel(), GY.ravel()]))
-        self.coef = [spline_filter(xy[:, i].reshape(GX.shape), order=3) for i in (0, 1)]
+        self.coef = [spline_filter(xy[:, i].reshape(GX.shape), order=3, mode="mirror") for i in (0, 1)]
 
     def normalised(self, xs: np.ndarray, ys: np.ndarray) -> np.ndarray:
         """Undistorted normalised coordinates (N,2) at pixel positions."""
@@ -254,7 +255,7 @@ class RayField:
             return self.camera.undistort_pixels(np.column_stack([np.ravel(xs), np.ravel(ys)]))
         cy = (np.ravel(ys) - self.gy[0]) / self.step
         cx = (np.ravel(xs) - self.gx[0]) / self.step
-        return np.stack([map_coordinates(c, [cy, cx], order=3, prefilter=False, mode="nearest") for c in self.coef], axis=1)
+        return np.stack([map_coordinates(c, [cy, cx], order=3, prefilter=False, mode="mirror") for c in self.coef], axis=1)
 
     def rays(self, xs: np.ndarray, ys: np.ndarray) -> np.ndarray:
         """Unit ray directions (N,3) in the table frame."""

@@ -47,7 +47,7 @@ def _clean(v):
         return _clean(v.tolist())
     if isinstance(v, (np.floating, float)):
         f = float(v)
-        return None if not math.isfinite(f) else round(f, 6)
+        return None if not math.isfinite(f) else float(f"{f:.10g}")
     if isinstance(v, (np.integer,)):
         return int(v)
     if isinstance(v, np.bool_):
