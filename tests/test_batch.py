@@ -174,7 +174,7 @@ def test_good_clips_once_copies_filled_bad_ones_listed_and_second_run_skips(
     assert all("\n" not in r["reason"] and r["reason"] for r in fails.values())
     # no result folder for a failed clip, nothing left in staging
     assert not (out / "notes").exists() and not (out / "sub" / "cut").exists()
-    assert not any((out / resume.STAGING_NAME).iterdir())
+    assert not (out / resume.STAGING_NAME).exists()
     assert (out / "series.html").is_file() and (out / "all_contacts.parquet").is_file()
     # the copy is counted once in the statistics: 3 distinct contents x 4 contacts
     allc = pd.read_csv(out / "all_contacts.csv")
@@ -345,7 +345,7 @@ def test_killed_run_resumes_without_loss_or_repeats(six_clips: Path, tmp_path: P
     redone = {Path(p).stem for p in log_lines(log2)}
     assert redone.isdisjoint(finished_before)  # nothing done twice
     assert redone | finished_before == {f"drill_{i}" for i in range(6)}  # nothing lost
-    assert not rep.failed and not any((out / resume.STAGING_NAME).iterdir())
+    assert not rep.failed and not (out / resume.STAGING_NAME).exists()
 
 
 def test_a_result_made_by_single_clip_analysis_is_reused(clip_folder: Path, tmp_path: Path) -> None:
@@ -438,3 +438,24 @@ def test_batch_with_the_real_analyser(tmp_path: Path) -> None:
         assert row["n"] == (allc["kind"] == row["kind"]).sum()
     again = run_batch(root, out, settings, workers=2, series=False)
     assert {o.status for o in again.outcomes if o.clip_rel != "not_a_video.mp4"} == {"skipped"}
+
+
+def test_publishing_never_duplicates_or_replaces_a_finished_result(tmp_path: Path) -> None:
+    """Two processes finishing the same clip: the second keeps the first's result (no side copy);
+    a different finished result in the way is kept and the new one goes beside it."""
+    out = tmp_path / "out"
+    sha, sh = "a" * 64, resume.settings_sha256({"k": 1})
+    first = tmp_path / "s1" / "result"
+    first.mkdir(parents=True)
+    (first / "contacts.csv").write_text("first\n")
+    m = resume.make_manifest("c.mp4", sha, {"k": 1}, sh, origin="analysed")
+    assert resume.publish(first, out / "c", m) == out / "c"
+    second = tmp_path / "s2" / "result"
+    second.mkdir(parents=True)
+    (second / "contacts.csv").write_text("second\n")
+    assert resume.publish(second, out / "c", m) == out / "c"
+    assert (out / "c" / "contacts.csv").read_text() == "first\n" and sorted(p.name for p in out.iterdir()) == ["c"]
+    other = resume.make_manifest("c.mp4", sha, {"k": 2}, resume.settings_sha256({"k": 2}), origin="analysed")
+    side = resume.publish(second, out / "c", other)
+    assert side != out / "c" and (side / "contacts.csv").read_text() == "second\n"
+    assert (out / "c" / "contacts.csv").read_text() == "first\n"

@@ -171,8 +171,10 @@ def new_staging_dir(out_dir: Path) -> Path:
 def publish(staged_result: Path, dest: Path, manifest: dict) -> Path:
     """Write the manifest into a complete staged result and rename it to ``dest``.
 
-    If ``dest`` appeared meanwhile the result goes to a side name instead; the
-    finished folder at ``dest`` is never replaced.
+    The finished folder at ``dest`` is never replaced. If ``dest`` appeared meanwhile
+    (another process finished the same clip) and holds the same clip hash and settings,
+    that result is kept and returned and the staged one is left for the caller to
+    discard; if it holds something else, the new result goes to a side name.
     """
     write_json_atomic(Path(staged_result) / MANIFEST_NAME, manifest)
     dest = Path(dest)
@@ -180,11 +182,13 @@ def publish(staged_result: Path, dest: Path, manifest: dict) -> Path:
     try:
         os.rename(staged_result, dest)  # atomic on one file system; fails if dest is a non-empty dir
     except OSError:
-        if dest.exists():
-            alt = dest.with_name(f"{dest.name}__{uuid.uuid4().hex[:8]}")
-            os.rename(staged_result, alt)
-            return alt
-        raise
+        if not dest.exists():
+            raise
+        if manifest_matches(dest, manifest["clip_sha256"], manifest["settings_sha256"]):
+            return dest
+        alt = dest.with_name(f"{dest.name}__{uuid.uuid4().hex[:8]}")
+        os.rename(staged_result, alt)
+        return alt
     return dest
 
 
@@ -259,8 +263,11 @@ def _pid_alive(pid: int) -> bool:
     return True
 
 
-def clear_staging(out_dir: Path) -> int:
-    """Remove leftovers of interrupted runs from the staging folder; returns how many."""
+def clear_staging(out_dir: Path, remove_empty: bool = False) -> int:
+    """Remove leftovers of interrupted runs from the staging folder; returns how many.
+
+    remove_empty: also remove the staging folder itself when it ends up empty.
+    """
     staging = Path(out_dir) / STAGING_NAME
     if not staging.is_dir():
         return 0
@@ -268,4 +275,9 @@ def clear_staging(out_dir: Path) -> int:
     for child in staging.iterdir():
         shutil.rmtree(child, ignore_errors=True) if child.is_dir() else child.unlink(missing_ok=True)
         n += 1
+    if remove_empty:
+        try:
+            staging.rmdir()
+        except OSError:
+            pass
     return n

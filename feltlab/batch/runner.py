@@ -25,6 +25,7 @@ import os
 import shutil
 import time
 import traceback
+import uuid
 from collections import deque
 from concurrent.futures import FIRST_COMPLETED, ProcessPoolExecutor, wait
 from concurrent.futures.process import BrokenProcessPool
@@ -142,6 +143,9 @@ def run_one(task: ClipTask, analyze: Analyzer) -> ClipOutcome:
             return ClipOutcome(**base, status="failed", stage="internal",
                                reason="the analyser returned without writing any result files",
                                seconds=time.perf_counter() - t0)
+        done = resume.find_finished(out_dir, task.result_rel, task.clip_sha256, task.settings_hash)
+        if done is not None:  # another process (e.g. an orphaned worker of a killed run) finished it meanwhile
+            return ClipOutcome(**base, status="skipped", result_dir=str(done), seconds=time.perf_counter() - t0)
         dest, warning = resume.choose_destination(out_dir, task.result_rel, task.clip_sha256, task.settings_hash)
         manifest = resume.make_manifest(task.clip_rel, task.clip_sha256, task.settings, task.settings_hash,
                                         origin="analysed")
@@ -260,7 +264,7 @@ def _run_dask(tasks: list[ClipTask], analyze: Analyzer, scheduler: Any, on_done:
         futures = {}
         for task in tasks:
             fut = client.submit(run_one, task, analyze, pure=False,
-                                key=f"feltlab-clip-{task.clip_sha256[:16]}-{task.settings_hash[:8]}")
+                                key=f"feltlab-clip-{task.clip_sha256[:16]}-{uuid.uuid4().hex[:12]}")
             futures[fut] = task
         for fut in distributed.as_completed(list(futures)):
             task = futures[fut]
@@ -426,7 +430,7 @@ def run_batch(
                         on_done(run_one(t, analyze))
                 else:
                     _run_local(tasks, analyze, min(workers, len(tasks)), on_done, say)
-            resume.clear_staging(out)
+            resume.clear_staging(out, remove_empty=True)
             ordered = [outcomes[c.rel] for c in clips]
             failures = write_failures(out / "failures.csv", ordered)
             report = BatchReport(out_dir=out, outcomes=ordered, failures_csv=failures, settings_hash=settings_hash,
