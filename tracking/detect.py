@@ -416,7 +416,7 @@ def refine_centre(d: np.ndarray, x0: float, y0: float, r_exp: float,
     n_in = float(np.sum(fit["weights"] > 0.05))
     n_eff = max(3.0, min(n_in, 2 * np.pi * r_exp * support / 1.5))
     sig = fit["scale"] * np.sqrt(2.0 / n_eff)
-    sig = float(max(sig, settings.sigma_floor_px))
+    sig = float(np.hypot(max(sig, settings.sigma_floor_px), settings.model_sigma_px))
     return {"x": c[0] + xa, "y": c[1] + ya, "radius": float(fit["radius"]), "sigma_px": sig,
             "support": support, "fixed_radius": fixed}
 

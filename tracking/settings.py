@@ -168,6 +168,11 @@ class DetectionSettings:
     #: fit sigma is optimistic below ~0.05 px (Crocker & Grier 1996 reach
     #: ~0.05 px with centroids; we do not claim better).
     sigma_floor_px: float = 0.05
+    #: Model error of the silhouette centre (px), added in quadrature to the fit
+    #: sigma: shading and shadows move the photometric edge off the true limb
+    #: unevenly around the ball. Measured on outside renders (D1/D2 footage):
+    #: per-detection centre errors of 0.2-0.4 px with the fit sigma at 0.05-0.1 px.
+    model_sigma_px: float = 0.3
     #: Pixels whose HSV saturation < this and value > white_value count as white
     #: (stripe/cue summary); 0..1 scale, common practice for "white" in HSV.
     white_saturation: float = 0.28
@@ -208,3 +213,13 @@ class TrackingSettings:
     rest_sigma: float = 3.0
     rest_tol_mm: float = 0.25
     rest_min_s: float = 0.1
+
+
+@dataclass(frozen=True)
+class TrackClipSettings:
+    """Everything :func:`tracking.pipeline.track_clip` needs besides the clip."""
+
+    detection: DetectionSettings = DetectionSettings()
+    tracking: TrackingSettings = TrackingSettings()
+    #: Frames handed to automatic calibration when no calibration is given.
+    calibration_frames: int = 9

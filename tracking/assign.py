@@ -1,0 +1,168 @@
+"""Frame-to-frame linking of detections into ball tracks (table frame, mm, s).
+
+Each live track carries a constant-velocity Kalman state (tracking/kalman.py)
+and a running colour signature. Every frame, the cost of giving detection j
+to track i is
+
+* ``NIS_ij + colour_weight * |colour_i - colour_j|`` when the normalised
+  innovation squared passes the chi-square gate (a smooth continuation);
+* ``gate + 10 + colour_weight * |...| + distance / radius`` when it fails the
+  gate but lies within one frame's travel at the largest credible speed (a
+  contact changed the velocity: the track is re-started from there and the
+  jump is recorded);
+* forbidden otherwise,
+
+and the global nearest-neighbour assignment is solved with
+``scipy.optimize.linear_sum_assignment`` (Hungarian method, Kuhn 1955 /
+Munkres 1957). The colour term keeps identities apart when a contact sends
+one ball to where the other was predicted to be. Unmatched detections start
+tracks; tracks unseen for longer than ``max_missed_s`` end (pocketed, left the
+view, covered by a hand).
+
+Colour signature: chromaticity (r, g, b) / (r + g + b) (unchanged by the
+overall brightness, so vignetting and lighting gradients do not change it),
+scaled x3, plus the white and dark pixel fractions.
+"""
+from __future__ import annotations
+
+from dataclasses import dataclass, field
+
+import numpy as np
+import pandas as pd
+from scipy.optimize import linear_sum_assignment
+
+from tracking.kalman import H, cv_transition
+from tracking.settings import TrackingSettings
+
+FORBIDDEN = 1e9
+
+
+def colour_signature(df: pd.DataFrame) -> np.ndarray:
+    """(N,5) colour features of detections: 3 x chromaticity (r,g,b), white_frac, dark_frac."""
+    rgb = df[["r", "g", "b"]].to_numpy(float)
+    s = rgb.sum(axis=1, keepdims=True)
+    chrom = np.where(s > 1e-6, rgb / np.maximum(s, 1e-6), 1.0 / 3.0)
+    wf = df["white_frac"].to_numpy(float)[:, None]
+    dk = df["dark_frac"].to_numpy(float)[:, None]
+    return np.nan_to_num(np.hstack([3.0 * chrom, wf, dk]), nan=0.0)
+
+
+@dataclass
+class LiveTrack:
+    """A track being followed: state x (4,), covariance P (4,4), last update time (s)."""
+
+    id: int
+    x: np.ndarray
+    P: np.ndarray
+    t: float
+    colour: np.ndarray
+    hits: int = 1
+    last_seen_t: float = 0.0
+    jumps: list[int] = field(default_factory=list)  # detection row ids that re-started the motion
+
+
+class Linker:
+    """Online global-nearest-neighbour linker; feed frames in time order with :meth:`step`."""
+
+    def __init__(self, ball_radius_mm: float, settings: TrackingSettings = TrackingSettings()):
+        self.s = settings
+        self.R = ball_radius_mm
+        self.live: list[LiveTrack] = []
+        self.ended: list[LiveTrack] = []
+        self.next_id = 0
+        self._t_prev: float | None = None
+
+    def _birth(self, row_id: int, z: np.ndarray, sig: np.ndarray, col: np.ndarray, t: float) -> LiveTrack:
+        x = np.array([z[0], z[1], 0.0, 0.0])
+        v2 = self.s.birth_speed_sigma_mm_s ** 2
+        P = np.diag([sig[0] ** 2, sig[1] ** 2, v2, v2])
+        tr = LiveTrack(id=self.next_id, x=x, P=P, t=t, colour=col.copy(), last_seen_t=t)
+        self.next_id += 1
+        self.live.append(tr)
+        return tr
+
+    def step(self, t: float, det: pd.DataFrame, row_ids: np.ndarray) -> np.ndarray:
+        """Assign this frame's detections (row ids given) -> track id per detection (-1 never)."""
+        s = self.s
+        n_det = len(det)
+        out = np.full(n_det, -1, int)
+        z = det[["x_mm", "y_mm"]].to_numpy(float) if n_det else np.zeros((0, 2))
+        sig = det[["sx_mm", "sy_mm"]].to_numpy(float) if n_det else np.zeros((0, 2))
+        sig = np.maximum(np.nan_to_num(sig, nan=1.0), 0.05)
+        col = colour_signature(det) if n_det else np.zeros((0, 5))
+        dt_frame = (t - self._t_prev) if self._t_prev is not None else 0.0
+        self._t_prev = t
+        # Predict all live tracks to t.
+        preds = []
+        for tr in self.live:
+            F, Q = cv_transition(t - tr.t, s.accel_sigma_mm_s2)
+            preds.append((F @ tr.x, F @ tr.P @ F.T + Q))
+        nt = len(self.live)
+        cost = np.full((nt, n_det), FORBIDDEN)
+        jump = np.zeros((nt, n_det), bool)
+        for i, (tr, (xp, Pp)) in enumerate(zip(self.live, preds)):
+            S_base = H @ Pp @ H.T
+            last_pos = tr.x[:2]
+            reach = s.max_speed_mm_s * max(t - tr.t, dt_frame, 1e-6) + 2 * self.R
+            for j in range(n_det):
+                v = z[j] - xp[:2]
+                S = S_base + np.diag(sig[j] ** 2)
+                d2 = float(v @ np.linalg.solve(S, v))
+                cd = float(np.linalg.norm(col[j] - tr.colour))
+                if d2 <= s.gate_chi2:
+                    cost[i, j] = d2 + s.colour_weight * cd
+                else:
+                    dist = float(np.linalg.norm(z[j] - last_pos))
+                    if dist <= reach:
+                        cost[i, j] = s.gate_chi2 + 10 + s.colour_weight * cd + dist / self.R
+                        jump[i, j] = True
+        matched_det = set()
+        if nt and n_det:
+            ri, ci = linear_sum_assignment(cost)
+            for i, j in zip(ri, ci):
+                if cost[i, j] >= FORBIDDEN:
+                    continue
+                tr = self.live[i]
+                xp, Pp = preds[i]
+                Rm = np.diag(sig[j] ** 2)
+                if jump[i, j]:
+                    # Velocity re-started from the displacement since the last fix.
+                    dtt = max(t - tr.t, 1e-6)
+                    vel = (z[j] - tr.x[:2]) / dtt
+                    tr.x = np.array([z[j][0], z[j][1], vel[0], vel[1]])
+                    v2 = (0.5 * self.s.birth_speed_sigma_mm_s) ** 2
+                    tr.P = np.diag([sig[j][0] ** 2, sig[j][1] ** 2, v2, v2])
+                    tr.jumps.append(int(row_ids[j]))
+                else:
+                    S = H @ Pp @ H.T + Rm
+                    K = Pp @ H.T @ np.linalg.inv(S)
+                    tr.x = xp + K @ (z[j] - H @ xp)
+                    tr.P = (np.eye(4) - K @ H) @ Pp
+                tr.t = t
+                tr.last_seen_t = t
+                tr.hits += 1
+                tr.colour = 0.8 * tr.colour + 0.2 * col[j]
+                out[j] = tr.id
+                matched_det.add(j)
+        # End tracks unseen for too long.
+        keep = []
+        for tr in self.live:
+            if t - tr.last_seen_t > s.max_missed_s:
+                self.ended.append(tr)
+            else:
+                keep.append(tr)
+        self.live = keep
+        # Births: unmatched detections not sitting on a live track.
+        for j in range(n_det):
+            if j in matched_det:
+                continue
+            near = any(np.linalg.norm(z[j] - tr.x[:2]) < 1.2 * self.R for tr in self.live)
+            if near:
+                continue
+            tr = self._birth(int(row_ids[j]), z[j], sig[j], col[j], t)
+            out[j] = tr.id
+        return out
+
+    def jumps(self) -> dict[int, list[int]]:
+        """Track id -> detection row ids where the linker re-started the motion."""
+        return {tr.id: list(tr.jumps) for tr in self.live + self.ended}

@@ -1,0 +1,129 @@
+"""Ball names from colour: ``cue``, then object balls by colour name.
+
+Each track's colour is the median over its detections of the detector's
+colour summary (tracking/detect.py: mean RGB, hue/saturation/value of the
+coloured pixels, white and dark pixel fractions inside 0.75 radius).
+
+Names (hue in degrees on the HSV circle, 0 = red; sat/val 0..1):
+
+============  =======================================================
+``cue``       the whitest ball (largest white fraction, > 0.6)
+``black``     dark pixels cover > 45% of the disc
+``red``       hue < 12 or >= 345, value >= 0.45
+``maroon``    red or orange hue with value < 0.45 (maroon / brown balls)
+``orange``    hue 12-40, value >= 0.45
+``yellow``    hue 40-70
+``green``     hue 70-170
+``blue``      hue 170-255
+``purple``    hue 255-310
+``pink``      hue 310-345, or a red hue with saturation < 0.45
+``white``     a second mostly-white ball (carom sets)
+``ball``      no usable colour (never seen well)
+============  =======================================================
+
+A non-cue ball whose median white fraction is >= ``STRIPE_WHITE_FRAC`` gets the
+``-stripe`` suffix (a stripe ball shows its white caps; a solid shows only
+its small number circle). A second ball with the same name gets ``-2``
+(``-3`` ...). The hue bands are our own split of the colour circle at the
+usual boundaries between colour words (common practice), checked against
+the rendered colours of the ball sets we know, not a standard.
+"""
+from __future__ import annotations
+
+import numpy as np
+import pandas as pd
+
+#: Minimum median white fraction for the cue (a white ball's inner disc is
+#: almost all white; a stripe shows colour too). Common practice.
+CUE_WHITE_FRAC = 0.6
+#: Median white fraction that marks a stripe ball (a solid's number circle
+#: covers at most ~1/3 of the inner disc, and only when facing the camera).
+STRIPE_WHITE_FRAC = 0.3
+BLACK_DARK_FRAC = 0.45
+
+HUE_BANDS = [  # (name, hue from, hue to) degrees
+    ("red", 345.0, 360.0), ("red", 0.0, 12.0), ("orange", 12.0, 40.0), ("yellow", 40.0, 70.0),
+    ("green", 70.0, 170.0), ("blue", 170.0, 255.0), ("purple", 255.0, 310.0), ("pink", 310.0, 345.0),
+]
+
+
+def colour_name(hue_deg: float, sat: float, val: float, dark_frac: float) -> str:
+    """Colour word for a solid colour (no cue/stripe logic).
+
+    >>> colour_name(274.0, 0.75, 0.55, 0.1), colour_name(47.0, 0.9, 0.95, 0.0)
+    ('purple', 'yellow')
+    """
+    if not np.isfinite(dark_frac):
+        return "ball"
+    if dark_frac > BLACK_DARK_FRAC or not np.isfinite(hue_deg):
+        return "black" if dark_frac > 0.2 or not np.isfinite(hue_deg) else "ball"
+    h = float(hue_deg) % 360.0
+    name = next(n for n, a, b in HUE_BANDS if a <= h < b)
+    if name in ("red", "orange") and np.isfinite(val) and val < 0.45:
+        return "maroon"
+    if name == "red" and np.isfinite(sat) and sat < 0.45:
+        return "pink"
+    return name
+
+
+def _circ_median_hue(h: np.ndarray) -> float:
+    h = h[np.isfinite(h)]
+    if len(h) == 0:
+        return float("nan")
+    a = np.radians(h)
+    return float(np.degrees(np.arctan2(np.median(np.sin(a)), np.median(np.cos(a)))) % 360)
+
+
+def label_tracks(det: pd.DataFrame, track_col: str = "track") -> tuple[dict[int, str], pd.DataFrame]:
+    """Name every track from its detections' colours.
+
+    Returns ({track id: name}, balls DataFrame with columns ball, r, g, b,
+    pattern, hue_deg, white_frac, n_detections).
+    """
+    rows = []
+    for tid, g in det.groupby(track_col):
+        rows.append({
+            "track": int(tid),
+            "r": float(g["r"].median()), "g": float(g["g"].median()), "b": float(g["b"].median()),
+            "hue_deg": _circ_median_hue(g["hue_deg"].to_numpy(float)),
+            "sat": float(g["sat"].median()), "val": float(g["val"].median()),
+            "white_frac": float(g["white_frac"].median()), "dark_frac": float(g["dark_frac"].median()),
+            "n_detections": int(len(g)),
+        })
+    info = pd.DataFrame(rows)
+    names: dict[int, str] = {}
+    if info.empty:
+        return names, pd.DataFrame(columns=["ball", "r", "g", "b", "pattern", "hue_deg", "white_frac", "n_detections"])
+    # Whiteness: white fraction minus colourfulness of the rest.
+    whiteness = info["white_frac"] - 0.2 * info["sat"].fillna(0)
+    cue_idx = None
+    if (info["white_frac"] >= CUE_WHITE_FRAC).any():
+        cue_idx = int(whiteness.idxmax())
+    base = []
+    pattern = []
+    for k, r in info.iterrows():
+        if k == cue_idx:
+            base.append("cue")
+            pattern.append("solid")
+            continue
+        if r["white_frac"] >= CUE_WHITE_FRAC and (not np.isfinite(r["hue_deg"]) or r["sat"] < 0.25):
+            base.append("white")
+            pattern.append("solid")
+            continue
+        name = colour_name(r["hue_deg"], r["sat"], r["val"], r["dark_frac"])
+        stripe = r["white_frac"] >= STRIPE_WHITE_FRAC and name not in ("ball",)
+        base.append(name + ("-stripe" if stripe else ""))
+        pattern.append("stripe" if stripe else "solid")
+    # Duplicates: order by number of detections (the longest-seen keeps the plain name).
+    order = np.argsort(-info["n_detections"].to_numpy(), kind="stable")
+    seen: dict[str, int] = {}
+    final = [""] * len(info)
+    for k in order:
+        b = base[k]
+        seen[b] = seen.get(b, 0) + 1
+        final[k] = b if seen[b] == 1 else f"{b}-{seen[b]}"
+    for k, r in info.iterrows():
+        names[int(r["track"])] = final[k]
+    balls = info.assign(ball=final, pattern=pattern)[
+        ["ball", "r", "g", "b", "pattern", "hue_deg", "white_frac", "n_detections"]]
+    return names, balls.reset_index(drop=True)

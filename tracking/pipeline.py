@@ -1,0 +1,333 @@
+"""Clip -> calibration -> detections -> linked, smoothed, named ball tracks.
+
+:func:`track_clip` streams the clip twice: once to sample frames for the
+background (and calibration, when none is given), once to detect and link.
+Memory grows with balls x frames (detection rows), never with whole frames.
+
+Per ball (:func:`smooth_ball`): rest runs (all detections within a few sigma
+of their mean for >= ``rest_min_s``) are averaged; the moving stretches are
+cut at contacts (NIS spikes, tracking/kalman.py) and each piece is
+RTS-smoothed on its own. Units: mm, s, mm/s; table frame (DEVELOPERS.md).
+"""
+from __future__ import annotations
+
+import os
+from collections.abc import Callable
+from dataclasses import dataclass, field
+from pathlib import Path
+
+import numpy as np
+import pandas as pd
+
+from feltlab.errors import FeltlabError
+from feltlab.standards import DEFAULT_TABLE, TablePreset, table_preset
+from tracking.assign import Linker, colour_signature
+from tracking.calibration import Calibration
+from tracking.detect import build_background, detect_frame
+from tracking.kalman import smooth_segment, split_segments
+from tracking.labels import label_tracks
+from tracking.settings import TrackClipSettings, TrackingSettings
+
+TRACK_COLUMNS = ["frame", "t_s", "ball", "x_mm", "y_mm", "vx_mm_s", "vy_mm_s", "sx_mm", "sy_mm", "visible"]
+DETECTION_OUT_COLUMNS = ["frame", "t_s", "ball", "x_mm", "y_mm", "sx_mm", "sy_mm", "x_px", "y_px", "confidence",
+                         "radius_px", "support", "used"]
+
+
+@dataclass
+class TrackResult:
+    """Output of :func:`track_clip`.
+
+    tracks: one row per ball per frame between its first and last detection
+    (:data:`TRACK_COLUMNS`; smoothed, ``visible`` 0 where predicted).
+    detections: the measurements assigned to each ball (``used`` False for a
+    rejected outlier). balls: ball, r, g, b, pattern (+ hue_deg, white_frac,
+    n_detections). segments_hint: ball -> [(t_start_s, t_end_s, kind)] with
+    kind 'rest' or 'move'; a new 'move' piece starts at each velocity jump
+    (contact) the filter saw. fps_source: 'override' or 'container'.
+    """
+
+    tracks: pd.DataFrame
+    detections: pd.DataFrame
+    calibration: Calibration
+    fps: float
+    fps_source: str
+    n_frames: int
+    balls: pd.DataFrame
+    segments_hint: dict[str, list[tuple[float, float, str]]] = field(default_factory=dict)
+    warnings: list[str] = field(default_factory=list)
+    stats: dict = field(default_factory=dict)
+
+
+# --------------------------------------------------------------------------- per ball
+def rest_runs(t: np.ndarray, z: np.ndarray, sig: np.ndarray, s: TrackingSettings) -> list[tuple[int, int]]:
+    """Index ranges [i0, i1) where the ball sits still (see module docstring)."""
+    n = len(t)
+    runs = []
+    i = 0
+    tol = s.rest_sigma * np.hypot(sig[:, 0], sig[:, 1]) / np.sqrt(2) + s.rest_tol_mm
+    while i < n:
+        j = i + 1
+        while j < n:
+            m = z[i:j + 1].mean(axis=0)
+            if np.any(np.linalg.norm(z[i:j + 1] - m, axis=1) > tol[i:j + 1]):
+                break
+            j += 1
+        if t[j - 1] - t[i] >= s.rest_min_s:
+            runs.append((i, j))
+            i = j
+        else:
+            i += 1
+    return runs
+
+
+def smooth_ball(frames: np.ndarray, t: np.ndarray, z: np.ndarray, sig: np.ndarray, frame_t: np.ndarray,
+                jumps: set[int], s: TrackingSettings):
+    """Smoothed per-frame states of one ball from its time-sorted detections.
+
+    frames: (N,) frame index of each detection; t: (N,) s; z: (N,2) mm;
+    sig: (N,2) mm; frame_t: time (s) of every frame index of the clip;
+    jumps: detection indices where the linker saw a velocity jump.
+    Returns (rows: dict of arrays over frames first..last, segments
+    [(t0, t1, kind)], used: (N,) bool).
+    """
+    n = len(t)
+    used = np.ones(n, bool)
+    f0, f1 = int(frames[0]), int(frames[-1])
+    grid_f = np.arange(f0, f1 + 1)
+    nf = len(grid_f)
+    X = np.full((nf, 4), np.nan)
+    SX = np.full((nf, 2), np.nan)
+    vis = np.zeros(nf, int)
+    vis[frames - f0] = 1
+    pieces: list[tuple[int, int, str]] = []  # detection index ranges
+    runs = rest_runs(t, z, sig, s)
+    cursor = 0
+    for a, b in runs + [(n, n)]:
+        if a > cursor:
+            # The linker's jumps are hints only: it re-starts a track on any
+            # gate failure; the NIS test below decides where motion pieces end.
+            segs, out = split_segments(t[cursor:a], z[cursor:a], sig[cursor:a], s.accel_sigma_mm_s2,
+                                       s.birth_speed_sigma_mm_s, s.split_nis)
+            used[cursor:a] &= ~out
+            pieces += [(cursor + i0, cursor + i1, "move") for i0, i1 in segs]
+        if b > a:
+            pieces.append((a, b, "rest"))
+        cursor = b
+    segments = []
+    for i0, i1, kind in pieces:
+        idx = np.arange(i0, i1)[used[i0:i1]]
+        if len(idx) == 0:
+            continue
+        g0, g1 = int(frames[idx[0]]) - f0, int(frames[idx[-1]]) - f0
+        if kind == "rest" or len(idx) == 1:
+            w = 1.0 / np.maximum(sig[idx] ** 2, 1e-6)
+            m = np.sum(w * z[idx], axis=0) / np.sum(w, axis=0)
+            scatter = np.std(z[idx], axis=0, ddof=1) if len(idx) > 2 else np.median(sig[idx], axis=0)
+            se = np.maximum(scatter, np.median(sig[idx], axis=0)) / np.sqrt(len(idx))
+            X[g0:g1 + 1] = [m[0], m[1], 0.0, 0.0]
+            SX[g0:g1 + 1] = se if len(idx) > 1 else sig[idx[0]]
+            if len(idx) == 1 and kind == "move":
+                X[g0, 2:] = np.nan
+        else:
+            tg = frame_t[grid_f[g0:g1 + 1]]
+            fit = smooth_segment(tg, frames[idx] - f0 - g0, z[idx], sig[idx], s.accel_sigma_mm_s2,
+                                 s.birth_speed_sigma_mm_s)
+            X[g0:g1 + 1] = fit.x
+            SX[g0:g1 + 1] = np.sqrt(np.stack([fit.P[:, 0, 0], fit.P[:, 1, 1]], axis=1))
+        segments.append((float(frame_t[f0 + g0]), float(frame_t[f0 + g1]), kind))
+    # Frames between pieces (missed detections at a contact): extrapolate from
+    # the nearer neighbour piece with its end velocity.
+    have = np.isfinite(X[:, 0])
+    if not have.all():
+        idx_have = np.nonzero(have)[0]
+        for g in np.nonzero(~have)[0]:
+            k = idx_have[np.argmin(np.abs(idx_have - g))]
+            dt = frame_t[f0 + g] - frame_t[f0 + k]
+            v = np.nan_to_num(X[k, 2:])
+            X[g] = [X[k, 0] + v[0] * dt, X[k, 1] + v[1] * dt, v[0], v[1]]
+            SX[g] = SX[k] + np.abs(dt) * 50.0  # a growing, honest-looking guess: 50 mm/s per s
+    rows = {"frame": grid_f, "t_s": frame_t[grid_f], "x_mm": X[:, 0], "y_mm": X[:, 1],
+            "vx_mm_s": X[:, 2], "vy_mm_s": X[:, 3], "sx_mm": SX[:, 0], "sy_mm": SX[:, 1], "visible": vis}
+    return rows, segments, used
+
+
+# --------------------------------------------------------------------------- stitching
+def _stitch(det: pd.DataFrame, s: TrackingSettings, radius_mm: float) -> pd.DataFrame:
+    """Join a track that ends to one that starts later nearby with the same colour."""
+    if det.empty:
+        return det
+    changed = True
+    while changed:
+        changed = False
+        info = det.groupby("track").agg(t0=("t_s", "min"), t1=("t_s", "max"))
+        for a in info.index:
+            end = det[(det.track == a) & (det.t_s == info.at[a, "t1"])].iloc[0]
+            ca = colour_signature(det[det.track == a]).mean(axis=0)
+            best = None
+            for b in info.index:
+                if b == a or info.at[b, "t0"] <= info.at[a, "t1"]:
+                    continue
+                start = det[(det.track == b) & (det.t_s == info.at[b, "t0"])].iloc[0]
+                gap = info.at[b, "t0"] - info.at[a, "t1"]
+                dist = np.hypot(start.x_mm - end.x_mm, start.y_mm - end.y_mm)
+                cb = colour_signature(det[det.track == b]).mean(axis=0)
+                if dist <= s.max_speed_mm_s * gap * 0.5 + 2 * radius_mm and np.linalg.norm(ca - cb) < 0.35:
+                    if best is None or gap < best[0]:
+                        best = (gap, b)
+            if best is not None:
+                det.loc[det.track == best[1], "track"] = a
+                changed = True
+                break
+    return det
+
+
+# --------------------------------------------------------------------------- clip
+def _resolve_table(table) -> TablePreset:
+    if isinstance(table, TablePreset):
+        return table
+    try:
+        return table_preset(str(table))
+    except ValueError as exc:
+        raise FeltlabError(str(exc)) from None
+
+
+def track_clip(path: str | os.PathLike, table: str | TablePreset | None = DEFAULT_TABLE,
+               calibration: Calibration | str | os.PathLike | None = None, fps: float | None = None,
+               frame_range: tuple[int, int | None] | None = None,
+               settings: TrackClipSettings = TrackClipSettings(),
+               progress: Callable[[int, int], None] | None = None) -> TrackResult:
+    """Track every ball in a clip; see :class:`TrackResult` for the output.
+
+    table: preset name (or TablePreset; None: the calibration file's, else
+    the default preset). calibration: a Calibration, a
+    calibration file (TOML), or None for automatic calibration from the
+    cushion lines. fps: capture rate override (high-speed clips).
+    frame_range: (start, stop) frame indices. progress(done, total) is called
+    after every frame (total 0 when the container does not say).
+    """
+    from tracking.video import open_video
+
+    tp = _resolve_table(table) if table is not None else None
+    src = open_video(path, fps_override=fps, frame_range=frame_range)
+    warnings = list(src.warnings)
+    ds, ts = settings.detection, settings.tracking
+    sample = src.sample(ds.background_samples)
+    imgs = [im for _, _, im in sample]
+    if calibration is None:
+        from tracking.calibrate import calibrate_auto
+
+        step = max(1, len(imgs) // settings.calibration_frames)
+        cal = calibrate_auto(imgs[::step][: settings.calibration_frames], tp or table_preset(DEFAULT_TABLE))
+    elif isinstance(calibration, Calibration):
+        cal = calibration
+    else:
+        from tracking.calibrate import calibration_from_file
+
+        cal = calibration_from_file(calibration, table=tp)
+    w, h = cal.camera.image_size
+    if (imgs[0].shape[1], imgs[0].shape[0]) != (w, h):
+        raise FeltlabError(f"the calibration is for {w}x{h} images but the clip is "
+                           f"{imgs[0].shape[1]}x{imgs[0].shape[0]}; calibrate this clip")
+    bg = build_background(imgs, cal, ds)
+    del imgs, sample
+
+    linker = Linker(cal.ball_radius_mm, ts)
+    chunks = []
+    frame_times: dict[int, float] = {}
+    row0 = 0
+    total = src.n_frames
+    done = 0
+    for idx, t, img in src:
+        det = detect_frame(img, cal, ds, bg)
+        frame_times[idx] = t
+        ids = np.arange(row0, row0 + len(det))
+        tid = linker.step(t, det, ids)
+        if len(det):
+            det = det.assign(frame=idx, t_s=t, track=tid, row=ids)
+            chunks.append(det)
+        row0 += len(det)
+        done += 1
+        if progress is not None:
+            progress(done, total)
+    n_frames = done
+    if not frame_times:
+        raise FeltlabError(f"{Path(path).name}: no frames were read")
+    fmax = max(frame_times)
+    frame_t = np.full(fmax + 1, np.nan)
+    for k, v in frame_times.items():
+        frame_t[k] = v
+    # Frames outside the range (before start) never appear in grids.
+    det_all = pd.concat(chunks, ignore_index=True) if chunks else pd.DataFrame(
+        columns=list(chunks[0].columns) if chunks else ["frame", "t_s", "track", "row", "x_mm", "y_mm"])
+    jumps = linker.jumps()
+    result = _finish(det_all, jumps, frame_t, cal, ts, warnings)
+    return TrackResult(tracks=result[0], detections=result[1], calibration=cal, fps=src.fps,
+                       fps_source=src.fps_source, n_frames=n_frames, balls=result[2], segments_hint=result[3],
+                       warnings=warnings + list(src.warnings[len(warnings):]),
+                       stats={"background_noise_dn": bg.noise_dn, "threshold_dn": bg.threshold_dn,
+                              "radius_px": bg.radius_px, "static_balls_painted": int(len(bg.static_px)),
+                              "time_source": src.time_source})
+
+
+def _finish(det_all: pd.DataFrame, jumps: dict[int, list[int]], frame_t: np.ndarray, cal: Calibration,
+            ts: TrackingSettings, warnings: list[str]):
+    """Detections with track ids -> (tracks, detections, balls, segments_hint)."""
+    empty_tracks = pd.DataFrame(columns=TRACK_COLUMNS)
+    if det_all.empty or "track" not in det_all:
+        warnings.append("no balls were found; check the calibration and that the balls are in view")
+        return empty_tracks, pd.DataFrame(columns=DETECTION_OUT_COLUMNS), pd.DataFrame(
+            columns=["ball", "r", "g", "b", "pattern"]), {}
+    det_all = det_all[det_all.track >= 0].copy()
+    det_all = _stitch(det_all, ts, cal.ball_radius_mm)
+    # Drop short clutter tracks that never rest.
+    keep_ids = []
+    dropped = 0
+    for tid, g in det_all.groupby("track"):
+        dur = g.t_s.max() - g.t_s.min()
+        if dur >= ts.min_track_s:
+            keep_ids.append(tid)
+        else:
+            dropped += 1
+    if dropped:
+        warnings.append(f"{dropped} short track(s) (< {ts.min_track_s} s) dropped as clutter")
+    det_all = det_all[det_all.track.isin(keep_ids)].copy()
+    names, balls = label_tracks(det_all)
+    det_all["ball"] = det_all.track.map(names)
+    track_rows = []
+    segs: dict[str, list] = {}
+    used_all = pd.Series(True, index=det_all.index)
+    for tid, g in det_all.groupby("track"):
+        g = g.sort_values("frame")
+        g = g[~g.frame.duplicated(keep="first")]
+        fr = g.frame.to_numpy(int)
+        rowpos = {int(r): k for k, r in enumerate(g["row"].to_numpy())}
+        jset = {rowpos[r] for r in jumps.get(int(tid), []) if r in rowpos}
+        z = g[["x_mm", "y_mm"]].to_numpy(float)
+        sig = np.maximum(g[["sx_mm", "sy_mm"]].to_numpy(float), 0.02)
+        rows, segments, used = smooth_ball(fr, g.t_s.to_numpy(float), z, sig, frame_t, jset, ts)
+        used_all.loc[g.index] = used
+        df = pd.DataFrame(rows)
+        df["ball"] = names[int(tid)]
+        track_rows.append(df)
+        segs[names[int(tid)]] = segments
+    tracks = pd.concat(track_rows, ignore_index=True)[TRACK_COLUMNS] if track_rows else empty_tracks
+    tracks = tracks.sort_values(["frame", "ball"]).reset_index(drop=True)
+    det_all["used"] = used_all.reindex(det_all.index).fillna(False).astype(bool)
+    extra = [c for c in det_all.columns if c not in DETECTION_OUT_COLUMNS and c not in ("track", "row")]
+    dets = det_all[DETECTION_OUT_COLUMNS + extra].sort_values(["frame", "ball"]).reset_index(drop=True)
+    return tracks, dets, balls, segs
+
+
+def calibration_from_truth(truth: dict, table: str = "pool-9ft") -> Calibration:
+    """Calibration (method 'truth') from a render's truth JSON (camera t in metres)."""
+    from tracking.camera import CameraModel
+
+    cm = truth["camera"]
+    cam = CameraModel(K=cm["K"], dist=cm.get("dist_coeffs", cm.get("dist", [0, 0, 0, 0, 0])),
+                      R=cm.get("R_world_to_cam_opencv", cm.get("R")),
+                      t=np.asarray(cm.get("t_world_to_cam_m"), float) * 1000.0
+                      if "t_world_to_cam_m" in cm else cm.get("t_mm"),
+                      image_size=truth["resolution"])
+    d = float(truth.get("ball", {}).get("diameter_mm", table_preset(table).ball.diameter_mm))
+    return Calibration(camera=cam, table=table_preset(truth.get("table", {}).get("name", table)),
+                       ball_diameter_mm=d, method="truth")
