@@ -406,7 +406,9 @@ def write_series(out_dir: Path, outcomes, spec: Spec | None = None, confidence: 
     ):
         target = plots_dir / name
         made = _plot_atomic(fn, res, target)
-        if made is not None:
+        if made is None:
+            target.unlink(missing_ok=True)  # no stale picture from an earlier run
+        else:
             files[f"series_plots/{name}"] = made
             images.append((caption, base64.b64encode(made.read_bytes()).decode("ascii")))
     html = render_html(res, data, images, outcomes, settings or {}, failures or [])
