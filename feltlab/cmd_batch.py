@@ -62,7 +62,9 @@ def command(folder: Path, out_dir: Path, workers: int | None, scheduler: str | N
 
     Writes failures.csv, all_contacts.csv/.parquet, series.csv, series.html and
     series_plots/ into OUT. Clips that cannot be analysed are listed with a reason and
-    the batch goes on. Safety: ball launchers can hurt people; local safety rules first.
+    the batch goes on. Exit codes: 0 all analysed (and the spec passed), 1 some clips failed,
+    2 bad input, 3 the spec failed. Safety: ball launchers can hurt people; local safety
+    rules first.
     """
     from feltlab.batch.runner import run_batch
     from feltlab.batch.spec import load_spec
