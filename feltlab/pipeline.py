@@ -245,6 +245,9 @@ def analyze_clip(clip_path, out_dir, settings: AnalyzeSettings | None = None, pr
     cal = tr.calibration
     log.info("calibration: %s, residual %.2f px / %.2f mm, %.3f px/mm", cal.method, cal.residual_px,
              cal.residual_mm, cal.px_per_mm)
+    for w in getattr(tr, "warnings", None) or []:
+        warnings.append(f"tracking: {w}")
+        log.warning("tracking: %s", w)
     n_balls = tr.tracks["ball"].nunique() if len(tr.tracks) else 0
     log.info("tracking: %d frames at %g frames/s (%s), %d balls, %d track rows", tr.n_frames, tr.fps,
              tr.fps_source, n_balls, len(tr.tracks))

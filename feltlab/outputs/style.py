@@ -34,22 +34,57 @@ def ball_order(balls) -> list[str]:
     return (["cue"] if "cue" in names else []) + [b for b in names if b != "cue"]
 
 
+#: A ball named after a colour is drawn in the nearest Okabe-Ito colour, so
+#: "yellow" looks yellow and "blue" blue (common-sense mapping, ours).
+NAME_TO_RGB: dict[str, tuple[int, int, int]] = {
+    "yellow": (240, 228, 66),
+    "orange": (230, 159, 0),
+    "red": (213, 94, 0),
+    "maroon": (213, 94, 0),
+    "brown": (213, 94, 0),
+    "blue": (0, 114, 178),
+    "green": (0, 158, 115),
+    "purple": (204, 121, 167),
+    "pink": (204, 121, 167),
+    "violet": (204, 121, 167),
+}
+#: On white paper the Okabe-Ito yellow is too faint; plots use this darker yellow.
+PAPER_YELLOW = (190, 170, 0)
+
+
 def ball_colours(balls, on_paper: bool = False) -> dict[str, tuple[int, int, int]]:
-    """Label -> RGB (0-255). ``cue`` is white on video (black on paper); others cycle through Okabe-Ito.
+    """Label -> RGB (0-255): ``cue`` white on video (black on paper); a colour-named ball its
+    Okabe-Ito colour (first ball of that colour), the rest the unused Okabe-Ito colours in turn.
 
     >>> ball_colours(["red", "cue", "yellow"])["cue"]
     (255, 255, 255)
     >>> ball_colours(["red", "cue"], on_paper=True)["cue"]
     (0, 0, 0)
+    >>> ball_colours(["blue", "blue-stripe"])["blue"]
+    (0, 114, 178)
     """
     out: dict[str, tuple[int, int, int]] = {}
-    i = 0
-    for b in ball_order(balls):
+    used: set[tuple[int, int, int]] = set()
+    order = ball_order(balls)
+    for b in order:
         if b == "cue":
             out[b] = OUTLINE_RGB if on_paper else CUE_RGB
-        else:
-            out[b] = OKABE_ITO_RGB[i % len(OKABE_ITO_RGB)]
-            i += 1
+            continue
+        rgb = NAME_TO_RGB.get(b.split("-")[0].lower())
+        if rgb is not None and rgb not in used:
+            out[b] = rgb
+            used.add(rgb)
+    i = 0
+    for b in order:
+        if b in out:
+            continue
+        free = [c for c in OKABE_ITO_RGB if c not in used]
+        rgb = free[0] if free else OKABE_ITO_RGB[i % len(OKABE_ITO_RGB)]
+        i += 1
+        out[b] = rgb
+        used.add(rgb)
+    if on_paper:
+        out = {b: (PAPER_YELLOW if c == (240, 228, 66) else c) for b, c in out.items()}
     return out
 
 
