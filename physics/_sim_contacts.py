@@ -113,8 +113,8 @@ def ball_cushion(
 ) -> ContactOutcome:
     """Bounce a ball off a rigid cushion whose inward unit normal is n (2,).
 
-    Model (after Mathavan, Jackson & Parkin, Proc. IMechE C 224(9):1863,
-    2010): the cushion touches the ball at the nose height h above the cloth,
+    Model (following the approach of Mathavan, Jackson & Parkin, Proc.
+    IMechE C 224(9):1863, 2010; our own implementation): the cushion touches the ball at the nose height h above the cloth,
     at ``r_c = -R cos(theta) n + (h - R) z`` from the centre with
     ``sin(theta) = (h - R) / R``; its normal impulse acts along
     ``N = -r_c / R`` (tilted down into the cloth). The cloth carries the

@@ -12,18 +12,18 @@ Model and sources
   ``7/2 mu_s g``; the ball decelerates at ``mu_s g`` along ``-u_hat`` (so the
   path curves when u is not along v). Sliding ends exactly at
   ``2 |u0| / (7 mu_s g)`` with final velocity ``(5 v0 + 2 R w0 x z) / 7``
-  (classical rigid-body result; e.g. Mathavan, Jackson & Parkin, Am. J. Phys.
-  77:788 (2009); closed forms listed in shared REFERENCES.md).
+  (classical rigid-body result; the closed forms are listed in the shared
+  REFERENCES.md and pinned by tests/test_simulate.py).
 * Cloth, rolling: deceleration ``mu_roll g`` against the velocity (the
   "force / weight" definition; R. Cross, Am. J. Phys. 90(9):648 (2022) notes
   another definition differs by 7/5).
 * Spin about the vertical: constant spinning-friction torque
   ``mu_spin m g R``, i.e. angular deceleration ``5 mu_spin g / (2 R)``,
   independent of the other motion (a point contact has no lever arm for it).
-  Default ``mu_spin`` = 0.01: a uniform-pressure contact patch of radius a
-  gives torque ``(2/3) mu_s a m g`` (handbook result for a flat annular
-  clutch), i.e. ``mu_spin = 2 mu_s a / (3 R)``; a ~ 2 mm (from memory) gives
-  ~0.01. Order of magnitude only.
+  Default ``mu_spin`` = 0.01: a flat contact patch of radius a under
+  uniform pressure gives torque ``(2/3) mu_s a m g`` (handbook result for a
+  flat disc clutch / thrust bearing), i.e. ``mu_spin = 2 mu_s a / (3 R)``;
+  a ~ 2 mm (from memory) gives ~0.01. Order of magnitude only.
 * Ball-ball: instantaneous; Newton restitution ``e_ball_ball`` on the line of
   centres; optional Coulomb friction ``mu_ball_ball`` at the contact point
   (throw, spin transfer; sticks if friction suffices). Contacts last
@@ -33,9 +33,10 @@ Model and sources
   ``mu_cushion`` at the cushion and ``mu_slide`` at the cloth (which carries
   the downward part of the impulse); the impact is integrated in small steps
   of normal impulse and ends by Stronge's energetic restitution
-  ``e_cushion`` (W. J. Stronge, Impact Mechanics, CUP 2000) -- the model of
-  Mathavan, Jackson & Parkin, Proc. IMechE C 224(9):1863 (2010), without
-  their cushion compliance. Without friction the horizontal normal velocity
+  ``e_cushion`` (W. J. Stronge, Impact Mechanics, CUP 2000). This follows
+  the approach of Mathavan, Jackson & Parkin, Proc. IMechE C 224(9):1863
+  (2010) (integration over the normal impulse with slip at the cushion and
+  cloth contacts); the implementation is our own. Without friction the horizontal normal velocity
   is reversed times ``e_cushion`` exactly; with friction and spin the
   measured ratio differs (a rolling ball comes off at about ``e_cushion``,
   a stun ball lower). 1000 steps: within ~1e-3 of the continuous model.
@@ -46,8 +47,9 @@ Between events each ball's motion is a quadratic in time, so next-event
 times are solved in closed form: quadratic for cushions, quartic (split at
 the real roots of its derivative, Brent-polished) for ball pairs, linear for
 phase ends. Simultaneous events are processed one after the other at the same
-instant. Two numerical floors (``min_bounce_mm_s``) stop endless micro-bounces
-of balls pressed together by cloth friction; see SimParams.
+instant. A numerical floor (``min_bounce_mm_s``) stops endless micro-bounces
+of balls pressed together (or into a cushion) by cloth friction; contacts it
+touches are flagged ``micro``. See SimParams.
 
 >>> p = SimParams(length_mm=2540.0, width_mm=1270.0)
 >>> res = simulate([BallInit("cue", 500.0, 635.0, vx_mm_s=1000.0)], p, 1.0)
