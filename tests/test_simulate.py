@@ -426,6 +426,35 @@ def test_cushion_with_friction_loses_energy_and_reports_e():
         assert 0.0 < c.e_measured <= 1.0
 
 
+@pytest.mark.parametrize("w", [(0.0, 0.0, 0.0), (40.0, -70.0, 25.0), (-90.0, 10.0, -60.0)])
+@pytest.mark.parametrize("mu_c", [0.14, 0.4])
+def test_cushion_impact_angular_momentum_about_contact(w, mu_c):
+    """Impulse-momentum theorem (basic mechanics): with no cloth friction the
+    only impulses are the cushion's (through the contact point Q at the nose
+    height) and the cloth's vertical push at the bottom point, whose moment
+    about Q has no component along the cushion normal n or the vertical z.
+    So L_Q = I w + (C - Q) x m v keeps its n and z components through the
+    impact, whatever the friction or restitution."""
+    h = (1 + 7 / 16) * 25.4  # pool nose height, standards.POOL_NOSE_HEIGHT_MM
+    p = SimParams(2540.0, 1270.0, e_cushion=0.85, mu_cushion=mu_c, mu_slide=0.0, cushion_height_mm=h)
+    res = simulate([BallInit("cue", 400.0, 600.0, -1800.0, 700.0, *w)], p, 0.5)
+    c = res.contacts[0]
+    assert c.cushion == "x0"
+    n3 = np.array([1.0, 0.0, 0.0])
+    sin_t = (h - R) / R
+    r_c = -R * math.sqrt(1 - sin_t**2) * n3 + np.array([0.0, 0.0, h - R])  # Q - C
+    I = 0.4 * M * R**2
+
+    def L(v, om):
+        return I * np.asarray(om) + np.cross(-r_c, M * np.array([v[0], v[1], 0.0]))
+
+    before, after = L(c.va_pre, c.wa_pre), L(c.va_post, c.wa_post)
+    scale = np.abs(before).max()
+    assert after[0] == pytest.approx(before[0], abs=1e-9 * scale)  # along n
+    assert after[2] == pytest.approx(before[2], abs=1e-9 * scale)  # along z
+    assert abs(after[1] - before[1]) > 1e-6 * scale  # the tangent component does change
+
+
 # --------------------------------------------------------------------------
 # Properties (hypothesis)
 # --------------------------------------------------------------------------
