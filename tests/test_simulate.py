@@ -386,6 +386,25 @@ def test_follow_reduces_throw():
     assert ang(roll) < ang(stun)
 
 
+@pytest.mark.parametrize("spin", [(0.0, 0.0, 0.0), (0.0, 70.0, 30.0), (25.0, -60.0, -45.0)])
+def test_ball_ball_angular_momentum_about_contact(spin):
+    """Impulse-momentum theorem (basic mechanics): each ball feels the other's
+    impulse at the contact point Q and the cloth's vertical push at its bottom
+    point, whose moment about Q has no component along n or z. So for each
+    ball L_Q = I w + (C - Q) x m v keeps its n and z components, with friction
+    (throw, spin transfer) on."""
+    _, c = _hit(25.0, mu_bb=0.08, spin=spin)
+    n3 = np.array([c.normal[0], c.normal[1], 0.0])
+    I = 0.4 * M * R**2
+    for v0, w0, v1, w1, arm in [(c.va_pre, c.wa_pre, c.va_post, c.wa_post, -R * n3),
+                                (c.vb_pre, c.wb_pre, c.vb_post, c.wb_post, R * n3)]:
+        L0 = I * np.asarray(w0) + np.cross(arm, M * np.array([v0[0], v0[1], 0.0]))
+        L1 = I * np.asarray(w1) + np.cross(arm, M * np.array([v1[0], v1[1], 0.0]))
+        scale = max(np.abs(L0).max(), np.abs(L1).max())
+        assert L1 @ n3 == pytest.approx(L0 @ n3, abs=1e-9 * scale)
+        assert L1[2] == pytest.approx(L0[2], abs=1e-9 * scale)
+
+
 # --------------------------------------------------------------------------
 # Cushions
 # --------------------------------------------------------------------------
