@@ -24,9 +24,6 @@ independently, so their covariances are independent).
 from __future__ import annotations
 
 import numpy as np
-from scipy.optimize import brentq
-
-from physics.events import cushion_distance
 from physics.segments import ChainFit, chain_eval
 
 
@@ -37,36 +34,40 @@ def _angle(u: np.ndarray, v: np.ndarray) -> float:
     return float(np.degrees(np.arctan2(u[0] * v[1] - u[1] * v[0], u @ v)))
 
 
-def _first_touch(gap_fn, tb: float, dt: float) -> float:
-    """Root of the pre-contact gap near the break (s); the break itself if none is bracketed."""
-    lo, hi = tb - 1.5 * dt, tb + 0.5 * dt
-    try:
-        glo, ghi = gap_fn(lo), gap_fn(hi)
-        if glo > 0 > ghi:
-            return float(brentq(gap_fn, lo, hi, xtol=1e-7))
-        gtb = gap_fn(tb)
-        if glo > 0 > gtb:
-            return float(brentq(gap_fn, lo, tb, xtol=1e-7))
-    except ValueError:
-        pass
-    return tb
+def _touch_time(pos_vel, target_mm: float, tb: float, dt: float) -> float:
+    """Time (s) near the break ``tb`` where the pre-contact gap reaches ``target_mm`` (Newton
+    steps on gap(t) = |d(t)| - target with d, d' from ``pos_vel(t) -> (d (2,), d' (2,))``);
+    ``tb`` itself when no root lies within one frame period."""
+    t = tb
+    for _ in range(6):
+        d, dd = pos_vel(t)
+        dist = float(np.hypot(*d))
+        rate = float(d @ dd) / max(dist, 1e-9)
+        if abs(rate) < 1e-6:
+            return tb
+        step = (dist - target_mm) / rate
+        t -= step
+        if abs(step) < 1e-8:
+            break
+    return t if abs(t - tb) <= dt else tb
 
 
 def ball_ball_core(fa: ChainFit, ia: int, xa, fb: ChainFit, ib: int, xb, radius_mm: float, dt: float):
-    """Core values of a ball-ball contact for parameter vectors xa, xb (for propagation)."""
-    tba, pa, va0, va1 = fa.at_break(ia, xa)
-    tbb, pb, vb0, vb1 = fb.at_break(ib, xb)
+    """Core values of a ball-ball contact for parameter vectors xa, xb (also used for error
+    propagation): first-touch time from the pre-contact models (centres 2R apart), the normal
+    there, velocities at the breaks, e."""
+    tba, _, va0, va1 = fa.at_break(ia, xa)
+    tbb, _, vb0, vb1 = fb.at_break(ib, xb)
     tb = 0.5 * (tba + tbb)
 
-    def gap(t):
-        Pa, _, _ = chain_eval(xa, fa.layout, np.array([t]), seg=np.array([ia]))
-        Pb, _, _ = chain_eval(xb, fb.layout, np.array([t]), seg=np.array([ib]))
-        return float(np.hypot(*(Pb[0] - Pa[0])) - 2 * radius_mm)
+    def rel(t):
+        Pa, Va, _ = chain_eval(xa, fa.layout, np.array([t]), seg=np.array([ia]))
+        Pb, Vb, _ = chain_eval(xb, fb.layout, np.array([t]), seg=np.array([ib]))
+        return Pb[0] - Pa[0], Vb[0] - Va[0]
 
-    t1 = _first_touch(gap, tb, dt)
+    t1 = _touch_time(rel, 2 * radius_mm, tb, dt)
     Pa, _, _ = chain_eval(xa, fa.layout, np.array([t1]), seg=np.array([ia]))
-    Pb, _, _ = chain_eval(xb, fb.layout, np.array([t1]), seg=np.array([ib]))
-    d = Pb[0] - Pa[0]
+    d, _ = rel(t1)
     n = d / np.hypot(*d)
     den = (vb0 - va0) @ n
     e = -((vb1 - va1) @ n) / den if abs(den) > 1e-9 else np.nan
@@ -75,14 +76,18 @@ def ball_ball_core(fa: ChainFit, ia: int, xa, fb: ChainFit, ib: int, xb, radius_
 
 def cushion_core(f: ChainFit, i: int, x, cushion: str, normal: np.ndarray,
                  length_mm: float, width_mm: float, radius_mm: float, dt: float):
-    """Core values of a ball-cushion contact for parameter vector x (for propagation)."""
-    tb, p, v0, v1 = f.at_break(i, x)
+    """Core values of a ball-cushion contact for parameter vector x: first touch where the
+    pre-contact model is R from the nose line, velocities at the break, e."""
+    tb, _, v0, v1 = f.at_break(i, x)
+    off = {"x0": np.array([0.0, 0.0]), "xL": np.array([length_mm, 0.0]),
+           "y0": np.array([0.0, 0.0]), "yW": np.array([0.0, width_mm])}[cushion]
 
-    def gap(t):
-        P, _, _ = chain_eval(x, f.layout, np.array([t]), seg=np.array([i]))
-        return float(cushion_distance(P, cushion, length_mm, width_mm)[0] - radius_mm)
+    def rel(t):
+        P, V, _ = chain_eval(x, f.layout, np.array([t]), seg=np.array([i]))
+        dn = (P[0] - off) @ normal
+        return np.array([dn, 0.0]) if dn >= 0 else np.array([1e-9, 0.0]), np.array([V[0] @ normal, 0.0])
 
-    t1 = _first_touch(gap, tb, dt)
+    t1 = _touch_time(rel, radius_mm, tb, dt)
     P, _, _ = chain_eval(x, f.layout, np.array([t1]), seg=np.array([i]))
     den = v0 @ normal
     e = -(v1 @ normal) / den if abs(den) > 1e-9 else np.nan

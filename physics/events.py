@@ -121,20 +121,25 @@ def motion_onset(b: BallSamples, dt: float, s: PhysicsSettings) -> Onset:
     """Is the ball at rest at its first samples, and when does it start moving (s)."""
     sp, se = local_speed(b, dt, s)
     moving = sp > np.maximum(s.rest_speed_mm_s, s.rest_speed_z * se)
-    k = 3
+    k = max(3, int(round(s.speed_window_s / dt)))
     if not moving[: max(3, int(0.5 * s.speed_window_s / dt) + 1)].any():
+        sig_med = float(np.median(b.sig))
         idx = None
         for i in range(len(moving) - k + 1):
             if moving[i : i + k].all():
-                idx = i
-                break
+                # sustained motion: the ball ends the run well away from where it started
+                if np.hypot(*(b.xy[i + k - 1] - b.xy[max(i - k, 0)])) > s.onset_sigmas * sig_med:
+                    idx = i
+                    break
         rest_xy = np.median(b.xy[: max(3, (idx or len(b.t)) // 2 + 1)], axis=0)
         if idx is None:
             return Onset(True, None, rest_xy)
         # onset: where a line through the first moving samples leaves the rest position
         dist = np.hypot(*(b.xy - rest_xy).T)
-        thr = 4.0 * float(np.median(b.sig))
-        first = int(np.argmax(dist > thr)) if (dist > thr).any() else idx
+        thr = 4.0 * sig_med
+        j0 = max(idx - k, 0)
+        far = dist[j0:] > thr
+        first = j0 + int(np.argmax(far)) if far.any() else idx
         j = slice(first, min(len(b.t), first + 6))
         if j.stop - j.start >= 2:
             tt = b.t[j]
@@ -304,8 +309,9 @@ def find_contacts(
             others = [x for x in cand_t[ball] if abs(x - t_c) > 2.5 * dt]
             lo = max([x for x in others if x < t_c], default=-np.inf)
             hi = min([x for x in others if x > t_c], default=np.inf)
-            lo = max(lo + guard, t_c - s.side_window_s)
-            hi = min(hi - guard, t_c + s.side_window_s)
+            w = max(s.side_window_s, s.side_window_frames * dt)
+            lo = max(lo + guard, t_c - w)
+            hi = min(hi - guard, t_c + w)
             fits[ball] = kink_fit(samples[ball], t_c, lo, hi, guard, dt, s)
         if kind == "ball-cushion":
             f = fits[a]
@@ -320,7 +326,7 @@ def find_contacts(
                                             f.v_post - f.v_pre))
         else:
             zs, dvs, tbs = {}, {}, {}
-            ok_any, bad = False, False
+            ok_any, bad, z2 = False, False, 0.0
             for ball, sign in ((a, -1.0), (b, 1.0)):
                 f = fits[ball]
                 if f is None:
@@ -330,11 +336,12 @@ def find_contacts(
                 sd = float(np.sqrt(n @ f.dv_cov @ n))
                 z = dvn / max(sd, 1e-9)
                 zs[ball], dvs[ball], tbs[ball] = z, dv, f.t_b
-                if dvn > s.dv_min_mm_s and z > s.dv_z:
-                    ok_any = True
+                if dvn > s.dv_min_mm_s:
+                    z2 += z * z  # independent evidence from the two balls adds up
+                    ok_any = ok_any or z > s.dv_z
                 if z < -s.dv_z and -dvn > s.dv_min_mm_s:
                     bad = True
-            if ok_any and not bad:
+            if (ok_any or np.sqrt(z2) > s.dv_z) and not bad:
                 # the striking ball approaches faster along the normal
                 fa, fb = fits[a], fits[b]
                 va = fa.v_pre @ n if fa is not None else 0.0

@@ -7,7 +7,7 @@ Stages: raw samples per ball -> contact candidates with geometric and kinematic 
 """
 from __future__ import annotations
 
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 
 import numpy as np
 import pandas as pd
@@ -170,11 +170,52 @@ def analyze_tracks(
             fits[name] = _rest_fit(b, lay)
         else:
             fits[name] = fit_chain(b.t, b.xy, b.sig, lay, s)
-    contacts = _contacts_table(cands, fits, maps, table, R, m, dt)
-    segments, mu = _segments_table(fits, samples, s)
-    events = _events_table(samples, fits, layouts, maps, contacts, cands, dt, s)
+    # pass 2: one cloth -> shared mu_s and mu_r as priors (pass-1 estimates are reported)
+    _, mu = _segments_table(fits, samples, s)
+    s2 = _shot_priors(s, mu)
+    for name, b in samples.items():
+        lay = layouts[name]
+        if not (lay.rest_first and lay.n_seg == 1):
+            x1 = _plausible_start(fits[name].x, lay, s2)
+            fits[name] = fit_chain(b.t, b.xy, b.sig, lay, s2, x_init=x1)
+    contacts = _contacts_table(cands, fits, maps, table, R, m, dt, s)
+    segments, _ = _segments_table(fits, samples, s2)
+    events = _events_table(samples, fits, layouts, maps, contacts, segments, dt, s)
     return ShotPhysics(events, segments, contacts, *mu, fits=fits,
                        rest_xy={k: o.rest_xy for k, o in onsets.items() if o.rest_xy is not None})
+
+
+def _plausible_start(x: np.ndarray, lay: ChainLayout, s: PhysicsSettings) -> np.ndarray:
+    """Pass-2 start: a slide phase whose deceleration is far below the shot's sliding friction is
+    really rolling, so start that segment rolling (t_roll = 0, slide deceleration = mu_s g)."""
+    x = x.copy()
+    g = s.g_mm_s2
+    for k in range(lay.n_seg):
+        o = lay.move_offset(k)
+        if o is None:
+            continue
+        a = x[o + 2 : o + 4]
+        if np.hypot(*a) < 0.5 * s.mu_s_prior * g and x[o + 4] > 0:
+            v = x[o : o + 2]
+            sp = np.hypot(*v)
+            x[o + 2 : o + 4] = -s.mu_s_prior * g * (v / sp if sp > 1e-9 else np.array([1.0, 0.0]))
+            x[o + 4] = 0.0
+    return x
+
+
+def _shot_priors(s: PhysicsSettings, mu) -> PhysicsSettings:
+    """Settings whose friction priors are the shot's pass-1 estimates (see PhysicsSettings)."""
+    mu_s, sd_s, mu_r, sd_r = mu
+    kw = {}
+    if np.isfinite(mu_s) and 0.05 < mu_s < s.mu_s_max:
+        kw.update(mu_s_prior=mu_s, mu_s_prior_sigma=max(sd_s, s.shot_mu_s_rel_sigma * mu_s))
+    else:
+        kw.update(mu_s_prior_sigma=s.fallback_mu_s_sigma)
+    if np.isfinite(mu_r) and 0.0 < mu_r < s.mu_r_max:
+        kw.update(mu_r_prior=mu_r, mu_r_prior_sigma=max(sd_r, s.shot_mu_r_rel_sigma * mu_r))
+    else:
+        kw.update(mu_r_prior_sigma=s.fallback_mu_r_sigma)
+    return replace(s, **kw)
 
 
 def _rest_fit(b: BallSamples, lay: ChainLayout) -> ChainFit:
@@ -197,7 +238,7 @@ def _roll_flags(f: ChainFit, i: int, x=None) -> tuple[bool, bool]:
     return ph0 in ("roll", "rest"), ph1 in ("roll", "rest")
 
 
-def _contacts_table(cands, fits, maps, table, R, m, dt) -> pd.DataFrame:
+def _contacts_table(cands, fits, maps, table, R, m, dt, s) -> pd.DataFrame:
     rows = []
     for ci, c in enumerate(cands):
         if c.kind == "ball-ball":
@@ -217,8 +258,12 @@ def _contacts_table(cands, fits, maps, table, R, m, dt) -> pd.DataFrame:
             cz[:na, :na] = fa.cov
             cz[na:, na:] = fb.cov
             core = core_of(xz)
-            var = propagate(lambda z: np.array([core_of(z)["e"], core_of(z)["t"]]), xz, cz)
+            var = propagate(lambda z: _e_t(core_of(z)), xz, cz)
             rolls_a, rolls_b = _roll_flags(fa, ia), _roll_flags(fb, ib)
+            dvm = s.mu_s_prior * s.g_mm_s2 * s.model_time_ball_s
+            den = abs((core["vb0"] - core["va0"]) @ core["n"])
+            n_slide = (not rolls_a[1]) + (not rolls_b[1])
+            var[0] += n_slide * (dvm / max(den, 1e-9)) ** 2
             d = derived(core, m, True, rolls_a, rolls_b)
             pt = core["pa"] + R * core["n"]
             phase_a = fa.phase_at(ia, float(fa.breaks()[ia]) - 1e-6)
@@ -235,8 +280,11 @@ def _contacts_table(cands, fits, maps, table, R, m, dt) -> pd.DataFrame:
                 return cushion_core(f, i, z, c.cushion, c.normal, table.length_mm, table.width_mm, R, dt)
 
             core = core_of(f.x)
-            var = propagate(lambda z: np.array([core_of(z)["e"], core_of(z)["t"]]), f.x, f.cov)
-            d = derived(core, m, False, _roll_flags(f, i), (False, False))
+            var = propagate(lambda z: _e_t(core_of(z)), f.x, f.cov)
+            flags = _roll_flags(f, i)
+            d = derived(core, m, False, flags, (False, False))
+            dvm = s.mu_s_prior * s.g_mm_s2 * s.model_time_cushion_s
+            var[0] += (not flags[1]) * (dvm / max(abs(core["va0"] @ core["n"]), 1e-9)) ** 2
             pt = core["pa"] - R * core["n"]
             phase_a = f.phase_at(i, float(f.breaks()[i]) - 1e-6)
             phase_b = ""
@@ -297,8 +345,8 @@ def _segments_table(fits: dict[str, ChainFit], samples, s: PhysicsSettings):
             sp = float(np.hypot(*vr))
             t_stop = t_r + (sp / a_r if a_r > 0 else np.inf)
             # sigmas of the segment-start state and accelerations by propagation
-            def vals(z, k=k, t0=t0):
-                Pz, Vz, _ = chain_eval_pos(f, z, t0)
+            def vals(z, k=k):
+                Pz, Vz, _ = chain_eval_pos(f, z, float(segment_starts(z, lay)[0][k]))
                 pz = unpack_segment(z, lay, k)
                 vrz = pz[0] + pz[1] * pz[2]
                 u = vrz / max(np.hypot(*vrz), 1e-12)
@@ -314,7 +362,8 @@ def _segments_table(fits: dict[str, ChainFit], samples, s: PhysicsSettings):
                                  ay_sigma_mm_s2=sd[5], t_roll_s=t_r if t_r < t1 else np.nan,
                                  mu=float(np.hypot(*a) / g), mu_sigma=sd[6]))
                 n_slide = int(((tu >= t0) & (tu < min(t_r, t1))).sum())
-                if n_slide >= 6 and np.isfinite(sd[6]) and sd[6] > 0:
+                after_break = k > 0  # a slide that starts at a strike or contact
+                if after_break and n_slide >= 6 and np.isfinite(sd[6]) and sd[6] > 0:
                     mus.append((np.hypot(*a) / g, sd[6]))
             if t_r < t1:
                 Pr, Vr = f.state(np.array([max(t_r, t0) + 1e-9]))
@@ -357,7 +406,7 @@ def _combine(vals) -> tuple[float, float]:
     return mean, se
 
 
-def _events_table(samples, fits, layouts, maps, contacts, cands, dt, s) -> pd.DataFrame:
+def _events_table(samples, fits, layouts, maps, contacts, segments, dt, s) -> pd.DataFrame:
     rows = []
     t_end = max(float(b.t[-1]) for b in samples.values())
     for name, f in fits.items():
@@ -373,13 +422,52 @@ def _events_table(samples, fits, layouts, maps, contacts, cands, dt, s) -> pd.Da
             rows.append(dict(t_s=float(b.t[-1] + 0.5 * dt), t_sigma_s=0.5 * dt, kind="leave",
                              ball=name, other="", contact=-1))
     seg_rest = []
+    for _, r in segments.iterrows():
+        if r.phase == "rest" and r.segment > 0 and r.t0_s > samples[r.ball].t[0] + dt:
+            seg_rest.append(dict(t_s=r.t0_s, t_sigma_s=np.nan, kind="rest", ball=r.ball, other="",
+                                 contact=-1))
     for _, c in contacts.iterrows():
         for ball, other in ((c.ball_a, c.ball_b or c.cushion), (c.ball_b, c.ball_a)):
             if ball:
                 rows.append(dict(t_s=c.t_s, t_sigma_s=c.t_sigma_s, kind=c.kind, ball=ball,
                                  other=other, contact=int(c.contact)))
     ev = pd.DataFrame(rows, columns=[c for c in EVENT_COLUMNS if c != "event"])
-    ev = pd.concat([ev, seg_rest and pd.DataFrame(seg_rest) or pd.DataFrame(columns=ev.columns)])
+    if seg_rest:
+        ev = pd.concat([ev, pd.DataFrame(seg_rest, columns=ev.columns)], ignore_index=True)
     ev = ev.sort_values(["t_s", "ball"]).reset_index(drop=True)
     ev.insert(0, "event", np.arange(len(ev)))
     return ev
+
+
+def tables_from_positions(
+    times: np.ndarray,
+    positions: dict[str, np.ndarray],
+    sigma_mm: float,
+    rng: np.random.Generator,
+    fps: float | None = None,
+) -> tuple[pd.DataFrame, pd.DataFrame]:
+    """Tracks and detections tables from known centres (for simulations, tests, benchmarks).
+
+    times (T,) s; positions: ball -> (T,2) mm (NaN rows = not seen); Gaussian noise of
+    ``sigma_mm`` per coordinate is added, and ``sx_mm``/``sy_mm`` say so. The tracks table is the
+    same samples (velocities NaN): a stand-in for the tracker's smoothed output.
+    """
+    rows = []
+    times = np.asarray(times, dtype=float)
+    frames = np.round(times * fps).astype(int) if fps else np.arange(len(times))
+    for ball, p in positions.items():
+        p = np.asarray(p, dtype=float)
+        ok = np.isfinite(p).all(axis=1)
+        noisy = p + rng.normal(0.0, sigma_mm, size=p.shape)
+        for k in np.flatnonzero(ok):
+            rows.append((int(frames[k]), float(times[k]), str(ball), noisy[k, 0], noisy[k, 1]))
+    det = pd.DataFrame(rows, columns=["frame", "t_s", "ball", "x_mm", "y_mm"])
+    det["sx_mm"] = sigma_mm
+    det["sy_mm"] = sigma_mm
+    tracks = det.assign(vx_mm_s=np.nan, vy_mm_s=np.nan, visible=1)
+    tracks = tracks[["frame", "t_s", "ball", "x_mm", "y_mm", "vx_mm_s", "vy_mm_s", "sx_mm", "sy_mm", "visible"]]
+    return tracks, det
+
+
+def _e_t(core: dict) -> np.ndarray:
+    return np.array([core["e"], core["t"]])

@@ -318,23 +318,11 @@ def _move_start_guess(t, xy, sig, s: PhysicsSettings):
     return x[0:2], x[2:4], x[4:6], x[6], x[7]
 
 
-def fit_chain(
-    t: np.ndarray,
-    xy: np.ndarray,
-    sig: np.ndarray,
-    lay: ChainLayout,
-    s: PhysicsSettings,
-) -> ChainFit:
-    """Fit a ball's chain to samples ``t`` (T,) s, ``xy`` (T,2) mm with sigmas ``sig`` (T,2) mm.
-
-    Samples inside a break's guard are left out. Each move segment is first fitted on its own
-    (multi-start on the roll time); the chain is then fitted as a whole with continuous
-    positions. Covariance: (J^T J)^-1 times the reduced chi^2 (floored, see settings).
-    """
-    used = used_mask(t, lay)
-    tu, xyu, sgu = t[used], xy[used], sig[used]
+def _chain_start(tu, xyu, sgu, xy, lay: ChainLayout, s: PhysicsSettings) -> np.ndarray:
+    """Start values of a chain from independent fits of its segments."""
     x0 = np.zeros(lay.n_par)
-    edges = np.concatenate([[lay.t_start], lay.break_init, [t[-1] + 1e-9]])
+    t = tu
+    edges = np.concatenate([[lay.t_start], lay.break_init, [tu[-1] + 1e-9]])
     prev_end = None
     for k in range(lay.n_seg):
         m = (tu >= edges[k]) & (tu < edges[k + 1]) if k < lay.n_seg - 1 else (tu >= edges[k])
@@ -358,18 +346,44 @@ def fit_chain(
             x0[0:2] = p0
         x0[o : o + 6] = np.concatenate([v0, a, [tr, ar]])
     x0[lay.break_offset : lay.break_offset + lay.n_seg - 1] = lay.break_init
+    return x0
+
+
+def fit_chain(
+    t: np.ndarray,
+    xy: np.ndarray,
+    sig: np.ndarray,
+    lay: ChainLayout,
+    s: PhysicsSettings,
+    x_init: np.ndarray | None = None,
+) -> ChainFit:
+    """Fit a ball's chain to samples ``t`` (T,) s, ``xy`` (T,2) mm with sigmas ``sig`` (T,2) mm.
+
+    Samples inside a break's guard are left out. Each move segment is first fitted on its own
+    (grid on the roll time) unless ``x_init`` is given; the chain is then fitted as a whole with continuous
+    positions. Covariance: (J^T J)^-1 times the reduced chi^2 (floored, see settings).
+    """
+    used = used_mask(t, lay)
+    tu, xyu, sgu = t[used], xy[used], sig[used]
+    if x_init is None:
+        x0 = _chain_start(tu, xyu, sgu, xy, lay, s)
+    else:
+        x0 = np.asarray(x_init, dtype=float).copy()
     lo, hi = _bounds(lay, t[-1], s)
     x0 = np.clip(x0, lo, hi)
     res = least_squares(
         _residuals, x0, bounds=(lo, hi), args=(lay, tu, xyu, sgu, s),
         loss=s.loss, f_scale=s.f_scale, x_scale="jac", max_nfev=400,
     )
-    J = res.jac
+    J = np.asarray(res.jac)
     n_data = 2 * len(tu)
-    dof = max(n_data - lay.n_par, 1)
+    free = res.active_mask == 0  # parameters held at a bound count as known (conditional cov)
+    dof = max(n_data - int(free.sum()), 1)
     chi2 = 2.0 * res.cost / dof
     chi2 = max(chi2, s.chi2_floor)
-    cov = np.linalg.pinv(J.T @ J) * chi2
+    cov = np.zeros((lay.n_par, lay.n_par))
+    Jf = J[:, free]
+    cov[np.ix_(free, free)] = np.linalg.pinv(Jf.T @ Jf) * chi2
     P, _, _ = chain_eval(res.x, lay, tu)
     rms = float(np.sqrt(np.mean(np.sum((P - xyu) ** 2, axis=1)))) if len(tu) else float("nan")
     return ChainFit(lay, res.x, cov, rms, int(len(tu)), float(chi2), t, xy, used)

@@ -48,6 +48,10 @@ class PhysicsSettings:
     rest_speed_z: float = 4.0
     #: Window of the local speed fit (s); at least 5 samples. Design choice.
     speed_window_s: float = 0.05
+    #: A resting ball starts to move when it is faster than the rest speed for a whole speed
+    #: window and has moved this many position sigmas over it. Design choice (false-alarm
+    #: probability of a Gaussian 8-sigma excursion is negligible).
+    onset_sigmas: float = 8.0
 
     # -- contact candidates -----------------------------------------------------------------
     gap_margin_mm: float = 3.0
@@ -58,12 +62,15 @@ class PhysicsSettings:
 
     # -- kinematic evidence -----------------------------------------------------------------
     side_window_s: float = 0.08
+    #: ... but at least this many frame periods on each side (low frame rates). Design choice.
+    side_window_frames: float = 8.0
     min_side_points: int = 3
     #: Minimum velocity jump of a contact (mm/s). The truth convention of our outside test
     #: footage calls a contact significant at >= 30 mm/s normal change; we accept a bit lower.
     dv_min_mm_s: float = 20.0
-    #: Velocity jump must exceed this many standard errors. Design choice (false-alarm rate
-    #: ~1e-6 per candidate for a Gaussian test).
+    #: Velocity jump must exceed this many standard errors (for ball-ball: on one ball, or
+    #: combined in quadrature over both). Design choice (false-alarm rate ~1e-6 per candidate
+    #: for a Gaussian test).
     dv_z: float = 5.0
 
     # -- samples left out around a contact ---------------------------------------------------
@@ -75,6 +82,14 @@ class PhysicsSettings:
     guard_cushion_s: float = 0.004
     #: Cue-tip contact lasts ~1 ms (from memory); guard at a strike (s).
     guard_strike_s: float = 0.002
+
+    # -- model error added to the propagated restitution sigma -------------------------------
+    #: A real contact is not instantaneous (cushion: a few ms, from memory; ball-ball ~0.3 ms,
+    #: Hertz estimate in REFERENCES.md) and a ball can hop briefly after it, so cloth friction
+    #: acts on an unmodelled schedule for about this long (s): each sliding ball's velocity just
+    #: after the contact is uncertain by mu_s g times it.
+    model_time_cushion_s: float = 0.0015
+    model_time_ball_s: float = 0.0003
 
     # -- motion-model priors (weak; keep parameters defined when data say nothing) -----------
     #: Ball-cloth sliding friction, typical 0.2, range 0.15-0.4 (Physics of Pool FAQ, CSU).
@@ -88,6 +103,16 @@ class PhysicsSettings:
     mu_r_max: float = 0.15
     #: Upper bound of the fitted sliding deceleration / g. Design choice (2x the published max).
     mu_s_max: float = 0.8
+
+    #: Second pass: every slide phase of the shot shares the cloth's mu_s and every roll phase its
+    #: mu_r (one cloth, one ball set): the pass-1 shot estimates become priors with these relative
+    #: floors on their sigma (design choice: allows ball-to-ball and speed dependence of a few %).
+    shot_mu_s_rel_sigma: float = 0.05
+    shot_mu_r_rel_sigma: float = 0.25
+    #: Without a usable pass-1 estimate the published typical values are used with these sigmas
+    #: (range half-widths, Physics of Pool FAQ ranges in feltlab.standards).
+    fallback_mu_s_sigma: float = 0.1
+    fallback_mu_r_sigma: float = 0.005
 
     # -- robust fitting ----------------------------------------------------------------------
     #: scipy.optimize.least_squares loss and scale (in standard errors). Design choice: quadratic

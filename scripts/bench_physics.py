@@ -1,0 +1,208 @@
+"""Accuracy of the physics stage on simulated shots (prints figures, asserts nothing).
+
+Shots of mixed kinds (cut shots at 0-70 degrees with follow, draw, stun and side; banks off one or
+more cushions; three-ball shots; some with the cue ball resting before the strike) are simulated
+with :mod:`physics.simulate`, sampled at a frame rate with a random sub-frame phase, given
+Gaussian position noise of 0.2-0.5 mm, and analysed with :func:`physics.pipeline.analyze_tracks`.
+Reported: contacts found / missed / false, restitution errors by kind and frame rate, fraction of
+truths within 2 reported sigmas, contact-time error in frames, sliding-friction error.
+
+usage: python scripts/bench_physics.py [--n 36] [--fps 60,120,240] [--seed 1]
+"""
+from __future__ import annotations
+
+import argparse
+import math
+import time
+
+import numpy as np
+
+from feltlab.standards import table_preset
+from physics.pipeline import analyze_tracks, tables_from_positions
+from physics.simulate import BallInit, SimParams, simulate
+
+TABLE = table_preset("pool-9ft")
+R = TABLE.ball.radius_mm
+MASS = TABLE.ball.mass_kg
+#: True contacts whose normal velocity change is below this (mm/s) are optional (not counted as
+#: missed, not false if found). Same convention as the outside footage's truth files.
+SIGNIFICANT_MM_S = 30.0
+
+
+def _inside(p, margin=R + 40):
+    return margin < p[0] < TABLE.length_mm - margin and margin < p[1] < TABLE.width_mm - margin
+
+
+def make_shot(rng: np.random.Generator, i: int):
+    """(balls, params, t_end, label) for shot i (kind cycles through the list)."""
+    kinds = ["cut", "cut", "bank", "three", "cut-rest"]
+    kind = kinds[i % len(kinds)]
+    params = SimParams.for_table(
+        TABLE,
+        e_ball_ball=rng.uniform(0.90, 0.98),
+        e_cushion=rng.uniform(0.6, 0.9),
+        mu_slide=rng.uniform(0.15, 0.3),
+        mu_roll=rng.uniform(0.006, 0.014),
+        mu_ball_ball=rng.choice([0.0, rng.uniform(0.03, 0.07)]),
+    )
+    for _ in range(200):
+        speed = rng.uniform(700, 3500)
+        top = rng.uniform(-1.2, 1.2) * speed / R
+        side = rng.uniform(-0.6, 0.6) * speed / R
+        if kind == "bank":
+            p = np.array([rng.uniform(300, 2240), rng.uniform(250, 1020)])
+            h = rng.uniform(0, 360)
+            balls = [BallInit.struck("cue", *p, speed, h, top_rad_s=top, side_rad_s=side)]
+            if _inside(p):
+                return balls, params, 3.0, kind
+            continue
+        obj = np.array([rng.uniform(400, 2140), rng.uniform(300, 970)])
+        th = rng.uniform(0, 2 * math.pi)
+        phi = math.radians(rng.uniform(0, 70)) * rng.choice([-1, 1])
+        ghost = obj - 2 * R * np.array([math.cos(th), math.sin(th)])
+        h = th + phi
+        dist = rng.uniform(250, 900)
+        cue = ghost - dist * np.array([math.cos(h), math.sin(h)])
+        if not (_inside(cue) and _inside(obj)):
+            continue
+        balls = [BallInit.struck("cue", *cue, speed, math.degrees(h), top_rad_s=top, side_rad_s=side),
+                 BallInit("red", *obj)]
+        if kind == "three":
+            third = np.array([rng.uniform(200, 2340), rng.uniform(200, 1070)])
+            if min(np.hypot(*(third - cue)), np.hypot(*(third - obj))) < 4 * R or not _inside(third):
+                continue
+            balls.append(BallInit("yellow", *third))
+        return balls, params, 3.0, kind
+    raise RuntimeError("could not place a shot")
+
+
+def run_shot(balls, params, t_end, fps, sigma, rng, rest_before_s=0.0):
+    res = simulate(balls, params, t_end)
+    dt = 1.0 / fps
+    t0 = rng.uniform(0, dt)
+    times = np.arange(t0 - rest_before_s, t_end, dt)
+    st = res.state_at(np.clip(times, 0, t_end))
+    pos = {}
+    for k, bid in enumerate(res.ball_ids):
+        p = st.pos[:, k].copy()
+        if rest_before_s > 0:
+            p[times < 0] = [balls[k].x_mm, balls[k].y_mm]
+        pos[bid] = p
+    tracks, det = tables_from_positions(times, pos, sigma, rng, fps)
+    out = analyze_tracks(tracks, det, TABLE, R, MASS, fps)
+    return res, out
+
+
+def significant(c) -> bool:
+    if c.micro:
+        return False
+    if c.kind == "ball-ball":
+        dv = (c.vb_post - c.vb_pre) @ c.normal
+    else:
+        dv = (c.va_post - c.va_pre) @ c.normal
+    return abs(dv) >= SIGNIFICANT_MM_S
+
+
+def match(res, out, fps):
+    """Pairs (true contact, found row) within 2 frame periods; missed; false."""
+    found = out.contacts
+    used = set()
+    pairs, missed = [], []
+    for c in res.contacts:
+        best, bd = None, 2.0 / fps
+        for j, r in found.iterrows():
+            if j in used or r.kind != c.kind:
+                continue
+            if c.kind == "ball-ball":
+                if {r.ball_a, r.ball_b} != {c.ball_a, c.ball_b}:
+                    continue
+            elif r.ball_a != c.ball_a or r.cushion != c.cushion:
+                continue
+            d = abs(r.t_s - c.t_s)
+            if d < bd:
+                best, bd = j, d
+        if best is not None:
+            used.add(best)
+            pairs.append((c, found.loc[best]))
+        elif significant(c):
+            missed.append(c)
+    # a found contact matching an optional (insignificant) truth is not false
+    false = [found.loc[j] for j in found.index if j not in used]
+    return pairs, missed, false
+
+
+def _details(res, out) -> None:
+    import pandas as pd
+
+    pd.set_option("display.width", 250)
+    pd.set_option("display.max_columns", 40)
+    for c in res.contacts:
+        print(f"TRUE {c.t_s:.5f} {c.kind} {c.ball_a} {c.ball_b or c.cushion} e={c.e_measured:.4f} "
+              f"vin={c.speed_in_mm_s:.0f} va {c.va_pre.round(1)} -> {c.va_post.round(1)}"
+              + (f" vb {c.vb_pre.round(1)} -> {c.vb_post.round(1)}" if c.vb_pre is not None else ""))
+    print(out.contacts[["t_s", "kind", "ball_a", "ball_b", "cushion", "e", "e_sigma", "va_in_x_mm_s",
+                        "va_in_y_mm_s", "va_out_x_mm_s", "va_out_y_mm_s", "vb_out_x_mm_s",
+                        "vb_out_y_mm_s", "a_phase_in"]])
+    print(out.segments[["ball", "segment", "phase", "t0_s", "t1_s", "mu", "mu_sigma", "n_points", "rms_mm"]])
+    print([(round(e.t_s, 4), e.kind, e.balls) for e in res.events])
+
+
+def main() -> None:
+    ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
+    ap.add_argument("--n", type=int, default=36)
+    ap.add_argument("--fps", default="60,120,240")
+    ap.add_argument("--seed", type=int, default=1)
+    ap.add_argument("--verbose", action="store_true")
+    ap.add_argument("--only", type=int, default=None, help="run one shot index and print details")
+    a = ap.parse_args()
+    fps_list = [float(f) for f in a.fps.split(",")]
+    stats = {f: dict(bb=[], bc=[], z=[], dt=[], mu=[], missed=0, false=0, n=0, time=0.0) for f in fps_list}
+    for i in range(a.n) if a.only is None else [a.only]:
+        balls, params, t_end, kind = make_shot(np.random.default_rng([a.seed, i]), i)
+        for fps in fps_list:
+            rng = np.random.default_rng([a.seed, i, int(fps)])
+            sigma = rng.uniform(0.2, 0.5)
+            rest = 0.1 if kind == "cut-rest" else 0.0
+            t0 = time.perf_counter()
+            res, out = run_shot(balls, params, t_end, fps, sigma, rng, rest)
+            s = stats[fps]
+            s["time"] += time.perf_counter() - t0
+            pairs, missed, false = match(res, out, fps)
+            s["missed"] += len(missed)
+            s["false"] += len(false)
+            s["n"] += sum(significant(c) for c in res.contacts)
+            for c, r in pairs:
+                if not significant(c) or abs(c.speed_in_mm_s) < 150:
+                    continue
+                err = r.e - c.e_measured
+                (s["bb"] if c.kind == "ball-ball" else s["bc"]).append(err)
+                s["z"].append(abs(err) / r.e_sigma if r.e_sigma > 0 else np.inf)
+                s["dt"].append((r.t_s - c.t_s) * fps)
+            if np.isfinite(out.mu_s):
+                s["mu"].append(out.mu_s / params.mu_slide - 1)
+            if a.only is not None:
+                _details(res, out)
+            if a.verbose:
+                print(f"shot {i:2d} {kind:8s} fps {fps:5.0f} sigma {sigma:.2f}: "
+                      f"{len(pairs)} matched, {len(missed)} missed, {len(false)} false; "
+                      + " ".join(f"{c.kind[5:7]}:{r.e - c.e_measured:+.4f}({r.e_sigma:.4f})" for c, r in pairs))
+                for c in missed:
+                    print(f"    MISSED {c.kind} {c.ball_a} {c.ball_b or c.cushion} t={c.t_s:.4f} vin={c.speed_in_mm_s:.0f}")
+                for r in false:
+                    print(f"    FALSE {r.kind} {r.ball_a} {r.ball_b or r.cushion} t={r.t_s:.4f} e={r.e:.3f}")
+    print(f"{a.n} simulated shots per frame rate; noise 0.2-0.5 mm; pool ball R = {R} mm")
+    print("fps   true  missed false | bb e: n  med|err|  p90    | cushion e: n  med|err|  p90  "
+          "| within 2 sigma | |dt| med/p90 (frames) | mu_s med|rel err| | s/shot")
+    for fps, s in stats.items():
+        bb, bc = np.abs(s["bb"]), np.abs(s["bc"])
+        z = np.array(s["z"])
+        dtf = np.abs(s["dt"])
+        mu = np.abs(s["mu"])
+        q = lambda v, p: float(np.percentile(v, p)) if len(v) else float("nan")
+        print(f"{fps:4.0f} {s['n']:6d} {s['missed']:6d} {s['false']:5d} | {len(bb):8d} {q(bb,50):8.4f} {q(bb,90):7.4f} "
+              f"| {len(bc):11d} {q(bc,50):8.4f} {q(bc,90):6.4f} | {np.mean(z < 2) if len(z) else float('nan'):14.3f} "
+              f"| {q(dtf,50):6.3f} / {q(dtf,90):6.3f}        | {q(mu,50):17.3f} | {s['time'] / a.n:6.2f}")
+
+
+if __name__ == "__main__":
+    main()
