@@ -20,8 +20,9 @@ EXIT_CLIP_FAILED = 1
 EXIT_SPEC_FAILED = 3
 
 
-def analyze_settings(table: str | None):
-    """The single-clip analyser's settings, with ``table`` set when given (preset name or alias)."""
+def analyze_settings(table: str | None, calib: Path | None = None):
+    """The single-clip analyser's settings, with ``table`` (preset name or alias) and ``calib``
+    (manual calibration file used for every clip) set when given."""
     from feltlab.standards import table_preset
 
     try:
@@ -29,18 +30,23 @@ def analyze_settings(table: str | None):
     except ImportError as exc:
         raise FeltlabError(f"the single-clip analyser is not available ({exc}); reinstall feltlab",
                            stage="batch") from None
-    if table is None:
-        return AnalyzeSettings()
-    try:
-        preset = table_preset(table)
-    except ValueError as exc:
-        raise FeltlabError(str(exc), stage="input") from None
-    names = {f.name for f in dataclasses.fields(AnalyzeSettings)} if dataclasses.is_dataclass(AnalyzeSettings) \
-        else set()
-    for key in ("table", "table_preset", "table_name"):
-        if key in names:
-            return AnalyzeSettings(**{key: preset.name})
-    raise FeltlabError("this version of the analyser takes no table setting; drop --table", stage="batch")
+    names = {f.name for f in dataclasses.fields(AnalyzeSettings)}
+    kw: dict = {}
+    if table is not None:
+        try:
+            kw["table"] = table_preset(table).name
+        except ValueError as exc:
+            raise FeltlabError(str(exc), stage="input") from None
+    if calib is not None:
+        if not Path(calib).is_file():
+            raise FeltlabError(f"calibration file {calib} does not exist; check the path (or omit --calib)",
+                               stage="input")
+        kw["calib"] = str(Path(calib).resolve())
+    missing = set(kw) - names
+    if missing:
+        raise FeltlabError(f"this version of the analyser has no {', '.join(sorted(missing))} setting; "
+                           "drop that option", stage="batch")
+    return AnalyzeSettings(**kw)
 
 
 @click.command(name="batch")
@@ -53,11 +59,13 @@ def analyze_settings(table: str | None):
               help="Run on an existing dask.distributed cluster at tcp://HOST:PORT (needs feltlab[cluster]); "
                    "its workers must see FOLDER and OUT at the same paths.")
 @click.option("--table", default=None, metavar="PRESET", help="Table preset for every clip, e.g. pool-9ft, snooker, carom.")
+@click.option("--calib", type=click.Path(path_type=Path), default=None, metavar="FILE",
+              help="Manual calibration (TOML) for every clip, e.g. a bench camera filming part of a table.")
 @click.option("--spec", "spec_path", type=click.Path(path_type=Path), default=None, metavar="SPEC.toml",
               help="Acceptance bands to judge the series against (see clips/example_spec.toml).")
 @click.option("--quiet", is_flag=True, help="No progress bar, only the summary lines.")
 def command(folder: Path, out_dir: Path, workers: int | None, scheduler: str | None, table: str | None,
-            spec_path: Path | None, quiet: bool) -> None:
+            calib: Path | None, spec_path: Path | None, quiet: bool) -> None:
     """Analyse every video clip below FOLDER; skip clips already finished with the same settings.
 
     Writes failures.csv, all_contacts.csv/.parquet, series.csv, series.html and
@@ -70,7 +78,7 @@ def command(folder: Path, out_dir: Path, workers: int | None, scheduler: str | N
     from feltlab.batch.spec import load_spec
 
     spec = load_spec(spec_path) if spec_path is not None else None
-    settings = analyze_settings(table)
+    settings = analyze_settings(table, calib)
     show = not quiet and sys.stderr.isatty()
     try:
         report = run_batch(folder, out_dir, settings, workers=workers or os.cpu_count(), scheduler=scheduler,
