@@ -239,12 +239,12 @@ def analyze_clip(clip_path, out_dir, settings: AnalyzeSettings | None = None, pr
     if table is None:
         table = cal.table if cal is not None else _preset(DEFAULT_TABLE)
     if cal is not None:
-        log.info("calibration: from %s (%s), residual %.2f px", settings.calib, cal.method, cal.residual_px)
+        log.info("calibration: read from %s (%s)", settings.calib, cal.method)
     tr = _track(clip, table, cal, settings, progress)
     timings["track_s"] = time.perf_counter() - t
     cal = tr.calibration
-    log.info("calibration: %s, residual %.2f px / %.2f mm, %.3f px/mm", cal.method, cal.residual_px,
-             cal.residual_mm, cal.px_per_mm)
+    log.info("calibration: %s, residual %s px / %s mm, %.3f px/mm", cal.method, _fmt(cal.residual_px, None),
+             _fmt(cal.residual_mm, None), cal.px_per_mm)
     for w in getattr(tr, "warnings", None) or []:
         warnings.append(f"tracking: {w}")
         log.warning("tracking: %s", w)
@@ -258,7 +258,7 @@ def analyze_clip(clip_path, out_dir, settings: AnalyzeSettings | None = None, pr
     ph = _physics(tr, table, radius, mass, settings)
     timings["physics_s"] = time.perf_counter() - t
     contacts = ph.contacts
-    log.info("physics: %d contacts (%d ball-ball, %d ball-cushion); mu_s %s, mu_r %s", len(contacts),
+    log.info("physics: %d contact(s) (%d ball-ball, %d ball-cushion); mu_s %s, mu_r %s", len(contacts),
              int((contacts["kind"] == "ball-ball").sum()) if len(contacts) else 0,
              int((contacts["kind"] == "ball-cushion").sum()) if len(contacts) else 0,
              _fmt(ph.mu_s, ph.mu_s_sigma), _fmt(ph.mu_r, ph.mu_r_sigma))
@@ -278,7 +278,7 @@ def analyze_clip(clip_path, out_dir, settings: AnalyzeSettings | None = None, pr
 def _fmt(v, s) -> str:
     from feltlab.outputs.report import pm
 
-    return pm(v, s)
+    return pm(v, s, None if s is not None else 2)
 
 
 def write_outputs(folder: Path, *, clip: Path, sha: str, tr, ph, table: TablePreset, mass: float, ident: dict,

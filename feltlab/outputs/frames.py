@@ -28,7 +28,7 @@ import pandas as pd
 from PIL import Image, ImageDraw, ImageFont
 
 from feltlab.errors import FeltlabError
-from feltlab.outputs.style import CONTACT_RGB, ball_colours, ball_order, bgr
+from feltlab.outputs.style import CONTACT_RGB, ball_colours, ball_order, bgr, decimals_for
 
 #: Below this speed (mm/s) a ball gets no velocity arrow (it is at rest within
 #: tracking noise; ~1 mm/frame at 30 fps).
@@ -120,7 +120,7 @@ def e_text(e: float, s: float) -> str:
         return "e = n/a"
     if s is None or not np.isfinite(s) or s <= 0:
         return f"e = {e:.3f}"
-    d = max(2, min(4, 1 - int(math.floor(math.log10(s)))))
+    d = decimals_for(s)
     return f"e = {e:.{d}f} ± {s:.{d}f}"
 
 

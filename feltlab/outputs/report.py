@@ -18,6 +18,7 @@ import numpy as np
 import pandas as pd
 
 from feltlab.outputs.plots import departure_angles
+from feltlab.outputs.style import decimals_for
 
 TEMPLATE_DIR = Path(__file__).resolve().parents[1] / "templates"
 TEMPLATE = "report.html.j2"
@@ -43,13 +44,13 @@ def ms(v_mm_s) -> str:
 
 
 def pm(value, sigma, digits: int | None = None) -> str:
-    """'0.936 ± 0.010', decimals from the sigma's first significant digit (2-4)."""
+    """'0.936 ± 0.010': decimals from the sigma (:func:`feltlab.outputs.style.decimals_for`)."""
     v, s = _f(value), _f(sigma)
     if not math.isfinite(v):
         return "n/a"
     if not (math.isfinite(s) and s > 0):
         return f"{v:.{digits or 3}f}"
-    d = digits if digits is not None else max(2, min(4, 1 - int(math.floor(math.log10(s)))))
+    d = digits if digits is not None else decimals_for(s)
     return f"{v:.{d}f} ± {s:.{d}f}"
 
 

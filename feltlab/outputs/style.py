@@ -96,3 +96,19 @@ def mpl(rgb: tuple[int, int, int]) -> tuple[float, float, float]:
 def bgr(rgb: tuple[int, int, int]) -> tuple[int, int, int]:
     """RGB -> OpenCV's BGR order."""
     return (int(rgb[2]), int(rgb[1]), int(rgb[0]))
+
+
+def decimals_for(sigma: float) -> int:
+    """Decimals that show ``sigma`` to 1 significant digit (2 when it starts with 1 or 2), clipped to 2..4.
+
+    >>> decimals_for(0.0051), decimals_for(0.018), decimals_for(0.2)
+    (3, 3, 2)
+    """
+    import math
+
+    if not (sigma > 0 and math.isfinite(sigma)):
+        return 3
+    exp = math.floor(math.log10(sigma))
+    lead = sigma / 10 ** exp
+    d = -exp + (1 if lead < 3 else 0)
+    return max(2, min(4, d))
