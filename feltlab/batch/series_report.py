@@ -369,6 +369,30 @@ def _fmt(v, digits: int = 4) -> str:
     return f"{f:.{digits}f}"
 
 
+def _pm(v, s) -> str:
+    """``v ± s`` with s to two significant digits and v to the same decimals ("–" when missing).
+
+    >>> _pm(0.007021, 4.71e-05), _pm(0.9451, float("nan"))
+    ('0.007021 ± 0.000047', '0.9451')
+    """
+    try:
+        v, s = float(v), float(s)
+    except (TypeError, ValueError):
+        return "–"
+    if not math.isfinite(v):
+        return "–"
+    if not (math.isfinite(s) and s > 0):
+        return _fmt(v)
+    d = min(max(0, 1 - math.floor(math.log10(s))), 9)
+    return f"{v:.{d}f} ± {s:.{d}f}"
+
+
+def _range(lo, hi, digits: int = 4) -> str:
+    """``lo–hi`` or "–" when either end is missing."""
+    a, b = _fmt(lo, digits), _fmt(hi, digits)
+    return "–" if "–" in (a, b) else f"{a}–{b}"
+
+
 def write_series(out_dir: Path, outcomes, spec: Spec | None = None, confidence: float = CONFIDENCE,
                  settings: dict | None = None, failures: list | None = None) -> SeriesOutputs:
     """Compute the series statistics from ``outcomes`` and write every series file."""
@@ -436,6 +460,7 @@ def render_html(res: SeriesResult, data: SeriesData, images, outcomes, settings:
     env = jinja2.Environment(loader=jinja2.PackageLoader("feltlab", "templates"),
                              autoescape=jinja2.select_autoescape(["html", "j2"]))
     env.filters["f"] = _fmt
+    env.globals.update(pm=_pm, rng=_range)
     pct = f"{res.confidence:.0%}"
     kinds = []
     for _, r in res.kinds.iterrows():
@@ -457,7 +482,7 @@ def render_html(res: SeriesResult, data: SeriesData, images, outcomes, settings:
 def _kind_sentence(r: pd.Series, pct: str) -> str:
     if not r["n"]:
         return ""
-    s = f"{int(r['n'])} {r['kind']} contacts: mean e = {_fmt(r['e_mean'])}"
+    s = f"{int(r['n'])} {r['kind']} contact{'s' if r['n'] != 1 else ''}: mean e = {_fmt(r['e_mean'])}"
     if math.isfinite(r["e_ci_low"]):
         s += f" ({pct} CI {_fmt(r['e_ci_low'])}–{_fmt(r['e_ci_high'])}, SD {_fmt(r['e_sd'])})"
     if math.isfinite(r["e_combined"]):
