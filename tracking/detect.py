@@ -343,9 +343,60 @@ def _find_candidates(fg: np.ndarray, radius_px: float, settings: DetectionSettin
     return np.array(kept, float).reshape(-1, 3)
 
 
+def cluster_candidates(image: np.ndarray, fg_mask: np.ndarray, radius_px: float,
+                       settings: DetectionSettings) -> np.ndarray:
+    """Ball centres (N,3: x, y, votes) inside one blob of touching balls (full-res crop coords).
+
+    Circle Hough transform with the known radius (Duda & Hart, Commun. ACM
+    15:11, 1972): every strong colour edge votes for the two points one
+    radius away along its gradient; the votes pile up at ball centres, also
+    where the blob has no background between balls.
+    """
+    img = image.astype(np.float32)
+    gx = np.stack([cv2.Sobel(img[..., k], cv2.CV_32F, 1, 0, ksize=3) for k in range(3)], axis=-1)
+    gy = np.stack([cv2.Sobel(img[..., k], cv2.CV_32F, 0, 1, ksize=3) for k in range(3)], axis=-1)
+    mag2 = gx * gx + gy * gy
+    best = np.argmax(mag2, axis=2)
+    ii, jj = np.indices(best.shape)
+    gxb, gyb = gx[ii, jj, best], gy[ii, jj, best]
+    mag = np.sqrt(gxb * gxb + gyb * gyb)
+    grown = cv2.dilate(fg_mask.astype(np.uint8), np.ones((5, 5), np.uint8)) > 0
+    sel = grown & (mag > 0.2 * np.percentile(mag[grown], 99) if grown.any() else grown)
+    ys, xs = np.nonzero(sel)
+    if len(xs) == 0:
+        return np.zeros((0, 3))
+    ux, uy = gxb[ys, xs] / mag[ys, xs], gyb[ys, xs] / mag[ys, xs]
+    acc = np.zeros(best.shape, np.float32)
+    h, w = best.shape
+    for sgn in (1.0, -1.0):
+        cx = np.round(xs + sgn * radius_px * ux).astype(int)
+        cy = np.round(ys + sgn * radius_px * uy).astype(int)
+        ok = (cx >= 0) & (cx < w) & (cy >= 0) & (cy < h)
+        np.add.at(acc, (cy[ok], cx[ok]), 1.0)
+    acc = cv2.GaussianBlur(acc, (0, 0), 1.0)
+    nr = max(1, int(round(settings.nms_radius * radius_px)))
+    se = cv2.getStructuringElement(cv2.MORPH_ELLIPSE, (2 * nr + 1, 2 * nr + 1))
+    peaks = (acc >= cv2.dilate(acc, se) - 1e-6) & fg_mask.astype(bool) & (acc > 0)
+    ys, xs = np.nonzero(peaks)
+    # a full ball boundary gives ~2 pi r votes before blurring; keep >= 1/4 of
+    # the peak of a blurred full ring (blur spreads a point over ~2 pi sigma^2).
+    vmin = 0.25 * (2 * np.pi * radius_px) / (2 * np.pi * 1.0 ** 2)
+    cand = sorted([(float(x), float(y), float(acc[y, x])) for y, x in zip(ys, xs) if acc[y, x] >= vmin],
+                  key=lambda t: -t[2])
+    kept: list[tuple[float, float, float]] = []
+    for c in cand:
+        if all((c[0] - k[0]) ** 2 + (c[1] - k[1]) ** 2 > (settings.nms_radius * radius_px) ** 2 for k in kept):
+            kept.append(c)
+    return np.array(kept, float).reshape(-1, 3)
+
+
 # --------------------------------------------------------------------------- refinement
-def _edge_points(dsm: np.ndarray, centre: np.ndarray, r_exp: float, settings: DetectionSettings):
-    """Steepest drop of the smoothed foreground ``dsm`` along rays; returns (pts, strength, valid)."""
+def _edge_points(dsm: np.ndarray, centre: np.ndarray, r_exp: float, settings: DetectionSettings,
+                 rising: bool = False):
+    """Steepest drop (or rise) of the smoothed image ``dsm`` along rays; returns (pts, strength, valid, end).
+
+    ``end``: the profile value at the far end of each ray.
+    """
     n = settings.n_rays
     th = np.linspace(0, 2 * np.pi, n, endpoint=False).astype(np.float32)
     s = np.arange(settings.ray_min * r_exp, settings.ray_max * r_exp + 1e-6, settings.ray_step_px,
@@ -356,6 +407,8 @@ def _edge_points(dsm: np.ndarray, centre: np.ndarray, r_exp: float, settings: De
     inside = (mx >= 0) & (mx <= w - 1) & (my >= 0) & (my <= h - 1)
     prof = cv2.remap(dsm, mx, my, cv2.INTER_LINEAR, borderMode=cv2.BORDER_REPLICATE)
     drop = -(prof[:, 2:] - prof[:, :-2]) / (2 * settings.ray_step_px)  # -d/ds at s[1:-1]
+    if rising:
+        drop = -drop
     # Prefer drops near the expected radius (soft prior, sd 0.35 r).
     sm = s[1:-1]
     prior = np.exp(-0.5 * ((sm - r_exp) / (0.35 * r_exp)) ** 2)
@@ -363,22 +416,64 @@ def _edge_points(dsm: np.ndarray, centre: np.ndarray, r_exp: float, settings: De
     j = np.argmax(score, axis=1)
     j = np.clip(j, 1, len(sm) - 2)
     idx = np.arange(n)
-    y0, y1, y2 = drop[idx, j - 1], drop[idx, j], drop[idx, j + 1]
-    den = y0 - 2 * y1 + y2
-    with np.errstate(divide="ignore", invalid="ignore"):
-        off = np.where(np.abs(den) > 1e-9, 0.5 * (y0 - y2) / den, 0.0)
-    off = np.clip(off, -1, 1)
-    rad = sm[j] + off * settings.ray_step_px
-    strength = y1
+    strength = drop[idx, j]
+    # Edge position: first moment of the drop over the contiguous run around
+    # the peak where it exceeds 0.8 of the peak. For a sharp edge this is the
+    # peak; for a motion-blurred edge (a ramp as long as the blur) it is the
+    # middle of the ramp, i.e. the half-coverage contour.
+    half = 0.8 * strength[:, None]
+    above = drop >= half
+    k = np.arange(len(sm))[None, :]
+    # contiguous run containing j: no gap (below half) between k and j
+    below = ~above
+    left_gap = np.where(below & (k < j[:, None]), k, -1).max(axis=1)
+    right_gap = np.where(below & (k > j[:, None]), k, len(sm)).min(axis=1)
+    run = (k > left_gap[:, None]) & (k < right_gap[:, None])
+    wgt = np.where(run, drop - half, 0.0)
+    rad = (wgt * sm[None, :]).sum(axis=1) / np.maximum(wgt.sum(axis=1), 1e-12)
     valid = inside.all(axis=1) & (strength > 0)
     pts = np.column_stack([centre[0] + np.cos(th) * rad, centre[1] + np.sin(th) * rad])
-    return pts, np.clip(strength, 0, None), valid
+    return pts, np.clip(strength, 0, None), valid, prof[:, -3:].mean(axis=1)
+
+
+def _colour_edge_points(img: np.ndarray, centre: np.ndarray, r_exp: float, settings: DetectionSettings,
+                        lo: float = 0.8, hi: float = 1.25):
+    """Strongest colour change (vector derivative of BGR) along rays within [lo, hi] x radius.
+
+    Used where a ray runs into a touching ball: the boundary between two
+    balls is the strongest colour change one radius out (stripe and number
+    boundaries lie further in).
+    """
+    n = settings.n_rays
+    th = np.linspace(0, 2 * np.pi, n, endpoint=False).astype(np.float32)
+    s = np.arange(lo * r_exp, hi * r_exp + 1e-6, settings.ray_step_px, dtype=np.float32)
+    mx = (centre[0] + np.cos(th)[:, None] * s[None, :]).astype(np.float32)
+    my = (centre[1] + np.sin(th)[:, None] * s[None, :]).astype(np.float32)
+    h, w = img.shape[:2]
+    inside = (mx >= 0) & (mx <= w - 1) & (my >= 0) & (my <= h - 1)
+    prof = cv2.remap(img, mx, my, cv2.INTER_LINEAR, borderMode=cv2.BORDER_REPLICATE)  # (n, m, 3)
+    der = (prof[:, 2:] - prof[:, :-2]) / (2 * settings.ray_step_px)
+    mag = np.sqrt((der * der).sum(axis=2))
+    sm = s[1:-1]
+    j = np.clip(np.argmax(mag, axis=1), 1, len(sm) - 2)
+    idx = np.arange(n)
+    y0, y1, y2 = mag[idx, j - 1], mag[idx, j], mag[idx, j + 1]
+    den = y0 - 2 * y1 + y2
+    with np.errstate(divide="ignore", invalid="ignore"):
+        off = np.clip(np.where(np.abs(den) > 1e-9, 0.5 * (y0 - y2) / den, 0.0), -1, 1)
+    rad = sm[j] + off * settings.ray_step_px
+    pts = np.column_stack([centre[0] + np.cos(th) * rad, centre[1] + np.sin(th) * rad])
+    return pts, y1, inside.all(axis=1) & (y1 > 0)
 
 
 def refine_centre(d: np.ndarray, x0: float, y0: float, r_exp: float,
-                  settings: DetectionSettings = DetectionSettings()) -> dict | None:
+                  settings: DetectionSettings = DetectionSettings(), image: np.ndarray | None = None,
+                  threshold_dn: float | None = None) -> dict | None:
     """Sub-pixel silhouette centre near (x0, y0) in foreground-strength image ``d`` (DN).
 
+    With ``image`` (the BGR frame) and ``threshold_dn``, rays that end on
+    other foreground (a touching ball in a cluster) use the image instead:
+    the steepest rise of the colour distance from this ball's own colour.
     Returns dict(x, y, radius, sigma_px, support, fixed_radius) or None when
     the silhouette is not ball-like.
     """
@@ -391,10 +486,20 @@ def refine_centre(d: np.ndarray, x0: float, y0: float, r_exp: float,
         return None
     dsm = cv2.GaussianBlur(patch, (0, 0), settings.edge_smooth_px)
     c = np.array([x0 - xa, y0 - ya], float)
+    own = None
+    if image is not None and threshold_dn is not None:
+        ip = image[ya:yb, xa:xb].astype(np.float32)
     fit = None
     fixed = False
     for it in range(2):
-        pts, stren, valid = _edge_points(dsm, c, r_exp, settings)
+        pts, stren, valid, end = _edge_points(dsm, c, r_exp, settings)
+        if image is not None and threshold_dn is not None:
+            blocked = end > threshold_dn
+            if blocked.any():
+                if own is None:
+                    own = cv2.GaussianBlur(ip, (0, 0), settings.edge_smooth_px)
+                p2, s2, v2 = _colour_edge_points(own, c, r_exp, settings)
+                pts[blocked], stren[blocked], valid[blocked] = p2[blocked], s2[blocked], v2[blocked]
         if valid.sum() < 6:
             return None
         w0 = np.where(valid, stren / (stren[valid].max() + 1e-9), 0.0)
@@ -492,13 +597,36 @@ def detect_frame(image: np.ndarray, calibration: Calibration, settings: Detectio
     fg = np.clip(dcrop / background.threshold_dn - 0.5, 0, 1).astype(np.float32)
     cands = find_candidates(fg, r0, settings)
     thr = background.threshold_dn
+    # Blobs bigger than ~1.7 balls: touching balls; find their centres by Hough voting.
+    mask = (dcrop > thr).astype(np.uint8)
+    n_cc, lab, stats, _ = cv2.connectedComponentsWithStats(mask, connectivity=8)
+    ball_area = np.pi * r0 * r0
+    extra = []
+    for i in range(1, n_cc):
+        if stats[i, cv2.CC_STAT_AREA] < 1.7 * ball_area:
+            continue
+        bx, by, bw, bh = stats[i, :4]
+        m = int(np.ceil(r0)) + 2
+        xa, ya = max(bx - m, 0), max(by - m, 0)
+        xb, yb = min(bx + bw + m, dcrop.shape[1]), min(by + bh + m, dcrop.shape[0])
+        sub_mask = lab[ya:yb, xa:xb] == i
+        hc = cluster_candidates(image[y0 + ya:y0 + yb, x0 + xa:x0 + xb], sub_mask, r0, settings)
+        if len(hc):
+            hc[:, 0] += xa
+            hc[:, 1] += ya
+            inside = lab[np.clip(np.round(cands[:, 1]).astype(int), 0, lab.shape[0] - 1),
+                         np.clip(np.round(cands[:, 0]).astype(int), 0, lab.shape[1] - 1)] == i
+            cands = cands[~inside]
+            extra.append(hc)
+    if extra:
+        cands = np.vstack([cands] + extra)
     found = []
     for cx, cy, sc in cands:
         gx, gy = cx + x0, cy + y0
         if _disc_mean(d, gx, gy, 0.6 * r0) < settings.min_inner_contrast * thr:
             continue  # not a ball-sized patch that differs from the cloth
         r_exp, _, _ = background.lookup(gx, gy)
-        ref = refine_centre(d, gx, gy, r_exp, settings)
+        ref = refine_centre(d, gx, gy, r_exp, settings, image, thr)
         if ref is None:
             continue
         r_exp, ox, oy = background.lookup(ref["x"], ref["y"])
