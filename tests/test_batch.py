@@ -204,9 +204,19 @@ def test_cli_exits_nonzero_when_a_clip_fails(clip_folder: Path, tmp_path: Path,
     assert "2 failed" in res.output and "failures listed in" in res.output
     (clip_folder / "notes.mp4").unlink()
     (clip_folder / "sub" / "cut.mov").unlink()
-    res = CliRunner().invoke(main, ["batch", str(clip_folder), "--out", str(out), "--workers", "1", "--quiet"])
+    # acceptance spec: the stand-in's ball-ball e scatter about 0.93 (8 contacts)
+    ok, bad = tmp_path / "ok.toml", tmp_path / "bad.toml"
+    ok.write_text('[[band]]\nkind = "ball-ball"\ne_min = 0.85\ne_max = 0.99\n')
+    bad.write_text('[[band]]\nkind = "ball-ball"\ne_min = 0.96\ne_max = 0.99\n')
+    res = CliRunner().invoke(main, ["batch", str(clip_folder), "--out", str(out), "--workers", "1", "--quiet",
+                                    "--spec", str(ok)])
     assert res.exit_code == 0, res.output
-    assert "4 already finished" in res.output
+    assert "4 already finished" in res.output and "acceptance: PASS" in res.output
+    res = CliRunner().invoke(main, ["batch", str(clip_folder), "--out", str(out), "--workers", "1", "--quiet",
+                                    "--spec", str(bad)])
+    assert res.exit_code == 3 and "acceptance: FAIL" in res.output
+    verdicts = pd.read_csv(out / "series_spec.csv")
+    assert list(verdicts["verdict"]) == ["FAIL"] and verdicts["n"].iloc[0] == 6  # 3 distinct clips x 2
     # bad input: one line, exit 2
     res = CliRunner().invoke(main, ["batch", str(tmp_path / "nowhere"), "--out", str(out)])
     assert res.exit_code == 2 and "not a folder" in res.output
@@ -461,3 +471,21 @@ def test_publishing_never_duplicates_or_replaces_a_finished_result(tmp_path: Pat
     side = resume.publish(second, out / "c", other)
     assert side != out / "c" and (side / "contacts.csv").read_text() == "second\n"
     assert (out / "c" / "contacts.csv").read_text() == "first\n"
+
+
+def test_hash_cache_skips_rereading_unchanged_clips(clip_folder: Path, tmp_path: Path) -> None:
+    out = tmp_path / "out"
+    run_batch(clip_folder, out, SETTINGS, analyze=fake_analyze, workers=1, series=False)
+    cache = json.loads((out / resume.HASHES_NAME).read_text())
+    key = str((clip_folder / "bench_1.mp4").resolve())
+    assert cache[key][2] == hashlib.sha256((clip_folder / "bench_1.mp4").read_bytes()).hexdigest()
+    # an unchanged size+mtime is trusted: a planted wrong hash makes the clip look new
+    cache[key][2] = "0" * 64
+    (out / resume.HASHES_NAME).write_text(json.dumps(cache))
+    rep = run_batch(clip_folder, out, SETTINGS, analyze=fake_analyze, workers=1, series=False)
+    o = next(o for o in rep.outcomes if o.clip_rel == "bench_1.mp4")
+    assert o.clip_sha256 == "0" * 64 and o.status == "analysed"
+    # touching the file forces a fresh hash: the original finished result is found again
+    os.utime(clip_folder / "bench_1.mp4", ns=(time.time_ns(), time.time_ns()))
+    rep = run_batch(clip_folder, out, SETTINGS, analyze=fake_analyze, workers=1, series=False)
+    assert next(o for o in rep.outcomes if o.clip_rel == "bench_1.mp4").status == "skipped"

@@ -35,6 +35,7 @@ from feltlab.errors import FeltlabError
 MANIFEST_NAME = "batch_manifest.json"
 STAGING_NAME = ".batch-staging"
 LOCK_NAME = ".batch.lock"
+HASHES_NAME = ".batch-hashes.json"
 
 
 def settings_to_dict(settings: Any) -> dict:
@@ -281,3 +282,35 @@ def clear_staging(out_dir: Path, remove_empty: bool = False) -> int:
         except OSError:
             pass
     return n
+
+
+class HashCache:
+    """Clip SHA-256 remembered by absolute path, size and modification time (ns).
+
+    A clip whose size and mtime are unchanged since it was hashed is not read again
+    (the "quick check" rsync and make also rely on; common practice). Touch a file,
+    or delete ``OUT/.batch-hashes.json``, to force a fresh hash.
+    """
+
+    def __init__(self, out_dir: Path) -> None:
+        self.path = Path(out_dir) / HASHES_NAME
+        try:
+            data = json.loads(self.path.read_text(encoding="utf-8"))
+            self.entries: dict[str, list] = data if isinstance(data, dict) else {}
+        except (OSError, ValueError):
+            self.entries = {}
+
+    def sha256(self, path: Path, hasher) -> str:
+        """The file's SHA-256 from the cache when size and mtime match, else ``hasher(path)``."""
+        p = Path(path).resolve()
+        st = p.stat()
+        key = str(p)
+        hit = self.entries.get(key)
+        if isinstance(hit, list) and len(hit) == 3 and hit[0] == st.st_size and hit[1] == st.st_mtime_ns:
+            return str(hit[2])
+        sha = hasher(p)
+        self.entries[key] = [st.st_size, st.st_mtime_ns, sha]
+        return sha
+
+    def save(self) -> None:
+        write_json_atomic(self.path, self.entries)

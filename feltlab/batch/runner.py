@@ -5,7 +5,8 @@ The runner is built around a callable ``analyze(clip_path, out_dir, settings)``
 result files into ``out_dir`` and raises :class:`~feltlab.errors.FeltlabError`
 for a clip it cannot analyse. For every clip the runner
 
-1. hashes the content (SHA-256) and skips it when a finished result with the same
+1. hashes the content (SHA-256; remembered by size and modification time in
+   ``OUT/.batch-hashes.json``) and skips it when a finished result with the same
    content and settings exists (:mod:`feltlab.batch.resume`);
 2. analyses each distinct content once; a second file with the same content
    (a copy) gets a copy of the finished result, its manifest naming the source;
@@ -392,12 +393,20 @@ def run_batch(
     try:
         with resume.OutputLock(out):
             resume.clear_staging(out)
-            shas = {}
+            shas: dict[str, str] = {}
+            cache = resume.HashCache(out)
             for c in clips:
-                shas[c.rel] = _hash_clip(c)
+                try:
+                    shas[c.rel] = cache.sha256(c.path, file_sha256)
+                except OSError as exc:
+                    outcomes[c.rel] = ClipOutcome(c.rel, c.result_rel, "", "failed", stage="read",
+                                                  reason=one_line(f"cannot read the file ({exc.strerror or exc}); "
+                                                                  "check it exists and its permissions"))
                 bar.hashed()
+            cache.save()
             bar.start_clips()
-            tasks, waiting, ready = _plan(clips, shas, out, settings, settings_hash, outcomes)
+            tasks, waiting, ready = _plan([c for c in clips if c.rel in shas], shas, out, settings, settings_hash,
+                                          outcomes)
             for o in outcomes.values():
                 bar.advance(o)
             for copy_clip, src in ready:
@@ -443,13 +452,6 @@ def run_batch(
     finally:
         bar.stop()
     return report
-
-
-def _hash_clip(clip: Clip) -> str:
-    try:
-        return file_sha256(clip.path)
-    except OSError as exc:
-        raise FeltlabError(f"cannot read {clip.path} ({exc.strerror}); check its permissions", stage="discover")
 
 
 def _plan(clips: list[Clip], shas: dict[str, str], out: Path, settings: Any, settings_hash: str,
