@@ -37,6 +37,28 @@ def ensure_clip(clip: Path) -> Path:
     return clip
 
 
+def calibration_from_truth(clip: Path, out: Path) -> Path | None:
+    """Write <out>/<stem>.calibration.toml from the clip's truth camera (None without a truth file)."""
+    from feltlab.render.truth import truth_path_for
+    from feltlab.standards import table_preset
+    from tracking.calibrate import save_calibration
+    from tracking.calibration import Calibration
+    from tracking.camera import CameraModel
+
+    tp = Path(truth_path_for(clip))
+    if not tp.is_file():
+        return None
+    import json
+
+    t = json.loads(tp.read_text(encoding="utf-8"))
+    if "camera" not in t or "K" not in t["camera"] or "preset" not in t.get("table", {}):
+        return None
+    cal = Calibration(camera=CameraModel.from_dict(t["camera"]), table=table_preset(t["table"]["preset"]),
+                      ball_diameter_mm=float(t["ball"]["diameter_mm"]), method="manual")
+    out.mkdir(parents=True, exist_ok=True)
+    return save_calibration(cal, out / f"{clip.stem}.calibration.toml", overwrite=True)
+
+
 def main(argv: list[str] | None = None) -> int:
     ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     ap.add_argument("clip", nargs="?", default=str(ROOT / "clips" / "drill_cut.mp4"))
@@ -54,7 +76,18 @@ def main(argv: list[str] | None = None) -> int:
     try:
         clip = ensure_clip(Path(a.clip))
         t0 = time.perf_counter()
-        res = analyze_clip(clip, Path(a.out) / clip.stem, AnalyzeSettings(), replace=a.replace)
+        try:
+            res = analyze_clip(clip, Path(a.out) / clip.stem, AnalyzeSettings(), replace=a.replace)
+        except FeltlabError as exc:
+            # Automatic calibration can fail on a scene it was not built for; a user would then
+            # calibrate from a file. The demo does that with the scene's known camera, and says so.
+            calib = calibration_from_truth(clip, Path(a.out))
+            if calib is None:
+                raise
+            print(f"demo: automatic analysis failed ({exc});\n"
+                  f"demo: retrying with a calibration file written from the scene's known camera: {calib}")
+            t0 = time.perf_counter()
+            res = analyze_clip(clip, Path(a.out) / clip.stem, AnalyzeSettings(calib=str(calib)), replace=a.replace)
     except FeltlabError as exc:
         print(f"demo: error: {exc}", file=sys.stderr)
         return 2
