@@ -188,6 +188,7 @@ def test_good_clips_once_copies_filled_bad_ones_listed_and_second_run_skips(
     assert set(read_failures(out / "failures.csv")) == {"notes.mp4", "sub/cut.mov"}
 
 
+@pytest.mark.slow  # four CLI runs, each drawing the series plots
 def test_cli_exits_nonzero_when_a_clip_fails(clip_folder: Path, tmp_path: Path,
                                               monkeypatch: pytest.MonkeyPatch) -> None:
     from click.testing import CliRunner
