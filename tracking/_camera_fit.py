@@ -25,7 +25,13 @@ SIDE_ORDER = ("y0", "xL", "yW", "x0")
 
 def camera_from_params(p: np.ndarray, image_size: tuple[int, int], k1: float | None = None,
                        fit_k1: bool = True, fit_k2: bool = False) -> CameraModel:
-    """Build a camera from the parameter vector [f, rvec(3), t(3), (k1), (k2)]."""
+    """Build a camera from the parameter vector [f, rvec(3), t(3), (q1), (q2)].
+
+    q1 = k1 (w / f)^2 and q2 = k2 (w / f)^4 are the radial terms in image units
+    (w: image width): the pixel displacement k1 r_px^3 / f^2 does not change
+    when f does, so focal and distortion are not tied along a valley in
+    which f is free (a near-overhead view).
+    """
     w, h = image_size
     f = p[0]
     K = np.array([[f, 0, (w - 1) / 2.0], [0, f, (h - 1) / 2.0], [0, 0, 1]])
@@ -33,21 +39,23 @@ def camera_from_params(p: np.ndarray, image_size: tuple[int, int], k1: float | N
     i = 7
     kk1 = 0.0 if k1 is None else float(k1)
     kk2 = 0.0
+    a = (f / w) ** 2
     if fit_k1:
-        kk1 = p[i]
+        kk1 = p[i] * a
         i += 1
     if fit_k2:
-        kk2 = p[i]
+        kk2 = p[i] * a * a
     return CameraModel(K=K, dist=[kk1, kk2, 0, 0, 0], R=R, t=p[4:7], image_size=(w, h))
 
 
 def params_from_camera(cam: CameraModel, fit_k1: bool = True, fit_k2: bool = False) -> np.ndarray:
     rvec, _ = cv2.Rodrigues(cam.R)
     p = [cam.K[0, 0], *rvec.ravel(), *cam.t]
+    a = (cam.image_size[0] / cam.K[0, 0]) ** 2
     if fit_k1:
-        p.append(cam.dist[0])
+        p.append(cam.dist[0] * a)
     if fit_k2:
-        p.append(cam.dist[1])
+        p.append(cam.dist[1] * a * a)
     return np.array(p, float)
 
 
@@ -170,9 +178,9 @@ def fit_edges(cam0: CameraModel, groups: list[Group], L: float, W: float,
     lo = np.full_like(p0, -np.inf)
     hi = np.full_like(p0, np.inf)
     lo[0], hi[0] = 0.1 * w, 20.0 * w
-    lo[7], hi[7] = -1.0, 1.0
+    lo[7], hi[7] = -3.0, 3.0
     p0[0] = np.clip(p0[0], lo[0] * 1.01, hi[0] * 0.99)
-    p0[7] = np.clip(p0[7], -0.99, 0.99)
+    p0[7] = np.clip(p0[7], -2.99, 2.99)
     res = least_squares(fun, p0, bounds=(lo, hi), loss="soft_l1", f_scale=loss_scale_px,
                         x_scale="jac", max_nfev=200)
     cam = camera_from_params(res.x[:nk], cam0.image_size, fit_k1=True, fit_k2=fit_k2)
@@ -211,7 +219,7 @@ def fit_points(cam0: CameraModel, px: np.ndarray, xyz_mm: np.ndarray, fit_focal:
         if not fit_focal:
             p[0] = f_fixed
         if not fit_k1:
-            p[7] = k1_fixed
+            return camera_from_params(p[:7], cam0.image_size, k1=k1_fixed, fit_k1=False)
         return camera_from_params(p, cam0.image_size, fit_k1=True)
 
     def fun(q):

@@ -203,8 +203,25 @@ def nose_offset(profile: np.ndarray, step: float, plateau_n: int, settings: Cali
         return None
     k = cand[-1]
     # the plateau must differ from the cloth (else it is cloth again: a ball or mark)
-    if abs(np.median(g[plateau: plateau + plateau_n]) - c0) < max(6 * noise, 4.0):
+    k0 = np.median(g[plateau: plateau + plateau_n])
+    if abs(k0 - c0) < max(6 * noise, 4.0):
         return None
+    if k == i1:
+        # A band narrower than the blur shows as an overshoot beyond the
+        # cushion level without a resolved second edge: mark the far side
+        # of the overshoot as the band's outer edge for the model fit.
+        seg = g[i1: plateau]
+        lo_l, hi_l = min(c0, k0), max(c0, k0)
+        outside = np.maximum(lo_l - seg, seg - hi_l)
+        j = int(np.argmax(outside))
+        if outside[j] > max(4 * noise, 3.0):
+            ext = i1 + j
+            # first sample past the extremum back within the cushion half-way level
+            lvl = 0.5 * (g[ext] + k0)
+            after = np.nonzero((g[ext:plateau + 1] - lvl) * (g[ext] - lvl) <= 0)[0]
+            kk = ext + (int(after[0]) if after.size else 0)
+            if kk > i1:
+                return float(kk), float(absd[kk]), float(i1), plateau + plateau_n
     a, b, c = absd[k - 1], absd[k], absd[k + 1]
     den = a - 2 * b + c
     frac = 0.5 * (a - c) / den if den < 0 else 0.0
@@ -213,7 +230,64 @@ def nose_offset(profile: np.ndarray, step: float, plateau_n: int, settings: Cali
         a1, b1, c1 = absd[i1 - 1], absd[i1], absd[i1 + 1]
         den1 = a1 - 2 * b1 + c1
         inner = i1 + (float(np.clip(0.5 * (a1 - c1) / den1, -0.5, 0.5)) if den1 < 0 else 0.0)
-    return k + float(np.clip(frac, -0.5, 0.5)), float(b), inner
+    return k + float(np.clip(frac, -0.5, 0.5)), float(b), inner, plateau + plateau_n
+
+
+def refine_band_edges(x: np.ndarray, prof: np.ndarray, e1: np.ndarray, e2: np.ndarray, lo: np.ndarray,
+                      hi: np.ndarray, sigma0: float, iters: int = 12) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """Fit two blurred steps (cloth -> band -> cushion top) to many profiles at once.
+
+    Model per profile: g(x) = a0 + a1 Phi((x - e1)/s) + a2 Phi((x - e2)/s),
+    Phi the normal CDF (a step blurred by a Gaussian PSF of width s px). The
+    levels enter linearly and are solved exactly for each trial (e1, e2, s)
+    (variable projection, Golub & Pereyra, SIAM J. Numer. Anal. 10, 1973);
+    (e1, e2, log s) follow Levenberg-Marquardt steps. Unlike gradient peaks,
+    the fitted positions are not pulled together/apart when the band is only
+    a few PSF widths wide. x: (N,) or (P, N) sample positions (px); prof: (P, N); e1, e2:
+    (P,) start positions (px); lo, hi: (P,) fitting window (px).
+    Returns (e1, e2, rms residual) (P,).
+    """
+    from scipy.special import ndtr
+
+    P = prof.shape[0]
+    X = np.broadcast_to(np.asarray(x, float), prof.shape)
+    w = ((X >= lo[:, None]) & (X <= hi[:, None])).astype(float)
+    th = np.column_stack([e1, e2, np.full(P, np.log(sigma0))]).astype(float)
+
+    def resid(t):
+        s = np.exp(t[:, 2])[:, None]
+        A = np.stack([np.ones_like(prof), ndtr((X - t[:, 0:1]) / s), ndtr((X - t[:, 1:2]) / s)], axis=2)
+        Aw = A * w[..., None]
+        At = Aw.transpose(0, 2, 1)
+        M = At @ A + 1e-9 * np.eye(3)
+        v = At @ prof[..., None]
+        a = np.linalg.solve(M, v)
+        return w * (prof - (A @ a)[..., 0])
+
+    lam = np.full(P, 1e-2)
+    r = resid(th)
+    cost = (r * r).sum(axis=1)
+    h = np.array([1e-3, 1e-3, 1e-3])
+    for _ in range(iters):
+        J = np.stack([(resid(th + np.eye(3)[j] * h[j]) - r) / h[j] for j in range(3)], axis=2)  # P,N,3
+        Jt = J.transpose(0, 2, 1)
+        JTJ = Jt @ J
+        g = (Jt @ r[..., None])[..., 0]
+        D = JTJ + lam[:, None, None] * (np.eye(3)[None] * (np.diagonal(JTJ, axis1=1, axis2=2)[:, :, None] + 1e-9))
+        step = -np.linalg.solve(D, g[..., None])[..., 0]
+        step[:, :2] = np.clip(step[:, :2], -1.0, 1.0)
+        step[:, 2] = np.clip(step[:, 2], -0.5, 0.5)
+        trial = th + step
+        trial[:, 2] = np.clip(trial[:, 2], np.log(0.2), np.log(5.0))
+        r2 = resid(trial)
+        c2 = (r2 * r2).sum(axis=1)
+        better = c2 < cost
+        th[better] = trial[better]
+        r[better] = r2[better]
+        cost[better] = c2[better]
+        lam = np.where(better, lam * 0.3, lam * 10.0)
+    n = np.maximum(w.sum(axis=1) - 6, 1)
+    return th[:, 0], th[:, 1], np.sqrt(cost / n)
 
 
 def edge_points_along(gray: np.ndarray, p0: np.ndarray, p1: np.ndarray, outward: np.ndarray,
@@ -254,15 +328,38 @@ def edge_points_along(gray: np.ndarray, p0: np.ndarray, p1: np.ndarray, outward:
     prof = _sample(gray, pts).mean(axis=2)
     inner_n = max(int(0.35 * inner_px / step), 4)
     plateau_n = max(int(plateau_px / step), 4)
-    out, strength, inner = [], [], []
+    rows, nose, strength, inner, wend = [], [], [], [], []
     for i in range(len(s)):
         r = nose_offset(prof[i], step, plateau_n, settings, inner_n)
         if r is None:
             continue
-        off = offs[0] + r[0] * step
-        out.append(base[i] + off * nrm[i])
+        rows.append(i)
+        nose.append(offs[0] + r[0] * step)
         strength.append(r[1])
-        inner.append(base[i] + (offs[0] + r[2] * step) * nrm[i] if r[2] is not None else (np.nan, np.nan))
+        inner.append(offs[0] + r[2] * step if r[2] is not None else np.nan)
+        wend.append(offs[0] + min(r[3], len(offs) - 1) * step)
+    if rows:
+        rows_a, nose_a, inner_a = np.array(rows), np.array(nose), np.array(inner)
+        band = np.isfinite(inner_a)
+        if band.any():
+            margin = 3.0 * settings.edge_sigma_px + 2.0
+            lo_w = inner_a[band] - margin
+            hi_w = np.array(wend)[band]
+            i_lo = np.clip(((lo_w - offs[0]) / step).astype(int), 0, len(offs) - 1)
+            span = int(np.ceil(np.max(hi_w - lo_w) / step)) + 2
+            sub = max(int(round(0.5 / step)), 1)  # fit on a ~0.5 px grid
+            idx = np.clip(i_lo[:, None] + np.arange(0, span, sub)[None, :], 0, len(offs) - 1)
+            xs = offs[idx]
+            sel = prof[rows_a[band]][np.arange(len(idx))[:, None], idx]
+            e1, e2, rms = refine_band_edges(xs, sel, inner_a[band], nose_a[band], lo_w, hi_w,
+                                              settings.edge_sigma_px)
+            sane = (np.abs(e2 - nose_a[band]) < 1.5) & (np.abs(e1 - inner_a[band]) < 1.5) & (e2 > e1)
+            nose_a[np.nonzero(band)[0][sane]] = e2[sane]
+            inner_a[np.nonzero(band)[0][sane]] = e1[sane]
+        out = [base[i] + o * nrm[i] for i, o in zip(rows_a, nose_a)]
+        inner = [base[i] + o * nrm[i] if np.isfinite(o) else (np.nan, np.nan) for i, o in zip(rows_a, inner_a)]
+    else:
+        out = []
     if not out:
         return np.empty((0, 2)), np.empty(0), np.empty((0, 2))
     return np.array(out), np.array(strength), np.array(inner, float)
