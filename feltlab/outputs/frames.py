@@ -124,6 +124,22 @@ def e_text(e: float, s: float) -> str:
     return f"e = {e:.{d}f} ± {s:.{d}f}"
 
 
+def reference_speed(tracks: pd.DataFrame, contacts: pd.DataFrame | None) -> float:
+    """Speed (mm/s) that sets the arrow scale: a high percentile (99th) of the speeds of the balls
+    that take part in contacts (all balls if there are none), robust to a stray track's spikes."""
+    if not len(tracks):
+        return 1000.0
+    g = tracks
+    if contacts is not None and len(contacts):
+        names = {str(b) for b in contacts["ball_a"]} | {str(b) for b in contacts["ball_b"] if str(b) not in ("", "nan")}
+        sel = tracks["ball"].astype(str).isin(names)
+        if sel.any():
+            g = tracks[sel]
+    sp = np.hypot(g["vx_mm_s"].to_numpy(float), g["vy_mm_s"].to_numpy(float))
+    sp = sp[np.isfinite(sp)]
+    return max(float(np.percentile(sp, 99)) if sp.size else 1000.0, 100.0)
+
+
 def build_overlay(tracks: pd.DataFrame, contacts: pd.DataFrame, calibration, fps: float,
                   n_frames: int | None = None) -> Overlay:
     """Precompute pixel positions, arrows and contact markers (pure)."""
@@ -132,9 +148,7 @@ def build_overlay(tracks: pd.DataFrame, contacts: pd.DataFrame, calibration, fps
         n_frames = int(tracks["frame"].max()) + 1 if len(tracks) else 0
     balls = ball_order(tracks["ball"].unique()) if len(tracks) else []
     colours = ball_colours(balls)
-    sp_all = np.hypot(tracks["vx_mm_s"].to_numpy(float), tracks["vy_mm_s"].to_numpy(float)) if len(tracks) else np.array([])
-    vmax = float(np.nanmax(sp_all)) if sp_all.size and np.isfinite(sp_all).any() else 1000.0
-    vmax = max(vmax, 100.0)
+    vmax = reference_speed(tracks, contacts)
     px_per_mm = float(calibration.px_per_mm)
     arrow_s = ARROW_FRACTION_OF_WIDTH * w / (vmax * px_per_mm)
     legend = nice_speed(vmax * 0.6)
@@ -313,9 +327,17 @@ def draw_overlay(image: np.ndarray, ov: Overlay, frame: int, t_s: float | None =
                 continue
             p = c["cp_px"]
             lines = [c["label"], c["e_text"]]
-            y0 = p[1] + 2 * r + fs
+            x0, y0 = p[0] + 2 * r, p[1] + 2 * r + fs
+            # contact text on a dark box, so it never reads as a ball label
+            bw = max(_text_width(s, fs) for s in lines) + 10
+            bx0, by0 = int(x0 - 5), int(y0 - 1.1 * fs)
+            bx1, by1 = int(x0 - 5 + bw), int(y0 + 1.3 * fs * (len(lines) - 1) + 0.45 * fs)
+            h_, w_ = img.shape[:2]
+            bx0, by0, bx1, by1 = max(0, bx0), max(0, by0), min(w_, bx1), min(h_, by1)
+            if bx1 > bx0 and by1 > by0:
+                img[by0:by1, bx0:bx1] = (img[by0:by1, bx0:bx1] * 0.3).astype(img.dtype)
             for i, s in enumerate(lines):
-                texts.append((s, (p[0] + 2 * r, y0 + i * 1.3 * fs), CONTACT_RGB, fs))
+                texts.append((s, (x0, y0 + i * 1.3 * fs), (255, 255, 255), fs))
         _panel(img, ov, k, t, caption, texts)
     _draw_texts(img, texts)
     return img

@@ -34,6 +34,8 @@ SIGHT_SETBACK_MM = 93.7
 CUSHION_DRAW_MM = 125.0
 POCKET_DRAW_MM = 60.0
 DPI = 110
+#: At most this many balls get a speed panel (the ones in contacts first).
+MAX_SPEED_PANELS = 6
 
 
 def moving_balls(tracks: pd.DataFrame) -> list[str]:
@@ -54,7 +56,11 @@ def speed_plot(tracks: pd.DataFrame, segments: pd.DataFrame | None, contacts: pd
     ``model(ball, t_s array) -> velocities (T, 2) mm/s``, if given, adds the
     fitted motion model's speed as a dashed line over the smoothed track.
     """
-    balls = moving_balls(tracks) or ball_order(tracks["ball"].unique())[:1]
+    balls = moving_balls(tracks)
+    if contacts is not None and len(contacts):  # the balls the shot is about
+        names = {str(b) for b in contacts["ball_a"]} | {str(b) for b in contacts["ball_b"]}
+        balls = [b for b in balls if b in names] or balls
+    balls = balls[:MAX_SPEED_PANELS] or ball_order(tracks["ball"].unique())[:1]
     cols = ball_colours(tracks["ball"].unique(), on_paper=True)
     n = max(1, len(balls))
     fig, axes = plt.subplots(n, 1, figsize=(9, 1.2 + 2.1 * n), sharex=True, squeeze=False)
@@ -65,7 +71,8 @@ def speed_plot(tracks: pd.DataFrame, segments: pd.DataFrame | None, contacts: pd
     for ax, b in zip(axes, balls):
         g = tracks[tracks["ball"] == b].sort_values("t_s")
         sp = np.hypot(g["vx_mm_s"].to_numpy(float), g["vy_mm_s"].to_numpy(float)) / 1000.0
-        vmax = max(vmax, float(np.nanmax(sp)) if sp.size and np.isfinite(sp).any() else 0.0)
+        fin = sp[np.isfinite(sp)]
+        vmax = max(vmax, float(np.percentile(fin, 99.5)) if fin.size else 0.0)
         if segments is not None and len(segments):
             for _, s in segments[segments["ball"].astype(str) == b].iterrows():
                 ph = str(s.get("phase", ""))
