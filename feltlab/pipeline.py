@@ -159,6 +159,21 @@ def _check_destination(out_dir: Path, sha: str, ident: dict, replace: bool) -> d
 
 
 # --------------------------------------------------------------------------- stages
+class _stage:
+    """Context: a FeltlabError raised inside gets ``stage`` set to where it arose (if not already)."""
+
+    def __init__(self, name: str) -> None:
+        self.name = name
+
+    def __enter__(self):
+        return self
+
+    def __exit__(self, exc_type, exc, tb) -> bool:
+        if isinstance(exc, FeltlabError) and getattr(exc, "stage", "input") in (None, "", "input"):
+            exc.stage = self.name
+        return False
+
+
 def _calibration(settings: AnalyzeSettings, table: TablePreset | None):
     if not settings.calib:
         return None
@@ -235,12 +250,14 @@ def analyze_clip(clip_path, out_dir, settings: AnalyzeSettings | None = None, pr
         return AnalysisResult.from_finished(out_dir, clip, prev)
 
     t = time.perf_counter()
-    cal = _calibration(settings, table)
+    with _stage("calibrate"):
+        cal = _calibration(settings, table)
     if table is None:
         table = cal.table if cal is not None else _preset(DEFAULT_TABLE)
     if cal is not None:
         log.info("calibration: read from %s (%s)", settings.calib, cal.method)
-    tr = _track(clip, table, cal, settings, progress)
+    with _stage("track"):
+        tr = _track(clip, table, cal, settings, progress)
     timings["track_s"] = time.perf_counter() - t
     cal = tr.calibration
     log.info("calibration: %s, residual %s px / %s mm, %.3f px/mm", cal.method, _fmt(cal.residual_px, None),
@@ -255,7 +272,8 @@ def analyze_clip(clip_path, out_dir, settings: AnalyzeSettings | None = None, pr
     t = time.perf_counter()
     mass = settings.ball_mass_kg if settings.ball_mass_kg is not None else table.ball.mass_kg
     radius = cal.ball_radius_mm
-    ph = _physics(tr, table, radius, mass, settings)
+    with _stage("physics"):
+        ph = _physics(tr, table, radius, mass, settings)
     timings["physics_s"] = time.perf_counter() - t
     contacts = ph.contacts
     log.info("physics: %d contact(s) (%d ball-ball, %d ball-cushion); mu_s %s, mu_r %s", len(contacts),
@@ -265,7 +283,7 @@ def analyze_clip(clip_path, out_dir, settings: AnalyzeSettings | None = None, pr
 
     friction = {"mu_s": ph.mu_s, "mu_s_sigma": ph.mu_s_sigma, "mu_r": ph.mu_r, "mu_r_sigma": ph.mu_r_sigma,
                 "mu_r_definition": "rolling deceleration / g"}
-    with ResultFolder(out_dir, replace=replace) as tmp:
+    with _stage("outputs"), ResultFolder(out_dir, replace=replace) as tmp:
         shot = write_outputs(tmp, clip=clip, sha=sha, tr=tr, ph=ph, table=table, mass=mass, ident=ident,
                              friction=friction, settings=settings, timings=timings, warnings=warnings,
                              progress=progress, t_start=t0)

@@ -428,6 +428,24 @@ def test_cli_bad_input_one_line_exit_2(tmp_path):
     assert not (Path("results") / "x").exists()
 
 
+def test_stage_named_on_errors(tmp_path, monkeypatch):
+    """A FeltlabError from a stage says which stage it came from (batch lists it in failures.csv)."""
+    import feltlab.pipeline as P
+    from feltlab.pipeline import AnalyzeSettings, analyze_clip
+
+    tracks, contacts, cal = fake_stages(monkeypatch)
+    clip = write_synthetic_video(tmp_path / "drill.mp4", tracks, cal)
+
+    def bad_physics(*a, **k):
+        raise FeltlabError("no ball moved; check the clip shows a shot")
+
+    monkeypatch.setattr(P, "_physics", bad_physics)
+    with pytest.raises(FeltlabError) as info:
+        analyze_clip(clip, tmp_path / "r" / "drill", AnalyzeSettings(**LIGHT))
+    assert info.value.stage == "physics"
+    assert not (tmp_path / "r" / "drill").exists()
+
+
 def test_cli_writes_result_folder(tmp_path, monkeypatch):
     from click.testing import CliRunner
 
