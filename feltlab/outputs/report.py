@@ -10,6 +10,7 @@ from __future__ import annotations
 
 import base64
 import math
+import re
 from pathlib import Path
 
 import cv2
@@ -18,7 +19,7 @@ import numpy as np
 import pandas as pd
 
 from feltlab.outputs.plots import departure_angles
-from feltlab.outputs.style import decimals_for
+from feltlab.outputs.style import ball_order, decimals_for
 
 TEMPLATE_DIR = Path(__file__).resolve().parents[1] / "templates"
 TEMPLATE = "report.html.j2"
@@ -196,7 +197,8 @@ def contacts_rows(contacts: pd.DataFrame | None) -> tuple[list[str], list[list[s
             elif f == "{}":
                 cells.append("" if v is None or (isinstance(v, float) and not math.isfinite(v)) else str(v))
             else:
-                cells.append(f.format(_f(v)) if _ok(v) else "")
+                txt = f.format(_f(v)) if _ok(v) else ""
+                cells.append(txt[1:] if re.fullmatch(r"-0(\.0*)?", txt) else txt)  # no "-0"
         rows.append(cells)
     return [h for _, h, _ in cols], rows
 
@@ -223,7 +225,7 @@ def build_context(shot: dict, contacts: pd.DataFrame | None, plots: dict[str, Pa
         ("ball", f"{shot['ball']['diameter_mm']:.2f} mm, {shot['ball']['mass_kg'] * 1000:.0f} g"),
         ("calibration", f"{cal.get('method')}, residual {pm(cal.get('residual_px'), None, 2)} px"
                         f" / {pm(cal.get('residual_mm'), None, 2)} mm, {pm(cal.get('px_per_mm'), None, 3)} px/mm"),
-        ("balls found", ", ".join(str(b.get("ball")) for b in shot.get("balls", [])) or "none"),
+        ("balls found", ", ".join(ball_order(str(b.get("ball")) for b in shot.get("balls", []))) or "none"),
         ("cloth sliding friction μs", pm(fr.get("mu_s"), fr.get("mu_s_sigma"))),
         ("rolling resistance μr (deceleration / g)", pm(fr.get("mu_r"), fr.get("mu_r_sigma"), 4)),
         ("software", f"feltlab {shot['software']['version']}"),
