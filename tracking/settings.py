@@ -171,8 +171,9 @@ class DetectionSettings:
     #: Model error of the silhouette centre (px), added in quadrature to the fit
     #: sigma: shading and shadows move the photometric edge off the true limb
     #: unevenly around the ball. Measured on outside renders (D1/D2 footage):
-    #: per-detection centre errors of 0.2-0.4 px with the fit sigma at 0.05-0.1 px.
-    model_sigma_px: float = 0.3
+    #: per-detection centre errors of ~0.2 px per axis (RMS) with the fit sigma
+    #: at 0.05-0.1 px; 0.2 makes their mean squared normalised error ~1.
+    model_sigma_px: float = 0.2
     #: Pixels whose HSV saturation < this and value > white_value count as white
     #: (stripe/cue summary); 0..1 scale, common practice for "white" in HSV.
     white_saturation: float = 0.28
