@@ -477,3 +477,11 @@ def test_hash_cache_skips_rereading_unchanged_clips(clip_folder: Path, tmp_path:
     os.utime(clip_folder / "bench_1.mp4", ns=(time.time_ns(), time.time_ns()))
     rep = run_batch(clip_folder, out, SETTINGS, analyze=fake_analyze, workers=1, series=False)
     assert next(o for o in rep.outcomes if o.clip_rel == "bench_1.mp4").status == "skipped"
+
+
+def test_an_analyser_that_cannot_reach_a_worker_fails_each_clip_cleanly(clip_folder: Path, tmp_path: Path) -> None:
+    """A lambda cannot be pickled to a worker process: every clip fails with a reason, no crash."""
+    rep = run_batch(clip_folder, tmp_path / "out", SETTINGS, analyze=lambda c, o, s: fake_analyze(c, o, s),
+                    workers=2, series=False)
+    assert {o.stage for o in rep.failed} == {"worker"} and all("could not run" in o.reason for o in rep.failed)
+    assert not [o for o in rep.outcomes if o.status in ("analysed", "copied")]

@@ -171,6 +171,17 @@ def _worker_init() -> None:
         pass
 
 
+def _outcome_of(fut, task: ClipTask) -> ClipOutcome | None:
+    """A finished future's outcome; None when its worker process died (BrokenProcessPool)."""
+    try:
+        return fut.result()
+    except BrokenProcessPool:
+        return None
+    except Exception as exc:  # noqa: BLE001 - e.g. settings or analyser that cannot be sent to a process
+        return ClipOutcome(task.clip_rel, task.result_rel, task.clip_sha256, "failed", stage="worker",
+                           reason=one_line(f"could not run in a worker process: {type(exc).__name__}: {exc}"))
+
+
 def _run_local(tasks: list[ClipTask], analyze: Analyzer, workers: int, on_done: Callable[[ClipOutcome], None],
                log: Log) -> None:
     """ProcessPoolExecutor with at most ``workers`` clips in flight.
@@ -198,18 +209,20 @@ def _run_local(tasks: list[ClipTask], analyze: Analyzer, workers: int, on_done: 
             died: list[ClipTask] = []
             for fut in done:
                 task = inflight.pop(fut)
-                try:
-                    on_done(fut.result())
-                except BrokenProcessPool:
+                outcome = _outcome_of(fut, task)
+                if outcome is None:
                     died.append(task)
+                else:
+                    on_done(outcome)
             if not died:
                 continue
             # the pool is broken: every other clip in flight is lost as well
             for fut, task in list(inflight.items()):
-                try:
-                    on_done(fut.result())
-                except BrokenProcessPool:
+                outcome = _outcome_of(fut, task)
+                if outcome is None:
                     died.append(task)
+                else:
+                    on_done(outcome)
             inflight.clear()
             pool.shutdown(wait=True, cancel_futures=True)
             retry = []
