@@ -371,7 +371,8 @@ def write_outputs(folder: Path, *, clip: Path, sha: str, tr, ph, table: TablePre
             cb = (lambda d, tot: progress("draw", d, tot)) if progress is not None else None
             res = fr_out.render_annotations(clip, ov, folder, write_video=settings.video,
                                             write_frames=settings.frames,
-                                            frame_times=_frame_times(tr.tracks, n, float(tr.fps)), progress=cb)
+                                            frame_times=_frame_times(tr.tracks, n, float(tr.fps)), progress=cb,
+                                            start_frame=settings.frame_range[0] if settings.frame_range else 0)
             return ov, res
 
         out = attempt("annotated frames", draw)

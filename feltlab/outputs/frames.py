@@ -395,12 +395,13 @@ def frame_file_name(contact: int, tag: str, frame: int) -> str:
 
 def render_annotations(video_path: Path, ov: Overlay, out_dir: Path, write_video: bool = True,
                        write_frames: bool = True, frame_times: np.ndarray | None = None,
-                       progress: Callable[[int, int], None] | None = None) -> dict:
+                       progress: Callable[[int, int], None] | None = None, start_frame: int = 0) -> dict:
     """Stream the clip once: write annotated.mp4 and the contact PNGs into ``out_dir``.
 
     Returns {"video": path or None, "frames": [(contact, tag, frame, path), ...],
     "closeups": [(contact, path), ...]} (close-ups: frames/contactNN_closeup.png).
     ``frame_times`` (s, per frame index) overrides k/fps in the captions.
+    Frames before ``start_frame`` (outside an analysed frame range) are skipped.
     """
     out_dir = Path(out_dir)
     plan = contact_frame_plan(pd.DataFrame(ov.contacts), ov.fps, ov.n_frames) if write_frames else []
@@ -424,6 +425,11 @@ def render_annotations(video_path: Path, ov: Overlay, out_dir: Path, write_video
         while True:
             if not write_video and k > last_needed:
                 break
+            if k < start_frame:
+                if not cap.grab():
+                    break
+                k += 1
+                continue
             ok, img = cap.read()
             if not ok:
                 break
