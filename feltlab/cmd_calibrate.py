@@ -47,11 +47,11 @@ def command(clip: Path, table: str | None, fps: float | None, calib: Path | None
             raise FeltlabError(str(exc)) from None
     dest = Path(out) if out is not None else Path("results") / clip.stem
     toml_path, png_path = dest / "calibration.toml", dest / "calibration.png"
+    src = open_video(clip, fps_override=fps)
     if not replace:
         for p in (toml_path, png_path):
             if p.exists():
                 raise FeltlabError(f"{p} already exists; pass --replace to redo it or choose another --out")
-    src = open_video(clip, fps_override=fps)
     samples = [img for _, _, img in src.sample(n_frames)]
     if calib is not None:
         cal = calibration_from_file(calib, table=preset)

@@ -429,7 +429,10 @@ def calibration_from_file(path: str | os.PathLike, table: TablePreset | None = N
         if not (0 < focal < 100 * w):
             raise _toml_error(p, f"focal_px = {focal} is not plausible for a {w} px wide image")
     # the corners must form a convex quadrilateral in the stated order
-    cross = [np.cross(px[(i + 1) % 4] - px[i], px[(i + 2) % 4] - px[(i + 1) % 4]) for i in range(4)]
+    def _cross(a, b):
+        return a[0] * b[1] - a[1] * b[0]
+
+    cross = [_cross(px[(i + 1) % 4] - px[i], px[(i + 2) % 4] - px[(i + 1) % 4]) for i in range(4)]
     if not (all(c > 0 for c in cross) or all(c < 0 for c in cross)):
         raise _toml_error(p, "corners_px do not form a convex quadrilateral in the order "
                              "(0,0), (L,0), (L,W), (0,W); check their order")
