@@ -362,9 +362,11 @@ def _segments_table(fits: dict[str, ChainFit], samples, s: PhysicsSettings):
                                  ay_sigma_mm_s2=sd[5], t_roll_s=t_r if t_r < t1 else np.nan,
                                  mu=float(np.hypot(*a) / g), mu_sigma=sd[6]))
                 n_slide = int(((tu >= t0) & (tu < min(t_r, t1))).sum())
-                after_break = k > 0  # a slide that starts at a strike or contact
-                if after_break and n_slide >= 6 and np.isfinite(sd[6]) and sd[6] > 0:
-                    mus.append((np.hypot(*a) / g, sd[6]))
+                mu_k = float(np.hypot(*a) / g)
+                lo_mu, hi_mu = s.mu_s_plausible
+                if n_slide >= 6 and lo_mu < mu_k < hi_mu and np.isfinite(sd[6]) and sd[6] > 0:
+                    # linearised sigmas of short slides are optimistic (curved t_roll-a ridge)
+                    mus.append((mu_k, max(sd[6], s.mu_s_single_rel_sigma * mu_k)))
             if t_r < t1:
                 Pr, Vr = f.state(np.array([max(t_r, t0) + 1e-9]))
                 u = vr / max(sp, 1e-12)

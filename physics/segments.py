@@ -383,7 +383,12 @@ def fit_chain(
     chi2 = max(chi2, s.chi2_floor)
     cov = np.zeros((lay.n_par, lay.n_par))
     Jf = J[:, free]
-    cov[np.ix_(free, free)] = np.linalg.pinv(Jf.T @ Jf) * chi2
+    # scale columns first: parameters span mm, mm/s, mm/s^2 and s, and an unscaled J^T J is
+    # too ill-conditioned for a faithful inverse
+    d = np.linalg.norm(Jf, axis=0)
+    d[d == 0] = 1.0
+    Js = Jf / d
+    cov[np.ix_(free, free)] = np.linalg.pinv(Js.T @ Js, rcond=1e-12) / np.outer(d, d) * chi2
     P, _, _ = chain_eval(res.x, lay, tu)
     rms = float(np.sqrt(np.mean(np.sum((P - xyu) ** 2, axis=1)))) if len(tu) else float("nan")
     return ChainFit(lay, res.x, cov, rms, int(len(tu)), float(chi2), t, xy, used)

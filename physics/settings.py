@@ -109,6 +109,11 @@ class PhysicsSettings:
     #: floors on their sigma (design choice: allows ball-to-ball and speed dependence of a few %).
     shot_mu_s_rel_sigma: float = 0.05
     shot_mu_r_rel_sigma: float = 0.25
+    #: Slide phases whose deceleration / g falls outside this band are not used for the shot's
+    #: mu_s (half the published minimum, 1.5x the published maximum, Physics of Pool FAQ).
+    mu_s_plausible: tuple[float, float] = (0.5 * MU_SLIDE_CLOTH_RANGE[0], 1.5 * MU_SLIDE_CLOTH_RANGE[1])
+    #: Floor on one slide phase's relative mu_s sigma when combining phases. Design choice.
+    mu_s_single_rel_sigma: float = 0.1
     #: Without a usable pass-1 estimate the published typical values are used with these sigmas
     #: (range half-widths, Physics of Pool FAQ ranges in feltlab.standards).
     fallback_mu_s_sigma: float = 0.1
