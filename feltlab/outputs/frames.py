@@ -77,6 +77,15 @@ def nice_speed(v: float) -> float:
     return float(p)
 
 
+def legend_text(v_mm_s: float) -> str:
+    """Speed-arrow legend label.
+
+    >>> legend_text(500.0)
+    '= 500 mm/s (0.5 m/s)'
+    """
+    return f"= {v_mm_s:.0f} mm/s ({speed_text(v_mm_s)})"
+
+
 def speed_text(v_mm_s: float) -> str:
     """Speed label in m/s (the unit coaches and ball makers quote)."""
     return f"{v_mm_s / 1000.0:.2g} m/s" if v_mm_s < 1000 else f"{v_mm_s / 1000.0:.1f} m/s"
@@ -351,7 +360,7 @@ def _panel(img, ov: Overlay, k: int, t: float, caption: str | None, texts: list)
     lines = [f"t = {t:.3f} s    frame {k}"]
     if caption:
         lines.append(caption)
-    legend_label = f"= {speed_text(ov.legend_mm_s)}"
+    legend_label = legend_text(ov.legend_mm_s)
     bw = int(max(ov.legend_px + _text_width(legend_label, fs) + 30, max(_text_width(s, fs) for s in lines) + 20))
     bh = lh * (len(lines) + 1) + int(0.6 * fs)
     x0 = 6 if ov.panel_corner in ("tl", "bl") else w - bw - 6
@@ -515,7 +524,7 @@ def contact_closeup(ov: Overlay, contact: dict, crops: list[tuple[str, int, floa
     ax0 = int(8 + wl + 10)
     cv2.arrowedLine(foot, (ax0, ay), (int(ax0 + L), ay), (0, 0, 0), 2, cv2.LINE_AA, tipLength=min(0.35, 12.0 / max(L, 1)))
     _draw_texts_plain(foot, [(label, (8, foot.shape[0] * 0.5 + 0.35 * fs), (0, 0, 0), fs),
-                             (f"= {speed_text(ov.legend_mm_s)}", (ax0 + L + 8, foot.shape[0] * 0.5 + 0.35 * fs),
+                             (legend_text(ov.legend_mm_s), (ax0 + L + 8, foot.shape[0] * 0.5 + 0.35 * fs),
                               (0, 0, 0), fs)])
     strip = np.vstack([strip, foot])
     if not cv2.imwrite(str(out_path), strip):
