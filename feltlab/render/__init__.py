@@ -29,7 +29,7 @@ from feltlab.render.video import ClipWriter, codec_for
 from tracking.camera import CameraModel
 
 __all__ = ["Scenario", "load_scenario", "scenario_from_dict", "render_scenario", "camera_for", "renderer_for",
-           "simulate_scenario", "LinearMotion", "SimMotion", "truth_path_for"]
+           "simulate_scenario", "render_to_arrays", "LinearMotion", "SimMotion", "truth_path_for"]
 
 
 def camera_for(sc: Scenario) -> CameraModel:
@@ -77,6 +77,20 @@ def simulate_scenario(sc: Scenario):
                       *b.spin_rad_s, radius_mm=ball.radius_mm, mass_kg=ball.mass_kg) for b in sc.balls]
     params = SimParams.for_table(sc.preset, **sc.physics)
     return simulate(inits, params, sim_end_time(sc))
+
+
+def render_to_arrays(sc: Scenario, times_s=None, motion: Motion | None = None,
+                     supersample: int | None = None) -> np.ndarray:
+    """Render frames in memory: uint8 BGR (T, H, W, 3) at mid-exposure times (default: the clip's frames).
+
+    For tests that need pixels but no files. motion defaults to the simulated scenario.
+    """
+    if motion is None:
+        motion = SimMotion(simulate_scenario(sc))
+    times = sc.frame_times() if times_s is None else np.asarray(times_s, float)
+    renderer = renderer_for(sc, supersample=supersample)
+    frames = [f for _, f in render_frames(renderer, motion, times, sc.exposure / sc.fps, sim_end_time(sc))]
+    return np.stack(frames) if frames else np.zeros((0, sc.resolution[1], sc.resolution[0], 3), np.uint8)
 
 
 def render_scenario(sc: Scenario, out_path: str | Path, *, motion: Motion | None = None, contacts: list | None = None,

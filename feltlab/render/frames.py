@@ -112,10 +112,14 @@ class FrameRenderer:
         lin = srgb_to_linear(look.lamps_rgb).reshape(-1, 3)
         e_centre = sum(look.lamps_intensity[k] * float(lin[k] @ lum) * lamp_irradiance(centre, up, look.lamps_pos[k])[0]
                        for k in range(len(lin)))
-        scale = S.WHITE_TARGET_LINEAR / (max(e_centre, 1e-30) * (1.0 + look.ambient))
+        if e_centre > 1e-20:
+            scale = S.WHITE_TARGET_LINEAR / (e_centre * (1.0 + look.ambient))
+            self.ambient = look.ambient * scale * e_centre
+        else:  # lamps off: room light only
+            scale = 0.0
+            self.ambient = S.WHITE_TARGET_LINEAR if look.ambient > 0 else 0.0
         self.lamps = LampSet(look.lamps_pos.astype(float), look.lamps_radius.astype(float),
                              lin * look.lamps_intensity[:, None] * scale)
-        self.ambient = look.ambient * scale * e_centre
         self.cloth_lin = srgb_to_linear(look.cloth_rgb)
         self._build_background()
         self._still_cache: dict = {}

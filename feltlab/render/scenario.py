@@ -13,7 +13,8 @@ Schema (every key except ``[[ball]]`` entries is optional; defaults shown)::
     t0_s = 0.0                # simulation time at the middle of frame 0's exposure
     resolution = [1280, 720]  # width, height (px), at most 1920 x 1080
     exposure = 0.5            # shutter open for this fraction of the frame interval
-    codec = "mp4v"            # "mp4v" (.mp4), "ffv1" (lossless .avi) or "png" (folder of frames)
+    codec = "mp4v"            # "mp4v" (.mp4), "ffv1" (lossless .avi) or "png" (folder of frames);
+                              # scripts/make_clips.py picks the suffix from it, `--out` suffix wins
     seed = 1                  # noise, cloth texture; --seed overrides
 
     [camera]

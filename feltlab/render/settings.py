@@ -84,7 +84,7 @@ SHOT_NOISE = 0.01
 BLUR_PX = 0.5
 MAX_SUBFRAMES = 24
 #: Motion-blur samples: one per this many px of ball travel during the exposure.
-SUBFRAME_STEP_PX = 0.75
+SUBFRAME_STEP_PX = 1.0
 #: Background supersampling (per axis) for anti-aliased table edges.
 BACKGROUND_SUPERSAMPLE = 2
 #: Orientation integration: largest rotation per step (rad).
