@@ -245,7 +245,7 @@ def test_a_failing_analyser_bug_is_isolated(clip_folder: Path, tmp_path: Path) -
             raise ZeroDivisionError("division by zero")
         fake_analyze(clip, out_dir, settings)
 
-    rep = run_batch(clip_folder, tmp_path / "out", SETTINGS, analyze=buggy, workers=1, series=False)
+    rep = run_batch(clip_folder, tmp_path / "out", SETTINGS, analyze=buggy, in_process=True, series=False)
     bad = {o.clip_rel: o for o in rep.failed}
     assert bad["bench_1.mp4"].stage == "internal" and "ZeroDivisionError" in bad["bench_1.mp4"].reason
     assert {o.status for o in rep.outcomes if o.clip_rel in ("bench_0.mp4", "bench_2.mp4")} == {"analysed"}
@@ -485,3 +485,20 @@ def test_an_analyser_that_cannot_reach_a_worker_fails_each_clip_cleanly(clip_fol
                     workers=2, series=False)
     assert {o.stage for o in rep.failed} == {"worker"} and all("could not run" in o.reason for o in rep.failed)
     assert not [o for o in rep.outcomes if o.status in ("analysed", "copied")]
+
+
+def crashing_analyze(clip: Path, out_dir: Path, settings) -> None:
+    """Stand-in for a clip that takes its whole process down (SIGKILL, as a hard decoder crash or
+    the out-of-memory killer would)."""
+    if clip.name == "bench_1.mp4":
+        os.kill(os.getpid(), signal.SIGKILL)
+    fake_analyze(clip, out_dir, settings)
+
+
+def test_a_clip_that_crashes_its_worker_is_isolated(clip_folder: Path, tmp_path: Path) -> None:
+    rep = run_batch(clip_folder, tmp_path / "out", SETTINGS, analyze=crashing_analyze, workers=1, series=False)
+    status = {o.clip_rel: o for o in rep.outcomes}
+    assert status["bench_1.mp4"].status == "failed" and status["bench_1.mp4"].stage == "worker"
+    assert "died 2 times" in status["bench_1.mp4"].reason
+    assert status["bench_0.mp4"].status == "analysed" and status["bench_2.mp4"].status == "analysed"
+    assert status["sub/bench_0_copy.MP4"].status == "copied"

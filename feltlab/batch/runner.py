@@ -372,10 +372,13 @@ def run_batch(
     log: Log | None = None,
     series: bool = True,
     spec: Any = None,
+    in_process: bool = False,
 ) -> BatchReport:
     """Analyse every clip below ``folder`` into ``out_dir``; see the module docstring.
 
-    workers: local processes (default ``os.cpu_count()``; 1 runs in this process);
+    workers: local worker processes (default ``os.cpu_count()``); even one worker runs in its
+    own process, so a decoder crash cannot take the batch down, unless ``in_process`` is True
+    (then clips run one after another in this process: for notebooks and tests);
     scheduler: dask scheduler address or Client (then ``workers`` is ignored).
     series: write the series files (:mod:`feltlab.batch.series_report`) from every
     finished clip of this run; spec: a :class:`feltlab.batch.spec.Spec` to judge.
@@ -447,7 +450,7 @@ def run_batch(
             if tasks:
                 if scheduler is not None:
                     _run_dask(tasks, analyze, scheduler, on_done, say)
-                elif workers == 1:
+                elif in_process:
                     for t in tasks:
                         on_done(run_one(t, analyze))
                 else:
