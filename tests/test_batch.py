@@ -502,3 +502,11 @@ def test_a_clip_that_crashes_its_worker_is_isolated(clip_folder: Path, tmp_path:
     assert "died 2 times" in status["bench_1.mp4"].reason
     assert status["bench_0.mp4"].status == "analysed" and status["bench_2.mp4"].status == "analysed"
     assert status["sub/bench_0_copy.MP4"].status == "copied"
+
+
+def test_progress_bar_counts_clips_and_failures(clip_folder: Path, tmp_path: Path, capsys) -> None:
+    run_batch(clip_folder, tmp_path / "out", SETTINGS, analyze=fake_analyze, in_process=True, series=False,
+              progress=True)
+    err = capsys.readouterr().err
+    final = [line for line in err.splitlines() if line.startswith("clips")][-1]
+    assert "6/6" in final and "failed 2" in final and "ETA" in final
