@@ -180,7 +180,7 @@ def test_good_clips_once_copies_filled_bad_ones_listed_and_second_run_skips(
     allc = pd.read_csv(out / "all_contacts.csv")
     assert len(allc) == 12 and set(allc["clip"]) == {"bench_0.mp4", "bench_1.mp4", "bench_2.mp4"}
 
-    rep2 = run_batch(clip_folder, out, SETTINGS, analyze=fake_analyze, workers=2)
+    rep2 = run_batch(clip_folder, out, SETTINGS, analyze=fake_analyze, workers=2, series=False)
     status2 = {o.clip_rel: o.status for o in rep2.outcomes}
     assert [status2[k] for k in ("bench_0.mp4", "bench_1.mp4", "bench_2.mp4", "sub/bench_0_copy.MP4")] == \
         ["skipped"] * 4
