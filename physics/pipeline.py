@@ -170,14 +170,17 @@ def analyze_tracks(
             fits[name] = _rest_fit(b, lay)
         else:
             fits[name] = fit_chain(b.t, b.xy, b.sig, lay, s)
-    # pass 2: one cloth -> shared mu_s and mu_r as priors (pass-1 estimates are reported)
+    # pass 2: one cloth -> each segment's friction prior is the shot estimate from the OTHER
+    # segments (leave-one-out, so no data count twice); pass-1 shot estimates are reported
     _, mu = _segments_table(fits, samples, s)
+    _, (mus, mur) = _segments_table(fits, samples, s, per_segment=True)
     s2 = _shot_priors(s, mu)
     for name, b in samples.items():
         lay = layouts[name]
         if not (lay.rest_first and lay.n_seg == 1):
             x1 = _plausible_start(fits[name].x, lay, s2)
-            fits[name] = fit_chain(b.t, b.xy, b.sig, lay, s2, x_init=x1)
+            pri = {k: _loo_prior(s, mus, mur, (name, k)) for k in range(lay.n_seg)}
+            fits[name] = fit_chain(b.t, b.xy, b.sig, lay, s2, x_init=x1, seg_priors=pri)
     contacts = _contacts_table(cands, fits, maps, table, R, m, dt, s)
     segments, _ = _segments_table(fits, samples, s2)
     events = _events_table(samples, fits, layouts, maps, contacts, segments, dt, s)
@@ -201,6 +204,21 @@ def _plausible_start(x: np.ndarray, lay: ChainLayout, s: PhysicsSettings) -> np.
             x[o + 2 : o + 4] = -s.mu_s_prior * g * (v / sp if sp > 1e-9 else np.array([1.0, 0.0]))
             x[o + 4] = 0.0
     return x
+
+
+def _loo_prior(s: PhysicsSettings, mus, mur, key) -> tuple[float, float, float, float]:
+    """(mu_s, sigma, mu_r, sigma) prior for one segment from the other segments' estimates."""
+    ms, ss = _combine([m for m in mus if m[2] != key])
+    mr, sr = _combine([m for m in mur if m[2] != key])
+    if np.isfinite(ms):
+        ss = max(ss, s.shot_mu_s_rel_sigma * ms)
+    else:
+        ms, ss = s.mu_s_prior, s.fallback_mu_s_sigma
+    if np.isfinite(mr) and mr > 0:
+        sr = max(sr, s.shot_mu_r_rel_sigma * mr)
+    else:
+        mr, sr = s.mu_r_prior, s.fallback_mu_r_sigma
+    return ms, ss, mr, sr
 
 
 def _shot_priors(s: PhysicsSettings, mu) -> PhysicsSettings:
@@ -307,7 +325,7 @@ def _contacts_table(cands, fits, maps, table, R, m, dt, s) -> pd.DataFrame:
     return df
 
 
-def _segments_table(fits: dict[str, ChainFit], samples, s: PhysicsSettings):
+def _segments_table(fits: dict[str, ChainFit], samples, s: PhysicsSettings, per_segment: bool = False):
     rows = []
     g = s.g_mm_s2
     mus, mur = [], []
@@ -366,7 +384,7 @@ def _segments_table(fits: dict[str, ChainFit], samples, s: PhysicsSettings):
                 lo_mu, hi_mu = s.mu_s_plausible
                 if n_slide >= 6 and lo_mu < mu_k < hi_mu and np.isfinite(sd[6]) and sd[6] > 0:
                     # linearised sigmas of short slides are optimistic (curved t_roll-a ridge)
-                    mus.append((mu_k, max(sd[6], s.mu_s_single_rel_sigma * mu_k)))
+                    mus.append((mu_k, max(sd[6], s.mu_s_single_rel_sigma * mu_k), (name, k)))
             if t_r < t1:
                 Pr, Vr = f.state(np.array([max(t_r, t0) + 1e-9]))
                 u = vr / max(sp, 1e-12)
@@ -378,14 +396,16 @@ def _segments_table(fits: dict[str, ChainFit], samples, s: PhysicsSettings):
                 n_roll = int(((tu >= max(t_r, t0)) & (tu < min(t_stop, t1))).sum())
                 hi = s.mu_r_max * g
                 if n_roll >= 10 and 0 < a_r < 0.999 * hi and np.isfinite(sd[7]) and sd[7] > 0:
-                    mur.append((a_r / g, sd[7]))
+                    mur.append((a_r / g, sd[7], (name, k)))
             if t_stop < t1:
                 Ps, _ = f.state(np.array([t_stop + 1e-9]))
                 rows.append(dict(base, t0_s=t_stop, t1_s=t1, phase="rest", x0_mm=Ps[0, 0],
                                  y0_mm=Ps[0, 1], vx0_mm_s=0.0, vy0_mm_s=0.0, ax_mm_s2=0.0,
                                  ay_mm_s2=0.0, t_roll_s=t_r, mu=np.nan, mu_sigma=np.nan))
     seg = pd.DataFrame(rows, columns=SEGMENT_COLUMNS)
-    return seg, (*_combine(mus), *_combine(mur))
+    if not per_segment:
+        return seg, (*_combine(mus), *_combine(mur))
+    return seg, (mus, mur)
 
 
 def chain_eval_pos(f: ChainFit, z: np.ndarray, t0: float):
@@ -397,8 +417,8 @@ def _combine(vals) -> tuple[float, float]:
     """Weighted mean and its sigma (inflated by the scatter when estimates disagree)."""
     if not vals:
         return float("nan"), float("nan")
-    v = np.array([x for x, _ in vals])
-    sg = np.array([e for _, e in vals])
+    v = np.array([x[0] for x in vals])
+    sg = np.array([x[1] for x in vals])
     w = 1 / sg**2
     mean = float((v * w).sum() / w.sum())
     se = float(1 / np.sqrt(w.sum()))

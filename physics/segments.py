@@ -153,7 +153,11 @@ def chain_eval(
     return P, V, seg
 
 
-def _priors(x: np.ndarray, lay: ChainLayout, s: PhysicsSettings) -> np.ndarray:
+def _priors(x: np.ndarray, lay: ChainLayout, s: PhysicsSettings, seg_priors=None) -> np.ndarray:
+    """Prior residuals on each move segment's slide deceleration |a| and roll deceleration a_r.
+
+    ``seg_priors``: optional {segment: (mu_s, mu_s_sigma, mu_r, mu_r_sigma)} overriding the
+    settings' priors (the pipeline passes the shot's other segments' estimates)."""
     out = []
     g = s.g_mm_s2
     for k in range(lay.n_seg):
@@ -161,9 +165,26 @@ def _priors(x: np.ndarray, lay: ChainLayout, s: PhysicsSettings) -> np.ndarray:
         if par is None:
             continue
         _, a, _, a_r = par
-        out.append((np.hypot(*a) - s.mu_s_prior * g) / (s.mu_s_prior_sigma * g))
-        out.append((a_r - s.mu_r_prior * g) / (s.mu_r_prior_sigma * g))
+        ms, ss, mr, sr = (seg_priors or {}).get(
+            k, (s.mu_s_prior, s.mu_s_prior_sigma, s.mu_r_prior, s.mu_r_prior_sigma))
+        out.append((np.hypot(*a) - ms * g) / (ss * g))
+        out.append((a_r - mr * g) / (sr * g))
     return np.asarray(out)
+
+
+def robust_residuals(r: np.ndarray, s: PhysicsSettings) -> np.ndarray:
+    """Data residuals (in sigmas) transformed so that half their sum of squares is the robust
+    cost: soft_l1, rho(z) = 2 (sqrt(1 + z) - 1) with z = (r / f)^2 (as in scipy's least_squares),
+    or Huber; 'linear' leaves them unchanged. Priors are kept quadratic by not transforming them."""
+    f = s.f_scale
+    z = (r / f) ** 2
+    if s.loss == "soft_l1":
+        rho = 2.0 * (np.sqrt(1.0 + z) - 1.0)
+    elif s.loss == "huber":
+        rho = np.where(z <= 1.0, z, 2.0 * np.sqrt(z) - 1.0)
+    else:
+        return r
+    return f * np.sign(r) * np.sqrt(rho)
 
 
 @dataclass
@@ -222,10 +243,10 @@ class ChainFit:
         return "roll"
 
 
-def _residuals(x, lay, t, xy, sig, s):
+def _residuals(x, lay, t, xy, sig, s, seg_priors=None):
     P, _, _ = chain_eval(x, lay, t)
-    r = ((P - xy) / sig).ravel()
-    return np.concatenate([r, _priors(x, lay, s)])
+    r = robust_residuals(((P - xy) / sig).ravel(), s)
+    return np.concatenate([r, _priors(x, lay, s, seg_priors)])
 
 
 def used_mask(t: np.ndarray, lay: ChainLayout) -> np.ndarray:
@@ -310,7 +331,7 @@ def _move_start_guess(t, xy, sig, s: PhysicsSettings):
     try:
         r = least_squares(
             _residuals, x0, bounds=(lo, hi), args=(lay, t, xy, sig, s),
-            loss=s.loss, f_scale=s.f_scale, x_scale="jac", max_nfev=100,
+            x_scale="jac", max_nfev=100,
         )
         x = r.x
     except ValueError:
@@ -356,6 +377,7 @@ def fit_chain(
     lay: ChainLayout,
     s: PhysicsSettings,
     x_init: np.ndarray | None = None,
+    seg_priors: dict | None = None,
 ) -> ChainFit:
     """Fit a ball's chain to samples ``t`` (T,) s, ``xy`` (T,2) mm with sigmas ``sig`` (T,2) mm.
 
@@ -372,12 +394,23 @@ def fit_chain(
     lo, hi = _bounds(lay, t[-1], s)
     x0 = np.clip(x0, lo, hi)
     res = least_squares(
-        _residuals, x0, bounds=(lo, hi), args=(lay, tu, xyu, sgu, s),
-        loss=s.loss, f_scale=s.f_scale, x_scale="jac", max_nfev=400,
+        _residuals, x0, bounds=(lo, hi), args=(lay, tu, xyu, sgu, s, seg_priors),
+        x_scale="jac", max_nfev=400,
     )
     J = np.asarray(res.jac)
     n_data = 2 * len(tu)
     free = res.active_mask == 0  # parameters held at a bound count as known (conditional cov)
+    x_fit = res.x.copy()
+    starts, _ = segment_starts(x_fit, lay)
+    for k in range(lay.n_seg):
+        o = lay.move_offset(k)
+        if o is None:
+            continue
+        # a slide phase that contains no sample is not resolved: the ball rolls from the start
+        # (same path to well below the noise); its slide parameters are then not free
+        if not np.any((tu > starts[k]) & (tu < starts[k] + x_fit[o + 4])):
+            x_fit[o + 4] = 0.0
+            free[o + 2 : o + 5] = False
     dof = max(n_data - int(free.sum()), 1)
     chi2 = 2.0 * res.cost / dof
     chi2 = max(chi2, s.chi2_floor)
@@ -389,6 +422,6 @@ def fit_chain(
     d[d == 0] = 1.0
     Js = Jf / d
     cov[np.ix_(free, free)] = np.linalg.pinv(Js.T @ Js, rcond=1e-12) / np.outer(d, d) * chi2
-    P, _, _ = chain_eval(res.x, lay, tu)
+    P, _, _ = chain_eval(x_fit, lay, tu)
     rms = float(np.sqrt(np.mean(np.sum((P - xyu) ** 2, axis=1)))) if len(tu) else float("nan")
-    return ChainFit(lay, res.x, cov, rms, int(len(tu)), float(chi2), t, xy, used)
+    return ChainFit(lay, x_fit, cov, rms, int(len(tu)), float(chi2), t, xy, used)
