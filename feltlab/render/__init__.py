@@ -108,6 +108,7 @@ def render_scenario(sc: Scenario, out_path: str | Path, *, motion: Motion | None
     for p in (out, tpath):
         if p.exists() and not overwrite:
             raise FeltlabError(f"{p} already exists; choose another --out or pass --force to replace it")
+    writer = ClipWriter(out, sc.fps, sc.resolution)  # validates the format before any work
     if motion is None:
         sim = simulate_scenario(sc)
         motion = SimMotion(sim)
@@ -120,7 +121,7 @@ def render_scenario(sc: Scenario, out_path: str | Path, *, motion: Motion | None
     exposure_s = sc.exposure / sc.fps
     t_end = sim_end_time(sc)
     t1 = time.perf_counter()
-    with ClipWriter(out, sc.fps, sc.resolution) as wr:
+    with writer as wr:
         for k, frame in render_frames(renderer, motion, times, exposure_s, t_end):
             wr.write(frame)
             if progress:

@@ -25,6 +25,10 @@ from feltlab.render.scene import RayField, TableGeometry, lamp_irradiance, trace
 from tracking.camera import CameraModel
 
 
+#: Large shadow rectangles are evaluated on every SHADOW_STRIDE-th pixel (see FrameRenderer._shadow_rect).
+SHADOW_STRIDE = 2
+
+
 class Motion(Protocol):
     """Ball states over time (table frame): what the renderer needs from a simulator."""
 
@@ -276,9 +280,14 @@ class FrameRenderer:
                     lin[y0:y1, x0:x1] = self._still_cache[key]
                     new_cache[key] = self._still_cache[key]
                     continue
+            # balls that keep still during this exposure are shaded once and reused for every sub-frame
+            static = {i for i in inside if np.all(on_table[:, i] == on_table[0, i])
+                      and float(np.max(np.abs(pos[:, i] - pos[0, i]))) * self.px_per_mm < 0.02
+                      and float(np.max(np.abs(orient[:, i] - orient[0, i]))) < 1e-6}
+            memo: dict = {}
             acc = np.zeros((y1 - y0, x1 - x0, 3), np.float32)
             for j in subs:
-                acc += self._shade_box(x0, y0, x1, y1, centres[j], on_table[j], orient[j])
+                acc += self._shade_box(x0, y0, x1, y1, centres[j], on_table[j], orient[j], static, memo)
             lin[y0:y1, x0:x1] = acc / len(subs)
             if key is not None:
                 new_cache[key] = lin[y0:y1, x0:x1].copy()
@@ -287,8 +296,13 @@ class FrameRenderer:
         return optical_blur(lin, self.look.blur_px)
 
     def _shade_box(self, x0: int, y0: int, x1: int, y1: int, centres: np.ndarray, on: np.ndarray,
-                   orient: np.ndarray) -> np.ndarray:
-        """Linear radiance (h,w,3) of one image box at one instant: table with shadows, then balls."""
+                   orient: np.ndarray, static: set[int] | None = None, memo: dict | None = None) -> np.ndarray:
+        """Linear radiance (h,w,3) of one image box at one instant: table with shadows, then balls.
+
+        Results for balls in ``static`` are kept in ``memo`` and reused (same box, same exposure).
+        """
+        static = static or set()
+        memo = {} if memo is None else memo
         K = len(self.lamps.pos)
         live = np.nonzero(on)[0]
         ao = np.ones((y1 - y0, x1 - x0), np.float32)
@@ -300,11 +314,14 @@ class FrameRenderer:
             a0, b0, a1, b1 = max(r[0], x0), max(r[1], y0), min(r[2], x1), min(r[3], y1)
             if a1 <= a0 or b1 <= b0:
                 continue
-            pts = self.pts[b0:b1, a0:a1].reshape(-1, 3).astype(float)
-            nrm = self.nrm[b0:b1, a0:a1].reshape(-1, 3).astype(float)
-            ao_i, vis_i = ball_shadow(pts, nrm, centres[i], self.R, self.lamps)
-            ao[b0 - y0:b1 - y0, a0 - x0:a1 - x0] *= ao_i.reshape(b1 - b0, a1 - a0)
-            vis[:, b0 - y0:b1 - y0, a0 - x0:a1 - x0] *= vis_i.reshape(K, b1 - b0, a1 - a0)
+            if ("shadow", i) in memo:
+                ao_i, vis_i = memo[("shadow", i)]
+            else:
+                ao_i, vis_i = self._shadow_rect(a0, b0, a1, b1, centres[i])
+                if i in static:
+                    memo[("shadow", i)] = (ao_i, vis_i)
+            ao[b0 - y0:b1 - y0, a0 - x0:a1 - x0] *= ao_i
+            vis[:, b0 - y0:b1 - y0, a0 - x0:a1 - x0] *= vis_i
         img = self.amb[y0:y1, x0:x1] * ao[..., None]
         for k in range(K):
             img += self.direct[k, y0:y1, x0:x1] * vis[k][..., None]
@@ -316,15 +333,43 @@ class FrameRenderer:
             a0, b0, a1, b1 = max(r[0], x0), max(r[1], y0), min(r[2], x1), min(r[3], y1)
             if a1 <= a0 or b1 <= b0:
                 continue
-            dirs = self.rays[b0:b1, a0:a1].reshape(-1, 3).astype(float)
-            yc, xc = (b0 + b1) // 2, min((a0 + a1) // 2, self.w - 2)
-            pitch = float(np.arccos(np.clip(self.rays[yc, xc].astype(float) @ self.rays[yc, xc + 1].astype(float), -1, 1)))
-            cov, col = shade_ball(self.origin, dirs, pitch, centres[i], self.R, orient[i], self.looks[i],
-                                  self.lamps, self.ambient, self.cloth_lin * self.ambient)
+            if ("ball", i) in memo:
+                cov, col = memo[("ball", i)]
+            else:
+                dirs = self.rays[b0:b1, a0:a1].reshape(-1, 3).astype(float)
+                yc, xc = (b0 + b1) // 2, min((a0 + a1) // 2, self.w - 2)
+                pitch = float(np.arccos(np.clip(self.rays[yc, xc].astype(float) @ self.rays[yc, xc + 1].astype(float), -1, 1)))
+                cov, col = shade_ball(self.origin, dirs, pitch, centres[i], self.R, orient[i], self.looks[i],
+                                      self.lamps, self.ambient, self.cloth_lin * self.ambient)
+                if i in static:
+                    memo[("ball", i)] = (cov, col)
             sub = img[b0 - y0:b1 - y0, a0 - x0:a1 - x0]
             cov = cov.reshape(b1 - b0, a1 - a0, 1)
             sub[...] = sub * (1.0 - cov) + col.reshape(b1 - b0, a1 - a0, 3) * cov
         return img
+
+    def _shadow_rect(self, a0: int, b0: int, a1: int, b1: int, centre: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+        """One ball's (ambient factor (h,w), lamp visibility (K,h,w)) over an image rectangle.
+
+        Shadows and ambient occlusion are smooth (penumbrae span several px), so
+        large rectangles are evaluated on every second pixel and interpolated
+        bilinearly at the exact in-between positions.
+        """
+        K = len(self.lamps.pos)
+        hh, ww = b1 - b0, a1 - a0
+        step = SHADOW_STRIDE if hh * ww > 4000 and hh > 8 and ww > 8 else 1
+        ys = np.arange(b0, b1 + step - 1, step).clip(max=b1 - 1) if step > 1 else np.arange(b0, b1)
+        xs = np.arange(a0, a1 + step - 1, step).clip(max=a1 - 1) if step > 1 else np.arange(a0, a1)
+        pts = self.pts[np.ix_(ys, xs)].reshape(-1, 3).astype(float)
+        nrm = self.nrm[np.ix_(ys, xs)].reshape(-1, 3).astype(float)
+        ao_i, vis_i = ball_shadow(pts, nrm, centre, self.R, self.lamps)
+        ao_i = ao_i.reshape(len(ys), len(xs)).astype(np.float32)
+        vis_i = vis_i.reshape(K, len(ys), len(xs)).astype(np.float32)
+        if step == 1:
+            return ao_i, vis_i
+        mx, my = np.meshgrid(np.arange(ww, dtype=np.float32) / step, np.arange(hh, dtype=np.float32) / step)
+        up = lambda a: cv2.remap(a, mx, my, cv2.INTER_LINEAR, borderMode=cv2.BORDER_REPLICATE)  # noqa: E731
+        return up(ao_i), np.stack([up(v) for v in vis_i])
 
     def finish(self, frame_lin: np.ndarray, t_mid: float, exposure_s: float) -> np.ndarray:
         """Gain, white balance, flicker, sensor noise, sRGB encoding -> uint8 BGR (H,W,3)."""

@@ -192,6 +192,7 @@ def trace_table(origin: np.ndarray, dirs: np.ndarray, geo: TableGeometry, colour
     if geo.pockets:
         p0all = origin[None, :] + ((0.0 - origin[2]) / dz)[:, None] * dirs
         pock |= in_pocket(p0all) & (kind == CLOTH)
+        pock |= in_pocket(point) & (kind == CUSHION_FACE)  # the cushion stops at the pocket mouth
     if np.any(pock):
         point[pock] = ph[pock]
         kind[pock] = POCKET

@@ -37,6 +37,9 @@ class ClipWriter:
         self.path = Path(path)
         self.codec = codec_for(self.path)
         self.fps, self.size = float(fps), (int(size[0]), int(size[1]))
+        if self.codec == "mp4v" and (self.size[0] % 2 or self.size[1] % 2):
+            raise FeltlabError(f"MPEG-4 needs an even width and height, got {self.size[0]}x{self.size[1]}; "
+                               "change the resolution or write .avi / PNG frames")
         self.tmp = partial_path(self.path)
         self.count = 0
         self._vw = None

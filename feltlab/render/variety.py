@@ -1,0 +1,123 @@
+"""Randomised scenarios: many tables, cameras, lights and sensors from one seed.
+
+Tracking and physics must work on footage made by other tools, so tests should
+not lean on one look. :func:`varied_scenario` draws a plausible overhead
+setup (ranges below are our own, chosen to span common rigs) and a shot in
+which a struck cue ball meets an object ball. Same seed -> same scenario.
+
+>>> sc = varied_scenario(3, resolution=(320, 180))
+>>> sc.resolution, len(sc.balls) >= 2
+((320, 180), True)
+"""
+from __future__ import annotations
+
+import math
+
+import numpy as np
+
+from feltlab.render import settings as S
+from feltlab.render.scenario import BallSetup, CameraSpec, EffectsSpec, Lamp, LightingSpec, Scenario
+from feltlab.standards import table_preset
+
+#: Cloth colours seen on tables (sRGB): greens, blues, teal, red, grey, purple; common practice.
+CLOTHS = [(32, 112, 62), (20, 95, 50), (40, 130, 80), (30, 85, 150), (25, 65, 125), (24, 104, 96),
+          (130, 30, 35), (95, 95, 100), (80, 50, 110)]
+OBJECT_COLOURS = ["yellow", "blue", "red", "purple", "orange", "green", "maroon", "black"]
+
+
+def varied_scenario(seed: int, *, resolution: tuple[int, int] = (640, 360), fps: float | None = None,
+                    duration_s: float = 1.0, tables: tuple[str, ...] = ("pool-9ft", "pool-8ft", "pool-7ft", "carom"),
+                    n_balls: int | None = None) -> Scenario:
+    """A random but plausible scenario (see the module docstring)."""
+    rng = np.random.default_rng(seed)
+    preset = table_preset(str(rng.choice(tables)))
+    L, W, R = preset.length_mm, preset.width_mm, preset.ball.radius_mm
+    w, h = resolution
+    fps = float(fps if fps is not None else rng.choice([30.0, 50.0, 60.0, 120.0, 240.0]))
+    # camera: whole table in view (with margin) or a closer crop
+    fov = float(rng.uniform(45, 75))
+    whole = rng.random() < 0.7
+    need = (L + 2 * (S.CUSHION_WIDTH_MM + S.RAIL_WIDTH_MM)) * (1.05 if whole else 0.55)
+    need = max(need, (W + 400) * (w / h) * (1.05 if whole else 0.55))
+    height = need / 2 / math.tan(math.radians(fov) / 2)
+    cam = CameraSpec(height_mm=float(height), fov_deg=fov,
+                     aim_mm=(float(L / 2 + rng.uniform(-0.2, 0.2) * L * (not whole)),
+                             float(W / 2 + rng.uniform(-0.1, 0.1) * W * (not whole))),
+                     offset_mm=(float(rng.normal(0, 40)), float(rng.normal(0, 40))),
+                     roll_deg=float(rng.normal(0, 1.5)), pitch_deg=float(rng.normal(0, 2.5)),
+                     yaw_deg=float(rng.normal(0, 1.0)), k1=float(rng.uniform(-0.12, 0.02)),
+                     k2=float(rng.uniform(-0.01, 0.03)))
+    # lamps: 1-4 over the table, warm to cool
+    n_l = int(rng.integers(1, 5))
+    temp = rng.uniform(0, 1)
+    lamp_rgb = (255.0, 235 + 20 * temp, 200 + 55 * temp)
+    lamps = [Lamp((float(L * (k + 0.5) / n_l + rng.normal(0, 60)), float(W / 2 + rng.normal(0, 80)),
+                   float(rng.uniform(800, 1600))), float(rng.uniform(60, 350)), float(rng.uniform(0.7, 1.2)), lamp_rgb)
+             for k in range(n_l)]
+    lit = LightingSpec(ambient=float(rng.uniform(0.1, 0.6)), cloth_rgb=CLOTHS[int(rng.integers(len(CLOTHS)))],
+                       rail_rgb=_wood(rng),
+                       floor_rgb=tuple(float(x) for x in rng.uniform(20, 90, 3)),
+                       flicker=float(rng.choice([0.0, 0.0, rng.uniform(0.02, 0.15)])), flicker_hz=float(rng.choice([100.0, 120.0])),
+                       lamps=lamps)
+    eff = EffectsSpec(read_noise=float(rng.uniform(0.0, 0.01)), shot_noise=float(rng.uniform(0.0, 0.02)),
+                      vignetting=float(rng.uniform(0, 1.5)), blur_px=float(rng.uniform(0, 1.2)),
+                      white_balance=tuple(float(x) for x in rng.uniform(0.9, 1.1, 3)),
+                      brightness=float(rng.uniform(0.75, 1.3)))
+    # balls: an object ball ahead of the cue ball, plus bystanders, none overlapping
+    n = int(n_balls if n_balls is not None else rng.integers(2, 6))
+    margin = 3 * R
+    cue = np.array([rng.uniform(margin, L * 0.45), rng.uniform(margin, W - margin)])
+    obj = np.array([rng.uniform(L * 0.5, L - margin), rng.uniform(margin, W - margin)])
+    # aim for a cut of up to ~50 degrees: the ghost-ball point offset sideways
+    d = obj - cue
+    u = d / np.linalg.norm(d)
+    cut = math.radians(rng.uniform(-50, 50))
+    ghost = obj - 2 * R * (math.cos(cut) * u + math.sin(cut) * np.array([-u[1], u[0]]))
+    aim = ghost - cue
+    heading = math.degrees(math.atan2(aim[1], aim[0]))
+    # fast enough that the hit happens in the first half of the clip
+    speed = float(min(max(rng.uniform(600, 3500), np.linalg.norm(aim) / (0.45 * duration_s)), 6000.0))
+    follow = float(rng.choice([0.0, 0.5, 1.0, -0.5]))
+    vel = (speed * math.cos(math.radians(heading)), speed * math.sin(math.radians(heading)))
+    ux, uy = math.cos(math.radians(heading)), math.sin(math.radians(heading))
+    spin = (-uy * follow * speed / R, ux * follow * speed / R, float(rng.normal(0, 0.2)) * speed / R)
+    balls = [BallSetup("cue", S.BALL_COLOURS["cue"], "solid", 0, tuple(cue), vel, spin)]
+    colours = list(rng.permutation(OBJECT_COLOURS))
+    placed = [cue, obj]
+    for k in range(n - 1):
+        if k == 0:
+            p = obj
+        else:
+            for _ in range(200):
+                p = np.array([rng.uniform(margin, L - margin), rng.uniform(margin, W - margin)])
+                if all(np.linalg.norm(p - q) > 3 * R for q in placed) and _clear_of_path(p, cue, ghost, R):
+                    break
+            else:
+                continue
+            placed.append(p)
+        name = str(colours[k % len(colours)])
+        stripe = bool(rng.random() < 0.4) and name != "black"
+        label = name + ("-stripe" if stripe else "")
+        if any(b.label == label for b in balls):
+            label += "-2"
+        balls.append(BallSetup(label, S.BALL_COLOURS[name], "stripe" if stripe else "solid",
+                               int(rng.integers(1, 16)), (float(p[0]), float(p[1]))))
+    if not whole:  # a crop follows the action
+        mid = (cue + obj) / 2
+        cam.aim_mm = (float(mid[0]), float(mid[1]))
+    return Scenario(table=preset.name, fps=fps, duration_s=duration_s, resolution=(int(w), int(h)),
+                    exposure=float(rng.uniform(0.1, 0.9)), codec="mp4v", seed=int(seed), camera=cam,
+                    lighting=lit, effects=eff, physics={}, balls=balls, name=f"varied-{seed}")
+
+
+def _wood(rng: np.random.Generator) -> tuple[float, float, float]:
+    """A wood-brown rail colour (sRGB)."""
+    r = rng.uniform(60, 150)
+    return (float(r), float(r * rng.uniform(0.5, 0.65)), float(r * rng.uniform(0.3, 0.45)))
+
+
+def _clear_of_path(p: np.ndarray, a: np.ndarray, b: np.ndarray, R: float) -> bool:
+    """True if p is more than 2.5 R from the segment a-b (keeps bystanders off the cue ball's line)."""
+    ab = b - a
+    t = np.clip(np.dot(p - a, ab) / max(np.dot(ab, ab), 1e-9), 0, 1)
+    return float(np.linalg.norm(p - (a + t * ab))) > 2.5 * R
