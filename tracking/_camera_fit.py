@@ -155,8 +155,8 @@ def fit_edges(cam0: CameraModel, groups: list[Group], L: float, W: float,
     distance (mm) along the table axis between the point back-projected onto
     the plane z and the line, times the nominal scale (px/mm) so the loss works
     in pixels. ``free_length`` also fits a factor on L (to check the aspect
-    ratio). hfov_prior: (deg, sigma deg), a weak prior on the horizontal
-    field of view.
+    ratio). hfov_prior: (deg, sigma deg), a prior on the horizontal field
+    of view, weighted like one side's points (see below).
     """
     w = cam0.image_size[0]
     z_ref = groups[0][1]
@@ -165,6 +165,11 @@ def fit_edges(cam0: CameraModel, groups: list[Group], L: float, W: float,
     if free_length:
         p0 = np.append(p0, 1.0)
     nk = 8 + int(fit_k2)
+    # Edge points share systematic errors (a few tenths of a px per side), so
+    # they do not average down as 1/sqrt(N) in the focal direction; the prior
+    # is weighted as if it were one side's worth of points.
+    n_pts = sum(len(g[2]) for g in groups)
+    prior_w = loss_scale_px * np.sqrt(max(n_pts, 1) / 4.0)
 
     def fun(p):
         cam = camera_from_params(p[:nk], cam0.image_size, fit_k1=True, fit_k2=fit_k2)
@@ -172,7 +177,7 @@ def fit_edges(cam0: CameraModel, groups: list[Group], L: float, W: float,
         r = _edge_resid_mm(cam, groups, L, W, ls) * scale
         if hfov_prior is not None:
             hfov = np.degrees(2 * np.arctan(w / 2.0 / p[0]))
-            r = np.append(r, loss_scale_px * (hfov - hfov_prior[0]) / hfov_prior[1])
+            r = np.append(r, prior_w * (hfov - hfov_prior[0]) / hfov_prior[1])
         return r
 
     lo = np.full_like(p0, -np.inf)

@@ -82,10 +82,11 @@ class CalibrationSettings:
     #: most lenses over a table-sized field (OpenCV calib3d docs recommend
     #: adding higher terms only for wide-angle / fisheye lenses).
     fit_k2: bool = False
-    #: Weak prior on the horizontal field of view (deg, sigma in deg): plane
-    #: targets seen almost square-on do not fix the focal length (the focal /
-    #: height ratio is what the image constrains). 60 +/- 25 deg spans common
-    #: video lenses (from memory); it only matters when the tilt is tiny.
+    #: Prior on the horizontal field of view (deg, sigma in deg), used when
+    #: no cushion-face band fixes the camera height: plane targets seen almost
+    #: square-on do not fix the focal length (only focal / height). 60 +/- 25
+    #: deg spans common video lenses (from memory). It moves the cloth plane
+    #: relative to the measured nose plane, hardly the ball-centre plane.
     hfov_prior_deg: float = 60.0
     hfov_prior_sigma_deg: float = 25.0
     #: Cushion-face band (between cloth and cushion top) used to fix the
