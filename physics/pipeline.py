@@ -11,6 +11,7 @@ from dataclasses import dataclass, field, replace
 
 import numpy as np
 import pandas as pd
+from threadpoolctl import threadpool_limits
 
 from feltlab.errors import FeltlabError
 from feltlab.standards import TablePreset
@@ -33,7 +34,8 @@ CONTACT_COLUMNS = [
     "momentum_residual_pct", "ke_before_J", "ke_after_J", "ke_loss_frac",
     "ke_total_before_J", "ke_total_after_J",
     "cut_angle_deg", "throw_deg", "a_departure_deg", "b_departure_deg", "separation_deg",
-    "incidence_deg", "rebound_deg", "a_phase_in", "b_phase_in", "x_mm", "y_mm",
+    "incidence_deg", "rebound_deg", "a_phase_in", "b_phase_in", "a_phase_out", "b_phase_out",
+    "x_mm", "y_mm",
 ]
 SEGMENT_COLUMNS = [
     "ball", "segment", "t0_s", "t1_s", "phase", "x0_mm", "y0_mm", "vx0_mm_s", "vy0_mm_s",
@@ -153,6 +155,13 @@ def analyze_tracks(
     fitted where a ball has them, else its visible track rows. ball_radius_mm, ball_mass_kg:
     the ball set; fps: frame rate (Hz).
     """
+    # The fits solve many small dense problems; multi-threaded BLAS only adds overhead there (and
+    # thrashes on a busy machine), so BLAS runs single-threaded inside this stage.
+    with threadpool_limits(limits=1, user_api="blas"):
+        return _analyze(tracks, detections, table, ball_radius_mm, ball_mass_kg, fps, settings)
+
+
+def _analyze(tracks, detections, table, ball_radius_mm, ball_mass_kg, fps, settings) -> ShotPhysics:
     s = settings
     _check_inputs(table, ball_radius_mm, ball_mass_kg, fps)
     dt = 1.0 / fps
@@ -286,6 +295,8 @@ def _contacts_table(cands, fits, maps, table, R, m, dt, s) -> pd.DataFrame:
             pt = core["pa"] + R * core["n"]
             phase_a = fa.phase_at(ia, float(fa.breaks()[ia]) - 1e-6)
             phase_b = fb.phase_at(ib, float(fb.breaks()[ib]) - 1e-6)
+            out_a = fa.phase_at(ia + 1, float(fa.breaks()[ia]) + 1e-6)
+            out_b = fb.phase_at(ib + 1, float(fb.breaks()[ib]) + 1e-6)
             vb0, vb1 = core["vb0"], core["vb1"]
             cushion = ""
         else:
@@ -306,6 +317,8 @@ def _contacts_table(cands, fits, maps, table, R, m, dt, s) -> pd.DataFrame:
             pt = core["pa"] - R * core["n"]
             phase_a = f.phase_at(i, float(f.breaks()[i]) - 1e-6)
             phase_b = ""
+            out_a = f.phase_at(i + 1, float(f.breaks()[i]) + 1e-6)
+            out_b = ""
             vb0 = vb1 = np.full(2, np.nan)
             cushion = c.cushion
         row = dict(
@@ -315,7 +328,7 @@ def _contacts_table(cands, fits, maps, table, R, m, dt, s) -> pd.DataFrame:
             va_out_x_mm_s=core["va1"][0], va_out_y_mm_s=core["va1"][1],
             vb_in_x_mm_s=vb0[0], vb_in_y_mm_s=vb0[1], vb_out_x_mm_s=vb1[0], vb_out_y_mm_s=vb1[1],
             e=float(core["e"]), e_sigma=float(np.sqrt(var[0])),
-            a_phase_in=phase_a, b_phase_in=phase_b, x_mm=pt[0], y_mm=pt[1], _cand=ci,
+            a_phase_in=phase_a, b_phase_in=phase_b, a_phase_out=out_a, b_phase_out=out_b, x_mm=pt[0], y_mm=pt[1], _cand=ci,
         )
         row.update(d)
         rows.append(row)
