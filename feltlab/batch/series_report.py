@@ -355,8 +355,9 @@ def _replace_write(path: Path, write) -> Path:
     return path
 
 
-def _csv(df: pd.DataFrame, path: Path) -> Path:
-    return _replace_write(path, lambda p: df.to_csv(p, index=False, float_format="%.6g"))
+def _csv(df: pd.DataFrame, path: Path, digits: int = 6) -> Path:
+    """CSV with ``digits`` significant digits, written to a temporary name then renamed."""
+    return _replace_write(path, lambda p: df.to_csv(p, index=False, float_format=f"%.{digits}g"))
 
 
 def _fmt(v, digits: int = 4) -> str:
@@ -401,7 +402,7 @@ def write_series(out_dir: Path, outcomes, spec: Spec | None = None, confidence: 
     res = compute_series(data, spec, confidence)
     files: dict[str, Path] = {}
     allc = res.contacts
-    files["all_contacts.csv"] = _csv(allc, out_dir / "all_contacts.csv")
+    files["all_contacts.csv"] = _csv(allc, out_dir / "all_contacts.csv", digits=10)  # measurements: keep them
     files["all_contacts.parquet"] = _replace_write(out_dir / "all_contacts.parquet",
                                                    lambda p: allc.to_parquet(p, index=False))
     files["series.csv"] = _csv(res.kinds, out_dir / "series.csv")
