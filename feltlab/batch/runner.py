@@ -401,7 +401,7 @@ def run_batch(
     def say(text: str) -> None:
         warnings.append(text)
         if progress:
-            bar.log(text)
+            bar.log(f"feltlab: warning: {text}")
         elif log:
             log(text)
 
@@ -429,6 +429,8 @@ def run_batch(
                 o = _copy_for(copy_clip, src, shas, out, settings, settings_hash)
                 outcomes[copy_clip.rel] = o
                 bar.advance(o)
+                if o.warning:
+                    say(o.warning)
 
             def on_done(o: ClipOutcome) -> None:
                 outcomes[o.clip_rel] = o
