@@ -25,8 +25,10 @@ def _frame_range(text: str | None) -> tuple[int, int] | None:
         raise FeltlabError(f"--frames {text!r} is not FIRST:LAST (frame indices, e.g. 0:600)") from None
 
 
-def _setup_logging(quiet: bool, console) -> logging.Logger:
+def _setup_logging(quiet: bool, console) -> tuple:
+    """Send feltlab's log lines to stderr; returns the previous state for :func:`_restore_logging`."""
     log = logging.getLogger("feltlab")
+    saved = (list(log.handlers), log.level, log.propagate)
     for h in list(log.handlers):
         log.removeHandler(h)
     if console is not None:
@@ -41,7 +43,18 @@ def _setup_logging(quiet: bool, console) -> logging.Logger:
     log.addHandler(h)
     log.setLevel(logging.ERROR if quiet else logging.INFO)
     log.propagate = False
-    return log
+    return saved
+
+
+def _restore_logging(saved: tuple) -> None:
+    log = logging.getLogger("feltlab")
+    for h in list(log.handlers):
+        log.removeHandler(h)
+    handlers, level, propagate = saved
+    for h in handlers:
+        log.addHandler(h)
+    log.setLevel(level)
+    log.propagate = propagate
 
 
 @click.command(name="analyze")
@@ -64,7 +77,7 @@ def _setup_logging(quiet: bool, console) -> logging.Logger:
 def command(clip: Path, table: str | None, calib: Path | None, fps: float | None, ball_mass: float | None,
             frames: str | None, out: Path, replace: bool, no_video: bool, quiet: bool) -> None:
     """Measure one shot: tracks, contacts, restitution, impulse and energy loss, with plots and a report."""
-    from feltlab.pipeline import AnalyzeSettings, analyze_clip
+    from feltlab.pipeline import AnalyzeSettings
 
     settings = AnalyzeSettings(table=table, calib=str(calib) if calib else None, fps=fps, ball_mass_kg=ball_mass,
                                frame_range=_frame_range(frames), video=not no_video)
@@ -75,28 +88,34 @@ def command(clip: Path, table: str | None, calib: Path | None, fps: float | None
         from rich.console import Console
 
         console = Console(stderr=True)
-    _setup_logging(quiet, console)
-    if not tty:
-        result = analyze_clip(clip, dest, settings, progress=None, replace=replace)
-    else:
-        from rich.progress import BarColumn, MofNCompleteColumn, Progress, TextColumn, TimeRemainingColumn
-
-        labels = {"track": "reading and tracking frames", "draw": "drawing annotated frames"}
-        with Progress(TextColumn("{task.description}"), BarColumn(), MofNCompleteColumn(), TimeRemainingColumn(),
-                      console=console, transient=True) as bar:
-            tasks: dict[str, int] = {}
-
-            def progress(stage: str, done: int, total: int) -> None:
-                if stage not in tasks:
-                    for old in tasks.values():  # one bar at a time: the stage now running
-                        bar.remove_task(old)
-                    tasks.clear()
-                    tasks[stage] = bar.add_task(labels.get(stage, stage), total=total or None)
-                bar.update(tasks[stage], completed=done, total=total or None)
-
-            result = analyze_clip(clip, dest, settings, progress=progress, replace=replace)
-    for w in result.warnings:
-        click.echo(f"feltlab: warning: {w}", err=True)
-    if not quiet:
+    saved = _setup_logging(quiet, console)
+    try:
+        result = _run(clip, dest, settings, replace, tty, console)
+    finally:
+        _restore_logging(saved)
+    if not quiet:  # (warnings were logged as they arose)
         click.echo(str(result.out_dir / "report.html") if (result.out_dir / "report.html").exists()
                    else str(result.out_dir))
+
+
+def _run(clip: Path, dest: Path, settings, replace: bool, tty: bool, console):
+    from feltlab.pipeline import analyze_clip
+
+    if not tty:
+        return analyze_clip(clip, dest, settings, progress=None, replace=replace)
+    from rich.progress import BarColumn, MofNCompleteColumn, Progress, TextColumn, TimeRemainingColumn
+
+    labels = {"track": "reading and tracking frames", "draw": "drawing annotated frames"}
+    with Progress(TextColumn("{task.description}"), BarColumn(), MofNCompleteColumn(), TimeRemainingColumn(),
+                  console=console, transient=True) as bar:
+        tasks: dict[str, int] = {}
+
+        def progress(stage: str, done: int, total: int) -> None:
+            if stage not in tasks:
+                for old in tasks.values():  # one bar at a time: the stage now running
+                    bar.remove_task(old)
+                tasks.clear()
+                tasks[stage] = bar.add_task(labels.get(stage, stage), total=total or None)
+            bar.update(tasks[stage], completed=done, total=total or None)
+
+        return analyze_clip(clip, dest, settings, progress=progress, replace=replace)
