@@ -154,6 +154,13 @@ def test_tables_round_trip_with_units(tmp_path):
     assert pd.read_csv(tmp_path / "contacts.csv", keep_default_na=False)["cushion"].tolist() == [""]
 
 
+def test_empty_tables_keep_their_header(tmp_path):
+    """No contact found is a result too: contacts.csv then has the documented header and no rows."""
+    write_table(pd.DataFrame(), "contacts", tmp_path)
+    back = pd.read_csv(tmp_path / "contacts.csv")
+    assert len(back) == 0 and list(back.columns) == CONTACT_COLUMNS
+
+
 def test_unit_names():
     assert has_unit("vx_mm_s") and has_unit("impulse_Ns") and has_unit("ke_loss_frac") and has_unit("x0_sigma_mm")
     assert not has_unit("speed") and not has_unit("velocity")
@@ -426,6 +433,37 @@ def test_cli_bad_input_one_line_exit_2(tmp_path):
     r = CliRunner().invoke(main, ["analyze", str(tmp_path / "x.mp4"), "--table", "pool-10ft"])
     assert r.exit_code == 2 and "pool-9ft" in r.output
     assert not (Path("results") / "x").exists()
+
+
+def test_shot_without_contacts(tmp_path, monkeypatch):
+    """A clip where nothing touches still gets every output, with an empty contacts table."""
+    import feltlab.pipeline as P
+    from feltlab.pipeline import AnalyzeSettings, analyze_clip
+
+    tracks, contacts, cal = fake_stages(monkeypatch)
+    clip = write_synthetic_video(tmp_path / "drill.mp4", tracks, cal)
+    early = tracks[tracks["t_s"] < contacts["t_s"][0]]  # only the approach, before the hit
+
+    def _physics(tr, table, radius, mass, settings):
+        return types.SimpleNamespace(events=pd.DataFrame(), segments=pd.DataFrame(), contacts=pd.DataFrame(),
+                                     mu_s=float("nan"), mu_s_sigma=float("nan"), mu_r=float("nan"),
+                                     mu_r_sigma=float("nan"))
+
+    real_track = P._track
+
+    def _track(*a, **k):
+        tr = real_track(*a, **k)
+        tr.tracks = early
+        return tr
+
+    monkeypatch.setattr(P, "_physics", _physics)
+    monkeypatch.setattr(P, "_track", _track)
+    res = analyze_clip(clip, tmp_path / "r" / "drill", AnalyzeSettings())
+    assert res.warnings == [] and len(res.contacts) == 0
+    d = res.out_dir
+    assert len(pd.read_csv(d / "contacts.csv")) == 0
+    assert "No contact was found" in (d / "report.html").read_text()
+    assert (d / "annotated.mp4").is_file() and (d / "speed.png").is_file()
 
 
 def test_stage_named_on_errors(tmp_path, monkeypatch):

@@ -73,7 +73,11 @@ def tidy(df: pd.DataFrame, kind: str) -> pd.DataFrame:
     """
     if kind not in ORDER:
         raise ValueError(f"unknown table kind {kind!r}")
+    if df is None:
+        df = pd.DataFrame()
     df = df.loc[:, [c for c in df.columns if not str(c).startswith("_")]]  # a stage's private columns
+    if len(df) == 0:  # nothing found (e.g. no contact): still write the documented header
+        df = df.reindex(columns=list(df.columns) + [c for c in ORDER[kind] if c not in df.columns])
     missing = [c for c in REQUIRED[kind] if c not in df.columns]
     if missing:
         raise ValueError(f"{kind} table lacks column(s) {missing}")
