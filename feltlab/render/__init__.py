@@ -133,7 +133,7 @@ def render_scenario(sc: Scenario, out_path: str | Path, *, motion: Motion | None
     truth = build_truth(
         clip_name=out.name, codec=codec, seed=sc.seed, fps=sc.fps, t0_s=sc.t0_s, exposure=sc.exposure,
         camera=renderer.camera,
-        table={"preset": preset.name, "length_mm": preset.length_mm, "width_mm": preset.width_mm,
+        table={"preset": preset.name, "name": preset.name, "length_mm": preset.length_mm, "width_mm": preset.width_mm,
                "nose_height_mm": geo.nose_height_mm, "pockets": preset.pockets},
         ball={"diameter_mm": preset.ball.diameter_mm, "mass_kg": preset.ball.mass_kg},
         balls=[{"label": b.label, "rgb": list(b.rgb), "pattern": b.pattern, "number": b.number} for b in sc.balls],

@@ -9,7 +9,7 @@ distorted image with the origin at the centre of the top-left pixel)::
       "fps": 240.0, "n_frames": 360, "t0_s": 0.0,
       "exposure_fraction": 0.5, "exposure_s": 0.00208,
       "resolution": [1280, 720],
-      "table": {"preset", "length_mm", "width_mm", "nose_height_mm", "pockets"},
+      "table": {"preset", "name" (same as preset), "length_mm", "width_mm", "nose_height_mm", "pockets"},
       "ball": {"diameter_mm", "mass_kg"},
       "balls": [{"label", "rgb", "pattern", "number"}],
       "camera": CameraModel.to_dict(),
