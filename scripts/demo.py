@@ -68,6 +68,7 @@ def main(argv: list[str] | None = None) -> int:
 
     import logging
 
+    from feltlab.outputs.atomic import finished_result, sha256_file
     from feltlab.outputs.compare import load_truth, match_contacts, true_contacts, unmatched_measured
     from feltlab.pipeline import AnalyzeSettings, analyze_clip
     from feltlab.render.truth import truth_path_for
@@ -75,6 +76,11 @@ def main(argv: list[str] | None = None) -> int:
     logging.basicConfig(level=logging.INFO, format="feltlab: %(message)s")
     try:
         clip = ensure_clip(Path(a.clip))
+        dest = Path(a.out) / clip.stem
+        prev = finished_result(dest)
+        if prev is not None and prev.get("clip", {}).get("sha256") != sha256_file(clip) and not a.replace:
+            print(f"demo: {dest} was made from an earlier render of {clip.name}; replacing it")
+            a.replace = True
         t0 = time.perf_counter()
         try:
             res = analyze_clip(clip, Path(a.out) / clip.stem, AnalyzeSettings(), replace=a.replace)
