@@ -18,7 +18,6 @@ from feltlab.standards import TablePreset
 from physics.contacts import ball_ball_core, cushion_core, derived, propagate
 from physics.events import (
     BallSamples,
-    ContactCandidate,
     ball_samples,
     find_contacts,
     motion_onset,
@@ -103,8 +102,6 @@ def _layouts(samples, cands, onsets, dt, s):
             first_contact = brs[0].t if brs else np.inf
             if on.t_onset < first_contact - 3 * dt:
                 brs.insert(0, _Break(on.t_onset, "strike", -1))
-        if rest_first and not brs:
-            rest_first = True  # never moves: one rest segment
         # breaks within one frame share a break (the fit cannot split them)
         merged: list[_Break] = []
         cmap: dict[int, int] = {}
@@ -124,8 +121,6 @@ def _layouts(samples, cands, onsets, dt, s):
                 for j, m in enumerate(merged):
                     if abs(m.t - c.t_init_s) < 1.0 * dt:
                         cmap[i] = j
-        if not merged and not rest_first and len(brs) == 0:
-            pass
         guards = np.array([
             s.guard_ball_s if m.kind == "ball-ball" else
             s.guard_cushion_s if m.kind == "ball-cushion" else s.guard_strike_s
@@ -345,7 +340,7 @@ def _segments_table(fits: dict[str, ChainFit], samples, s: PhysicsSettings, per_
     for name, f in fits.items():
         lay = f.layout
         if lay.rest_first and lay.n_seg == 1:
-            sd = np.sqrt(np.diag(f.cov))
+            sd = np.sqrt(np.clip(np.diag(f.cov), 0, None))
             rows.append(dict(ball=name, segment=0, t0_s=f.t[0], t1_s=f.t[-1], phase="rest",
                              x0_mm=f.x[0], y0_mm=f.x[1], vx0_mm_s=0.0, vy0_mm_s=0.0,
                              ax_mm_s2=0.0, ay_mm_s2=0.0, x0_sigma_mm=sd[0], y0_sigma_mm=sd[1],
@@ -363,7 +358,7 @@ def _segments_table(fits: dict[str, ChainFit], samples, s: PhysicsSettings, per_
             par = unpack_segment(f.x, lay, k)
             base = dict(ball=name, segment=k, rms_mm=f.rms_mm, n_points=npts)
             if par is None:
-                sd = np.sqrt(np.diag(f.cov))[:2]
+                sd = np.sqrt(np.clip(np.diag(f.cov), 0, None))[:2]
                 rows.append(dict(base, t0_s=t0, t1_s=t1, phase="rest", x0_mm=P[0, 0], y0_mm=P[0, 1],
                                  vx0_mm_s=0.0, vy0_mm_s=0.0, ax_mm_s2=0.0, ay_mm_s2=0.0,
                                  x0_sigma_mm=sd[0], y0_sigma_mm=sd[1], t_roll_s=np.nan, mu=np.nan,
@@ -384,7 +379,7 @@ def _segments_table(fits: dict[str, ChainFit], samples, s: PhysicsSettings, per_
                 return np.array([Pz[0], Pz[1], Vz[0], Vz[1], pz[1][0], pz[1][1],
                                  np.hypot(*pz[1]) / g, pz[3] / g, *(-pz[3] * u)])
             var = propagate(vals, f.x, f.cov)
-            sd = np.sqrt(var)
+            sd = np.sqrt(np.clip(var, 0, None))
             if t_roll > 0 and t0 < min(t_r, t1):
                 rows.append(dict(base, t0_s=t0, t1_s=min(t_r, t1), phase="slide",
                                  x0_mm=P[0, 0], y0_mm=P[0, 1], vx0_mm_s=v0[0], vy0_mm_s=v0[1],

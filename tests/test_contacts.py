@@ -11,7 +11,6 @@ from __future__ import annotations
 import math
 
 import numpy as np
-import pandas as pd
 import pytest
 
 from feltlab.standards import G_MM_S2, table_preset

@@ -7,7 +7,6 @@ import math
 from pathlib import Path
 
 import numpy as np
-import pandas as pd
 import pytest
 
 from feltlab.errors import FeltlabError
