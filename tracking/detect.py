@@ -385,7 +385,7 @@ def cluster_candidates(image: np.ndarray, fg_mask: np.ndarray, radius_px: float,
 
 # --------------------------------------------------------------------------- refinement
 def _edge_points(dsm: np.ndarray, centre: np.ndarray, r_exp: float, settings: DetectionSettings,
-                 rising: bool = False):
+                 rising: bool = False, edge_floor: float | None = None):
     """Steepest drop (or rise) of the smoothed image ``dsm`` along rays; returns (pts, strength, valid, end).
 
     ``end``: the profile value at the far end of each ray.
@@ -407,6 +407,22 @@ def _edge_points(dsm: np.ndarray, centre: np.ndarray, r_exp: float, settings: De
     prior = np.exp(-0.5 * ((sm - r_exp) / (0.35 * r_exp)) ** 2)
     score = drop * prior[None, :]
     j = np.argmax(score, axis=1)
+    if not rising:
+        # The silhouette is the OUTERMOST clear drop: inner edges (number
+        # circle, stripe, highlight) can be stronger than the limb of a ball
+        # close to the cloth colour, but they are never outside it. A shadow's
+        # soft outer edge is too weak (< 15% of the ray's strongest drop) or
+        # too far out (> 1.3 radii) to count.
+        rowmax = drop.max(axis=1, keepdims=True)
+        floor = 0.2 * (edge_floor if edge_floor is not None else 0.0)
+        strong = drop >= np.maximum(0.15 * rowmax, floor)
+        kk = np.arange(len(sm))[None, :]
+        # outermost strong sample within 1.3 radii, then the peak of its run
+        outer = np.where(strong & (sm[None, :] <= 1.3 * r_exp), kk, -1).max(axis=1)
+        gap_before = np.where(~strong & (kk < outer[:, None]), kk, -1).max(axis=1)
+        in_run = (kk > gap_before[:, None]) & (kk <= outer[:, None])
+        jr = np.argmax(np.where(in_run, drop, -np.inf), axis=1)
+        j = np.where(outer >= 0, jr, j)
     j = np.clip(j, 1, len(sm) - 2)
     idx = np.arange(n)
     strength = drop[idx, j]
@@ -485,7 +501,7 @@ def refine_centre(d: np.ndarray, x0: float, y0: float, r_exp: float,
     fit = None
     fixed = False
     for it in range(2):
-        pts, stren, valid, end = _edge_points(dsm, c, r_exp, settings)
+        pts, stren, valid, end = _edge_points(dsm, c, r_exp, settings, edge_floor=threshold_dn)
         if image is not None and threshold_dn is not None:
             blocked = end > threshold_dn
             if blocked.any():

@@ -56,10 +56,14 @@ class CalibrationSettings:
     #: A cushion is ~50 mm wide from nose to rail top (common practice), a
     #: visible face or shadow band at most ~h = 36 mm wide at 45 deg.
     plateau_mm: float = 18.0
+    #: Widest band (mm on the table) accepted between cloth and a cushion top
+    #: of the cloth's own colour: a face of nose height h = 36.5 mm seen at up
+    #: to ~45 deg off vertical (wider dark stripes are balls or marks).
+    band_max_mm: float = 40.0
     #: Search window of the first pass, inward / outward of the rough
     #: outline, as a fraction of the table width in px.
     search_in_frac: float = 0.10
-    search_out_frac: float = 0.06
+    search_out_frac: float = 0.10
     #: Half-width (px) of the search window of the refinement passes around
     #: the nose line predicted by the previous camera fit.
     refine_window_px: float = 10.0
@@ -130,7 +134,7 @@ class DetectionSettings:
     #: Minimum colour distance (DN, 0..255 scale) counted as foreground,
     #: whatever the noise estimate (compression blocks reach ~5-8 DN; from
     #: inspecting MPEG-4 part 2 output at default quality, from memory).
-    fg_min_dn: float = 14.0
+    fg_min_dn: float = 9.0
     #: Minimum Gaussian-weighted (sigma = r/2) foreground of a candidate (0..1;
     #: a filled disc scores 0.86; 0.6 keeps a ball whose disc is mostly above
     #: threshold, e.g.
