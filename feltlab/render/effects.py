@@ -33,7 +33,7 @@ def encode_srgb8(img_lin: np.ndarray) -> np.ndarray:
     """Linear RGB float image -> 8-bit sRGB, BGR channel order (clips at full scale)."""
     idx = np.clip(img_lin * (len(_LUT) - 1) + 0.5, 0, len(_LUT) - 1).astype(np.int32)
     out = _LUT[idx]
-    return np.ascontiguousarray(out[..., ::-1])
+    return cv2.cvtColor(out, cv2.COLOR_RGB2BGR)
 
 
 def vignetting_map(cos_axis: np.ndarray, strength: float) -> np.ndarray:
