@@ -240,6 +240,22 @@ def _line(img, pts, rgb, thick: int) -> None:
     cv2.polylines(img, [arr], False, bgr(rgb), thick, cv2.LINE_AA)
 
 
+def _dashed(img, pts, rgb, thick: int, dash: float = 8.0) -> None:
+    """A dashed two-point line with a black outline (the contact normal: dashed so that it never
+    reads as a ball's trail or arrow, whatever the ball colours)."""
+    pts = np.asarray(pts, float)
+    if len(pts) < 2 or not np.isfinite(pts).all():
+        return
+    a, b = pts[0], pts[-1]
+    n = int(max(1, np.hypot(*(b - a)) // dash))
+    for i in range(0, n, 2):
+        p, q = a + (b - a) * i / n, a + (b - a) * min(i + 1, n) / n
+        cv2.line(img, _pt(p), _pt(q), (0, 0, 0), thick + 2, cv2.LINE_AA)
+    for i in range(0, n, 2):
+        p, q = a + (b - a) * i / n, a + (b - a) * min(i + 1, n) / n
+        cv2.line(img, _pt(p), _pt(q), bgr(rgb), thick, cv2.LINE_AA)
+
+
 def _arrow(img, a, b, rgb, thick: int) -> None:
     if not (np.isfinite(a).all() and np.isfinite(b).all()):
         return
@@ -313,7 +329,7 @@ def draw_overlay(image: np.ndarray, ov: Overlay, frame: int, t_s: float | None =
             shown.append(c)
     for c in shown:
         if c["n_px"] is not None:
-            _line(img, T(c["n_px"]), CONTACT_RGB, 1 if view is None else 2)
+            _dashed(img, T(c["n_px"]), CONTACT_RGB, 1 if view is None else 2, dash=max(6.0, 0.6 * r))
         if c["cp_px"] is not None and np.isfinite(c["cp_px"]).all():
             p = T(c["cp_px"])
             cv2.drawMarker(img, _pt(p), (0, 0, 0), cv2.MARKER_TILTED_CROSS, r + 4, 4, cv2.LINE_AA)

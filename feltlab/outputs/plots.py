@@ -221,7 +221,8 @@ def table_diagram(tracks: pd.DataFrame, contacts: pd.DataFrame | None, table, ba
             # Put the label towards the table centre so it stays on the drawing.
             d = np.array([L / 2, W / 2]) - cp
             d = d / (np.linalg.norm(d) + 1e-9)
-            ax.annotate(txt, cp, xytext=(cp + d * 160 + np.array([0, 40])), fontsize=8, zorder=10,
+            ax.annotate(txt, cp, xytext=(cp + d * 170), fontsize=8, zorder=10, multialignment="left",
+                        ha="left" if d[0] >= 0 else "right", va="bottom" if d[1] >= 0 else "top",
                         bbox=dict(boxstyle="round,pad=0.25", fc="white", ec="0.6", alpha=0.9),
                         arrowprops=dict(arrowstyle="-", color="0.4", lw=0.7))
     ax.set_xlim(-CUSHION_DRAW_MM - 10, L + CUSHION_DRAW_MM + 10)

@@ -20,8 +20,8 @@ OKABE_ITO_RGB: tuple[tuple[int, int, int], ...] = (
 #: The cue ball is always drawn in white (with a dark outline) -- it is the
 #: one ball every viewer looks for first.
 CUE_RGB = (255, 255, 255)
-#: Contact markers and normals.
-CONTACT_RGB = (240, 228, 66)  # Okabe-Ito yellow: stands out on green, blue and red cloth
+#: Contact markers and normals (dashed): light grey with a black outline, distinct from every ball colour.
+CONTACT_RGB = (225, 225, 225)
 OUTLINE_RGB = (0, 0, 0)
 #: Phase shading in plots (light tints of Okabe-Ito orange / sky blue).
 SLIDE_RGB = (230, 159, 0)
