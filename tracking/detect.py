@@ -500,7 +500,7 @@ def refine_centre(d: np.ndarray, x0: float, y0: float, r_exp: float,
         ip = image[ya:yb, xa:xb].astype(np.float32)
     fit = None
     fixed = False
-    for it in range(2):
+    for it in range(3):
         pts, stren, valid, end = _edge_points(dsm, c, r_exp, settings, edge_floor=threshold_dn)
         if image is not None and threshold_dn is not None:
             blocked = end > threshold_dn
@@ -629,10 +629,11 @@ def detect_frame(image: np.ndarray, calibration: Calibration, settings: Detectio
         if len(hc):
             hc[:, 0] += xa
             hc[:, 1] += ya
-            inside = lab[np.clip(np.round(cands[:, 1]).astype(int), 0, lab.shape[0] - 1),
-                         np.clip(np.round(cands[:, 0]).astype(int), 0, lab.shape[1] - 1)] == i
-            cands = cands[~inside]
-            extra.append(hc)
+            # keep the disc-score candidates too (a low-contrast ball next to a
+            # bright one casts few Hough votes); add the Hough ones not already there
+            near = np.array([np.any(np.hypot(cands[:, 0] - x, cands[:, 1] - y) < settings.nms_radius * r0)
+                             for x, y in hc[:, :2]]) if len(cands) else np.zeros(len(hc), bool)
+            extra.append(hc[~near])
     if extra:
         cands = np.vstack([cands] + extra)
     found = []
