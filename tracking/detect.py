@@ -126,7 +126,7 @@ def fit_circle_algebraic(pts: np.ndarray, w: np.ndarray | None = None) -> tuple[
 
 
 def fit_circle_robust(pts: np.ndarray, w0: np.ndarray, centre0: np.ndarray, radius: float | None,
-                      tukey_c: float = 4.685, iters: int = 6) -> dict:
+                      tukey_c: float = 4.685, iters: int = 4) -> dict:
     """Tukey-IRLS geometric circle fit to edge points (N,2) with prior weights w0.
 
     ``radius`` None fits the radius, else it is held fixed. Returns dict with
@@ -603,24 +603,31 @@ def detect_frame(image: np.ndarray, calibration: Calibration, settings: Detectio
     x0, y0, x1, y1 = background.roi
     d = foreground_strength(image, background)
     dcrop = d[y0:y1, x0:x1]
-    fg = np.clip(dcrop / background.threshold_dn - 0.5, 0, 1).astype(np.float32)
-    cands = find_candidates(fg, r0, settings)
     thr = background.threshold_dn
+    half_res = r0 >= 6.0
+    small = cv2.resize(dcrop, (dcrop.shape[1] // 2, dcrop.shape[0] // 2), interpolation=cv2.INTER_AREA) \
+        if half_res else dcrop
+    fg = np.clip(small / thr - 0.5, 0, 1).astype(np.float32)
+    if half_res:
+        cands = _find_candidates(fg, r0 / 2.0, settings)
+        cands[:, :2] = cands[:, :2] * 2.0 + 0.5
+    else:
+        cands = _find_candidates(fg, r0, settings)
+    scale = 2 if half_res else 1
     # Blobs bigger than ~1.7 balls: touching balls; find their centres by Hough voting.
     # (components found at half resolution: 4x cheaper, boxes scaled back)
-    small = cv2.resize(dcrop, (dcrop.shape[1] // 2, dcrop.shape[0] // 2), interpolation=cv2.INTER_AREA)
     n_cc, lab_s, stats, _ = cv2.connectedComponentsWithStats((small > thr).astype(np.uint8), connectivity=8)
     ball_area = np.pi * r0 * r0
     extra = []
     lab = None
     for i in range(1, n_cc):
-        if 4 * stats[i, cv2.CC_STAT_AREA] < 1.7 * ball_area:
+        if scale * scale * stats[i, cv2.CC_STAT_AREA] < 1.7 * ball_area:
             continue
         if lab is None:
             lab = cv2.resize(lab_s.astype(np.int32).astype(np.float32), (dcrop.shape[1], dcrop.shape[0]),
                              interpolation=cv2.INTER_NEAREST).astype(np.int32)
             lab[dcrop <= thr] = 0
-        bx, by, bw, bh = 2 * stats[i, :4]
+        bx, by, bw, bh = scale * stats[i, :4]
         m = int(np.ceil(r0)) + 2
         xa, ya = max(bx - m, 0), max(by - m, 0)
         xb, yb = min(bx + bw + m, dcrop.shape[1]), min(by + bh + m, dcrop.shape[0])

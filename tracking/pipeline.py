@@ -263,7 +263,7 @@ def track_clip(path: str | os.PathLike, table: str | TablePreset | None = DEFAUL
     result = _finish(det_all, jumps, frame_t, cal, ts, warnings)
     return TrackResult(tracks=result[0], detections=result[1], calibration=cal, fps=src.fps,
                        fps_source=src.fps_source, n_frames=n_frames, balls=result[2], segments_hint=result[3],
-                       warnings=warnings + list(src.warnings[len(warnings):]),
+                       warnings=list(dict.fromkeys(list(src.warnings) + warnings)),
                        stats={"background_noise_dn": bg.noise_dn, "threshold_dn": bg.threshold_dn,
                               "radius_px": bg.radius_px, "static_balls_painted": int(len(bg.static_px)),
                               "time_source": src.time_source})
