@@ -151,7 +151,7 @@ def _sample(gray: np.ndarray, pts: np.ndarray) -> np.ndarray:
 
 
 def nose_offset(profile: np.ndarray, step: float, plateau_n: int, settings: CalibrationSettings,
-                inner_n: int) -> tuple[float, float, float | None] | None:
+                inner_n: int, band_max_n: int | None = None) -> tuple[float, float, float | None, int] | None:
     """Offsets (samples) of the nose edge along an outward profile, its contrast, and the band's inner edge.
 
     ``inner_n`` leading samples are known cloth. The third value is the offset
@@ -168,22 +168,21 @@ def nose_offset(profile: np.ndarray, step: float, plateau_n: int, settings: Cali
     dc = dg[:inner_n]
     dnoise = 1.4826 * np.median(np.abs(dc - np.median(dc))) + 0.2
     thr = max(settings.edge_min_snr * dnoise, 1.0)
-    dev = np.abs(g - c0)
-    start = np.nonzero(dev[inner_n:] > max(6 * noise, 6.0))[0]
-    if start.size == 0:
+    absd = np.abs(dg)
+    # the first edge: the first run of strong gradient beyond the known cloth
+    # (slow shading of the cloth, e.g. darkening near the cushions, is no edge)
+    over = np.nonzero(absd[inner_n:] >= thr)[0]
+    if over.size == 0:
         return None
-    i0 = inner_n + int(start[0])
-    # the first edge: the gradient extremum around the first departure
-    lo = max(inner_n // 2, i0 - int(3 / step))
-    seg = np.abs(dg[lo: i0 + int(2 / step) + 1])
-    i1 = lo + int(np.argmax(seg))
-    e1 = abs(dg[i1])
-    if e1 < thr:
-        return None
+    i0 = inner_n + int(over[0])
+    i_end = i0
+    while i_end + 1 < len(g) and absd[i_end + 1] >= thr:
+        i_end += 1
+    i1 = i0 + int(np.argmax(absd[i0: i_end + 1]))
+    e1 = absd[i1]
     strong = max(thr, settings.edge_rel_min * e1)
     flat = max(0.5 * thr, 0.15 * e1)
     # walk outward to the first flat stretch (the cushion top)
-    absd = np.abs(dg)
     run = 0
     plateau = None
     for i in range(i1, len(g)):
@@ -202,9 +201,12 @@ def nose_offset(profile: np.ndarray, step: float, plateau_n: int, settings: Cali
     if not cand:
         return None
     k = cand[-1]
-    # the plateau must differ from the cloth (else it is cloth again: a ball or mark)
     k0 = np.median(g[plateau: plateau + plateau_n])
-    if abs(k0 - c0) < max(6 * noise, 4.0):
+    # A cushion top at the cloth's own level (cushions covered with the same
+    # cloth) is told from a ball or mark on the cloth by the band between:
+    # it must be no wider than a cushion face can look (band_max_n).
+    same_level = abs(k0 - c0) < max(6 * noise, 4.0)
+    if same_level and (band_max_n is None or (k != i1 and k - i1 > band_max_n)):
         return None
     if k == i1:
         # A band narrower than the blur shows as an overshoot beyond the
@@ -220,8 +222,10 @@ def nose_offset(profile: np.ndarray, step: float, plateau_n: int, settings: Cali
             lvl = 0.5 * (g[ext] + k0)
             after = np.nonzero((g[ext:plateau + 1] - lvl) * (g[ext] - lvl) <= 0)[0]
             kk = ext + (int(after[0]) if after.size else 0)
-            if kk > i1:
+            if kk > i1 and not (same_level and kk - i1 > band_max_n):
                 return float(kk), float(absd[kk]), float(i1), plateau + plateau_n
+        if same_level:
+            return None
     a, b, c = absd[k - 1], absd[k], absd[k + 1]
     den = a - 2 * b + c
     frac = 0.5 * (a - c) / den if den < 0 else 0.0
@@ -234,11 +238,15 @@ def nose_offset(profile: np.ndarray, step: float, plateau_n: int, settings: Cali
 
 
 def refine_band_edges(x: np.ndarray, prof: np.ndarray, e1: np.ndarray, e2: np.ndarray, lo: np.ndarray,
-                      hi: np.ndarray, sigma0: float, iters: int = 12) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+                      hi: np.ndarray, sigma0: float, iters: int = 12,
+                      ramp: bool = True) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
     """Fit two blurred steps (cloth -> band -> cushion top) to many profiles at once.
 
-    Model per profile: g(x) = a0 + a1 Phi((x - e1)/s) + a2 Phi((x - e2)/s),
-    Phi the normal CDF (a step blurred by a Gaussian PSF of width s px). The
+    Model per profile: g(x) = a0 + a1 Phi((x - e1)/s) + a2 Phi((x - e2)/s)
+    [+ a3 B(x)], Phi the normal CDF (a step blurred by a Gaussian PSF of width
+    s px) and B the same blur of a ramp rising across the band from e1 to e2
+    (a face whose shading changes with height; B = s (psi(z1) - psi(z2)),
+    psi(z) = z Phi(z) + phi(z), the integral of Phi). The
     levels enter linearly and are solved exactly for each trial (e1, e2, s)
     (variable projection, Golub & Pereyra, SIAM J. Numer. Anal. 10, 1973);
     (e1, e2, log s) follow Levenberg-Marquardt steps. Unlike gradient peaks,
@@ -256,10 +264,18 @@ def refine_band_edges(x: np.ndarray, prof: np.ndarray, e1: np.ndarray, e2: np.nd
 
     def resid(t):
         s = np.exp(t[:, 2])[:, None]
-        A = np.stack([np.ones_like(prof), ndtr((X - t[:, 0:1]) / s), ndtr((X - t[:, 1:2]) / s)], axis=2)
+        z1 = (X - t[:, 0:1]) / s
+        z2 = (X - t[:, 1:2]) / s
+        p1, p2 = ndtr(z1), ndtr(z2)
+        cols = [np.ones_like(prof), p1, p2]
+        if ramp:
+            psi1 = z1 * p1 + np.exp(-0.5 * z1 * z1) / np.sqrt(2 * np.pi)
+            psi2 = z2 * p2 + np.exp(-0.5 * z2 * z2) / np.sqrt(2 * np.pi)
+            cols.append(s * (psi1 - psi2))
+        A = np.stack(cols, axis=2)
         Aw = A * w[..., None]
         At = Aw.transpose(0, 2, 1)
-        M = At @ A + 1e-9 * np.eye(3)
+        M = At @ A + 1e-9 * np.eye(A.shape[2])
         v = At @ prof[..., None]
         a = np.linalg.solve(M, v)
         return w * (prof - (A @ a)[..., 0])
@@ -286,7 +302,7 @@ def refine_band_edges(x: np.ndarray, prof: np.ndarray, e1: np.ndarray, e2: np.nd
         r[better] = r2[better]
         cost[better] = c2[better]
         lam = np.where(better, lam * 0.3, lam * 10.0)
-    n = np.maximum(w.sum(axis=1) - 6, 1)
+    n = np.maximum(w.sum(axis=1) - 7, 1)
     return th[:, 0], th[:, 1], np.sqrt(cost / n)
 
 
@@ -328,9 +344,10 @@ def edge_points_along(gray: np.ndarray, p0: np.ndarray, p1: np.ndarray, outward:
     prof = _sample(gray, pts).mean(axis=2)
     inner_n = max(int(0.35 * inner_px / step), 4)
     plateau_n = max(int(plateau_px / step), 4)
+    band_max_n = max(int(plateau_px * settings.band_max_mm / settings.plateau_mm / step), 4)
     rows, nose, strength, inner, wend = [], [], [], [], []
     for i in range(len(s)):
-        r = nose_offset(prof[i], step, plateau_n, settings, inner_n)
+        r = nose_offset(prof[i], step, plateau_n, settings, inner_n, band_max_n)
         if r is None:
             continue
         rows.append(i)
