@@ -240,6 +240,29 @@ def test_orientation_integration_matches_scipy_rotation():
         ref = Rotation.from_rotvec(w[0] * t).as_matrix()
         assert np.allclose(Q[k, 0], ref, atol=1e-9)
         assert np.allclose(Q[k, 1], np.eye(3), atol=1e-12)
+    # continuing from an intermediate time gives the same rotation (block-wise rendering relies on it)
+    Qa = integrate_orientations(np.array([0.2]), lambda t: np.broadcast_to(w[None], (len(t), 2, 3)), 2, 0.5)
+    Qb = integrate_orientations(np.array([0.5]), lambda t: np.broadcast_to(w[None], (len(t), 2, 3)), 2, 0.5,
+                                initial=Qa[0], t_start=0.2)
+    assert np.allclose(Qb[0, 0], Rotation.from_rotvec(w[0] * 0.5).as_matrix(), atol=1e-9)
+
+
+def test_frame_blocks_do_not_change_frames(monkeypatch):
+    """Rendering in blocks of frames (memory bound) must give the same pixels as one block."""
+    from feltlab.render import frames as F
+    from feltlab.render import render_to_arrays
+
+    sc = scenario_from_dict({
+        "clip": {"fps": 100, "duration_s": 0.06, "resolution": [128, 72], "seed": 8},
+        "camera": {"height_mm": 900, "fov_deg": 40, "aim_mm": [1000, 600]},
+        "ball": [{"label": "yellow-stripe", "number": 9, "position_mm": [950, 600],
+                  "strike": {"speed_mm_s": 800, "direction_deg": 10, "follow": 1.0, "side": 0.5}}],
+    })
+    whole = render_to_arrays(sc)
+    monkeypatch.setattr(F, "FRAME_BLOCK", 2)
+    parts = render_to_arrays(sc)
+    assert whole.shape == parts.shape == (6, 72, 128, 3)
+    assert np.abs(whole.astype(int) - parts).max() <= 1
 
 
 def test_sensor_noise_matches_its_model():

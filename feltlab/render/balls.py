@@ -78,19 +78,19 @@ def _quat_to_matrix(q: np.ndarray) -> np.ndarray:
 
 def integrate_orientations(times_s: np.ndarray, omega_at, n_balls: int, t_end_s: float,
                            initial: np.ndarray | None = None,
-                           max_step_rad: float = S.MAX_ROTATION_STEP_RAD) -> np.ndarray:
-    """Orientation matrices (T, N, 3, 3) body->table at ``times_s`` (s, >= 0).
+                           max_step_rad: float = S.MAX_ROTATION_STEP_RAD, t_start: float = 0.0) -> np.ndarray:
+    """Orientation matrices (T, N, 3, 3) body->table at ``times_s`` (s, >= t_start).
 
-    omega_at(times (M,)) -> (M, N, 3) rad/s. Integrates from t = 0 (orientation
-    ``initial`` (N,3,3), default identity) with midpoint steps no larger than
-    ``max_step_rad`` of rotation.
+    omega_at(times (M,)) -> (M, N, 3) rad/s. Integrates from ``t_start``
+    (orientation ``initial`` (N,3,3), default identity) with midpoint steps no
+    larger than ``max_step_rad`` of rotation.
     """
     times_s = np.asarray(times_s, dtype=float)
-    t_max = max(float(np.max(times_s)), 0.0) if times_s.size else 0.0
-    probe = np.linspace(0.0, max(t_end_s, t_max), 2001)
+    t_max = max(float(np.max(times_s)), t_start) if times_s.size else t_start
+    probe = np.linspace(t_start, max(t_end_s, t_max), 2001)
     w_max = float(np.max(np.linalg.norm(omega_at(probe), axis=-1))) if n_balls else 0.0
-    n_steps = max(1, int(np.ceil(w_max * t_max / max_step_rad)))
-    grid = np.linspace(0.0, t_max, n_steps + 1)
+    n_steps = max(1, int(np.ceil(w_max * (t_max - t_start) / max_step_rad)))
+    grid = np.linspace(t_start, t_max, n_steps + 1)
     dt = grid[1] - grid[0] if n_steps else 0.0
     mids = 0.5 * (grid[:-1] + grid[1:])
     dq = _quat_from_rotvec(omega_at(mids) * dt) if n_steps else np.zeros((0, n_balls, 4))
@@ -105,7 +105,7 @@ def integrate_orientations(times_s: np.ndarray, omega_at, n_balls: int, t_end_s:
     for k in range(n_steps):
         q[k + 1] = _quat_mul(dq[k], q[k])
     # partial step from the grid point at or below each requested time
-    k = np.clip(np.floor(times_s / dt).astype(int) if dt > 0 else np.zeros(times_s.shape, int), 0, n_steps)
+    k = np.clip(np.floor((times_s - t_start) / dt).astype(int) if dt > 0 else np.zeros(times_s.shape, int), 0, n_steps)
     rem = times_s - grid[k]
     w_mid = omega_at(grid[k] + rem / 2)  # (T, N, 3)
     qt = _quat_mul(_quat_from_rotvec(w_mid * rem[:, None, None]), q[k])

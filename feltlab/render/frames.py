@@ -27,6 +27,8 @@ from tracking.camera import CameraModel
 
 #: Large shadow rectangles are evaluated on every SHADOW_STRIDE-th pixel (see FrameRenderer._shadow_rect).
 SHADOW_STRIDE = 2
+#: Frames whose states and orientations are prepared together (bounds memory on long clips).
+FRAME_BLOCK = 240
 
 
 class Motion(Protocol):
@@ -391,8 +393,6 @@ def render_frames(renderer: FrameRenderer, motion: Motion, times_s: np.ndarray, 
             speeds = np.maximum(speeds, np.linalg.norm(v2, axis=2).max(axis=1))
     subs = renderer.subframe_times(times_s, exposure_s, speeds)
     cv2.setRNGSeed(int(renderer.seed) + 1)
-    all_t = np.concatenate(subs)
-    all_t = np.clip(all_t, 0.0, None)
     n_balls = len(motion.ball_ids)
 
     def omega_at(t):
@@ -401,12 +401,20 @@ def render_frames(renderer: FrameRenderer, motion: Motion, times_s: np.ndarray, 
     # each ball starts in its own seeded random orientation (numbers and stripes show at random angles)
     from scipy.spatial.transform import Rotation
 
-    start_q = Rotation.random(n_balls, random_state=int(renderer.seed) + 17).as_matrix() if n_balls else None
-    orient = integrate_orientations(all_t, omega_at, n_balls, t_end_s, initial=start_q)
-    pos_all, _, _, on_all = motion.states(all_t)
-    start = 0
-    for k, sub in enumerate(subs):
-        sl = slice(start, start + len(sub))
-        start += len(sub)
-        lin = renderer.render_linear(pos_all[sl], on_all[sl], orient[sl])
-        yield k, renderer.finish(lin, float(times_s[k]), exposure_s)
+    q0 = Rotation.random(n_balls, random_state=int(renderer.seed) + 17).as_matrix() if n_balls else None
+    t_prev = 0.0
+    # blocks of frames keep memory bounded on long high-speed clips
+    for b0 in range(0, len(subs), FRAME_BLOCK):
+        block = subs[b0:b0 + FRAME_BLOCK]
+        bt = np.clip(np.concatenate(block), 0.0, None)
+        orient = integrate_orientations(bt, omega_at, n_balls, t_end_s, initial=q0, t_start=t_prev)
+        pos_all, _, _, on_all = motion.states(bt)
+        last = int(np.argmax(bt))
+        q0, t_prev = orient[last], float(bt[last])
+        start = 0
+        for j, sub in enumerate(block):
+            k = b0 + j
+            sl = slice(start, start + len(sub))
+            start += len(sub)
+            lin = renderer.render_linear(pos_all[sl], on_all[sl], orient[sl])
+            yield k, renderer.finish(lin, float(times_s[k]), exposure_s)
