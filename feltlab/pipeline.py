@@ -68,8 +68,8 @@ class AnalyzeSettings:
     def identity(self) -> dict:
         """JSON-safe record of the settings (stored in shot.json and compared on re-runs).
 
-        The calibration file is recorded by path and SHA-256, so editing it
-        counts as a change of settings.
+        The calibration file is recorded by name and SHA-256: editing it counts
+        as a change of settings, moving it does not.
         """
         d: dict[str, Any] = {}
         for f in dataclasses.fields(self):
@@ -79,6 +79,7 @@ class AnalyzeSettings:
             d[f.name] = v
         if self.calib:
             p = Path(self.calib)
+            d["calib"] = p.name  # where the file sits does not change the result; its content does
             d["calib_sha256"] = sha256_file(p) if p.is_file() else None
         return jsonable(d)
 
