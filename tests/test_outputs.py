@@ -419,6 +419,27 @@ def test_no_silent_overwrite(tmp_path, monkeypatch):
     assert (stranger / "mine.txt").read_text() == "keep me"
 
 
+def test_calibration_file_counts_by_content(tmp_path, monkeypatch):
+    """Moving the calibration file keeps a result valid; editing it makes it a different setting."""
+    import shutil
+
+    from feltlab.pipeline import AnalyzeSettings, analyze_clip
+    from tracking.calibrate import save_calibration
+
+    tracks, contacts, cal = fake_stages(monkeypatch)
+    clip = write_synthetic_video(tmp_path / "drill.mp4", tracks, cal)
+    (tmp_path / "a").mkdir()
+    a = save_calibration(cal, tmp_path / "a" / "bench.toml")
+    dest = tmp_path / "res" / "drill"
+    analyze_clip(clip, dest, AnalyzeSettings(**LIGHT, calib=str(a)))
+    (tmp_path / "b").mkdir()
+    b = Path(shutil.copy(a, tmp_path / "b" / "bench.toml"))
+    assert analyze_clip(clip, dest, AnalyzeSettings(**LIGHT, calib=str(b))).reused
+    b.write_text(b.read_text() + "\n# edited\n")
+    with pytest.raises(FeltlabError, match="different settings"):
+        analyze_clip(clip, dest, AnalyzeSettings(**LIGHT, calib=str(b)))
+
+
 def test_cli_bad_input_one_line_exit_2(tmp_path):
     from click.testing import CliRunner
 
