@@ -15,6 +15,14 @@ the face itself, lit at grazing incidence). So, walking a profile outward from
 the cloth, the nose is the *last* strong edge before the first flat stretch
 of the cushion top; where there is no band it is the single cloth/cushion
 edge. All these points lie at height h, which is what the camera fit assumes.
+The cushion top may be of the cloth's own shade (cushions are covered with the
+same cloth); then the band between is what marks the nose, and it must be no
+wider than a face can look (``CalibrationSettings.band_max_mm``).
+
+Edges are first found as gradient peaks; where a band lies between cloth and
+cushion top both its edges are refined together with a blurred two-step
+(+ shading ramp) model (:func:`refine_band_edges`), since the peaks of two
+edges a few pixels apart pull on each other.
 """
 from __future__ import annotations
 

@@ -15,6 +15,14 @@ Automatic (:func:`calibrate_auto`)
    the preset's playing-surface size (WPA etc., :mod:`feltlab.standards`) the
    metric scale. Profiles are then re-taken along the fitted curves and the
    fit repeated, dropping outliers.
+5. Camera height: a plane seen nearly square-on fixes only focal / height.
+   Where the cushion faces show as a band between cloth and nose (a vertical
+   face, or the shadow under an overhanging nose lit from above), the band's
+   inner edge is the foot of the face at z = 0 and the fit uses both lines;
+   the band widths must pass a geometric test first (``_band_check``).
+   Otherwise a weak prior on the field of view sets the focal length
+   (``meta['height_from']`` says which); the nose and ball-centre planes are
+   then still right to a fraction of a pixel, the cloth plane less so.
 
 Table frame (see DEVELOPERS.md): origin at the playing-surface corner nearest
 the image's bottom-left, x along the long side, y along the short side, z up.
@@ -583,7 +591,9 @@ def draw_calibration(image: np.ndarray, cal: Calibration, grid_mm: float = 100.0
         f"{cal.table.name}: {L:.0f} x {W:.0f} mm  ({cal.method} calibration)",
         f"edge residual RMS {cal.residual_px:.2f} px = {cal.residual_mm:.2f} mm",
         f"scale {cal.px_per_mm:.3f} px/mm  |  ball {2 * cal.ball_radius_px([[L / 2, W / 2]])[0]:.1f} px across",
-        f"focal {cam.K[0, 0]:.0f} px  k1 {cam.dist[0]:+.4f}  camera {cam.centre_mm[2] / 1000:.2f} m above cloth",
+        f"focal {cam.K[0, 0]:.0f} px  k1 {cam.dist[0]:+.4f}  camera {cam.centre_mm[2] / 1000:.2f} m above cloth"
+        + ("" if str((cam.meta or {}).get("height_from", "cushion")).startswith("cushion") or cal.method != "auto"
+           else " (height from an assumed lens)"),
         f"outline: cushion noses ({z:.1f} mm up)  grid: {grid_mm:.0f} mm on the cloth",
     ] + [f"note: {t}" for t in cal.notes]
     scale = 0.42 * max(w / 1280, 0.6)
