@@ -301,15 +301,22 @@ def test_outside_footage_single_frames(clip):
     truth = json.loads((FOOTAGE / f"{clip}.truth.json").read_text())
     cal = _truth_cal(truth)
     cap = cv2.VideoCapture(str(FOOTAGE / f"{clip}.mp4"))
-    frames = []
-    while True:
+    n = truth["n_frames"]
+    bg_every, det_every = max(1, n // 31), max(1, n // 12)
+    bg_frames, det_frames = [], {}
+    k = 0
+    while True:  # keep only the frames used (memory)
         ok, f = cap.read()
         if not ok:
             break
-        frames.append(f)
-    bg = build_background(frames[:: max(1, len(frames) // 31)], cal)
-    for k in range(0, len(frames), max(1, len(frames) // 12)):
-        df = detect_frame(frames[k], cal, DetectionSettings(), bg)
+        if k % bg_every == 0:
+            bg_frames.append(f)
+        if k % det_every == 0:
+            det_frames[k] = f
+        k += 1
+    bg = build_background(bg_frames, cal)
+    for k, frame in det_frames.items():
+        df = detect_frame(frame, cal, DetectionSettings(), bg)
         for bid, pos in truth["frames"]["positions_mm"].items():
             p = np.array(pos[k])
             err = np.hypot(df.x_mm - p[0], df.y_mm - p[1]).min()
