@@ -4,8 +4,6 @@ Units: speeds mm/s, restitution dimensionless.
 """
 from __future__ import annotations
 
-from dataclasses import dataclass
-
 #: Video container extensions we look for (lower case, without the dot). Common
 #: practice: the containers FFmpeg/OpenCV read on desktop systems.
 VIDEO_EXTENSIONS: frozenset[str] = frozenset(
@@ -43,10 +41,3 @@ SCHEDULER_CONNECT_TIMEOUT_S: float = 10.0
 MIN_N_MEAN: int = 2
 MIN_N_LINE: int = 3
 
-
-@dataclass(frozen=True)
-class SeriesSettings:
-    """Series statistics settings (see module constants for sources)."""
-
-    confidence: float = CONFIDENCE
-    robust_z_limit: float = ROBUST_Z_LIMIT
