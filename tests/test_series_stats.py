@@ -223,3 +223,14 @@ def test_unreadable_spec_files(tmp_path: Path) -> None:
     bad.write_text("[[band]\nkind = ")
     with pytest.raises(FeltlabError, match="not valid TOML"):
         load_spec(bad)
+
+
+def test_mean_energy_loss_per_kind_matches_the_closed_form() -> None:
+    """Equal masses, head-on, target at rest: the fraction of kinetic energy lost is (1 - e^2) / 2
+    (from KE loss = (1 - e^2) (m1 m2 / (m1 + m2)) v^2 / 2 over KE = m v^2 / 2; REFERENCES.md)."""
+    e = np.array([0.92, 0.94, 0.96])
+    df = pd.DataFrame({"kind": "ball-ball", "e": e, "e_sigma": 0.01, "speed_in_mm_s": [900.0, 1400.0, 2000.0],
+                       "ke_loss_frac": (1 - e**2) / 2})
+    k = stats.kind_summary(df).set_index("kind")
+    assert k.loc["ball-ball", "ke_loss_frac_mean"] == pytest.approx(np.mean((1 - e**2) / 2))
+    assert math.isnan(stats.kind_summary(df.drop(columns="ke_loss_frac"))["ke_loss_frac_mean"].iloc[0])

@@ -263,7 +263,8 @@ def wls_line(x, y, sigma=None, confidence: float = CONFIDENCE) -> LineFit | None
 def kind_summary(contacts: pd.DataFrame, confidence: float = CONFIDENCE) -> pd.DataFrame:
     """One row per contact kind: plain mean + t-CI, weighted and DL means, line fit vs speed.
 
-    Expects columns kind, e, e_sigma, speed_in_mm_s (outlier flags optional). The line
+    Expects columns kind, e, e_sigma, speed_in_mm_s (outlier flags and ke_loss_frac, the
+    fraction of translational kinetic energy lost, optional). The line
     slope is reported per m/s (e change per 1000 mm/s) for readability.
     """
     rows = []
@@ -290,6 +291,8 @@ def kind_summary(contacts: pd.DataFrame, confidence: float = CONFIDENCE) -> pd.D
             "fit_chi2_red": fit.chi2_red if fit else NAN,
             "speed_min_mm_s": float(np.nanmin(v)) if np.isfinite(v).any() else NAN,
             "speed_max_mm_s": float(np.nanmax(v)) if np.isfinite(v).any() else NAN,
+            "ke_loss_frac_mean": float(np.nanmean(grp["ke_loss_frac"].to_numpy(float)))
+            if "ke_loss_frac" in grp and np.isfinite(grp["ke_loss_frac"].to_numpy(float)).any() else NAN,
             "n_outliers": int(grp["outlier"].sum()) if "outlier" in grp else 0,
             "confidence": confidence,
         })
