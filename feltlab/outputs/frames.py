@@ -96,7 +96,8 @@ class Overlay:
     """Everything needed to annotate any frame, precomputed in pixels.
 
     px[ball]: (n_frames, 2) ball-centre pixel positions (NaN where no track);
-    tip[ball]: (n_frames, 2) arrow tips; speed[ball]: (n_frames,) mm/s.
+    tip[ball]: (n_frames, 2) arrow tips; speed[ball]: (n_frames,) mm/s;
+    seen[ball]: (n_frames,) False where the track is predicted (ball not detected).
     arrow_s: seconds of travel an arrow represents; legend_mm_s / legend_px:
     the legend arrow's speed and pixel length. radius_px: ball radius in px.
     """
@@ -113,6 +114,7 @@ class Overlay:
     legend_mm_s: float
     legend_px: float
     contacts: list[dict] = field(default_factory=list)
+    seen: dict[str, np.ndarray] = field(default_factory=dict)
     panel_corner: str = "tl"
     font_px: int = 18
 
@@ -161,7 +163,7 @@ def build_overlay(tracks: pd.DataFrame, contacts: pd.DataFrame, calibration, fps
     px_per_mm = float(calibration.px_per_mm)
     arrow_s = ARROW_FRACTION_OF_WIDTH * w / (vmax * px_per_mm)
     legend = nice_speed(vmax * 0.6)
-    px, tip, speed = {}, {}, {}
+    px, tip, speed, seen = {}, {}, {}, {}
     for b in balls:
         g = tracks[tracks["ball"] == b]
         fr = g["frame"].to_numpy(int)
@@ -172,6 +174,10 @@ def build_overlay(tracks: pd.DataFrame, contacts: pd.DataFrame, calibration, fps
         p = np.full((n_frames, 2), np.nan)
         q = np.full((n_frames, 2), np.nan)
         s = np.full(n_frames, np.nan)
+        vis = np.ones(n_frames, bool)
+        if "visible" in g and len(g):
+            vis[fr] = g["visible"].to_numpy(float) > 0.5
+        seen[b] = vis
         if len(g):
             good = np.isfinite(xy).all(axis=1)
             if good.any():
@@ -208,7 +214,7 @@ def build_overlay(tracks: pd.DataFrame, contacts: pd.DataFrame, calibration, fps
     corner = _quiet_corner(calibration, (w, h))
     return Overlay(n_frames=n_frames, fps=fps, image_size=(w, h), px=px, tip=tip, speed=speed, colours=colours,
                    radius_px=R * px_per_mm, arrow_s=arrow_s, legend_mm_s=legend,
-                   legend_px=legend * arrow_s * px_per_mm, contacts=cons, panel_corner=corner,
+                   legend_px=legend * arrow_s * px_per_mm, contacts=cons, seen=seen, panel_corner=corner,
                    font_px=max(13, int(round(h / 40.0))))
 
 
@@ -341,6 +347,10 @@ def draw_overlay(image: np.ndarray, ov: Overlay, frame: int, t_s: float | None =
         if k >= ov.n_frames or not np.isfinite(p[k]).all():
             continue
         q = T(p[k])
+        if b in ov.seen and not ov.seen[b][k]:  # predicted, not detected: a grey ring
+            cv2.circle(img, _pt(q), r + 1, (128, 128, 128), 1, cv2.LINE_AA)
+            texts.append((f"{b} (predicted)", (q[0] + 0.75 * r + 3, q[1] - 0.75 * r - 3), (170, 170, 170), fs))
+            continue
         cv2.circle(img, _pt(q), r + 1, (0, 0, 0), 3, cv2.LINE_AA)
         cv2.circle(img, _pt(q), r + 1, bgr(col), 1 if view is None else 2, cv2.LINE_AA)
         if ov.speed[b][k] >= MIN_ARROW_SPEED_MM_S:

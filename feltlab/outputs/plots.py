@@ -68,6 +68,7 @@ def speed_plot(tracks: pd.DataFrame, segments: pd.DataFrame | None, contacts: pd
     t_all = tracks["t_s"].to_numpy(float)
     tmin, tmax = (float(np.nanmin(t_all)), float(np.nanmax(t_all))) if len(t_all) else (0.0, 1.0)
     vmax = 0.0
+    any_predicted = False
     for ax, b in zip(axes, balls):
         g = tracks[tracks["ball"] == b].sort_values("t_s")
         sp = np.hypot(g["vx_mm_s"].to_numpy(float), g["vy_mm_s"].to_numpy(float)) / 1000.0
@@ -90,6 +91,7 @@ def speed_plot(tracks: pd.DataFrame, segments: pd.DataFrame | None, contacts: pd
             except Exception:  # noqa: BLE001 - a ball without a fitted model keeps its track only
                 pass
         pred = vis < 0.5
+        any_predicted = any_predicted or bool(pred.any())
         if pred.any():
             ax.plot(g["t_s"].to_numpy()[pred], sp[pred], ".", color="0.5", ms=3, label="predicted (ball not seen)")
         ax.set_ylabel(f"{b}\nspeed (m/s)")
@@ -108,6 +110,8 @@ def speed_plot(tracks: pd.DataFrame, segments: pd.DataFrame | None, contacts: pd
     from matplotlib.patches import Patch
     from matplotlib.lines import Line2D
     handles = [Line2D([], [], color="0.4", lw=1.6, label="smoothed track")]
+    if any_predicted:
+        handles.append(Line2D([], [], color="0.5", marker=".", ls="", label="predicted (not seen)"))
     if model is not None:
         handles.append(Line2D([], [], color="0.35", lw=1.0, ls=(0, (4, 2)), label="fitted model"))
     handles += [Patch(color=mpl(SLIDE_RGB), alpha=0.35, label="sliding"),
