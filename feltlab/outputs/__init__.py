@@ -9,4 +9,5 @@ One module per kind of output, each a thin I/O layer over pure functions:
 * :mod:`.report`   -- ``report.html``: one self-contained page
 * :mod:`.atomic`   -- write into a temporary folder, rename into place when complete
 * :mod:`.style`    -- the colour-blind-safe palette shared by frames and plots
+* :mod:`.compare`  -- measured contacts against a clip's truth file (demo, benchmarks, tests)
 """
