@@ -129,6 +129,7 @@ class FrameRenderer:
         self.cloth_lin = srgb_to_linear(look.cloth_rgb)
         self._build_background()
         self._still_cache: dict = {}
+        self._base = optical_blur(self.bg * self.vig[..., None], look.blur_px)  # finished background, linear
         gain = np.asarray(look.white_balance, np.float32) * np.float32(look.brightness)
         self.gain = gain
         self.px_per_mm = self._max_px_per_mm()
@@ -264,7 +265,9 @@ class FrameRenderer:
             b = self._box(centres[on_table[:, i], i], margin_px=2.0)
             if b is not None:
                 boxes.append(b)
-        lin = self.bg.copy()
+        frame = self._base.copy()
+        blur = self.look.blur_px
+        pad = int(np.ceil(4.0 * blur)) + 1 if blur > 0 else 0
         new_cache: dict = {}
         for (x0, y0, x1, y1) in self._merge(boxes):
             # balls inside this box; if none of them moves during the exposure, one sample suffices
@@ -279,8 +282,9 @@ class FrameRenderer:
                 key = ((x0, y0, x1, y1), tuple(inside), np.round(centres[j, inside], 6).tobytes(),
                        np.round(orient[j, inside], 6).tobytes(), on_table[j].tobytes())
                 if key in self._still_cache:
-                    lin[y0:y1, x0:x1] = self._still_cache[key]
-                    new_cache[key] = self._still_cache[key]
+                    patch = self._still_cache[key]
+                    new_cache[key] = patch
+                    self._add_patch(frame, patch, x0, y0, x1, y1, pad)
                     continue
             # balls that keep still during this exposure are shaded once and reused for every sub-frame
             static = {i for i in inside if np.all(on_table[:, i] == on_table[0, i])
@@ -290,12 +294,27 @@ class FrameRenderer:
             acc = np.zeros((y1 - y0, x1 - x0, 3), np.float32)
             for j in subs:
                 acc += self._shade_box(x0, y0, x1, y1, centres[j], on_table[j], orient[j], static, memo)
-            lin[y0:y1, x0:x1] = acc / len(subs)
+            patch = acc / len(subs)
             if key is not None:
-                new_cache[key] = lin[y0:y1, x0:x1].copy()
+                new_cache[key] = patch
+            self._add_patch(frame, patch, x0, y0, x1, y1, pad)
         self._still_cache = new_cache
-        lin *= self.vig[..., None]
-        return optical_blur(lin, self.look.blur_px)
+        return frame
+
+    def _add_patch(self, frame: np.ndarray, patch: np.ndarray, x0: int, y0: int, x1: int, y1: int, pad: int) -> None:
+        """Add a patch's change from the background, vignetted and blurred, to a finished linear frame.
+
+        Blur and vignetting are linear, so blur(vig * (bg + delta)) = base + blur(vig * delta);
+        boxes do not overlap, and delta is zero outside its box.
+        """
+        delta = (patch - self.bg[y0:y1, x0:x1]) * self.vig[y0:y1, x0:x1, None]
+        if pad:
+            X0, Y0, X1, Y1 = max(x0 - pad, 0), max(y0 - pad, 0), min(x1 + pad, self.w), min(y1 + pad, self.h)
+            big = np.zeros((Y1 - Y0, X1 - X0, 3), np.float32)
+            big[y0 - Y0:y1 - Y0, x0 - X0:x1 - X0] = delta
+            frame[Y0:Y1, X0:X1] += optical_blur(big, self.look.blur_px)
+        else:
+            frame[y0:y1, x0:x1] += delta
 
     def _shade_box(self, x0: int, y0: int, x1: int, y1: int, centres: np.ndarray, on: np.ndarray,
                    orient: np.ndarray, static: set[int] | None = None, memo: dict | None = None) -> np.ndarray:
