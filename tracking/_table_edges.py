@@ -53,10 +53,16 @@ def median_image(frames: list[np.ndarray], max_frames: int) -> np.ndarray:
     if len(frames) > max_frames:
         idx = np.linspace(0, len(frames) - 1, max_frames).round().astype(int)
         frames = [frames[i] for i in idx]
-    stack = np.stack([np.asarray(f) for f in frames], axis=0)
-    if stack.ndim == 3:  # grey frames
-        stack = np.repeat(stack[..., None], 3, axis=3)
-    return np.median(stack, axis=0).astype(np.float32)
+    frames = [np.asarray(f) for f in frames]
+    h, w = frames[0].shape[:2]
+    out = np.empty((h, w, 3), np.float32)
+    rows = max(1, int(4e6 // max(w * 3 * len(frames), 1)))  # a few MB per block: 4K frames stay cheap
+    for r0 in range(0, h, rows):
+        block = np.stack([f[r0: r0 + rows] for f in frames], axis=0)
+        if block.ndim == 3:  # grey frames
+            block = block[..., None]
+        out[r0: r0 + rows] = np.median(block, axis=0)
+    return out
 
 
 def cloth_mask(image: np.ndarray, settings: CalibrationSettings) -> np.ndarray:

@@ -101,7 +101,7 @@ def _check_frames(frames) -> list[np.ndarray]:
         if shape is not None and a.shape[:2] != shape:
             raise FeltlabError("calibration frames differ in size; use frames of one clip")
         shape = a.shape[:2]
-        out.append(a.astype(np.float32))
+        out.append(a)
     if min(shape) < 32:
         raise FeltlabError(f"frames of {shape[1]}x{shape[0]} px are too small to find a table")
     return out
