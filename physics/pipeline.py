@@ -22,7 +22,14 @@ from physics.events import (
     find_contacts,
     motion_onset,
 )
-from physics.segments import ChainFit, ChainLayout, fit_chain, segment_starts, unpack_segment
+from physics.segments import (
+    ChainFit,
+    ChainLayout,
+    fit_chain,
+    restart_after_breaks,
+    segment_starts,
+    unpack_segment,
+)
 from physics.settings import PhysicsSettings
 
 CONTACT_COLUMNS = [
@@ -182,9 +189,16 @@ def _analyze(tracks, detections, table, ball_radius_mm, ball_mass_kg, fps, setti
     for name, b in samples.items():
         lay = layouts[name]
         if not (lay.rest_first and lay.n_seg == 1):
-            x1 = _plausible_start(fits[name].x, lay, s2)
             pri = {k: _loo_prior(s, mus, mur, (name, k)) for k in range(lay.n_seg)}
-            fits[name] = fit_chain(b.t, b.xy, b.sig, lay, s2, x_init=x1, seg_priors=pri)
+            x1 = _plausible_start(fits[name].x, lay, s2)
+            fa = fit_chain(b.t, b.xy, b.sig, lay, s2, x_init=x1, seg_priors=pri)
+            # second start: breaks back at the change-point estimates, and each segment after a
+            # break restarted with the slide a spin carried through the contact would give
+            x2 = x1.copy()
+            x2[lay.break_offset : lay.break_offset + lay.n_seg - 1] = lay.break_init
+            x2 = restart_after_breaks(x2, lay, b.t, b.xy, b.sig, s2, pri)
+            fb = fit_chain(b.t, b.xy, b.sig, lay, s2, x_init=x2, seg_priors=pri)
+            fits[name] = fb if fb.cost < fa.cost - 1e-9 else fa
     contacts = _contacts_table(cands, fits, maps, table, R, m, dt, s)
     segments, _ = _segments_table(fits, samples, s2)
     events = _events_table(samples, fits, layouts, maps, contacts, segments, dt, s)

@@ -190,7 +190,8 @@ def robust_residuals(r: np.ndarray, s: PhysicsSettings) -> np.ndarray:
 @dataclass
 class ChainFit:
     """A fitted chain: parameters ``x``, covariance ``cov`` (scaled by the reduced chi^2),
-    ``rms_mm`` of the used samples, ``n_points`` used, ``chi2_red``, and the samples."""
+    ``rms_mm`` of the used samples, ``n_points`` used, ``chi2_red``, the samples, and the final
+    robust cost (half the sum of squared transformed residuals and priors)."""
 
     layout: ChainLayout
     x: np.ndarray
@@ -201,6 +202,7 @@ class ChainFit:
     t: np.ndarray = field(repr=False)
     xy: np.ndarray = field(repr=False)
     used: np.ndarray = field(repr=False)
+    cost: float = float("nan")
 
     def state(self, t, x: np.ndarray | None = None):
         """Positions (T,2) mm and velocities (T,2) mm/s of the fitted model at times ``t`` (s)."""
@@ -408,7 +410,10 @@ def fit_chain(
             continue
         # a slide phase that contains no sample is not resolved: the ball rolls from the start
         # (same path to well below the noise); its slide parameters are then not free
-        if not np.any((tu > starts[k]) & (tu < starts[k] + x_fit[o + 4])):
+        if x_fit[o + 4] > 0 and not np.any((tu > starts[k]) & (tu < starts[k] + x_fit[o + 4])):
+            # keep the velocity the samples see (the roll-start velocity); the path moves by
+            # |a| t_roll^2 / 2, far below a sample interval's worth of travel
+            x_fit[o : o + 2] = x_fit[o : o + 2] + x_fit[o + 2 : o + 4] * x_fit[o + 4]
             x_fit[o + 4] = 0.0
             free[o + 2 : o + 5] = False
     dof = max(n_data - int(free.sum()), 1)
@@ -424,4 +429,65 @@ def fit_chain(
     cov[np.ix_(free, free)] = np.linalg.pinv(Js.T @ Js, rcond=1e-12) / np.outer(d, d) * chi2
     P, _, _ = chain_eval(x_fit, lay, tu)
     rms = float(np.sqrt(np.mean(np.sum((P - xyu) ** 2, axis=1)))) if len(tu) else float("nan")
-    return ChainFit(lay, x_fit, cov, rms, int(len(tu)), float(chi2), t, xy, used)
+    return ChainFit(lay, x_fit, cov, rms, int(len(tu)), float(chi2), t, xy, used, float(res.cost))
+
+
+def _seg_residuals(q, p0, t0, t, xy, sig, s, prior):
+    d, _ = move_motion(t - t0, q[0:2], q[2:4], q[4], q[5])
+    r = robust_residuals(((p0[None, :] + d - xy) / sig).ravel(), s)
+    g = s.g_mm_s2
+    ms, ss, mr, sr = prior
+    return np.concatenate([r, [(np.hypot(*q[2:4]) - ms * g) / (ss * g), (q[5] - mr * g) / (sr * g)]])
+
+
+def restart_after_breaks(x: np.ndarray, lay: ChainLayout, t: np.ndarray, xy: np.ndarray,
+                         sig: np.ndarray, s: PhysicsSettings, seg_priors: dict | None = None) -> np.ndarray:
+    """Better start values for the segments that follow a break.
+
+    Each such segment is refitted alone (its start position held where the chain puts it) from
+    two starts, keeping the better: the current values, and the slide a ball gets when its spin
+    passes through the contact unchanged (a ball rolling in leaves with slip ``v_out - v_in``,
+    so it decelerates at ``mu_s g`` along ``-(v_out - v_in)`` for ``2 |slip| / (7 mu_s g)``; exact
+    for a frictionless ball-ball contact, a good start for cushions and strikes).
+    """
+    x = x.copy()
+    used = used_mask(t, lay)
+    tu, xyu, sgu = t[used], xy[used], sig[used]
+    g = s.g_mm_s2
+    for k in range(1, lay.n_seg):
+        o = lay.move_offset(k)
+        if o is None:
+            continue
+        starts, pos = segment_starts(x, lay)
+        t0 = starts[k]
+        t1 = starts[k + 1] if k + 1 < lay.n_seg else np.inf
+        m = (tu > t0) & (tu < t1)
+        if m.sum() < 4:
+            continue
+        prior = (seg_priors or {}).get(k, (s.mu_s_prior, s.mu_s_prior_sigma, s.mu_r_prior, s.mu_r_prior_sigma))
+        _, v_in = chain_eval(x, lay, np.array([t0]), seg=np.array([k - 1]))[:2]
+        v_in = v_in[0]
+        q_now = x[o : o + 6].copy()
+        slip = q_now[0:2] - v_in
+        us = float(np.hypot(*slip))
+        cands = [q_now]
+        if us > 1e-6:
+            mu = prior[0]
+            a = -mu * g * slip / us
+            cands.append(np.concatenate([q_now[0:2], a, [2 * us / (7 * mu * g)], [q_now[5]]]))
+        dur = float(tu[m][-1] - t0)
+        lo = np.array([-np.inf, -np.inf, -s.mu_s_max * g, -s.mu_s_max * g, 0.0, 0.0])
+        hi = np.array([np.inf, np.inf, s.mu_s_max * g, s.mu_s_max * g, 3.0 * dur + 0.1, s.mu_r_max * g])
+        best = None
+        for q0 in cands:
+            q0 = np.clip(q0, lo, hi)
+            try:
+                r = least_squares(_seg_residuals, q0, bounds=(lo, hi), x_scale="jac", max_nfev=100,
+                                  args=(pos[k], t0, tu[m], xyu[m], sgu[m], s, prior))
+            except ValueError:
+                continue
+            if best is None or r.cost < best.cost:
+                best = r
+        if best is not None:
+            x[o : o + 6] = best.x
+    return x
