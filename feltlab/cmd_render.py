@@ -13,11 +13,11 @@ from feltlab.errors import FeltlabError
 @click.option("--out", "out", required=True, type=click.Path(path_type=Path),
               help="Clip to write: .mp4 (mp4v), .avi (lossless FFV1) or a suffix-less folder of PNG frames; "
                    "CLIP.truth.json is written beside it.")
-@click.option("--seed", type=int, default=None, help="Override the scenario's seed (noise, cloth texture).")
+@click.option("--seed", type=int, default=None, help="Override the scenario's seed (sensor noise, cloth texture, ball orientations).")
 @click.option("--force", is_flag=True, help="Replace an existing clip and truth file.")
 @click.option("--quiet", is_flag=True, help="No progress output.")
 def command(scenario: Path, out: Path, seed: int | None, force: bool, quiet: bool) -> None:
-    """Render SCENARIO (a TOML shot description, see clips/*.toml) to a clip plus its truth file."""
+    """Render SCENARIO (a TOML shot description, e.g. clips/drill_cut.toml) to a clip plus its truth file."""
     from feltlab.render import load_scenario, render_scenario
 
     sc = load_scenario(scenario)
