@@ -23,6 +23,9 @@ import numpy as np
 from filterpy.kalman import KalmanFilter
 
 H = np.array([[1.0, 0, 0, 0], [0, 1.0, 0, 0]])
+#: chi-square(2) 99% point (standard table value): a measurement this close to
+#: the old motion's prediction counts as agreeing with it.
+CONSISTENT_NIS = 9.21
 
 
 def cv_transition(dt: float, accel_sigma: float) -> tuple[np.ndarray, np.ndarray]:
@@ -176,7 +179,9 @@ def split_segments(t: np.ndarray, z: np.ndarray, sig: np.ndarray, accel_sigma: f
                 F2, Q2 = cv_transition(t[i + 1] - t_last, accel_sigma)
                 x2 = F2 @ x_prev
                 P2 = F2 @ P_prev @ F2.T + Q2
-                jump = nis(z[i + 1], x2, P2, np.diag(sig[i + 1] ** 2)) > split_nis
+                # an outlier only if the next point clearly agrees with the old
+                # motion (NIS below the chi-square(2) 99% point, 9.21)
+                jump = nis(z[i + 1], x2, P2, np.diag(sig[i + 1] ** 2)) > CONSISTENT_NIS
             if jump:
                 segs.append((start, i))
                 start = i
