@@ -416,3 +416,19 @@ def test_varied_scenarios_are_valid_and_produce_a_hit():
                          "spin_rad_s": list(b["spin_rad_s"])} for b in d["balls"]]}
         assert len(scenario_from_dict(doc).balls) == len(sc.balls)
     assert len(looks) == 6
+
+
+def test_flicker_gain_is_the_mean_light_over_the_exposure():
+    """Lamp output 1 - d (1 - cos(2 pi f t)) / 2 averaged over the shutter interval,
+    checked against numerical integration (scipy.integrate.quad)."""
+    from scipy.integrate import quad
+
+    from feltlab.render.effects import flicker_gain
+
+    d, f = 0.2, 100.0
+    for t, e in ((0.0123, 0.004), (0.5, 0.001), (0.031, 0.0)):
+        if e > 0:
+            ref = quad(lambda s: 1 - d * (1 - math.cos(2 * math.pi * f * s)) / 2, t - e / 2, t + e / 2)[0] / e
+        else:
+            ref = 1 - d * (1 - math.cos(2 * math.pi * f * t)) / 2
+        assert flicker_gain(t, e, d, f) == pytest.approx(ref, rel=1e-9)
