@@ -636,11 +636,15 @@ def detect_frame(image: np.ndarray, calibration: Calibration, settings: Detectio
         if len(hc):
             hc[:, 0] += xa
             hc[:, 1] += ya
-            # keep the disc-score candidates too (a low-contrast ball next to a
-            # bright one casts few Hough votes); add the Hough ones not already there
-            near = np.array([np.any(np.hypot(cands[:, 0] - x, cands[:, 1] - y) < settings.nms_radius * r0)
-                             for x, y in hc[:, :2]]) if len(cands) else np.zeros(len(hc), bool)
-            extra.append(hc[~near])
+            # Hough seeds first; a disc-score seed in the blob survives only away
+            # from all of them (a low-contrast ball next to a bright one casts
+            # few votes; a plateau seed between touching balls is dropped)
+            inside = lab[np.clip(np.round(cands[:, 1]).astype(int), 0, lab.shape[0] - 1),
+                         np.clip(np.round(cands[:, 0]).astype(int), 0, lab.shape[1] - 1)] == i
+            near = np.array([np.any(np.hypot(hc[:, 0] - x, hc[:, 1] - y) < settings.nms_radius * r0)
+                             for x, y in cands[:, :2]]) if len(cands) else np.zeros(0, bool)
+            cands = cands[~(inside & near)]
+            extra.append(hc)
     if extra:
         cands = np.vstack([cands] + extra)
     found = []

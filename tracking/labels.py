@@ -21,8 +21,8 @@ Names (hue in degrees on the HSV circle, 0 = red; sat/val 0..1):
 ``ball``      no usable colour (never seen well)
 ============  =======================================================
 
-A non-cue ball whose median white fraction is >= ``STRIPE_WHITE_FRAC`` gets the
-``-stripe`` suffix (a stripe ball shows its white caps; a solid shows only
+A non-cue ball whose median white fraction is >= ``STRIPE_WHITE_FRAC`` (or
+whose 90th percentile is >= ``STRIPE_WHITE_P90``) gets the ``-stripe`` suffix (a stripe ball shows its white caps; a solid shows only
 its small number circle). A second ball with the same name gets ``-2``
 (``-3`` ...). The hue bands are our own split of the colour circle at the
 usual boundaries between colour words (common practice), checked against
@@ -39,6 +39,11 @@ CUE_WHITE_FRAC = 0.6
 #: Median white fraction that marks a stripe ball (a solid's number circle
 #: covers at most ~1/3 of the inner disc, and only when facing the camera).
 STRIPE_WHITE_FRAC = 0.3
+#: A rolling stripe ball shows a white cap in some frames: 90th percentile of
+#: the white fraction at or above this marks a stripe even when the coloured
+#: band mostly faces the camera (a solid's number circle fills at most ~0.45
+#: of the inner disc: circle half the ball's diameter, common practice).
+STRIPE_WHITE_P90 = 0.55
 BLACK_DARK_FRAC = 0.45
 
 HUE_BANDS = [  # (name, hue from, hue to) degrees
@@ -88,6 +93,7 @@ def label_tracks(det: pd.DataFrame, track_col: str = "track") -> tuple[dict[int,
             "hue_deg": _circ_median_hue(g["hue_deg"].to_numpy(float)),
             "sat": float(g["sat"].median()), "val": float(g["val"].median()),
             "white_frac": float(g["white_frac"].median()), "dark_frac": float(g["dark_frac"].median()),
+            "white_p90": float(g["white_frac"].quantile(0.9)),
             "n_detections": int(len(g)),
         })
     info = pd.DataFrame(rows)
@@ -111,7 +117,7 @@ def label_tracks(det: pd.DataFrame, track_col: str = "track") -> tuple[dict[int,
             pattern.append("solid")
             continue
         name = colour_name(r["hue_deg"], r["sat"], r["val"], r["dark_frac"])
-        stripe = r["white_frac"] >= STRIPE_WHITE_FRAC and name not in ("ball",)
+        stripe = (r["white_frac"] >= STRIPE_WHITE_FRAC or r["white_p90"] >= STRIPE_WHITE_P90) and name != "ball"
         base.append(name + ("-stripe" if stripe else ""))
         pattern.append("stripe" if stripe else "solid")
     # Duplicates: order by number of detections (the longest-seen keeps the plain name).
