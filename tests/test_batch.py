@@ -434,7 +434,7 @@ def test_bench_series_with_the_real_analyser(tmp_path: Path) -> None:
     os.symlink(BENCH_CLIP, root / "copies" / BENCH_CLIP.name)
     (root / "not_a_video.mp4").write_text("plain text renamed to .mp4\n")
     calib = _calibration_from_truth(BENCH_CLIP, tmp_path)
-    settings = pipeline.AnalyzeSettings(calib=str(calib), video=False, frames=False)
+    settings = pipeline.AnalyzeSettings(calib=str(calib), video=False, frames=False, plots=False, report=False)
     out = tmp_path / "out"
     rep = run_batch(root, out, settings, workers=2)
     status = {o.clip_rel: o for o in rep.outcomes}
