@@ -461,7 +461,7 @@ def render_html(res: SeriesResult, data: SeriesData, images, outcomes, settings:
     env = jinja2.Environment(loader=jinja2.PackageLoader("feltlab", "templates"),
                              autoescape=jinja2.select_autoescape(["html", "j2"]))
     env.filters["f"] = _fmt
-    env.globals.update(pm=_pm, rng=_range)
+    env.globals.update(pm=_pm, rng=_range, pct1=lambda v: "–" if _fmt(v) == "–" else f"{float(v) * 100:.1f}%")
     pct = f"{res.confidence:.0%}"
     kinds = []
     for _, r in res.kinds.iterrows():
