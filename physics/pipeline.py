@@ -185,6 +185,7 @@ def _analyze(tracks, detections, table, ball_radius_mm, ball_mass_kg, fps, setti
     # segments (leave-one-out, so no data count twice); pass-1 shot estimates are reported
     _, mu = _segments_table(fits, samples, s)
     _, (mus, mur) = _segments_table(fits, samples, s, per_segment=True)
+    alternates: dict[str, ChainFit] = {}
     s2 = _shot_priors(s, mu)
     for name, b in samples.items():
         lay = layouts[name]
@@ -198,8 +199,17 @@ def _analyze(tracks, detections, table, ball_radius_mm, ball_mass_kg, fps, setti
             x2[lay.break_offset : lay.break_offset + lay.n_seg - 1] = lay.break_init
             x2 = restart_after_breaks(x2, lay, b.t, b.xy, b.sig, s2, pri)
             fb = fit_chain(b.t, b.xy, b.sig, lay, s2, x_init=x2, seg_priors=pri)
-            fits[name] = fb if fb.cost < fa.cost - 1e-9 else fa
+            fits[name], other = (fb, fa) if fb.cost < fa.cost - 1e-9 else (fa, fb)
+            if other.cost - fits[name].cost < s.ambiguity_dcost:
+                alternates[name] = other
     contacts = _contacts_table(cands, fits, maps, table, R, m, dt, s)
+    if alternates:
+        # two fits that explain the samples about equally well: the spread of their restitution
+        # is a model-choice uncertainty, added to the propagated sigma
+        alt = _contacts_table(cands, {**fits, **alternates}, maps, table, R, m, dt, s)
+        both = contacts.merge(alt[["_cand", "e"]], on="_cand", how="left", suffixes=("", "_alt"))
+        d = np.nan_to_num(both["e_alt"].to_numpy(float) - both["e"].to_numpy(float))
+        contacts["e_sigma"] = np.sqrt(contacts["e_sigma"].to_numpy(float) ** 2 + d**2)
     segments, _ = _segments_table(fits, samples, s2)
     events = _events_table(samples, fits, layouts, maps, contacts, segments, dt, s)
     return ShotPhysics(events, segments, contacts, *mu, fits=fits,

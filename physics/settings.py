@@ -119,6 +119,11 @@ class PhysicsSettings:
     fallback_mu_s_sigma: float = 0.1
     fallback_mu_r_sigma: float = 0.005
 
+    #: The second pass fits each ball from two starts; when the worse one's robust cost is within
+    #: this of the better one's (half a chi^2 difference of 4, i.e. ~2 sigma), the contacts'
+    #: restitution difference between them is added to e_sigma as model-choice uncertainty.
+    ambiguity_dcost: float = 2.0
+
     # -- robust fitting ----------------------------------------------------------------------
     #: scipy.optimize.least_squares loss and scale (in standard errors). Design choice: quadratic
     #: up to ~3 sigma, so Gaussian noise keeps full efficiency and outliers lose weight.
