@@ -154,10 +154,11 @@ def main() -> None:
     ap.add_argument("--seed", type=int, default=1)
     ap.add_argument("--verbose", action="store_true")
     ap.add_argument("--only", type=int, default=None, help="run one shot index and print details")
+    ap.add_argument("--start", type=int, default=0, help="first shot index (to split a run)")
     a = ap.parse_args()
     fps_list = [float(f) for f in a.fps.split(",")]
     stats = {f: dict(bb=[], bc=[], z=[], dt=[], mu=[], missed=0, false=0, n=0, time=0.0) for f in fps_list}
-    for i in range(a.n) if a.only is None else [a.only]:
+    for i in range(a.start, a.n) if a.only is None else [a.only]:
         balls, params, t_end, kind = make_shot(np.random.default_rng([a.seed, i]), i)
         for fps in fps_list:
             rng = np.random.default_rng([a.seed, i, int(fps)])
@@ -185,12 +186,14 @@ def main() -> None:
             if a.verbose:
                 print(f"shot {i:2d} {kind:8s} fps {fps:5.0f} sigma {sigma:.2f}: "
                       f"{len(pairs)} matched, {len(missed)} missed, {len(false)} false; "
-                      + " ".join(f"{c.kind[5:7]}:{r.e - c.e_measured:+.4f}({r.e_sigma:.4f})" for c, r in pairs))
+                      + " ".join(f"{c.kind[5:7]}:{r.e - c.e_measured:+.4f}({r.e_sigma:.4f})" for c, r in pairs)
+                      + " dt_frames " + " ".join(f"{(r.t_s - c.t_s) * fps:+.3f}" for c, r in pairs)
+                      + (f" mu_s_rel {out.mu_s / params.mu_slide - 1:+.3f}" if np.isfinite(out.mu_s) else ""))
                 for c in missed:
                     print(f"    MISSED {c.kind} {c.ball_a} {c.ball_b or c.cushion} t={c.t_s:.4f} vin={c.speed_in_mm_s:.0f}")
                 for r in false:
                     print(f"    FALSE {r.kind} {r.ball_a} {r.ball_b or r.cushion} t={r.t_s:.4f} e={r.e:.3f}")
-    print(f"{a.n} simulated shots per frame rate; noise 0.2-0.5 mm; pool ball R = {R} mm")
+    print(f"{a.n - a.start if a.only is None else 1} simulated shots per frame rate; noise 0.2-0.5 mm; pool ball R = {R} mm")
     print("fps   true  missed false | bb e: n  med|err|  p90    | cushion e: n  med|err|  p90  "
           "| within 2 sigma | |dt| med/p90 (frames) | mu_s med|rel err| | s/shot")
     for fps, s in stats.items():
@@ -201,7 +204,7 @@ def main() -> None:
         q = lambda v, p: float(np.percentile(v, p)) if len(v) else float("nan")
         print(f"{fps:4.0f} {s['n']:6d} {s['missed']:6d} {s['false']:5d} | {len(bb):8d} {q(bb,50):8.4f} {q(bb,90):7.4f} "
               f"| {len(bc):11d} {q(bc,50):8.4f} {q(bc,90):6.4f} | {np.mean(z < 2) if len(z) else float('nan'):14.3f} "
-              f"| {q(dtf,50):6.3f} / {q(dtf,90):6.3f}        | {q(mu,50):17.3f} | {s['time'] / a.n:6.2f}")
+              f"| {q(dtf,50):6.3f} / {q(dtf,90):6.3f}        | {q(mu,50):17.3f} | {s['time'] / max(a.n - a.start, 1):6.2f}")
 
 
 if __name__ == "__main__":
