@@ -586,6 +586,19 @@ def foreground_strength(image: np.ndarray, background: Background) -> np.ndarray
     return d
 
 
+def _half_res_background(bg: Background) -> tuple[np.ndarray, np.ndarray]:
+    """Half-resolution background and mask over the ROI (cached on the Background)."""
+    cache = getattr(bg, "_half", None)
+    if cache is None:
+        x0, y0, x1, y1 = bg.roi
+        size = ((x1 - x0) // 2, (y1 - y0) // 2)
+        sb = cv2.resize(bg.image[y0:y1, x0:x1], size, interpolation=cv2.INTER_AREA)
+        sm = cv2.resize(bg.mask[y0:y1, x0:x1].astype(np.float32), size, interpolation=cv2.INTER_AREA)
+        cache = (sb.astype(np.float32), (sm > 0.5).astype(np.float32))
+        bg._half = cache
+    return cache
+
+
 def detect_frame(image: np.ndarray, calibration: Calibration, settings: DetectionSettings = DetectionSettings(),
                  background: Background | None = None) -> pd.DataFrame:
     """Balls in one BGR uint8 frame -> DataFrame with :data:`DETECTION_COLUMNS`.
@@ -601,12 +614,32 @@ def detect_frame(image: np.ndarray, calibration: Calibration, settings: Detectio
     cal = calibration
     r0 = background.radius_px
     x0, y0, x1, y1 = background.roi
-    d = foreground_strength(image, background)
-    dcrop = d[y0:y1, x0:x1]
     thr = background.threshold_dn
     half_res = r0 >= 6.0
-    small = cv2.resize(dcrop, (dcrop.shape[1] // 2, dcrop.shape[0] // 2), interpolation=cv2.INTER_AREA) \
-        if half_res else dcrop
+    if half_res:
+        # Seeds from a half-resolution foreground map (4x fewer pixels); the
+        # full-resolution strength is computed only in patches round the seeds.
+        sb, sm_mask = _half_res_background(background)
+        small_img = cv2.resize(image[y0:y1, x0:x1], (sb.shape[1], sb.shape[0]), interpolation=cv2.INTER_AREA)
+        diff = cv2.subtract(small_img.astype(np.float32), sb)
+        small = cv2.sqrt(cv2.transform(cv2.multiply(diff, diff), np.ones((1, 3), np.float32))) * sm_mask
+        d = np.zeros(image.shape[:2], np.float32)
+        filled = np.zeros(image.shape[:2], bool)
+    else:
+        d = foreground_strength(image, background)
+        small = d[y0:y1, x0:x1]
+        filled = np.ones(image.shape[:2], bool)
+    pad = int(np.ceil(settings.ray_max * float(np.max(background.radius_grid)) + 3 * settings.edge_smooth_px)) + 8
+
+    def fill(xa_: int, ya_: int, xb_: int, yb_: int) -> None:
+        """Full-resolution strength over an image box (clipped to the ROI)."""
+        xa_, ya_, xb_, yb_ = max(xa_, x0), max(ya_, y0), min(xb_, x1), min(yb_, y1)
+        if xb_ <= xa_ or yb_ <= ya_ or filled[ya_:yb_, xa_:xb_].all():
+            return
+        dd = cv2.subtract(image[ya_:yb_, xa_:xb_].astype(np.float32), background.image[ya_:yb_, xa_:xb_])
+        d[ya_:yb_, xa_:xb_] = cv2.sqrt(cv2.transform(cv2.multiply(dd, dd), np.ones((1, 3), np.float32))) \
+            * background.mask[ya_:yb_, xa_:xb_]
+        filled[ya_:yb_, xa_:xb_] = True
     fg = np.clip(small / thr - 0.5, 0, 1).astype(np.float32)
     if half_res:
         cands = _find_candidates(fg, r0 / 2.0, settings)
@@ -624,13 +657,14 @@ def detect_frame(image: np.ndarray, calibration: Calibration, settings: Detectio
         if scale * scale * stats[i, cv2.CC_STAT_AREA] < 1.7 * ball_area:
             continue
         if lab is None:
-            lab = cv2.resize(lab_s.astype(np.int32).astype(np.float32), (dcrop.shape[1], dcrop.shape[0]),
+            lab = cv2.resize(lab_s.astype(np.int32).astype(np.float32), (x1 - x0, y1 - y0),
                              interpolation=cv2.INTER_NEAREST).astype(np.int32)
-            lab[dcrop <= thr] = 0
         bx, by, bw, bh = scale * stats[i, :4]
         m = int(np.ceil(r0)) + 2
         xa, ya = max(bx - m, 0), max(by - m, 0)
-        xb, yb = min(bx + bw + m, dcrop.shape[1]), min(by + bh + m, dcrop.shape[0])
+        xb, yb = min(bx + bw + m, x1 - x0), min(by + bh + m, y1 - y0)
+        fill(x0 + xa, y0 + ya, x0 + xb, y0 + yb)
+        lab[ya:yb, xa:xb][d[y0 + ya:y0 + yb, x0 + xa:x0 + xb] <= thr] = 0
         sub_mask = lab[ya:yb, xa:xb] == i
         hc = cluster_candidates(image[y0 + ya:y0 + yb, x0 + xa:x0 + xb], sub_mask, r0, settings)
         if len(hc):
@@ -650,6 +684,7 @@ def detect_frame(image: np.ndarray, calibration: Calibration, settings: Detectio
     found = []
     for cx, cy, sc in cands:
         gx, gy = cx + x0, cy + y0
+        fill(int(gx) - pad, int(gy) - pad, int(gx) + pad + 2, int(gy) + pad + 2)
         if _disc_mean(d, gx, gy, 0.6 * r0) < settings.min_inner_contrast * thr:
             continue  # not a ball-sized patch that differs from the cloth
         r_exp, _, _ = background.lookup(gx, gy)
