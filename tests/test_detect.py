@@ -289,6 +289,7 @@ def _truth_cal(d: dict) -> Calibration:
     return calibration_from_truth(d)
 
 
+@pytest.mark.slow
 @pytest.mark.footage
 @pytest.mark.skipif(not FOOTAGE.is_dir(), reason="outside footage ../shared/footage not present")
 @pytest.mark.parametrize("clip", ["D1", "D2"])
