@@ -254,7 +254,7 @@ def build_background(frames: list[np.ndarray], calibration: Calibration,
     roi = (int(xs.min()), int(ys.min()), int(xs.max()) + 1, int(ys.max()) + 1)
 
     # Expected radius and silhouette offset on a coarse image grid.
-    step = 32
+    step = 64  # radius and offset vary slowly over the image
     gxs = np.arange(0, w + step, step, dtype=float)
     gys = np.arange(0, h + step, step, dtype=float)
     grid_px = np.array([[x, y] for y in gys for x in gxs])
