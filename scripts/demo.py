@@ -1,6 +1,7 @@
 """`make demo`: analyse a bundled training-drill clip and compare the measured contacts with its truth.
 
-Uses clips/drill_cut.mp4 (+ drill_cut.truth.json); if the clip is missing it is
+Uses clips/drill_cut.mp4 (+ drill_cut.truth.json; a CLIP.calibration.toml beside a clip is
+used as its manual calibration); if the clip is missing it is
 rendered first from clips/drill_cut.toml (our own scenario, takes a few
 minutes on a CPU). Results go to results/drill_cut/ (an existing result made
 with the same clip and settings is reused). Prints the report's path and a
@@ -81,9 +82,11 @@ def main(argv: list[str] | None = None) -> int:
         if prev is not None and prev.get("clip", {}).get("sha256") != sha256_file(clip) and not a.replace:
             print(f"demo: {dest} was made from an earlier render of {clip.name}; replacing it")
             a.replace = True
+        own = clip.with_name(clip.stem + ".calibration.toml")  # a bench clip's manual calibration
+        settings = AnalyzeSettings(calib=str(own)) if own.is_file() else AnalyzeSettings()
         t0 = time.perf_counter()
         try:
-            res = analyze_clip(clip, Path(a.out) / clip.stem, AnalyzeSettings(), replace=a.replace)
+            res = analyze_clip(clip, Path(a.out) / clip.stem, settings, replace=a.replace)
         except FeltlabError as exc:
             # Automatic calibration can fail on a scene it was not built for; a user would then
             # calibrate from a file. The demo does that with the scene's known camera, and says so.

@@ -39,9 +39,13 @@ def _clips() -> list:
     return out
 
 
-def _calib_args(truth: dict, tmp_path: Path) -> list[str]:
-    """A test bench films part of the table, so it is calibrated from a file, as a user would
-    (here written from the render's camera); clips that show the whole table calibrate themselves."""
+def _calib_args(clip: Path, truth: dict, tmp_path: Path) -> list[str]:
+    """A test bench films part of the table, so it is calibrated from a file, as a user would: the
+    clip's own CLIP.calibration.toml (marks on the cloth) where bundled, else one written from the
+    render's camera; clips that show the whole table calibrate themselves."""
+    own = clip.with_name(clip.stem + ".calibration.toml")
+    if own.is_file():
+        return ["--calib", str(own)]
     corners = truth.get("corners_px", {})
     pts = corners.get("cloth") or corners.get("cloth_z0") or []
     w, h = truth["resolution"]
@@ -63,7 +67,7 @@ def test_analyze_clip_end_to_end(clip: Path, tmp_path):
     out = tmp_path / "results"
     truth = load_truth(clip.with_name(clip.stem + ".truth.json"))
     sha = hashlib.sha256(clip.read_bytes()).hexdigest()  # (hashlib: independent of our reader)
-    r = CliRunner().invoke(main, ["analyze", str(clip), "--out", str(out), "--quiet", *_calib_args(truth, tmp_path)])
+    r = CliRunner().invoke(main, ["analyze", str(clip), "--out", str(out), "--quiet", *_calib_args(clip, truth, tmp_path)])
     assert r.exit_code == 0, r.output
     d = out / clip.stem
     for f in ("tracks.csv", "tracks.parquet", "segments.csv", "segments.parquet", "contacts.csv",
