@@ -60,7 +60,7 @@ def load_truth(path: Path) -> dict:
 
 
 def bench(clip: Path, auto: bool) -> dict:
-    truth = load_truth(clip.with_suffix("").with_suffix(".truth.json") if clip.suffix else clip)
+    truth = load_truth(clip.parent / (clip.stem + ".truth.json"))
     t0, c0 = time.perf_counter(), time.process_time()
     res = track_clip(clip, table=truth["cal"].table, calibration=None if auto else truth["cal"])
     wall, cpu = time.perf_counter() - t0, time.process_time() - c0
