@@ -224,6 +224,7 @@ def track_clip(path: str | os.PathLike, table: str | TablePreset | None = DEFAUL
         from tracking.calibrate import calibration_from_file
 
         cal = calibration_from_file(calibration, table=tp)
+    warnings.extend(f"calibration: {n}" for n in cal.notes)
     w, h = cal.camera.image_size
     if (imgs[0].shape[1], imgs[0].shape[0]) != (w, h):
         raise FeltlabError(f"the calibration is for {w}x{h} images but the clip is "
