@@ -295,18 +295,22 @@ def find_contacts(
                     n = d[k] / np.hypot(*d[k])
                     geo.append(("ball-ball", a, b, "", k, float(g[k]), n))
     # candidate times per ball: limit the change-point windows to the neighbouring candidates
-    cand_t: dict[str, list[float]] = {nm: [] for nm in names}
+    cand_t: dict[str, list[tuple[float, tuple]]] = {nm: [] for nm in names}
     for kind, a, b, c, k, gap, n in geo:
-        cand_t[a].append(times[k])
+        key = (kind, frozenset((a, b)), c)
+        cand_t[a].append((times[k], key))
         if b:
-            cand_t[b].append(times[k])
+            cand_t[b].append((times[k], key))
     out: list[ContactCandidate] = []
     for kind, a, b, c, k, gap, n in geo:
         t_c = float(times[k])
         guard = s.guard_ball_s if kind == "ball-ball" else s.guard_cushion_s
         fits = {}
+        key = (kind, frozenset((a, b)), c)
         for ball in (a, b) if b else (a,):
-            others = [x for x in cand_t[ball] if abs(x - t_c) > 2.5 * dt]
+            # neighbouring candidates limit the windows, except noise minima of the same contact
+            others = [x for x, kx in cand_t[ball]
+                      if abs(x - t_c) > 2.5 * dt and not (kx == key and abs(x - t_c) < s.same_contact_s)]
             lo = max([x for x in others if x < t_c], default=-np.inf)
             hi = min([x for x in others if x > t_c], default=np.inf)
             w = max(s.side_window_s, s.side_window_frames * dt)

@@ -60,6 +60,11 @@ class PhysicsSettings:
     #: between two samples. Geometry, not tuned.
     gap_margin_frames: float = 1.0
 
+    #: Candidates of the same ball pair / ball and cushion closer than this (s) are one contact
+    #: seen through noise: they do not cut each other's fit windows. Design choice (~ a contact
+    #: plus the time a slow ball needs to leave the touching distance).
+    same_contact_s: float = 0.05
+
     # -- kinematic evidence -----------------------------------------------------------------
     side_window_s: float = 0.08
     #: ... but at least this many frame periods on each side (low frame rates). Design choice.
