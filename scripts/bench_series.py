@@ -176,6 +176,11 @@ def report(m: pd.DataFrame, results_dir: Path) -> None:
         within = np.abs(err) <= 2.0 * found["e_sigma"].to_numpy(float)
         print(f"|e - e_true| <= 2 e_sigma: {within.sum()}/{len(found)} = {within.mean():.0%} "
               f"(about 95% expected if the sigmas are right)")
+        z = err / found["e_sigma"].to_numpy(float)
+        print(f"(e - e_true)/e_sigma: SD {z.std(ddof=1):.2f} (about 1 if the sigmas are right), "
+              f"median |.| {np.median(np.abs(z)):.2f} (0.67 expected for a normal)")
+        dt = (found["t_s"] - found["t_true_s"]).to_numpy(float) * found["fps"].to_numpy(float)
+        print(f"contact time minus truth: mean {dt.mean():+.2f} frames, range {dt.min():+.2f}..{dt.max():+.2f}")
         print(f"median |e - e_true| {np.median(np.abs(err)):.4f}, mean error {err.mean():+.4f}, "
               f"max |error| {np.abs(err).max():.4f}, median e_sigma {found['e_sigma'].median():.4f}")
         print(f"measured-vs-true correlation across shots: r = {np.corrcoef(found['e'], found['e_true'])[0, 1]:.2f}")
