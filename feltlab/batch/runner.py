@@ -22,6 +22,7 @@ from __future__ import annotations
 
 import csv
 import io
+import multiprocessing
 import os
 import shutil
 import time
@@ -171,6 +172,17 @@ def _worker_init() -> None:
         pass
 
 
+def _new_pool(workers: int) -> ProcessPoolExecutor:
+    """A pool of fresh interpreters ("spawn"), never forked copies of this process.
+
+    A forked child inherits locks held by the parent's threads (OpenCV's and
+    BLAS's thread pools, a progress-bar thread) and can hang on its first
+    import or OpenCV call; spawned workers start clean, at ~1 s each.
+    """
+    return ProcessPoolExecutor(max_workers=workers, initializer=_worker_init,
+                               mp_context=multiprocessing.get_context("spawn"))
+
+
 def _outcome_of(fut, task: ClipTask) -> ClipOutcome | None:
     """A finished future's outcome; None when its worker process died (BrokenProcessPool)."""
     try:
@@ -192,7 +204,7 @@ def _run_local(tasks: list[ClipTask], analyze: Analyzer, workers: int, on_done: 
     """
     pending: deque[ClipTask] = deque(tasks)
     strikes: dict[str, int] = {}
-    pool = ProcessPoolExecutor(max_workers=workers, initializer=_worker_init)
+    pool = _new_pool(workers)
     inflight: dict[Any, ClipTask] = {}
     try:
         while pending or inflight:
@@ -238,7 +250,7 @@ def _run_local(tasks: list[ClipTask], analyze: Analyzer, workers: int, on_done: 
                     log(f"a worker process died; retrying {task.clip_rel}")
                     retry.append(task)
             pending.extendleft(reversed(retry))
-            pool = ProcessPoolExecutor(max_workers=workers, initializer=_worker_init)
+            pool = _new_pool(workers)
     finally:
         pool.shutdown(wait=True, cancel_futures=True)
 
