@@ -10,7 +10,6 @@ folder (``a.mp4`` and ``a.mov`` side by side) both get the extension appended
 """
 from __future__ import annotations
 
-import hashlib
 import os
 from collections import defaultdict
 from dataclasses import dataclass
@@ -18,6 +17,7 @@ from pathlib import Path, PurePosixPath
 
 from feltlab.batch.settings import VIDEO_EXTENSIONS
 from feltlab.errors import FeltlabError
+from feltlab.outputs.atomic import sha256_file
 
 #: Top-level names in the output folder used by the batch itself.
 RESERVED_NAMES: frozenset[str] = frozenset(
@@ -100,13 +100,6 @@ def _assign_result_folders(found: list[tuple[str, Path, int]]) -> list[Clip]:
     return sorted(clips, key=lambda c: c.rel)
 
 
-def file_sha256(path: Path | str, chunk_bytes: int = 1 << 20) -> str:
-    """Hex SHA-256 of a file's content, read in chunks (constant memory)."""
-    h = hashlib.sha256()
-    with open(path, "rb") as fh:
-        while True:
-            block = fh.read(chunk_bytes)
-            if not block:
-                break
-            h.update(block)
-    return h.hexdigest()
+def file_sha256(path: Path | str) -> str:
+    """Hex SHA-256 of a file's content, the same digest ``feltlab analyze`` records in shot.json."""
+    return sha256_file(Path(path))

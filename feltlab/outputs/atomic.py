@@ -29,7 +29,7 @@ def finished_result(dest: Path) -> dict | None:
         return None
 
 
-def sha256_file(path: Path, chunk: int = 1 << 20) -> str:
+def sha256_file(path: Path | str, chunk: int = 1 << 20) -> str:
     """Hex SHA-256 of a file, read in 1 MiB chunks."""
     import hashlib
 
