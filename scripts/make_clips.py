@@ -20,7 +20,8 @@ SUFFIX = {"mp4v": ".mp4", "ffv1": ".avi", "png": ""}
 
 def main(names: list[str]) -> int:
     clips = ROOT / "clips"
-    files = sorted(clips.glob("bench_*.toml")) + sorted(clips.glob("drill_*.toml"))
+    files = [p for p in sorted(clips.glob("bench_*.toml")) + sorted(clips.glob("drill_*.toml"))
+             if not p.name.endswith(".calibration.toml")]  # CLIP.calibration.toml: manual calibration
     if names:
         files = [f for f in files if f.stem in names]
     total = 0
