@@ -129,6 +129,24 @@ def test_robust_z_matches_scipy_mad_and_flags_planted_outliers_without_dropping(
     assert both["outlier"].sum() == 3
 
 
+def test_slow_imprecise_shots_are_not_outliers_but_a_precise_stray_is() -> None:
+    # Same tracking noise behind every contact: the velocity uncertainty is fixed, so
+    # e_sigma = dv / speed (first-order error propagation of e = -dv_out/dv_in). A slow shot
+    # is imprecise, not wrong; a precise shot far from the series is.
+    n = 40
+    speed = np.concatenate([RNG.uniform(1500, 2500, n - 4), [150.0, 180.0, 200.0, 1800.0]])
+    sig = 6.0 / speed
+    e = 0.94 + RNG.normal(0, 1, n) * np.sqrt(0.004**2 + sig**2)
+    e[-4:-1] = [0.94 - 2 * sig[-4], 0.94 + 2 * sig[-3], 0.94 - 1.5 * sig[-2]]  # within their own 2 sigma
+    e[-1] = 0.94 + 0.05  # a precise contact 0.05 off: about 12 combined sigma
+    df = pd.DataFrame({"kind": "ball-ball", "e": e, "e_sigma": sig, "speed_in_mm_s": speed,
+                       "momentum_residual_pct": RNG.normal(0, 1, n)})
+    flagged = stats.flag_outliers(df)
+    assert not flagged["outlier"].iloc[-4:-1].any(), flagged["outlier_reason"].iloc[-4:-1].tolist()
+    assert flagged["outlier"].iloc[-1]
+    assert "e robust z" in flagged["outlier_reason"].iloc[-1]
+
+
 def test_kind_summary_uses_each_kind_separately() -> None:
     df = pd.DataFrame({"kind": ["ball-ball"] * 4 + ["ball-cushion"] * 3,
                        "e": [0.93, 0.95, 0.94, 0.96, 0.7, 0.8, 0.75],

@@ -161,8 +161,16 @@ def robust_z(x) -> np.ndarray:
 def flag_outliers(contacts: pd.DataFrame, limit: float = ROBUST_Z_LIMIT) -> pd.DataFrame:
     """Copy of ``contacts`` with ``outlier`` (bool) and ``outlier_reason`` columns.
 
-    Per contact kind: e (|z| > limit), e_sigma on a log scale and |momentum_residual_pct|
-    (z > limit, high side only). Rows are never removed.
+    Per contact kind, three checks (rows are never removed):
+
+    * e: distance from the kind's median in units of sqrt(s^2 + e_sigma^2), where s is the
+      robust series scatter (MAD x 1.4826) -- a contact is flagged when it is far from the
+      series given both the series scatter and its own uncertainty, so an imprecise slow
+      shot is not an outlier merely for being imprecise (two-sided, |z| > limit);
+    * measurement quality: log of e_sigma x speed_in_mm_s (the velocity uncertainty in mm/s
+      behind e; e_sigma alone grows as 1/speed for the same tracking noise), or log e_sigma
+      when the speed is missing (high side only);
+    * |momentum_residual_pct| (ball-ball; high side only).
     """
     df = contacts.copy()
     reasons = [[] for _ in range(len(df))]
@@ -170,22 +178,47 @@ def flag_outliers(contacts: pd.DataFrame, limit: float = ROBUST_Z_LIMIT) -> pd.D
     for _, grp in df.groupby("kind", sort=True):
         rows = [pos[i] for i in grp.index]
         checks = []
+        sig = grp["e_sigma"].to_numpy(float) if "e_sigma" in grp else np.full(len(grp), NAN)
         if "e" in grp:
-            checks.append(("e", robust_z(grp["e"].to_numpy(float)), True))
+            checks.append(("e robust z", _e_z(grp["e"].to_numpy(float), sig), True))
         if "e_sigma" in grp:
-            sig = grp["e_sigma"].to_numpy(float)
+            scale = sig
+            label = "e_sigma"
+            if "speed_in_mm_s" in grp:
+                spd = np.abs(grp["speed_in_mm_s"].to_numpy(float))
+                scale = np.where(np.isfinite(spd) & (spd > 0), sig * spd, sig)
+                label = "e_sigma x speed"
             with np.errstate(divide="ignore", invalid="ignore"):
-                checks.append(("e_sigma", robust_z(np.where(sig > 0, np.log(sig), np.nan)), False))
+                checks.append((f"{label} robust z", robust_z(np.where(scale > 0, np.log(scale), np.nan)), False))
         if "momentum_residual_pct" in grp:
-            checks.append(("momentum residual", robust_z(np.abs(grp["momentum_residual_pct"].to_numpy(float))),
-                           False))
+            checks.append(("momentum residual robust z",
+                           robust_z(np.abs(grp["momentum_residual_pct"].to_numpy(float))), False))
         for name, z, two_sided in checks:
             hit = (np.abs(z) > limit) if two_sided else (z > limit)
             for k in np.flatnonzero(np.nan_to_num(hit, nan=False)):
-                reasons[rows[k]].append(f"{name} robust z {z[k]:+.1f}")
+                reasons[rows[k]].append(f"{name} {z[k]:+.1f}")
     df["outlier"] = [bool(r) for r in reasons]
     df["outlier_reason"] = ["; ".join(r) for r in reasons]
     return df
+
+
+def _e_z(e: np.ndarray, e_sigma: np.ndarray) -> np.ndarray:
+    """(e - median) / sqrt(s^2 + e_sigma^2); s = robust scatter of e (MAD / 0.6745).
+
+    Falls back to :func:`robust_z` scaling where e_sigma is unknown.
+    """
+    z = robust_z(e)
+    ok = np.isfinite(e)
+    if not ok.any():
+        return z
+    med = float(np.median(e[ok]))
+    mad = float(np.median(np.abs(e[ok] - med)))
+    s = mad / MAD_TO_Z if mad > 0 else float(np.abs(e[ok] - med).mean()) * MEANAD_SCALE
+    sig = np.where(np.isfinite(e_sigma) & (e_sigma > 0), e_sigma, 0.0)
+    den = np.sqrt(s**2 + sig**2)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        zz = np.where(den > 0, (e - med) / den, 0.0)
+    return np.where(ok, zz, NAN)
 
 
 @dataclass(frozen=True)
