@@ -1,21 +1,37 @@
 #!/usr/bin/env python3
 """Tracking accuracy and speed on clips with exact truth (prints figures, asserts nothing).
 
-usage: bench_tracking.py [CLIP.mp4 ...] [--auto] [--frames N]
+usage: bench_tracking.py [CLIP.mp4 ...] [--auto] [--both]
 
 Without clips: the outside footage in ../shared/footage (D1, D2) when present,
 and the bundled demo clips in clips/. Each clip needs CLIP.truth.json beside
 it, in either the outside-footage format (frames.positions_mm) or our
 renderer's (tracks.<ball>.x_mm/y_mm). ``--auto`` calibrates from the clip
-instead of using the truth camera.
+instead of using the truth camera; ``--both`` runs each clip both ways.
 
-Figures per clip: balls (true / tracked), coverage (share of true ball-frames
-with a track point within 5 mm), RMSE of moving and of resting ball-frames,
-jitter of resting balls (SD of the track while the truth rests), identity
-switches (frames where a track is nearest to another true ball), the
-detections' RMSE and their mean squared normalised error (1 = honest
-sigmas), segment boundaries vs true contact times, time per frame (wall
-and CPU).
+Figures per clip (one row per clip and calibration):
+
+* ``balls``: true balls / tracks. ``cov_view``: share of true ball-frames
+  whose centre is inside the image that have a track point within 5 mm
+  (``n_view`` of them; ball-frames out of view are not counted).
+* ``rmse_move`` / ``rmse_rest``: RMS track error (mm) of moving / resting
+  ball-frames (truth speed > / <= 5 mm/s).
+* static jitter, 1 sigma (mm per axis, sqrt of the mean of the x and y
+  variances about the ball's mean, worst resting ball): ``jit_det`` of the
+  raw per-frame detections, ``jit_trk`` of the track output (which averages
+  rest runs, so it is much smaller and says little about a single frame).
+* ``id_sw``: identity switches - the number of times the track nearest a true
+  ball (within one ball radius) changes name from one covered frame to the
+  next, summed over balls; ``wrong_fr``: frames where a ball's matched
+  track lies nearer another true ball.
+* ``corner_px``: worst of the four playing-surface corners (cushion-nose
+  plane and cloth plane) of the camera used vs the truth camera (0 for truth).
+* ``diam_mm``: ball diameter recovered from the free-radius silhouette fits of
+  resting detections (median), to compare with the published diameter
+  ``diam_pub`` (feltlab/standards.py).
+* ``det_rmse`` / ``det_z2``: detections' RMSE (mm) and their mean squared
+  normalised error (1 = honest sigmas); ``splits``: true contacts followed
+  by a motion-segment start within 2 frames; ``ms_fr``: wall time per frame.
 """
 from __future__ import annotations
 
@@ -31,10 +47,19 @@ from scipy.optimize import linear_sum_assignment
 ROOT = Path(__file__).resolve().parents[1]
 sys.path.insert(0, str(ROOT))
 
+from feltlab.errors import FeltlabError  # noqa: E402
+from feltlab.standards import table_preset  # noqa: E402
+from tracking.calibrate import nose_height_mm  # noqa: E402
 from tracking.calibration import Calibration  # noqa: E402
 from tracking.camera import CameraModel  # noqa: E402
 from tracking.pipeline import calibration_from_truth, track_clip  # noqa: E402
-from feltlab.standards import table_preset  # noqa: E402
+
+MOVING_MM_S = 5.0  # truth speed above which a ball-frame counts as moving
+COVER_MM = 5.0     # a track point within this of the truth covers the ball-frame
+
+
+def truth_path(clip: Path) -> Path:
+    return clip.parent / (clip.stem + ".truth.json")
 
 
 def load_truth(path: Path) -> dict:
@@ -59,60 +84,124 @@ def load_truth(path: Path) -> dict:
     return {"fps": float(d["fps"]), "n": int(d["n_frames"]), "cal": cal, "pos": pos, "contacts": contacts}
 
 
+def in_view(cal: Calibration, P: np.ndarray) -> np.ndarray:
+    """(N,) bool: ball centre (table mm, z = R) projects inside the image."""
+    ok = np.isfinite(P[:, 0])
+    out = np.zeros(len(P), bool)
+    if ok.any():
+        uv = cal.table_to_px(P[ok])
+        w, h = cal.camera.image_size
+        out[np.nonzero(ok)[0]] = (uv[:, 0] >= -0.5) & (uv[:, 0] <= w - 0.5) & (uv[:, 1] >= -0.5) & (uv[:, 1] <= h - 0.5)
+    return out
+
+
+def corner_error_px(cal: Calibration, truth_cal: Calibration) -> float:
+    """Worst corner (nose and cloth planes) of ``cal``'s camera vs the truth camera (px)."""
+    L, W = truth_cal.table.length_mm, truth_cal.table.width_mm
+    err = 0.0
+    for z in (0.0, nose_height_mm(truth_cal.table, truth_cal.ball_diameter_mm)):
+        P = np.array([[0, 0, z], [L, 0, z], [L, W, z], [0, W, z]], float)
+        err = max(err, float(np.max(np.linalg.norm(cal.camera.project(P) - truth_cal.camera.project(P), axis=1))))
+    return err
+
+
+def _rms(v) -> float:
+    return float(np.sqrt(np.mean(np.square(v)))) if len(v) else float("nan")
+
+
+def _sd1(xy: np.ndarray) -> float:
+    """1-sigma scatter per axis (mm): sqrt of the mean of the x and y variances."""
+    return float(np.sqrt((np.var(xy[:, 0], ddof=1) + np.var(xy[:, 1], ddof=1)) / 2)) if len(xy) > 2 else float("nan")
+
+
 def bench(clip: Path, auto: bool) -> dict:
-    truth = load_truth(clip.parent / (clip.stem + ".truth.json"))
+    truth = load_truth(truth_path(clip))
+    tcal = truth["cal"]
     t0, c0 = time.perf_counter(), time.process_time()
-    res = track_clip(clip, table=truth["cal"].table, calibration=None if auto else truth["cal"])
+    try:
+        res = track_clip(clip, table=tcal.table, calibration=None if auto else tcal)
+    except FeltlabError as exc:
+        return {"clip": clip.stem, "cal": "auto" if auto else "truth", "error": str(exc)}
     wall, cpu = time.perf_counter() - t0, time.process_time() - c0
-    tr = res.tracks
+    tr, dets = res.tracks, res.detections
     names = sorted(tr.ball.unique())
     ids = sorted(truth["pos"])
     n = truth["n"]
-    # per (track, truth) mean distance over the track's frames
+    R = tcal.ball_radius_mm
+    by_name = {nm: tr[tr.ball == nm].set_index("frame") for nm in names}
+    # global track <-> ball match by mean distance over the track's frames
     cost = np.full((len(names), len(ids)), 1e6)
     for i, nm in enumerate(names):
-        g = tr[tr.ball == nm]
-        fr = g.frame.to_numpy(int)
-        fr_ok = fr < n
+        g = by_name[nm]
+        fr = g.index.to_numpy(int)
+        fr = fr[fr < n]
         for j, bid in enumerate(ids):
-            P = truth["pos"][bid][fr[fr_ok]]
-            e = np.hypot(g.x_mm.to_numpy()[fr_ok] - P[:, 0], g.y_mm.to_numpy()[fr_ok] - P[:, 1])
+            P = truth["pos"][bid][fr]
+            e = np.hypot(g.loc[fr, "x_mm"].to_numpy() - P[:, 0], g.loc[fr, "y_mm"].to_numpy() - P[:, 1])
             cost[i, j] = np.nanmean(np.where(np.isfinite(e), e, 100.0)) if len(e) else 1e6
     ri, ci = linear_sum_assignment(cost)
     match = {names[i]: ids[j] for i, j in zip(ri, ci) if cost[i, j] < 50}
-    mv_err, rest_err, jit, cov_hits, cov_total, switches = [], [], [], 0, 0, 0
+    inv = {v: k for k, v in match.items()}
+    mv_err, rest_err, jit_det, jit_trk, diam = [], [], [], [], []
+    cov_hits = cov_total = wrong = switches = 0
     det_err, det_z2 = [], []
-    for nm, bid in match.items():
+    for bid in ids:
         P = truth["pos"][bid]
-        g = tr[tr.ball == nm].set_index("frame")
+        view = in_view(tcal, P)
         spd = np.r_[0, np.hypot(*np.diff(P, axis=0).T)] * truth["fps"]
-        moving = spd > 5.0
+        moving = ~(spd <= MOVING_MM_S)
+        nm = inv.get(bid)
+        g = by_name.get(nm)
+        prev = None
         for k in range(n):
-            if not np.isfinite(P[k, 0]):
+            if not view[k]:
                 continue
             cov_total += 1
-            if k in g.index:
-                e = np.hypot(g.at[k, "x_mm"] - P[k, 0], g.at[k, "y_mm"] - P[k, 1])
-                cov_hits += e <= 5.0
-                (mv_err if moving[k] else rest_err).append(e)
-                # identity: is another true ball nearer?
-                others = [np.hypot(g.at[k, "x_mm"] - truth["pos"][o][k, 0], g.at[k, "y_mm"] - truth["pos"][o][k, 1])
-                          for o in ids if o != bid and np.isfinite(truth["pos"][o][k, 0])]
-                switches += bool(others) and min(others) < e
-        rest_k = [k for k in range(1, n) if np.isfinite(P[k, 0]) and not moving[k] and k in g.index]
-        if len(rest_k) > 5:
-            jit.append(float(np.hypot(g.loc[rest_k, "x_mm"].std(), g.loc[rest_k, "y_mm"].std())))
-        dd = res.detections[(res.detections.ball == nm) & res.detections.used]
+            # nearest track (any name) within one radius: identity continuity
+            best, bd = None, R
+            for other, go in by_name.items():
+                if k in go.index:
+                    e = np.hypot(go.at[k, "x_mm"] - P[k, 0], go.at[k, "y_mm"] - P[k, 1])
+                    if e < bd:
+                        best, bd = other, e
+            if best is not None:
+                switches += prev is not None and best != prev
+                prev = best
+            if g is None or k not in g.index:
+                continue
+            e = np.hypot(g.at[k, "x_mm"] - P[k, 0], g.at[k, "y_mm"] - P[k, 1])
+            cov_hits += e <= COVER_MM
+            (mv_err if moving[k] else rest_err).append(e)
+            others = [np.hypot(g.at[k, "x_mm"] - truth["pos"][o][k, 0], g.at[k, "y_mm"] - truth["pos"][o][k, 1])
+                      for o in ids if o != bid and np.isfinite(truth["pos"][o][k, 0])]
+            wrong += bool(others) and min(others) < e
+        if nm is None:
+            continue
+        dd = dets[dets.ball == nm]
         fr = dd.frame.to_numpy(int)
         ok = fr < n
-        ex = dd.x_mm.to_numpy()[ok] - P[fr[ok], 0]
-        ey = dd.y_mm.to_numpy()[ok] - P[fr[ok], 1]
+        dd, fr = dd[ok], fr[ok]
+        # resting stretch of this ball (truth), in view
+        rest = np.zeros(n, bool)
+        rest[1:] = ~moving[1:] & view[1:]
+        rk = rest[fr]
+        if rk.sum() > 5:
+            jit_det.append(_sd1(dd[rk][["x_mm", "y_mm"]].to_numpy(float)))
+            rfr = np.nonzero(rest)[0]
+            rfr = rfr[np.isin(rfr, g.index)]
+            if len(rfr) > 5:
+                jit_trk.append(_sd1(g.loc[rfr, ["x_mm", "y_mm"]].to_numpy(float)))
+            if "radius_expected_px" in dd:
+                ratio = dd[rk].radius_px.to_numpy(float) / dd[rk].radius_expected_px.to_numpy(float)
+                diam += list(ratio[np.isfinite(ratio)] * 2 * R)
+        du = dd[dd.used]
+        fu = du.frame.to_numpy(int)
+        ex = du.x_mm.to_numpy() - P[fu, 0]
+        ey = du.y_mm.to_numpy() - P[fu, 1]
         fin = np.isfinite(ex)
         det_err += list(np.hypot(ex[fin], ey[fin]))
-        det_z2 += list(((ex / dd.sx_mm.to_numpy()[ok]) ** 2 + (ey / dd.sy_mm.to_numpy()[ok]) ** 2)[fin] / 2)
-    # contacts vs segment starts
-    inv = {v: k for k, v in match.items()}
-    seg_hits, seg_total = 0, 0
+        det_z2 += list(((ex / du.sx_mm.to_numpy()) ** 2 + (ey / du.sy_mm.to_numpy()) ** 2)[fin] / 2)
+    seg_hits = seg_total = 0
     for t_c, kind, a, b in truth["contacts"]:
         for bid in (a, b):
             if not bid or bid not in inv:
@@ -120,37 +209,54 @@ def bench(clip: Path, auto: bool) -> dict:
             seg_total += 1
             starts = [s[0] for s in res.segments_hint.get(inv[bid], [])[1:]]
             seg_hits += any(abs(s - t_c) <= 2.0 / truth["fps"] for s in starts)
-    rms = lambda v: float(np.sqrt(np.mean(np.square(v)))) if len(v) else float("nan")  # noqa: E731
     return {
-        "clip": clip.stem, "fps": truth["fps"], "balls": f"{len(ids)}/{len(names)}",
-        "cov5": cov_hits / max(cov_total, 1), "rmse_move": rms(mv_err), "rmse_rest": rms(rest_err),
-        "jitter_rest": float(np.max(jit)) if jit else float("nan"), "switch_frames": int(switches),
-        "det_rmse": rms(det_err), "det_z2": float(np.mean(det_z2)) if det_z2 else float("nan"),
-        "contact_splits": f"{seg_hits}/{seg_total}", "ms_frame_wall": 1000 * wall / max(res.n_frames, 1),
-        "ms_frame_cpu": 1000 * cpu / max(res.n_frames, 1),
+        "clip": clip.stem, "cal": "auto" if auto else "truth", "fps": truth["fps"],
+        "size": "x".join(str(v) for v in tcal.camera.image_size), "balls": f"{len(ids)}/{len(names)}",
+        "cov_view": cov_hits / max(cov_total, 1), "n_view": cov_total, "rmse_move": _rms(mv_err),
+        "rmse_rest": _rms(rest_err), "jit_det": float(np.max(jit_det)) if jit_det else float("nan"),
+        "jit_trk": float(np.max(jit_trk)) if jit_trk else float("nan"), "id_sw": int(switches),
+        "wrong_fr": int(wrong), "corner_px": corner_error_px(res.calibration, tcal),
+        "diam_mm": float(np.median(diam)) if diam else float("nan"), "diam_pub": float(tcal.table.ball.diameter_mm),
+        "det_rmse": _rms(det_err), "det_z2": float(np.mean(det_z2)) if det_z2 else float("nan"),
+        "splits": f"{seg_hits}/{seg_total}", "ms_fr": 1000 * wall / max(res.n_frames, 1),
+        "cpu_ms_fr": 1000 * cpu / max(res.n_frames, 1),
         "labels": ",".join(f"{k}={v}" for k, v in sorted(match.items(), key=lambda kv: kv[1])),
         "unmatched": ",".join(sorted(set(names) - set(match))),
+        "height_from": str((res.calibration.camera.meta or {}).get("height_from", ""))[:24],
     }
+
+
+COLS = ["clip", "cal", "fps", "size", "balls", "cov_view", "n_view", "rmse_move", "rmse_rest", "jit_det", "jit_trk",
+        "id_sw", "wrong_fr", "corner_px", "diam_mm", "diam_pub", "det_rmse", "det_z2", "splits", "ms_fr"]
+
+
+def fmt_row(r: dict) -> str:
+    if "error" in r:
+        return f"{r['clip']:>10s} {r['cal']:>5s}  refused: {r['error']}"
+    return " ".join(f"{r[c]:>9.3f}" if isinstance(r[c], float) else f"{str(r[c]):>9s}" for c in COLS)
 
 
 def main() -> None:
     ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     ap.add_argument("clips", nargs="*", type=Path)
     ap.add_argument("--auto", action="store_true", help="calibrate from the clip instead of the truth camera")
+    ap.add_argument("--both", action="store_true", help="run each clip with the truth camera and with auto calibration")
     a = ap.parse_args()
     clips = a.clips
     if not clips:
         foot = ROOT.parent / "shared" / "footage"
         clips = sorted(foot.glob("*.mp4")) if foot.is_dir() else []
         clips += sorted((ROOT / "clips").glob("*.mp4"))
-    cols = ["clip", "fps", "balls", "cov5", "rmse_move", "rmse_rest", "jitter_rest", "switch_frames", "det_rmse",
-            "det_z2", "contact_splits", "ms_frame_wall", "ms_frame_cpu"]
-    print(" ".join(f"{c:>14s}" for c in cols))
+    modes = [False, True] if a.both else [a.auto]
+    print(" ".join(f"{c:>9s}" for c in COLS))
     for clip in clips:
-        r = bench(clip, a.auto)
-        print(" ".join(f"{r[c]:>14.3f}" if isinstance(r[c], float) else f"{str(r[c]):>14s}" for c in cols))
-        print(f"{'':>14s} labels: {r['labels']}" + (f"  unmatched tracks: {r['unmatched']}" if r["unmatched"] else ""))
-        sys.stdout.flush()
+        for auto in modes:
+            r = bench(clip, auto)
+            print(fmt_row(r))
+            if "error" not in r:
+                print(f"{'':>9s} labels: {r['labels']}" + (f"  unmatched tracks: {r['unmatched']}" if r["unmatched"] else "")
+                      + (f"  height from: {r['height_from']}" if auto else ""))
+            sys.stdout.flush()
 
 
 if __name__ == "__main__":

@@ -4,12 +4,22 @@ Each live track carries a constant-velocity Kalman state (tracking/kalman.py)
 and a running colour signature. Every frame, the cost of giving detection j
 to track i is
 
-* ``NIS_ij + colour_weight * |colour_i - colour_j|`` when the normalised
-  innovation squared passes the chi-square gate (a smooth continuation);
-* ``gate + 10 + colour_weight * |...| + distance / radius`` when it fails the
-  gate but lies within one frame's travel at the largest credible speed (a
-  contact changed the velocity: the track is re-started from there and the
-  jump is recorded);
+* ``NIS_ij + ln(det S_ij / det R_j) + colour_weight * |colour_i - colour_j|``
+  when the normalised innovation squared passes the chi-square gate (a smooth
+  continuation). NIS plus the log-determinant is twice the negative log
+  Gaussian likelihood (up to a constant per detection), so a track that has
+  gone unseen for a while - whose predicted covariance S has grown - does not
+  win a detection that a freshly seen track explains (Blackman & Popoli,
+  *Design and Analysis of Modern Tracking Systems*, Artech House 1999, ch. 6);
+* ``gate + 10 + colour_weight * |...| + distance / radius`` (the log-determinant
+  term above is capped at 10, so a gated continuation always costs less) when it fails the
+  gate but lies within the travel at the largest credible speed since the
+  track's last fix, and that fix is at most ``jump_max_gap_s`` old (a contact
+  changed the velocity: the track is re-started from there and the jump is
+  recorded). A track lost for longer (a ball that left the view or was
+  covered) may only continue through the gate: its old fix says nothing about
+  where a re-started ball went, and allowing it would let a stale track take
+  another ball's detection anywhere on the table;
 * forbidden otherwise,
 
 and the global nearest-neighbour assignment is solved with
@@ -25,6 +35,7 @@ scaled x3, plus the white and dark pixel fractions.
 """
 from __future__ import annotations
 
+from collections.abc import Callable
 from dataclasses import dataclass, field
 
 import numpy as np
@@ -35,6 +46,10 @@ from tracking.kalman import H, cv_transition
 from tracking.settings import TrackingSettings
 
 FORBIDDEN = 1e9
+#: Extra cost of re-starting a track's motion over any gated continuation
+#: (chi-square units; our choice: e^10 ~ 2e4, far beyond any likelihood
+#: ratio the gate lets through). The log-determinant term is capped at it.
+JUMP_PENALTY = 10.0
 
 
 def colour_signature(df: pd.DataFrame) -> np.ndarray:
@@ -61,12 +76,45 @@ class LiveTrack:
     jumps: list[int] = field(default_factory=list)  # detection row ids that re-started the motion
 
 
+def view_test(table_to_px: Callable[[np.ndarray], np.ndarray], image_size: tuple[int, int],
+              margin_px: float, px_to_table: Callable[[np.ndarray], np.ndarray] | None = None
+              ) -> Callable[[np.ndarray], np.ndarray]:
+    """In-view test for :class:`Linker`: centre (mm) -> px inside the image grown by ``margin_px``.
+
+    With ``px_to_table`` the pixel must also map back to the same point (within
+    1 mm): far outside the picture a radial lens polynomial folds back and
+    would put a distant point inside the image.
+
+    >>> f = view_test(lambda xy: np.asarray(xy, float), (100, 50), 5.0)
+    >>> f(np.array([[50.0, 25.0], [103.0, 25.0], [120.0, 25.0]])).tolist()
+    [True, True, False]
+    """
+    w, h = image_size
+
+    def f(xy: np.ndarray) -> np.ndarray:
+        xy = np.asarray(xy, float).reshape(-1, 2)
+        uv = np.asarray(table_to_px(xy), float).reshape(-1, 2)
+        m = margin_px
+        ok = ((uv[:, 0] >= -0.5 - m) & (uv[:, 0] <= w - 0.5 + m) & (uv[:, 1] >= -0.5 - m)
+              & (uv[:, 1] <= h - 0.5 + m))
+        if px_to_table is not None and ok.any():
+            back = np.asarray(px_to_table(uv[ok]), float).reshape(-1, 2)
+            ok[np.nonzero(ok)[0]] = np.linalg.norm(back - xy[ok], axis=1) < 1.0
+        return ok
+
+    return f
+
+
 class Linker:
     """Online global-nearest-neighbour linker; feed frames in time order with :meth:`step`."""
 
-    def __init__(self, ball_radius_mm: float, settings: TrackingSettings = TrackingSettings()):
+    def __init__(self, ball_radius_mm: float, settings: TrackingSettings = TrackingSettings(),
+                 in_view: Callable[[np.ndarray], np.ndarray] | None = None):
+        """in_view: optional map of table points (N,2) mm -> (N,) bool, True where a ball
+        centred there would still show in the image (see :func:`view_test`)."""
         self.s = settings
         self.R = ball_radius_mm
+        self.in_view = in_view
         self.live: list[LiveTrack] = []
         self.ended: list[LiveTrack] = []
         self.next_id = 0
@@ -100,21 +148,33 @@ class Linker:
         nt = len(self.live)
         cost = np.full((nt, n_det), FORBIDDEN)
         jump = np.zeros((nt, n_det), bool)
+        # A track predicted out of view (it rolled out of the picture) takes no
+        # detection: whatever shows in view is another ball, or this one back
+        # after an unseen bounce, which starts a new track (stitched later).
+        visible = (np.asarray(self.in_view(np.array([xp[:2] for xp, _ in preds])), bool)
+                   if (self.in_view is not None and nt) else np.ones(nt, bool))
         for i, (tr, (xp, Pp)) in enumerate(zip(self.live, preds)):
+            if not visible[i] and t > tr.t:
+                continue
             S_base = H @ Pp @ H.T
             last_pos = tr.x[:2]
             reach = s.max_speed_mm_s * max(t - tr.t, dt_frame, 1e-6) + 2 * self.R
+            can_jump = (t - tr.t) <= max(s.jump_max_gap_s, 1.5 * dt_frame)
             for j in range(n_det):
                 v = z[j] - xp[:2]
-                S = S_base + np.diag(sig[j] ** 2)
+                Rm = np.diag(sig[j] ** 2)
+                S = S_base + Rm
                 d2 = float(v @ np.linalg.solve(S, v))
                 cd = float(np.linalg.norm(col[j] - tr.colour))
                 if d2 <= s.gate_chi2:
-                    cost[i, j] = d2 + s.colour_weight * cd
-                else:
+                    # capped below the jump penalty, so a gated continuation
+                    # always costs less than a re-start of the same track
+                    logdet = min(float(np.log(np.linalg.det(S) / np.linalg.det(Rm))), JUMP_PENALTY)
+                    cost[i, j] = d2 + logdet + s.colour_weight * cd
+                elif can_jump:
                     dist = float(np.linalg.norm(z[j] - last_pos))
                     if dist <= reach:
-                        cost[i, j] = s.gate_chi2 + 10 + s.colour_weight * cd + dist / self.R
+                        cost[i, j] = s.gate_chi2 + JUMP_PENALTY + s.colour_weight * cd + dist / self.R
                         jump[i, j] = True
         matched_det = set()
         if nt and n_det:

@@ -21,7 +21,7 @@ import pandas as pd
 
 from feltlab.errors import FeltlabError
 from feltlab.standards import DEFAULT_TABLE, TablePreset, table_preset
-from tracking.assign import Linker, colour_signature
+from tracking.assign import Linker, colour_signature, view_test
 from tracking.calibration import Calibration
 from tracking.detect import build_background, detect_frame
 from tracking.kalman import smooth_segment, split_segments
@@ -232,7 +232,10 @@ def track_clip(path: str | os.PathLike, table: str | TablePreset | None = DEFAUL
     bg = build_background(imgs, cal, ds)
     del imgs, sample
 
-    linker = Linker(cal.ball_radius_mm, ts)
+    # A ball whose centre is up to one radius outside the picture still shows
+    # a part of itself; beyond that it has left the view.
+    linker = Linker(cal.ball_radius_mm, ts, in_view=view_test(cal.table_to_px, (w, h), bg.radius_px,
+                                                                        cal.px_to_table))
     chunks = []
     frame_times: dict[int, float] = {}
     row0 = 0

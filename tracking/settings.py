@@ -211,6 +211,13 @@ class TrackingSettings:
     split_nis: float = 18.4
     #: Frames a track may go unseen before it is ended (occlusion by cue/hand).
     max_missed_s: float = 0.5
+    #: Longest gap (s) since a track's last fix across which the linker may
+    #: re-start its motion (a contact) instead of continuing it through the
+    #: gate. Two touching balls can merge into one blob for the frame or two
+    #: around a contact; 0.05 s covers two frames at 50-60 fps (one at 30 fps
+    #: is always allowed). A ball lost for longer (left the view, covered)
+    #: must come back through the gate or start a new track (then stitched).
+    jump_max_gap_s: float = 0.05
     #: Tracks shorter than this (s) with no stationary part are dropped as
     #: clutter (a real ball is on the table for the whole shot or rolls in).
     min_track_s: float = 0.08
