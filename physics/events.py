@@ -163,6 +163,8 @@ class KinkFit:
     dv_cov: np.ndarray
     chi2_red: float
     ok: bool = True
+    #: fitted position (2,) mm at the break (both sides meet there)
+    p_b: np.ndarray | None = None
 
 
 def kink_fit(
@@ -190,6 +192,7 @@ def kink_fit(
         chi2 = 0.0
         vpre = np.zeros(2)
         vpost = np.zeros(2)
+        pb = np.zeros(2)
         cov = np.zeros((2, 2))
         for i in range(2):
             w = 1.0 / sig[:, i]
@@ -199,16 +202,16 @@ def kink_fit(
             r = yw - Aw @ coef
             chi2 += float(r @ r)
             C = np.linalg.pinv(Aw.T @ Aw)
-            vpre[i], vpost[i] = coef[1], coef[2]
+            vpre[i], vpost[i], pb[i] = coef[1], coef[2], coef[0]
             cov[i, i] = C[1, 1] + C[2, 2] - 2 * C[1, 2]
         dof = max(2 * len(t) - 2 * A.shape[1], 1)
         if best is None or chi2 < best[0]:
-            best = (chi2, tb, vpre, vpost, cov, dof)
+            best = (chi2, tb, vpre, vpost, cov, dof, pb)
     if best is None:
         return None
-    chi2, tb, vpre, vpost, cov, dof = best
+    chi2, tb, vpre, vpost, cov, dof, pb = best
     red = max(chi2 / dof, 1.0)
-    return KinkFit(float(tb), vpre, vpost, cov * red, red)
+    return KinkFit(float(tb), vpre, vpost, cov * red, red, p_b=pb)
 
 
 @dataclass
@@ -230,6 +233,9 @@ class ContactCandidate:
     z: float
     dv_a: np.ndarray = field(default_factory=lambda: np.zeros(2))
     dv_b: np.ndarray = field(default_factory=lambda: np.zeros(2))
+    #: compound event (physics.compound): group id (> 0) shared by its links, 0 for none
+    group: int = 0
+    simultaneous: bool = False
 
 
 def _local_minima(g: np.ndarray) -> np.ndarray:
@@ -358,6 +364,11 @@ def find_contacts(
                 out.append(ContactCandidate(kind, A, B, "", tbs[best], nn, gap, float(zs[best]),
                                             dvs.get(A, np.zeros(2)), dvs.get(B, np.zeros(2))))
     out = _dedupe(out, dt)
+    # compound events: links inside a group touching within one frame replace the pairwise view
+    from physics.compound import find_groups, merge_groups  # noqa: PLC0415 - compound uses this module
+
+    seeds = [g for g in geo if g[0] == "ball-ball"]
+    out = merge_groups(out, find_groups(samples, times, P, S, V, seeds, cand_t, radius_mm, dt, s, out), dt)
     return sorted(out, key=lambda c: c.t_init_s)
 
 

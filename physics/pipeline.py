@@ -15,6 +15,7 @@ from threadpoolctl import threadpool_limits
 
 from feltlab.errors import FeltlabError
 from feltlab.standards import TablePreset
+from physics.compound import annotate_groups
 from physics.contacts import ball_ball_core, cushion_core, derived, propagate
 from physics.events import (
     BallSamples,
@@ -210,6 +211,8 @@ def _analyze(tracks, detections, table, ball_radius_mm, ball_mass_kg, fps, setti
         both = contacts.merge(alt[["_cand", "e"]], on="_cand", how="left", suffixes=("", "_alt"))
         d = np.nan_to_num(both["e_alt"].to_numpy(float) - both["e"].to_numpy(float))
         contacts["e_sigma"] = np.sqrt(contacts["e_sigma"].to_numpy(float) ** 2 + d**2)
+    # compound events (several balls touching within one frame): group columns, e NaN per link
+    contacts = annotate_groups(contacts, cands, fits, maps, m)
     segments, _ = _segments_table(fits, samples, s2)
     events = _events_table(samples, fits, layouts, maps, contacts, segments, dt, s)
     return ShotPhysics(events, segments, contacts, *mu, fits=fits,

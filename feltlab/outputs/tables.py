@@ -43,11 +43,11 @@ UNITLESS = {
     "frame", "ball", "segment", "phase", "contact", "kind", "ball_a", "ball_b", "cushion",
     "nx", "ny", "e", "e_sigma", "visible", "confidence", "pattern", "r", "g", "b",
     "mu", "mu_sigma", "n_points", "a_phase_in", "b_phase_in", "a_phase_out", "b_phase_out",
-    "event", "other",
+    "event", "other", "group", "simultaneous", "note", "group_balls",
 }
 #: Columns that hold labels (written as text; empty where not applicable).
 TEXT_COLUMNS = {"ball", "phase", "kind", "ball_a", "ball_b", "cushion", "pattern", "other",
-                "a_phase_in", "b_phase_in", "a_phase_out", "b_phase_out"}
+                "a_phase_in", "b_phase_in", "a_phase_out", "b_phase_out", "note", "group_balls"}
 
 
 def has_unit(column: str) -> bool:

@@ -1,0 +1,415 @@
+"""Compound contacts: several balls touching within one frame period (cluster breaks, chains).
+
+When a moving ball meets a group of touching or nearly touching balls, momentum runs along the
+group in well under a millisecond (one ball-ball contact lasts ~0.3 ms, Hertz estimate in
+REFERENCES.md), so video sees each ball's velocity only before and after the whole sequence. The
+velocity changes still say how much impulse crossed each link. With equal masses m, a link l
+between balls a and b pushes them apart along its line of centres n_l (a -> b) with a normal
+impulse m J_l >= 0 (contact forces only push):
+
+    dv_i = sum_l s_il J_l n_l        (s_il = +1 if i is b of link l, -1 if i is a),
+
+solved for J >= 0 by weighted non-negative least squares (scipy.optimize.nnls, Lawson & Hanson,
+"Solving Least Squares Problems", 1974). J is in mm/s (impulse / m). A link is a contact when J is
+larger than ``dv_z`` of its standard errors and ``dv_floor_mm_s``. Ball-ball friction (throw) adds
+a tangential impulse of up to mu_bb J (mu_bb 0.03-0.08, Physics of Pool FAQ;
+:data:`feltlab.standards.MU_BALL_BALL_RANGE`), not modelled as an unknown but carried as model
+error ``mu_bb_max |dv_i|`` per ball.
+
+Evidence rules: geometric - every link's sampled gap is ~0 (below the same margin as a single
+contact: noise plus one frame of travel) within one frame of the group's time; kinematic - some
+ball of the group jumps by more than ``dv_z`` standard errors, and every link reported carries a
+significant impulse (a ball that only moves away from a neighbour is not in contact with it).
+
+Restitution of a link needs the two balls' velocities just before and after that link; inside a
+sub-frame sequence those are never seen, so such links get e = NaN with a note. The group's total
+momentum in and out and its kinetic-energy loss are measurable and reported on every link of the
+group (:func:`annotate_groups`). Table frame, mm, s, kg; impulses N·s; energies J.
+"""
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import numpy as np
+import pandas as pd
+from scipy.optimize import nnls
+
+from feltlab.standards import MU_BALL_BALL_RANGE
+from physics.events import BallSamples, ContactCandidate, kink_fit, local_speed
+from physics.settings import PhysicsSettings
+
+#: Tangential (throw) impulse as a fraction of the velocity change: the published maximum of
+#: ball-ball friction (Physics of Pool FAQ, feltlab.standards.MU_BALL_BALL_RANGE).
+MU_BB_MAX = MU_BALL_BALL_RANGE[1]
+#: Velocity-change floor (mm/s) of a link and of a group's jumping ball. Below this even a
+#: perfect track cannot tell a touch from cloth effects: the sliding friction mu_s g (~2000 mm/s^2,
+#: Physics of Pool FAQ) changes a velocity by ~2 mm/s within a ms, and a ball passing within a
+#: frame of a neighbour at rest is indistinguishable from a touch this soft. Design choice.
+DV_FLOOR_MM_S = 5.0
+#: Note written on the links of a compound event.
+NOTE_SEQUENCE = ("sub-frame sequence: the balls of this group touched within one frame period, so each "
+                 "link's own before/after velocities are not seen; e is not measurable, the group's "
+                 "momentum and energy are")
+
+
+@dataclass
+class LinkSolve:
+    """Link impulses J (L,) mm/s (impulse / ball mass), sigmas (L,), reduced chi^2 and dof."""
+
+    J: np.ndarray
+    J_sigma: np.ndarray
+    chi2_red: float
+    dof: int
+
+
+def solve_links(dv: np.ndarray, cov: np.ndarray, links: list[tuple[int, int]],
+                normals: np.ndarray, mu_bb: float = MU_BB_MAX) -> LinkSolve:
+    """Non-negative link impulses from velocity changes.
+
+    dv (N,2) mm/s velocity change of each ball; cov (N,2,2) its covariance (NaN rows: ball not
+    measured, left out); links: (a, b) ball indices; normals (L,2) unit a -> b.
+
+    >>> import numpy as np
+    >>> dv = np.array([[-1000.0, 0], [0, 0], [1000.0, 0]])
+    >>> cov = np.tile(np.eye(2) * 25.0, (3, 1, 1))
+    >>> r = solve_links(dv, cov, [(0, 1), (1, 2)], np.array([[1.0, 0], [1.0, 0]]))
+    >>> np.round(r.J).tolist()
+    [1000.0, 1000.0]
+    """
+    N, L = len(dv), len(links)
+    A = np.zeros((2 * N, L))
+    for l, (a, b) in enumerate(links):
+        A[2 * b : 2 * b + 2, l] += normals[l]
+        A[2 * a : 2 * a + 2, l] -= normals[l]
+    rows, Wblocks, y = [], [], []
+    for i in range(N):
+        if not np.all(np.isfinite(dv[i])) or not np.all(np.isfinite(cov[i])):
+            continue
+        c = cov[i] + (mu_bb * np.hypot(*dv[i])) ** 2 * np.eye(2)  # throw: model error
+        Wi = np.linalg.cholesky(np.linalg.inv(c)).T  # Wi^T Wi = c^-1
+        rows.append(Wi @ A[2 * i : 2 * i + 2])
+        y.append(Wi @ dv[i])
+    if not rows:
+        return LinkSolve(np.zeros(L), np.full(L, np.inf), np.nan, 0)
+    Aw, yw = np.vstack(rows), np.concatenate(y)
+    J, rnorm = nnls(Aw, yw)
+    dof = max(len(yw) - int((J > 0).sum()), 1)
+    red = max(float(rnorm**2) / dof, 1.0)
+    sig = np.full(L, np.inf)
+    act = np.flatnonzero(J > 0)
+    if len(act):
+        C = np.linalg.pinv(Aw[:, act].T @ Aw[:, act]) * red
+        sig[act] = np.sqrt(np.clip(np.diag(C), 0, None))
+    # a link at the bound: its one-sided sigma is that of the link fitted alone
+    for l in np.flatnonzero(J <= 0):
+        col = Aw[:, l]
+        nrm = float(col @ col)
+        sig[l] = np.sqrt(red / nrm) if nrm > 0 else np.inf
+    return LinkSolve(J, sig, red, dof)
+
+
+def _pair_gaps(P, S, V, names, radius_mm, dt, s):
+    """Per pair (a, b): gap (K,) mm and its touching margin (K,) mm (as in events.find_contacts)."""
+    out = {}
+    for i, a in enumerate(names):
+        for b in names[i + 1:]:
+            d = P[b] - P[a]
+            g = np.hypot(d[:, 0], d[:, 1]) - 2 * radius_mm
+            vrel = np.nan_to_num(V[a], nan=0.0) + np.nan_to_num(V[b], nan=0.0)
+            sg = np.hypot(np.nan_to_num(S[a], nan=1.0), np.nan_to_num(S[b], nan=1.0))
+            margin = s.gap_margin_mm + s.gap_margin_sigma * sg + s.gap_margin_frames * vrel * dt
+            out[(a, b)] = (g, margin)
+    return out
+
+
+def find_groups(samples: dict[str, BallSamples], times: np.ndarray, P, S, V, seeds, cand_t,
+                radius_mm: float, dt: float, s: PhysicsSettings,
+                accepted: list[ContactCandidate] = ()) -> list[ContactCandidate]:
+    """Contacts of compound events (>= 3 balls linked by significant impulses within one frame).
+
+    seeds: (kind, a, b, cushion, k, gap, normal) geometric ball-ball candidates of
+    :func:`physics.events.find_contacts`; cand_t: ball -> [(t, key)] candidate times (they limit
+    the change-point windows, except noise minima of the group's own pairs); accepted: contacts
+    the pairwise test accepted (they always limit the windows). Returns one candidate per link,
+    with ``group`` set.
+    """
+    names = sorted(samples)
+    gaps = _pair_gaps(P, S, V, names, radius_mm, dt, s)
+    K = len(times)
+    moving = {}
+    for nm, bs in samples.items():
+        sp, se = local_speed(bs, dt, s)
+        kk = np.round((bs.t - times[0]) / dt).astype(int)
+        mv = np.zeros(K, bool)
+        mv[kk] = sp > np.maximum(s.rest_speed_mm_s, s.rest_speed_z * se)
+        moving[nm] = mv
+    out: list[ContactCandidate] = []
+    done: list[tuple[int, frozenset]] = []
+    # the most energetic seeds first: they set the group's time
+    order = sorted(seeds, key=lambda c: -(np.nan_to_num(V[c[1]][c[4]]) + np.nan_to_num(V[c[2]][c[4]])))
+    gid = 0
+    for kind, a, b, _, k, _, _ in order:
+        if any(abs(k - k0) <= 2 and (a in bs or b in bs) for k0, bs in done):
+            continue
+        near = slice(max(k - 1, 0), min(k + 2, K))
+        if not (moving[a][near].any() or moving[b][near].any()):
+            continue  # two resting neighbours: noise minima of a constant gap
+        ks = slice(max(k - 1, 0), min(k + 2, K))
+        touch = {}
+        for (p, q), (g, mg) in gaps.items():
+            gg = g[ks] - mg[ks]
+            if np.isfinite(gg).any() and np.nanmin(gg) < 0:
+                j = ks.start + int(np.nanargmin(gg))
+                d = P[q][j] - P[p][j]
+                touch[(p, q)] = d / np.hypot(*d)
+        # the group: balls linked to the seed pair by touching pairs
+        grp = {a, b}
+        grew = True
+        while grew:
+            grew = False
+            for p, q in touch:
+                if (p in grp) != (q in grp):
+                    grp |= {p, q}
+                    grew = True
+        if len(grp) < 3:
+            continue
+        done.append((k, frozenset(grp)))
+        balls = sorted(grp)
+        links = [(p, q) for (p, q) in touch if p in grp and q in grp]
+        keys = {("ball-ball", frozenset(l), "") for l in links}
+        t_c = float(times[k])
+        guard = s.guard_ball_s
+        w = max(s.side_window_s, s.side_window_frames * dt)
+        dv = np.full((len(balls), 2), np.nan)
+        cov = np.full((len(balls), 2, 2), np.nan)
+        tb = np.full(len(balls), np.nan)
+        vpre = np.full((len(balls), 2), np.nan)
+        pb = np.full((len(balls), 2), np.nan)
+        for i, ball in enumerate(balls):
+            others = [x for x, kx in cand_t[ball] if abs(x - t_c) > 2.5 * dt and kx not in keys]
+            others += [c.t_init_s for c in accepted
+                       if ball in (c.ball_a, c.ball_b) and abs(c.t_init_s - t_c) > 2.5 * dt]
+            lo = max(max([x for x in others if x < t_c], default=-np.inf) + guard, t_c - w)
+            hi = min(min([x for x in others if x > t_c], default=np.inf) - guard, t_c + w)
+            f = kink_fit(samples[ball], t_c, lo, hi, guard, dt, s)
+            if f is None:
+                continue
+            dv[i] = f.v_post - f.v_pre
+            cov[i] = f.dv_cov
+            tb[i] = f.t_b
+            vpre[i] = f.v_pre
+            pb[i] = f.p_b
+        # kinematic evidence: some ball of the group jumps
+        jump = []
+        for i in range(len(balls)):
+            if np.all(np.isfinite(dv[i])):
+                zi = float(np.sqrt(dv[i] @ np.linalg.solve(cov[i] + 1e-9 * np.eye(2), dv[i])))
+                jump.append(zi > s.dv_z and np.hypot(*dv[i]) > DV_FLOOR_MM_S)
+            else:
+                jump.append(False)
+        if not any(jump):
+            continue
+        idx = {bl: i for i, bl in enumerate(balls)}
+        li = [(idx[p], idx[q]) for p, q in links]
+        # line of centres where the fits put the balls at their breaks (else from the samples)
+        nrm = []
+        for (p, q), (ip, iq) in zip(links, li):
+            d = pb[iq] - pb[ip]
+            nrm.append(d / np.hypot(*d) if np.all(np.isfinite(d)) and np.hypot(*d) > radius_mm else touch[(p, q)])
+        nrm = np.array(nrm)
+        sol = solve_links(dv, cov, li, nrm)
+        ok = [l for l in range(len(links))
+              if sol.J[l] > max(DV_FLOOR_MM_S, s.dv_z * sol.J_sigma[l])]
+        # compound: accepted links that share balls (connected pieces of >= 2 links)
+        comp = _components([li[l] for l in ok])
+        t_grp = float(np.nanmedian(tb[[i for i in range(len(balls)) if jump[i]]]))
+        # link order: hops from the fastest incoming ball (the sequence runs outwards from it)
+        sp_in = np.nan_to_num(np.hypot(vpre[:, 0], vpre[:, 1]), nan=0.0)
+        hops = _hops(int(np.argmax(sp_in)), [li[l] for l in ok], len(balls))
+        for piece in comp:
+            if len(piece) < 2:
+                continue
+            gid += 1
+            for lp in piece:
+                l = ok[[li[o] for o in ok].index(lp)]
+                p, q = links[l]
+                n = nrm[l]
+                ip, iq = idx[p], idx[q]
+                vp = vpre[ip] @ n if np.all(np.isfinite(vpre[ip])) else 0.0
+                vq = vpre[iq] @ n if np.all(np.isfinite(vpre[iq])) else 0.0
+                # ball a: nearer the incoming ball along the links, else the faster approach
+                first_p = hops[ip] < hops[iq] or (hops[ip] == hops[iq] and vp >= -vq)
+                A, B, nn = (p, q, n) if first_p else (q, p, -n)
+                out.append(ContactCandidate(
+                    "ball-ball", A, B, "", t_grp, nn, float(np.nanmin(gaps[(p, q)][0][ks])),
+                    float(sol.J[l] / sol.J_sigma[l]), np.nan_to_num(dv[idx[A]]), np.nan_to_num(dv[idx[B]]),
+                    group=gid, simultaneous=True))
+    return out
+
+
+def _hops(start: int, links: list[tuple[int, int]], n: int) -> np.ndarray:
+    """Breadth-first link count from ball ``start`` to each of n balls (large if unlinked)."""
+    d = np.full(n, 10**6)
+    d[start] = 0
+    frontier = [start]
+    while frontier:
+        nxt = []
+        for u in frontier:
+            for a, b in links:
+                for x, y in ((a, b), (b, a)):
+                    if x == u and d[y] > d[u] + 1:
+                        d[y] = d[u] + 1
+                        nxt.append(y)
+        frontier = nxt
+    return d
+
+
+def _components(links: list[tuple[int, int]]) -> list[list[tuple[int, int]]]:
+    """Connected pieces of a set of links (each piece a list of links)."""
+    pieces: list[list[tuple[int, int]]] = []
+    for l in links:
+        hit = [p for p in pieces if any(set(l) & set(m) for m in p)]
+        merged = [l] + [m for p in hit for m in p]
+        pieces = [p for p in pieces if p not in hit] + [merged]
+    return pieces
+
+
+def merge_groups(pairwise: list[ContactCandidate], grouped: list[ContactCandidate],
+                 dt: float) -> list[ContactCandidate]:
+    """Pairwise candidates with those inside a compound event replaced by the event's links."""
+    if not grouped:
+        return pairwise
+    spans = {}
+    for c in grouped:
+        bs, t = spans.get(c.group, (set(), c.t_init_s))
+        spans[c.group] = (bs | {c.ball_a, c.ball_b}, t)
+    keep = []
+    for c in pairwise:
+        inside = c.kind == "ball-ball" and any(
+            c.ball_a in bs and c.ball_b in bs and abs(c.t_init_s - t) < 1.5 * dt for bs, t in spans.values())
+        if not inside:
+            keep.append(c)
+    return keep + grouped
+
+
+# ---------------------------------------------------------------------------------------------
+# contacts table: the group's measurable quantities
+
+
+GROUP_COLUMNS = [
+    "group", "simultaneous", "note", "group_balls",
+    "group_px_in_Ns", "group_py_in_Ns", "group_px_out_Ns", "group_py_out_Ns",
+    "group_momentum_residual_pct", "group_momentum_residual_sigma_pct",
+    "group_ke_before_J", "group_ke_after_J", "group_ke_loss_frac", "group_ke_loss_sigma_frac",
+    "impulse_n_sigma_Ns",
+]
+
+
+def _break_velocities(f, i: int):
+    """(v_before (2,), v_after (2,), covariance (4,4)) of a fitted chain at break i, mm/s."""
+    def fn(z):
+        _, _, v0, v1 = f.at_break(i, z)
+        return np.concatenate([v0, v1])
+
+    y = fn(f.x)
+    sd = np.sqrt(np.clip(np.diag(f.cov), 0, None))
+    G = np.zeros((4, len(f.x)))
+    for j in range(len(f.x)):
+        if sd[j] <= 0:
+            continue
+        h = 1e-3 * sd[j]
+        xp, xm = f.x.copy(), f.x.copy()
+        xp[j] += h
+        xm[j] -= h
+        G[:, j] = (fn(xp) - fn(xm)) / (2 * h)
+    return y[:2], y[2:], G @ f.cov @ G.T
+
+
+def annotate_groups(contacts: pd.DataFrame, cands: list[ContactCandidate], fits: dict, maps: dict,
+                    mass_kg: float) -> pd.DataFrame:
+    """Add the compound-event columns (DEVELOPERS.md, contacts table) to a contacts table.
+
+    Rows of a compound event (``_cand`` pointing at a candidate with ``group`` > 0) get e and
+    e_sigma NaN with a note; their link impulse from the non-negative solve over the group's
+    fitted velocity changes (impulse_n_Ns +- impulse_n_sigma_Ns; the tangential part is not
+    separable: NaN); pair-only quantities that assume an isolated pair (momentum residual, KE loss
+    of the pair, throw) NaN. Every row of a group carries the group's total momentum in/out (N·s,
+    table frame), its residual |p_out - p_in| / |p_in| (%) with sigma, and translational kinetic
+    energy before/after (J) with the loss fraction and its sigma. Other rows: group -1.
+    """
+    df = contacts.copy()
+    for c in GROUP_COLUMNS:
+        df[c] = np.nan
+    df["group"] = -1
+    df["simultaneous"] = False
+    df["note"] = ""
+    df["group_balls"] = ""
+    if "_cand" not in df.columns or not len(df):
+        return df
+    k = 1e-3  # mm/s -> m/s
+    m = mass_kg
+    gids = sorted({c.group for c in cands if c.group > 0})
+    for new_id, g in enumerate(gids, start=1):
+        cis = [i for i, c in enumerate(cands) if c.group == g]
+        rows = df.index[df["_cand"].isin(cis)]
+        if not len(rows):
+            continue
+        balls = sorted({b for i in cis for b in (cands[i].ball_a, cands[i].ball_b)})
+        vel = {}
+        for ball in balls:
+            f = fits.get(ball)
+            if f is None or ball not in maps:
+                continue
+            br = next((maps[ball][0][i] for i in cis if i in maps[ball][0]), None)
+            if br is None or not hasattr(f.layout, "n_seg") or br >= f.layout.n_seg - 1:
+                continue
+            vel[ball] = _break_velocities(f, br)
+        if len(vel) != len(balls):
+            note = NOTE_SEQUENCE + "; a ball of the group has no fitted motion: group totals not measured"
+            df.loc[rows, ["group", "simultaneous", "note", "group_balls"]] = [new_id, True, note, " ".join(balls)]
+            df.loc[rows, ["e", "e_sigma"]] = np.nan
+            continue
+        v0 = np.array([vel[b][0] for b in balls])
+        v1 = np.array([vel[b][1] for b in balls])
+        C = [vel[b][2] for b in balls]
+        p0, p1 = m * v0.sum(0) * k, m * v1.sum(0) * k
+        dp = p1 - p0
+        cdp = sum(Ci[2:, 2:] + Ci[:2, :2] - Ci[:2, 2:] - Ci[2:, :2] for Ci in C) * (m * k) ** 2
+        u = dp / max(np.hypot(*dp), 1e-15)
+        res_pct = 100 * np.hypot(*dp) / max(np.hypot(*p0), 1e-15)
+        res_sig = 100 * np.sqrt(max(u @ cdp @ u, 0.0)) / max(np.hypot(*p0), 1e-15)
+        ke0 = 0.5 * m * float((v0**2).sum()) * k * k
+        ke1 = 0.5 * m * float((v1**2).sum()) * k * k
+        # sigma of the loss fraction 1 - ke1/ke0 by linear propagation of each ball's velocities
+        var = 0.0
+        for i, Ci in enumerate(C):
+            gv = np.concatenate([v0[i] * ke1 / ke0**2, -v1[i] / ke0]) * m * k * k if ke0 > 0 else np.zeros(4)
+            var += float(gv @ Ci @ gv)
+        # link impulses from the fitted velocity changes
+        idx = {b: i for i, b in enumerate(balls)}
+        dv = v1 - v0
+        cdv = np.array([Ci[2:, 2:] + Ci[:2, :2] - Ci[:2, 2:] - Ci[2:, :2] for Ci in C])
+        li, nrm, rws = [], [], []
+        for r in rows:
+            li.append((idx[df.at[r, "ball_a"]], idx[df.at[r, "ball_b"]]))
+            nrm.append([df.at[r, "nx"], df.at[r, "ny"]])
+            rws.append(r)
+        sol = solve_links(dv, cdv, li, np.array(nrm, float))
+        for l, r in enumerate(rws):
+            df.at[r, "impulse_n_Ns"] = m * sol.J[l] * k
+            df.at[r, "impulse_Ns"] = m * sol.J[l] * k
+            df.at[r, "impulse_n_sigma_Ns"] = m * sol.J_sigma[l] * k
+        df.loc[rows, ["e", "e_sigma", "impulse_t_Ns", "momentum_residual_pct", "ke_loss_frac",
+                      "throw_deg"]] = np.nan
+        df.loc[rows, "group"] = new_id
+        df.loc[rows, "simultaneous"] = True
+        df.loc[rows, "note"] = NOTE_SEQUENCE
+        df.loc[rows, "group_balls"] = " ".join(balls)
+        df.loc[rows, ["group_px_in_Ns", "group_py_in_Ns", "group_px_out_Ns", "group_py_out_Ns"]] = [*p0, *p1]
+        df.loc[rows, "group_momentum_residual_pct"] = res_pct
+        df.loc[rows, "group_momentum_residual_sigma_pct"] = res_sig
+        df.loc[rows, "group_ke_before_J"] = ke0
+        df.loc[rows, "group_ke_after_J"] = ke1
+        df.loc[rows, "group_ke_loss_frac"] = 1 - ke1 / ke0 if ke0 > 0 else np.nan
+        df.loc[rows, "group_ke_loss_sigma_frac"] = np.sqrt(var)
+    return df
