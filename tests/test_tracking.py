@@ -159,6 +159,67 @@ def test_linker_keeps_identity_through_a_contact():
     assert len(ids["cue"]) == 1 and len(ids["red"]) == 1 and ids["cue"] != ids["red"]
 
 
+def test_ball_leaving_the_view_does_not_take_another_balls_detection():
+    """A yellow ball rolls out of the picture at 3 m/s (30 fps); ~0.45 s later another yellow ball rolls in.
+
+    Closed form: constant-velocity motion x = x0 + v t. By then the first
+    ball's predicted covariance (white-acceleration model) has grown so much
+    that the newcomer 1.4 m from the prediction passes its chi-square gate;
+    but that prediction lies out of view, so the newcomer must get a new
+    track, not the old identity. The resting red ball keeps its own track
+    throughout. The view is x <= 1500 mm (a crop), tested through
+    tracking.assign.view_test with the identity "camera".
+    """
+    from tracking.assign import view_test
+
+    fps = 30.0
+    in_view = view_test(lambda xy: np.asarray(xy, float), (1500, 1270), 0.0)
+    lk = Linker(28.575, in_view=in_view)
+    yellow, red = (200, 180, 30), (180, 30, 30)
+    a0, va = np.array([1200.0, 500.0]), np.array([3000.0, 0.0])
+    b0, vb = np.array([1480.0, 520.0]), np.array([-800.0, 0.0])
+    red_p = np.array([600.0, 300.0])
+    ids_a, ids_b, ids_red = set(), set(), set()
+    row = 0
+    for k in range(24):
+        t = k / fps
+        pts, cols, who = [red_p], [red], ["red"]
+        pa = a0 + va * t
+        if pa[0] <= 1500:
+            pts.append(pa), cols.append(yellow), who.append("a")
+        if k >= 17:
+            pts.append(b0 + vb * (t - 17 / fps)), cols.append(yellow), who.append("b")
+        det = _dets(pts, cols)
+        out = lk.step(t, det, np.arange(row, row + len(det)))
+        row += len(det)
+        for w, tid in zip(who, out):
+            {"a": ids_a, "b": ids_b, "red": ids_red}[w].add(int(tid))
+    assert len(ids_a) == 1 and len(ids_b) == 1 and len(ids_red) == 1
+    assert ids_a.isdisjoint(ids_b) and ids_red.isdisjoint(ids_a | ids_b)
+
+
+def test_stale_track_cannot_restart_far_away():
+    """Without a view test: a track unseen for longer than jump_max_gap_s may not re-start onto a far detection.
+
+    A ball is seen for 6 frames at 60 fps and then lost (covered); 10 frames
+    later a same-coloured ball appears 600 mm away, well outside the
+    gate of the old motion (constant velocity, closed form) but inside the
+    14 m/s reach of a re-start. It must start a new track.
+    """
+    fps = 60.0
+    lk = Linker(28.575)
+    ids = []
+    row = 0
+    for k in range(6):
+        out = lk.step(k / fps, _dets([(1000.0 + 10 * k, 500.0)], [(200, 180, 30)]), np.array([row]))
+        row += 1
+        ids.append(int(out[0]))
+    for k in range(6, 16):
+        lk.step(k / fps, _dets([], []), np.zeros(0, int))
+    out = lk.step(16 / fps, _dets([(1000.0, 1100.0)], [(200, 180, 30)]), np.array([row]))
+    assert len(set(ids)) == 1 and int(out[0]) not in ids
+
+
 def test_colour_names_and_labels():
     """Rendered-set colours (hue from colorsys-like HSV) map to the documented names; cue, stripe, -2."""
     assert colour_name(274.0, 0.75, 0.55, 0.0) == "purple"

@@ -151,8 +151,15 @@ class Linker:
         # A track predicted out of view (it rolled out of the picture) takes no
         # detection: whatever shows in view is another ball, or this one back
         # after an unseen bounce, which starts a new track (stitched later).
-        visible = (np.asarray(self.in_view(np.array([xp[:2] for xp, _ in preds])), bool)
-                   if (self.in_view is not None and nt) else np.ones(nt, bool))
+        # A track seen in the previous frame inside the view stays a candidate
+        # (a ball at the very edge may be predicted just outside).
+        visible = np.ones(nt, bool)
+        if self.in_view is not None and nt:
+            visible = np.asarray(self.in_view(np.array([xp[:2] for xp, _ in preds])), bool)
+            fresh = np.array([t - tr.t <= 1.5 * dt_frame for tr in self.live])
+            if (fresh & ~visible).any():
+                last_in = np.asarray(self.in_view(np.array([tr.x[:2] for tr in self.live])), bool)
+                visible |= fresh & last_in
         for i, (tr, (xp, Pp)) in enumerate(zip(self.live, preds)):
             if not visible[i] and t > tr.t:
                 continue
@@ -204,6 +211,7 @@ class Linker:
                 tr.colour = 0.8 * tr.colour + 0.2 * col[j]
                 out[j] = tr.id
                 matched_det.add(j)
+        near_xy = [tr.x[:2] if tr.t == t else preds[i][0][:2] for i, tr in enumerate(self.live) if visible[i]]
         # End tracks unseen for too long.
         keep = []
         for tr in self.live:
@@ -216,7 +224,9 @@ class Linker:
         for j in range(n_det):
             if j in matched_det:
                 continue
-            near = any(np.linalg.norm(z[j] - tr.x[:2]) < 1.2 * self.R for tr in self.live)
+            # (a second detection on a ball already followed: compare with the
+            # predictions of tracks in view, not with stale last fixes)
+            near = any(np.linalg.norm(z[j] - p_xy) < 1.2 * self.R for p_xy in near_xy)
             if near:
                 continue
             tr = self._birth(int(row_ids[j]), z[j], sig[j], col[j], t)

@@ -103,10 +103,22 @@ class CalibrationSettings:
     band_min_mm: float = 1.5
     band_ratio_tol: float = 0.25
     band_resid_px: float = 0.6
+    #: ... or to band_resid_rel x the RMS of the nose-line fit, whichever is
+    #: larger: the foot edge (face foot or shadow against the cloth) has less
+    #: contrast and, in a band only a few px wide, interacts with the nose
+    #: edge, so it scatters more. Measured on our renders at 960x540: foot/nose
+    #: RMS 1.0-2.2 where the face band was real (the fitted focal then within
+    #: 5% of the truth), 4.8 where an edge was taken at the wrong line.
+    band_resid_rel: float = 3.0
     #: Warn when the observed table aspect ratio departs from the preset's by
     #: more than this fraction (a different table size; WPA tolerance is
     #: 3.2 mm on 1270 mm, 0.25%).
     aspect_warn_frac: float = 0.03
+    #: Refuse a fitted camera higher than this above the cloth (mm): a table
+    #: room's ceiling is ~2.5-4 m (common practice); 10 m leaves room for halls.
+    #: Edge points on the wrong line (a rail instead of the nose) give fits
+    #: with the camera 15-30 m up on our dim renders.
+    max_camera_height_mm: float = 10000.0
     #: Refuse a fit whose RMS edge residual exceeds this (px).
     max_residual_px: float = 3.0
 
