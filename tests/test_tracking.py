@@ -220,6 +220,27 @@ def test_stale_track_cannot_restart_far_away():
     assert len(set(ids)) == 1 and int(out[0]) not in ids
 
 
+def test_streak_halves_merge_but_touching_balls_do_not():
+    """Balls cannot overlap (centres >= 2R apart, geometry): two blobs 40 mm apart are one ball, 2R apart are two.
+
+    A 78 mm motion streak (2.8 m/s over a 28 ms exposure) detected as two
+    blobs at +/-20 mm about the mid-exposure centre must give that centre;
+    two touching balls (centres exactly one diameter apart) must both stay.
+    """
+    from tracking.pipeline import merge_overlapping
+
+    R = 28.575
+    c = np.array([800.0, 400.0])
+    u = np.array([np.cos(0.6), np.sin(0.6)])
+    streak = _dets([c - 20 * u, c + 20 * u], [(240, 240, 240)] * 2).assign(confidence=[0.7, 0.9])
+    m = merge_overlapping(streak, R, TrackingSettings().merge_below_frac)
+    assert len(m) == 1
+    assert np.hypot(m.x_mm[0] - c[0], m.y_mm[0] - c[1]) < 1e-9
+    assert m.sx_mm[0] >= 20 / np.sqrt(2)  # the unknown end position stays in the sigma
+    touching = _dets([c, c + 2 * R * u], [(240, 240, 240), (30, 40, 200)]).assign(confidence=0.9)
+    assert len(merge_overlapping(touching, R, TrackingSettings().merge_below_frac)) == 2
+
+
 def test_colour_names_and_labels():
     """Rendered-set colours (hue from colorsys-like HSV) map to the documented names; cue, stripe, -2."""
     assert colour_name(274.0, 0.75, 0.55, 0.0) == "purple"
@@ -240,6 +261,25 @@ def test_colour_names_and_labels():
     assert sorted([names[1], names[2]]) == ["yellow", "yellow-2"]
     assert names[3] == "red-stripe"
     assert set(balls.columns) >= {"ball", "r", "g", "b", "pattern"}
+
+
+def test_smeared_cue_is_still_named_cue():
+    """A cue ball smeared over the cloth (30 fps, long exposure) shows few white pixels but stays unsaturated.
+
+    Trade fact (common practice): every shot has a cue ball, the only white
+    one in a pool set. Here no track reaches the 0.6 white fraction; the
+    unsaturated track with some white pixels must be the cue, a saturated
+    stripe ball must not.
+    """
+    det = pd.DataFrame({
+        "track": [0, 0, 1, 1, 2, 2],
+        "r": [150, 150, 200, 200, 90, 90], "g": [150, 150, 30, 30, 30, 30], "b": [135, 135, 30, 30, 30, 30],
+        "hue_deg": [60, 60, 0, 0, 358, 358], "sat": [0.13, 0.13, 0.85, 0.85, 0.75, 0.75],
+        "val": [0.58, 0.58, 0.8, 0.8, 0.35, 0.35],
+        "white_frac": [0.3, 0.3, 0.4, 0.4, 0.0, 0.0], "dark_frac": [0.0] * 6,
+    })
+    names, _ = label_tracks(det)
+    assert names[0] == "cue" and names[1] == "red-stripe" and names[2] == "maroon"
 
 
 # --------------------------------------------------------------------------- end to end

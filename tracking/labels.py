@@ -7,7 +7,8 @@ coloured pixels, white and dark pixel fractions inside 0.75 radius).
 Names (hue in degrees on the HSV circle, 0 = red; sat/val 0..1):
 
 ============  =======================================================
-``cue``       the whitest ball (largest white fraction, > 0.6)
+``cue``       the whitest ball (largest white fraction, > 0.6; failing that the
+              whitest unsaturated one with white fraction > 0.2)
 ``black``     dark pixels cover > 45% of the disc
 ``red``       hue < 12 or >= 345, value >= 0.45
 ``maroon``    red or orange hue with value < 0.45 (maroon / brown balls)
@@ -45,6 +46,12 @@ STRIPE_WHITE_FRAC = 0.3
 #: of the inner disc: circle half the ball's diameter, common practice).
 STRIPE_WHITE_P90 = 0.55
 BLACK_DARK_FRAC = 0.45
+#: When no track reaches CUE_WHITE_FRAC: a track with at least this median
+#: white fraction and a median saturation under CUE_FALLBACK_SAT (the HSV
+#: saturation below which detection counts a pixel white,
+#: DetectionSettings.white_saturation) may still be the cue.
+CUE_FALLBACK_WHITE_FRAC = 0.2
+CUE_FALLBACK_SAT = 0.28
 
 HUE_BANDS = [  # (name, hue from, hue to) degrees
     ("red", 345.0, 360.0), ("red", 0.0, 12.0), ("orange", 12.0, 40.0), ("yellow", 40.0, 70.0),
@@ -105,6 +112,14 @@ def label_tracks(det: pd.DataFrame, track_col: str = "track") -> tuple[dict[int,
     cue_idx = None
     if (info["white_frac"] >= CUE_WHITE_FRAC).any():
         cue_idx = int(whiteness.idxmax())
+    else:
+        # No track is white enough: a fast cue ball smeared over the cloth at a
+        # low frame rate, or dim / warm light. A shot has a cue ball (common
+        # practice), and it stays the least saturated ball, so the whitest of
+        # the unsaturated tracks with some white pixels is taken.
+        cand = (info["white_frac"] >= CUE_FALLBACK_WHITE_FRAC) & (info["sat"] < CUE_FALLBACK_SAT)
+        if cand.any():
+            cue_idx = int(whiteness[cand].idxmax())
     base = []
     pattern = []
     for k, r in info.iterrows():

@@ -230,6 +230,11 @@ class TrackingSettings:
     #: is always allowed). A ball lost for longer (left the view, covered)
     #: must come back through the gate or start a new track (then stitched).
     jump_max_gap_s: float = 0.05
+    #: Detections in one frame closer than this fraction of a ball diameter are
+    #: one ball (balls cannot overlap; touching balls are one diameter apart,
+    #: and detection errors are a few mm, well under 20% of a diameter). A long
+    #: motion streak can otherwise come out as two blobs at its ends.
+    merge_below_frac: float = 0.8
     #: Tracks shorter than this (s) with no stationary part are dropped as
     #: clutter (a real ball is on the table for the whole shot or rolls in).
     min_track_s: float = 0.08
