@@ -44,6 +44,7 @@ from dataclasses import dataclass, field
 import cv2
 import numpy as np
 import pandas as pd
+from scipy.special import erf as _erf
 
 from tracking.calibration import Calibration
 from tracking.settings import DetectionSettings
@@ -535,6 +536,198 @@ def refine_centre(d: np.ndarray, x0: float, y0: float, r_exp: float,
             "support": support, "fixed_radius": fixed}
 
 
+# --------------------------------------------------------------------------- photometric model fit
+_SRGB_LUT = np.where(np.arange(256) / 255.0 <= 0.04045, np.arange(256) / 255.0 / 12.92,
+                     ((np.arange(256) / 255.0 + 0.055) / 1.055) ** 2.4).astype(np.float32)
+
+
+def srgb_to_linear(v: np.ndarray) -> np.ndarray:
+    """8-bit-scale sRGB values (0-255, any float/uint8 array) -> linear light 0-1 (IEC 61966-2-1)."""
+    if v.dtype == np.uint8:
+        return _SRGB_LUT[v]
+    x = np.clip(np.asarray(v, np.float32) / 255.0, 0.0, 1.0)
+    return np.where(x <= 0.04045, x / 12.92, ((x + 0.055) / 1.055) ** 2.4).astype(np.float32)
+
+
+_GH_X, _GH_W = np.polynomial.hermite_e.hermegauss(24)
+_GH_W = _GH_W / _GH_W.sum()
+
+
+def _ball_geometry(gx, gy, th, r, lam):
+    """Coverage a, normal z nz, shadow fall-off e and rim normal (ux, uy) at pixels (gx, gy).
+
+    th = (cx, cy, A, Bxy, C): centre (px) and the edge-blur variance along
+    the rim normal u, A ux^2 + 2 Bxy ux uy + C uy^2 (px^2).
+    """
+    dx, dy = gx - th[0], gy - th[1]
+    rho = np.hypot(dx, dy) + 1e-9
+    ux, uy = dx / rho, dy / rho
+    var = np.maximum(th[2] * ux * ux + 2 * th[3] * ux * uy + th[4] * uy * uy, 0.04)
+    sd = np.sqrt(var)
+    a = 0.5 * (1.0 + _erf((r - rho) / (np.sqrt(2.0) * sd)))
+    # nz (zero off the disc) blurred along the rim normal: Gauss-Hermite
+    # quadrature of the 1-D convolution (the rim is straight on the blur scale)
+    t = rho[:, None] + sd[:, None] * _GH_X[None, :]
+    nz = (np.sqrt(np.maximum(1.0 - (t / r) ** 2, 0.0)) @ _GH_W) / np.maximum(a, 1e-6)
+    e = (1.0 - a) * np.exp(-np.maximum(rho - r, 0.0) / lam)
+    return a, nz, e, ux, uy
+
+
+def _ball_design(B, tents, geo):
+    """Per-channel design (3, n, 2K+3) of :func:`fit_ball_model`: sector shading and shadow columns."""
+    a, nz, e, ux, uy = geo
+    K = tents.shape[1]
+    D = np.empty((3, len(a), 2 * K + 3))
+    D[:, :, :K] = (tents * a[:, None])[None]
+    D[:, :, K:2 * K] = (tents * (a * nz)[:, None])[None]
+    sh = np.column_stack([e, e * ux, e * uy])
+    for c in range(3):
+        D[c, :, 2 * K:] = -sh * B[:, c:c + 1]
+    return D
+
+
+def _ball_predict(B, P0, P1, S, geo):
+    """Model of I - B (3, n) for fixed linear coefficients (P0, P1: sector terms per pixel (n, 3))."""
+    a, nz, e, ux, uy = geo
+    sh = S[:, 0][None, :] + ux[:, None] * S[:, 1][None, :] + uy[:, None] * S[:, 2][None, :]
+    return (a[:, None] * (P0 + nz[:, None] * P1 - B) - e[:, None] * sh * B).T
+
+
+def _solve_linear(D: np.ndarray, rhs: np.ndarray, w: np.ndarray) -> np.ndarray:
+    """Weighted least squares per channel via small normal equations (ridge 1e-9 of the trace)."""
+    coef = np.empty((3, D.shape[2]))
+    for c in range(3):
+        Dw = D[c] * w[:, None]
+        G = Dw.T @ D[c]
+        G[np.diag_indices_from(G)] += 1e-9 * np.trace(G) + 1e-12
+        coef[c] = np.linalg.solve(G, Dw.T @ rhs[c])
+    return coef
+
+
+def fit_ball_model(image: np.ndarray, background: np.ndarray, x0: float, y0: float, r: float,
+                   settings: DetectionSettings = DetectionSettings()) -> dict | None:
+    """Centre (px) of a ball of known image radius ``r`` by fitting its image round the rim.
+
+    Model, in linear light (the sRGB encoding is undone first, so that the
+    pixels at the rim mix ball and cloth light in proportion to coverage):
+    ``I = (1 - a) B (1 - S) + a F`` with B the empty cloth; a the disc of
+    radius r with a blurred edge, ``a = Phi((r - rho) / s(u))`` (rho the
+    distance to the centre, u the rim normal, s^2 = u' M u a quadratic form:
+    lens blur plus motion blur along one direction, so a swept ball keeps
+    its mid-exposure centre, the coverage being point-symmetric about it);
+    F the ball's colour, a + b nz per channel in each of ``model_sectors``
+    angular sectors (nz the surface normal's z: the limb darkening of any
+    Lambertian shading, so a dark limb is modelled, not lost); S the ball's
+    shadow on the cloth, (s0 + s1 ux + s2 uy) exp(-(rho - r)/lambda). The
+    centre comes from where the coverage changes, not from where the colour
+    difference is large. Centre and M by Gauss-Newton with the linear
+    coefficients re-solved each step (variable projection, Golub & Pereyra,
+    SIAM J. Numer. Anal. 10:413, 1973), Tukey weights on the per-pixel
+    colour residual (highlight, numbers, neighbours).
+
+    image: BGR uint8 frame; background: float32 BGR DN (same size). Returns
+    dict(x, y, blur_px (geometric-mean edge sigma), motion_px (extra sigma
+    along the most blurred direction), scale, cov) or None when it fails.
+    """
+    h, w = image.shape[:2]
+    out = settings.model_out_px
+    half = int(np.ceil(r + out + 1))
+    xi, yi = int(round(x0)), int(round(y0))
+    xa, ya, xb, yb = xi - half, yi - half, xi + half + 1, yi + half + 1
+    if xa < 0 or ya < 0 or xb > w or yb > h:
+        return None
+    if settings.model_linear_light:
+        I = srgb_to_linear(image[ya:yb, xa:xb]).reshape(-1, 3)
+        B = srgb_to_linear(background[ya:yb, xa:xb]).reshape(-1, 3)
+    else:
+        I = image[ya:yb, xa:xb].reshape(-1, 3) / np.float32(255.0)
+        B = background[ya:yb, xa:xb].reshape(-1, 3) / np.float32(255.0)
+    gy, gx = np.mgrid[ya:yb, xa:xb]
+    gx = gx.ravel().astype(np.float64)
+    gy = gy.ravel().astype(np.float64)
+    rho0 = np.hypot(gx - x0, gy - y0)
+    sel = (rho0 >= r - max(settings.model_inner_px, settings.model_inner * r)) & (rho0 <= r + out)
+    gx, gy, I, B = gx[sel], gy[sel], I[sel].astype(np.float64), B[sel].astype(np.float64)
+    lam = settings.model_shadow_decay * r
+    # angular tent functions about the first centre (fixed during the fit)
+    K = settings.model_sectors
+    ang = np.arctan2(gy - y0, gx - x0) * (K / (2 * np.pi)) % K
+    k0 = np.floor(ang).astype(int)
+    fr = ang - k0
+    n = len(gx)
+    tents = np.zeros((n, K))
+    tents[np.arange(n), k0 % K] = 1.0 - fr
+    tents[np.arange(n), (k0 + 1) % K] += fr
+    T = (I - B).T  # (3, n)
+    rhs0 = T.copy()
+    s0 = settings.model_blur0_px ** 2
+    th = np.array([float(x0), float(y0), s0, 0.0, s0])
+    vmax = (settings.model_max_motion * r) ** 2
+    wts = np.ones(n)
+    scale = np.inf
+    H = np.eye(5)
+    hstep = np.array([0.02, 0.02, 0.05, 0.05, 0.05])
+    for it in range(settings.model_iters):
+        geo = _ball_geometry(gx, gy, th, r, lam)
+        a = geo[0]
+        D = _ball_design(B, tents, geo)
+        coef = _solve_linear(D, rhs0 + a[None, :] * B.T, wts)
+        P0, P1, S = tents @ coef[:, :K].T, tents @ coef[:, K:2 * K].T, coef[:, 2 * K:]
+        pred = _ball_predict(B, P0, P1, S, geo)
+        res = rhs0 - pred
+        e = np.sqrt((res * res).sum(axis=0))
+        scale = max(1.4826 * float(np.median(e)), 1e-5)
+        # Plain least squares until the rim is roughly in place (a misplaced
+        # rim has large residuals exactly where the centre information is),
+        # then Tukey weights against highlight, numbers and neighbours.
+        if it >= settings.model_ls_iters:
+            z = e / (settings.tukey_c * scale)
+            wts = np.where(z < 1, (1 - z * z) ** 2, 0.0)
+        # Jacobian of the variable-projection residual (linear coefficients
+        # re-solved at each perturbed point; Golub & Pereyra 1973)
+        J = np.empty((3 * n, 5))
+        for k in range(5):
+            tk = th.copy()
+            tk[k] += hstep[k]
+            gk = _ball_geometry(gx, gy, tk, r, lam)
+            Dk = _ball_design(B, tents, gk)
+            rk = rhs0 + gk[0][None, :] * B.T
+            ck = _solve_linear(Dk, rk, wts)
+            pk = np.einsum("cnk,ck->cn", Dk, ck) - gk[0][None, :] * B.T
+            J[:, k] = ((pk - pred) / hstep[k]).ravel()
+        W = np.tile(wts, 3)
+        H = (J * W[:, None]).T @ J
+        g = (J * W[:, None]).T @ res.ravel()
+        try:
+            if not settings.model_motion:  # isotropic blur: dA = dC, dBxy = 0
+                Tm = np.array([[1, 0, 0], [0, 1, 0], [0, 0, 1], [0, 0, 0], [0, 0, 1]], float)
+                Hs, gs = Tm.T @ H @ Tm, Tm.T @ g
+                step = Tm @ np.linalg.solve(Hs + (1e-6 * np.trace(Hs) + 1e-12) * np.eye(3), gs)
+            else:
+                step = np.linalg.solve(H + (1e-6 * np.trace(H) + 1e-12) * np.eye(5), g)
+        except np.linalg.LinAlgError:
+            return None
+        step[:2] = np.clip(step[:2], -1.0, 1.0)
+        step[2:] = np.clip(step[2:], -0.5 * vmax, 0.5 * vmax)
+        th = th + step
+        th[2] = float(np.clip(th[2], 0.04, vmax))
+        th[4] = float(np.clip(th[4], 0.04, vmax))
+        lim = 0.99 * np.sqrt(th[2] * th[4])
+        th[3] = float(np.clip(th[3], -lim, lim))
+        if np.hypot(step[0], step[1]) < settings.model_tol_px:
+            break
+    try:
+        cov = np.linalg.inv(H)[:2, :2] * scale * scale
+    except np.linalg.LinAlgError:
+        cov = np.full((2, 2), np.inf)
+    cx, cy = float(th[0]), float(th[1])
+    if not np.all(np.isfinite([cx, cy])) or np.hypot(cx - x0, cy - y0) > settings.model_max_shift * r:
+        return None
+    ev = np.linalg.eigvalsh(np.array([[th[2], th[3]], [th[3], th[4]]]))
+    return {"x": cx, "y": cy, "blur_px": float(np.sqrt(np.sqrt(max(ev[0], 1e-6) * ev[1]))),
+            "motion_px": float(np.sqrt(max(ev[1] - ev[0], 0.0))), "scale": scale, "cov": cov}
+
+
 # --------------------------------------------------------------------------- colour
 def colour_summary(image: np.ndarray, x: float, y: float, r: float,
                    settings: DetectionSettings = DetectionSettings()) -> dict:
@@ -694,6 +887,11 @@ def detect_frame(image: np.ndarray, calibration: Calibration, settings: Detectio
         r_exp, ox, oy = background.lookup(ref["x"], ref["y"])
         if _disc_mean(d, ref["x"], ref["y"], 0.6 * r_exp) < settings.min_inner_contrast * thr:
             continue
+        if settings.model_fit and r_exp >= settings.model_min_radius_px:
+            mf = fit_ball_model(image, background.image, ref["x"], ref["y"], r_exp, settings)
+            if mf is not None:
+                ref = {**ref, "x": mf["x"], "y": mf["y"]}
+                r_exp, ox, oy = background.lookup(ref["x"], ref["y"])
         found.append((ref, r_exp, ox, oy))
     rows = []
     if found:

@@ -191,6 +191,57 @@ class DetectionSettings:
     #: per-detection centre errors of ~0.2 px per axis (RMS) with the fit sigma
     #: at 0.05-0.1 px; 0.2 makes their mean squared normalised error ~1.
     model_sigma_px: float = 0.2
+    #: Photometric model fit of each ball's image after the silhouette fit
+    #: (detect.fit_ball_model): disc of the expected radius with a blurred
+    #: rim, per-sector limb-darkened shading and a shadow term, over the known
+    #: cloth, in linear light. Off by default: on closed-form Lambertian balls
+    #: it removes the dark-limb bias (0.2-0.4 px -> < 0.1 px), and on renders
+    #: it lowered moving-ball detection RMSE on D1 and 3 of our clips but
+    #: raised it on D2 (green ball on blue cloth), and it costs ~5-8x the
+    #: detection time. Turn on for still or slow balls where time is no issue.
+    model_fit: bool = False
+    #: Undo the sRGB transfer curve (IEC 61966-2-1) before the model fit:
+    #: video is gamma-encoded (sRGB / Rec. 709 curves are close), and light
+    #: adds linearly only before encoding.
+    model_linear_light: bool = True
+    #: Smallest image radius (px) for the model fit (below ~4 px the rim is
+    #: one or two pixels and the silhouette fit is as good).
+    model_min_radius_px: float = 4.0
+    #: Fit window: the ring from radius - max(model_inner_px, model_inner x
+    #: radius) to radius + model_out_px about the first centre (the outer
+    #: part pins the blur, the inner part the shading next to the rim; the
+    #: middle of the disc adds nothing on the rim's position).
+    model_inner: float = 0.3
+    model_inner_px: float = 3.0
+    model_out_px: float = 3.5
+    #: The ball's shading is modelled separately in this many angular
+    #: sectors (smooth tent functions), each a + b nz in every channel, so
+    #: stripes, numbers and any lamp layout are followed round the rim.
+    model_sectors: int = 12
+    #: Decay length of the shadow term next to the rim (x radius): a lamp
+    #: 1-2 m above a 57 mm ball casts a shadow a few tenths of a radius long
+    #: near the contact point (geometric, R tan(zenith angle)).
+    model_shadow_decay: float = 0.3
+    #: Largest edge-blur sigma fitted (x radius): motion blur of a swept
+    #: disc is a box of length 2 L along the motion, variance L^2/3; L up to
+    #: ~1 radius (faster balls keep the silhouette centre).
+    model_max_motion: float = 0.6
+    #: Fit the anisotropic (motion) part of the rim blur; False: one sigma.
+    model_motion: bool = True
+    #: Starting blur sigma (px; a sharp lens plus demosaicing ~0.7-1 px) and
+    #: Gauss-Newton iterations.
+    model_blur0_px: float = 1.0
+    model_iters: int = 8
+    #: Iterations of plain least squares before the Tukey weights start (a
+    #: misplaced rim has its largest residuals where the centre information
+    #: is; robust weights from the start would freeze it).
+    model_ls_iters: int = 3
+    #: Stop when the centre moves less than this (px): well below the
+    #: 0.05 px sigma floor.
+    model_tol_px: float = 0.005
+    #: A model centre further than this (x radius) from the silhouette centre
+    #: is rejected (the silhouette centre is kept).
+    model_max_shift: float = 0.25
     #: Pixels whose HSV saturation < this and value > white_value count as white
     #: (stripe/cue summary); 0..1 scale, common practice for "white" in HSV.
     white_saturation: float = 0.28
