@@ -194,11 +194,13 @@ class DetectionSettings:
     #: Photometric model fit of each ball's image after the silhouette fit
     #: (detect.fit_ball_model): disc of the expected radius with a blurred
     #: rim, per-sector limb-darkened shading and a shadow term, over the known
-    #: cloth, in linear light. Off by default: on closed-form Lambertian balls
-    #: it removes the dark-limb bias (0.2-0.4 px -> < 0.1 px), and on renders
-    #: it lowered moving-ball detection RMSE on D1 and 3 of our clips but
-    #: raised it on D2 (green ball on blue cloth), and it costs ~5-8x the
-    #: detection time. Turn on for still or slow balls where time is no issue.
+    #: cloth, in linear light. EXPERIMENTAL, off by default: on closed-form
+    #: Lambertian balls (tests/test_detect_model.py) it removes the dark-limb
+    #: bias (silhouette 0.2-0.4 px -> < 0.1 px), but on rendered clips it is
+    #: not better overall (detection RMSE lower on D1 moving and on 4 of our
+    #: renders, higher on D2 and on 3 of 4 fresh renders: shadows, stripes
+    #: and compression break its shading model) and it costs ~5-8x the
+    #: detection time.
     model_fit: bool = False
     #: Undo the sRGB transfer curve (IEC 61966-2-1) before the model fit:
     #: video is gamma-encoded (sRGB / Rec. 709 curves are close), and light
