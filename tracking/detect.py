@@ -625,6 +625,9 @@ def fit_ball_model(image: np.ndarray, background: np.ndarray, x0: float, y0: flo
     SIAM J. Numer. Anal. 10:413, 1973), Tukey weights on the per-pixel
     colour residual (highlight, numbers, neighbours).
 
+    Used by :func:`detect_frame` only with ``DetectionSettings.model_fit``
+    (off: experimental, see the setting for what it was measured to do).
+
     image: BGR uint8 frame; background: float32 BGR DN (same size). Returns
     dict(x, y, blur_px (geometric-mean edge sigma), motion_px (extra sigma
     along the most blurred direction), scale, cov) or None when it fails.
