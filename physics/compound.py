@@ -35,7 +35,7 @@ import pandas as pd
 from scipy.optimize import nnls
 
 from feltlab.standards import MU_BALL_BALL_RANGE
-from physics.events import BallSamples, ContactCandidate, kink_fit, local_speed
+from physics.events import BallSamples, ContactCandidate, kink_fit_windows, local_speed
 from physics.settings import PhysicsSettings
 
 #: Tangential (throw) impulse as a fraction of the velocity change: the published maximum of
@@ -179,7 +179,6 @@ def find_groups(samples: dict[str, BallSamples], times: np.ndarray, P, S, V, see
         keys = {("ball-ball", frozenset(l), "") for l in links}
         t_c = float(times[k])
         guard = s.guard_ball_s
-        w = max(s.side_window_s, s.side_window_frames * dt)
         dv = np.full((len(balls), 2), np.nan)
         cov = np.full((len(balls), 2, 2), np.nan)
         tb = np.full(len(balls), np.nan)
@@ -189,9 +188,9 @@ def find_groups(samples: dict[str, BallSamples], times: np.ndarray, P, S, V, see
             others = [x for x, kx in cand_t[ball] if abs(x - t_c) > 2.5 * dt and kx not in keys]
             others += [c.t_init_s for c in accepted
                        if ball in (c.ball_a, c.ball_b) and abs(c.t_init_s - t_c) > 2.5 * dt]
-            lo = max(max([x for x in others if x < t_c], default=-np.inf) + guard, t_c - w)
-            hi = min(min([x for x in others if x > t_c], default=np.inf) - guard, t_c + w)
-            f = kink_fit(samples[ball], t_c, lo, hi, guard, dt, s)
+            lo = max([x for x in others if x < t_c], default=-np.inf)
+            hi = min([x for x in others if x > t_c], default=np.inf)
+            f = kink_fit_windows(samples[ball], t_c, lo, hi, guard, dt, s)
             if f is None:
                 continue
             dv[i] = f.v_post - f.v_pre
