@@ -18,7 +18,11 @@ analytic stage adds.
 Units: mm, s, mm/s, rad/s, kg. Table frame per DEVELOPERS.md.
 
 Whether this beats the analytic chain fit is measured by ``scripts/bench_refine.py`` on data the
-simulator did not make (outside footage truth, pymunk shots); see DEVELOPERS.md for the result.
+simulator did not make (outside footage truth, pymunk shots). It does not: the refit ties the
+motion after a contact to the motion before it through our contact laws, another engine's (or
+real balls') contact details differ, and the fit bends e to absorb the difference (median |e
+error| several times the analytic one, sigmas too small). So the pipeline does not use it (no
+``--refine`` option); see DEVELOPERS.md for the figures.
 """
 from __future__ import annotations
 

@@ -63,7 +63,8 @@ def evaluate(source, truths, tracks, det, fps, R, mass, rs, out):
     t = time.perf_counter()
     ref = refine_contacts(ph, tracks, det, TABLE, R, mass, fps, refine=rs)
     wall = time.perf_counter() - t
-    found = ph.contacts.merge(ref, on="contact")
+    found = ph.contacts.merge(ref.rename(columns={c: f"ref_{c}" for c in ref.columns if c != "contact"}),
+                             on="contact")
     used = set()
     for tr in truths:
         best, bd = None, 2.0 / fps
@@ -81,9 +82,9 @@ def evaluate(source, truths, tracks, det, fps, R, mass, rs, out):
         used.add(best)
         r = found.loc[best]
         out.append(dict(source=source, fps=fps, kind=tr.kind, e_true=tr.e, e_an=r.e, s_an=r.e_sigma,
-                        e_ref=r.e_refined, s_ref=r.e_refined_sigma, conv=bool(r.converged),
-                        time=r.time_s, n_sim=r.n_sim, note=r.note, dt_an=(r.t_s - tr.t_s) * fps,
-                        dt_ref=(r.t_refined_s - tr.t_s) * fps))
+                        e_ref=r.ref_e_refined, s_ref=r.ref_e_refined_sigma, conv=bool(r.ref_converged),
+                        time=r.ref_time_s, n_sim=r.ref_n_sim, note=r.ref_note, dt_an=(r.t_s - tr.t_s) * fps,
+                        dt_ref=(r.ref_t_refined_s - tr.t_s) * fps))
     return wall
 
 

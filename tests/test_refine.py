@@ -69,6 +69,7 @@ def head_on_shot(e, v_start=1600.0, heading_deg=17.0, fps=120.0, sigma=0.3, seed
     return tracks, det, tc, fps
 
 
+@pytest.mark.slow  # ~10-25 s: a few hundred simulations per case
 @pytest.mark.parametrize("e", [0.93, 0.96])
 def test_refit_recovers_head_on_restitution(e):
     """Refit e within 0.01 and 3 of its sigmas of the closed-form e (frictionless contact model,
