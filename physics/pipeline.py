@@ -26,6 +26,7 @@ from physics.events import (
 from physics.segments import (
     ChainFit,
     ChainLayout,
+    break_slip,
     fit_chain,
     restart_after_breaks,
     segment_starts,
@@ -96,6 +97,7 @@ class _Break:
     t: float
     kind: str
     contact: int  # index into the candidate list, -1 for a strike
+    mixed: bool = False  # other kinds of contact were merged into this break
 
 
 def _layouts(samples, cands, onsets, dt, s):
@@ -115,6 +117,7 @@ def _layouts(samples, cands, onsets, dt, s):
         cmap: dict[int, int] = {}
         for br in brs:
             if merged and br.t - merged[-1].t < 1.0 * dt:
+                merged[-1].mixed |= br.kind != merged[-1].kind
                 if br.contact >= 0:
                     cmap[br.contact] = len(merged) - 1
                 continue
@@ -138,6 +141,7 @@ def _layouts(samples, cands, onsets, dt, s):
         layouts[name] = ChainLayout(
             name, float(b.t[0]), bool(rest_first and (merged or on.t_onset is None)),
             [m.kind for m in merged], np.array([m.t for m in merged]), half, guards,
+            slip_link=np.array([m.kind == "ball-ball" and not m.mixed for m in merged], dtype=bool),
         )
         maps[name] = (cmap, merged)
     return layouts, maps
@@ -181,13 +185,20 @@ def _analyze(tracks, detections, table, ball_radius_mm, ball_mass_kg, fps, setti
         if lay.rest_first and lay.n_seg == 1:
             fits[name] = _rest_fit(b, lay)
         else:
-            fits[name] = fit_chain(b.t, b.xy, b.sig, lay, s)
+            # pass 1 measures the cloth; the cloth-slip prior waits for its sliding friction
+            fits[name] = fit_chain(b.t, b.xy, b.sig, lay, replace(s, slip_prior=False))
     # pass 2: one cloth -> each segment's friction prior is the shot estimate from the OTHER
     # segments (leave-one-out, so no data count twice); pass-1 shot estimates are reported
     _, mu = _segments_table(fits, samples, s)
     _, (mus, mur) = _segments_table(fits, samples, s, per_segment=True)
     alternates: dict[str, ChainFit] = {}
     s2 = _shot_priors(s, mu)
+    if not np.isfinite(mu[0]):
+        # no slide phase showed the cloth's friction (e.g. a frictionless surface): the slip
+        # prior, which assumes cloth friction ends every slide, is not applied
+        s2 = replace(s2, slip_prior=False)
+    if s2.slip_prior:
+        layouts = _with_slip_shifts(layouts, cands, fits, maps, R, dt, s)
     for name, b in samples.items():
         lay = layouts[name]
         if not (lay.rest_first and lay.n_seg == 1):
@@ -203,6 +214,16 @@ def _analyze(tracks, detections, table, ball_radius_mm, ball_mass_kg, fps, setti
             fits[name], other = (fb, fa) if fb.cost < fa.cost - 1e-9 else (fa, fb)
             if other.cost - fits[name].cost < s.ambiguity_dcost:
                 alternates[name] = other
+    if s2.slip_prior and s2.slip_share_shift:
+        # pass 3: both balls of a contact get the same slip shift X n; each ball's prior on X
+        # adds what the OTHER ball's pass-2 fit says about it (leave-one-out, no data twice)
+        layouts3 = _shared_slip_shifts(layouts, fits)
+        for name, lay3 in layouts3.items():
+            b = samples[name]
+            pri = {k: _loo_prior(s, mus, mur, (name, k)) for k in range(lay3.n_seg)}
+            f3 = fit_chain(b.t, b.xy, b.sig, lay3, s2, x_init=fits[name].x, seg_priors=pri)
+            fits[name] = f3
+            alternates.pop(name, None)
     contacts = _contacts_table(cands, fits, maps, table, R, m, dt, s)
     if alternates:
         # two fits that explain the samples about equally well: the spread of their restitution
@@ -217,6 +238,117 @@ def _analyze(tracks, detections, table, ball_radius_mm, ball_mass_kg, fps, setti
     events = _events_table(samples, fits, layouts, maps, contacts, segments, dt, s)
     return ShotPhysics(events, segments, contacts, *mu, fits=fits,
                        rest_xy={k: o.rest_xy for k, o in onsets.items() if o.rest_xy is not None})
+
+
+def _with_slip_shifts(layouts, cands, fits, maps, R, dt, s: PhysicsSettings):
+    """Pass-2 layouts whose linked ball-ball breaks carry the expected slip shift from vertical
+    friction at the contact point, estimated from the pass-1 fits of both balls.
+
+    The friction impulse's vertical part p_z (|p_z| <= mu_bb J_n, opposing the vertical slip of
+    a's contact point relative to b's, s_z = (u_a - v_a).n + (u_b - v_b).n for slips u and
+    velocities v just before) turns both balls about the horizontal axis z x n and shifts both
+    slips by the same X n, X = (5/2) p_z / m (I = 2/5 m R^2); sticking caps |X| at |s_z| / 2
+    (equal balls). The unknown friction (0..slip_mu_bb_max, and the share the tangential throw
+    takes of the friction cone) puts X anywhere between 0 and that bound: the prior is its
+    middle, with half the bound as sigma.
+    """
+    out = {k: replace(v) for k, v in layouts.items()}
+    shifts = {k: np.full((v.n_seg - 1, 3), np.nan) for k, v in layouts.items()}
+    sigmas = {k: np.full(v.n_seg - 1, np.nan) for k, v in layouts.items()}
+    count: dict[tuple[str, int], int] = {}
+    for ci, c in enumerate(cands):
+        if c.kind != "ball-ball":
+            continue
+        for b in (c.ball_a, c.ball_b):
+            j = maps[b][0].get(ci)
+            if j is not None:
+                count[(b, j)] = count.get((b, j), 0) + 1
+    for ci, c in enumerate(cands):
+        if c.kind != "ball-ball" or c.ball_a not in fits or c.ball_b not in fits:
+            continue
+        fa, fb = fits[c.ball_a], fits[c.ball_b]
+        ia, ib = maps[c.ball_a][0].get(ci), maps[c.ball_b][0].get(ci)
+        if ia is None or ib is None or count[(c.ball_a, ia)] > 1 or count[(c.ball_b, ib)] > 1:
+            continue
+        if not (layouts[c.ball_a].links[ia] and layouts[c.ball_b].links[ib]):
+            continue
+        try:
+            core = ball_ball_core(fa, ia, fa.x, fb, ib, fb.x, R, dt)
+        except (IndexError, ValueError):
+            continue
+        n = core["n"]
+        ua, _ = break_slip(fa.x, fa.layout, ia)
+        ub, _ = break_slip(fb.x, fb.layout, ib)
+        jn = 0.5 * float(((core["vb1"] - core["vb0"]) - (core["va1"] - core["va0"])) @ n)
+        sz = float((ua - core["va0"]) @ n + (ub - core["vb0"]) @ n)
+        if not (np.isfinite(jn) and np.isfinite(sz) and np.all(np.isfinite(n))):
+            continue
+        bound = min(2.5 * s.slip_mu_bb_max * max(jn, 0.0), 0.5 * abs(sz))
+        X = -np.sign(sz) * 0.5 * bound
+        for b, j in ((c.ball_a, ia), (c.ball_b, ib)):
+            shifts[b][j] = (X, n[0], n[1])
+            sigmas[b][j] = 0.5 * bound
+    for k, lay in out.items():
+        if np.isfinite(shifts[k]).any():
+            lay.slip_shift = shifts[k]
+            lay.slip_shift_sigma = sigmas[k]
+    return out
+
+
+def _implied_shift(z: np.ndarray, lay: ChainLayout, j: int, n: np.ndarray) -> float:
+    """(u_start - u_end - dv) . n at break j of a chain with parameters z (mm/s)."""
+    u_end, v_end = break_slip(z, lay, j)
+    v1, a1, tr1, _ = unpack_segment(z, lay, j + 1)
+    return float((-3.5 * a1 * max(tr1, 0.0) - u_end - (v1 - v_end)) @ n)
+
+
+def _shared_slip_shifts(layouts, fits) -> dict[str, ChainLayout]:
+    """Pass-3 layouts: for each linked ball-ball break with a pass-2 shift prior (X0, s0), the
+    other ball's data-only estimate of X (its pass-2 posterior with the prior's information
+    taken out) is combined into the prior. Only balls whose prior changes are returned."""
+    est = {}
+    for name, lay in layouts.items():
+        f = fits.get(name)
+        if lay.slip_shift is None or f is None or f.layout is not lay:
+            continue
+        for j in range(lay.n_seg - 1):
+            X0, nx, ny = lay.slip_shift[j]
+            s0 = float(lay.slip_shift_sigma[j])
+            if not (np.isfinite(X0) and s0 > 0) or unpack_segment(f.x, lay, j + 1) is None:
+                continue
+            n = np.array([nx, ny])
+            Xp = _implied_shift(f.x, lay, j, n)
+            vp = float(propagate(lambda z: np.array([_implied_shift(z, lay, j, n)]), f.x, f.cov)[0])
+            w = 1.0 / max(vp, 1e-12) - 1.0 / s0**2
+            if not np.isfinite(Xp) or w <= 0.25 / s0**2:
+                continue  # the data add little to the prior
+            Xd = (Xp / max(vp, 1e-12) - X0 / s0**2) / w
+            est[(name, j)] = (Xd, 1.0 / w, (round(nx, 9), round(ny, 9)))
+    out = {}
+    for name, lay in layouts.items():
+        if lay.slip_shift is None:
+            continue
+        new_shift, new_sig, changed = lay.slip_shift.copy(), lay.slip_shift_sigma.copy(), False
+        for j in range(lay.n_seg - 1):
+            X0, nx, ny = lay.slip_shift[j]
+            if not np.isfinite(X0):
+                continue
+            key_n = (round(nx, 9), round(ny, 9))
+            other = [v for (nm, jj), v in est.items() if nm != name and v[2] == key_n]
+            if len(other) != 1:
+                continue
+            Xd, vd, _ = other[0]
+            s0 = float(lay.slip_shift_sigma[j])
+            wt = 1 / s0**2 + 1 / vd
+            Xc = (X0 / s0**2 + Xd / vd) / wt
+            # |X| lies between 0 and the bound 2 |X0| on the side of X0 (friction opposes slip)
+            lo, hi = sorted((0.0, 2.0 * X0))
+            new_shift[j, 0] = float(np.clip(Xc, lo, hi))
+            new_sig[j] = float(1 / np.sqrt(wt))
+            changed = True
+        if changed:
+            out[name] = replace(lay, slip_shift=new_shift, slip_shift_sigma=new_sig)
+    return out
 
 
 def _plausible_start(x: np.ndarray, lay: ChainLayout, s: PhysicsSettings) -> np.ndarray:

@@ -80,6 +80,21 @@ class ChainLayout:
     break_init: np.ndarray
     break_halfwidth: np.ndarray
     guards: np.ndarray
+    #: per break: the cloth-slip continuity prior links the segments on both sides (only for
+    #: breaks made of ball-ball contacts alone, see :func:`slip_residuals`); None: every
+    #: 'ball-ball' break.
+    slip_link: np.ndarray | None = None
+    #: per break (n_break, 3): expected slip shift from vertical friction at the contact, as
+    #: (X mm/s, nx, ny) with the contact normal n (the shift is X n), and ``slip_shift_sigma``
+    #: (n_break,) mm/s its sigma along n; None: X = 0, n = dv direction, sigma from settings.
+    slip_shift: np.ndarray | None = None
+    slip_shift_sigma: np.ndarray | None = None
+
+    @property
+    def links(self) -> np.ndarray:
+        if self.slip_link is not None:
+            return np.asarray(self.slip_link, dtype=bool)
+        return np.array([k == "ball-ball" for k in self.break_kinds], dtype=bool)
 
     @property
     def n_seg(self) -> int:
@@ -169,7 +184,89 @@ def _priors(x: np.ndarray, lay: ChainLayout, s: PhysicsSettings, seg_priors=None
             k, (s.mu_s_prior, s.mu_s_prior_sigma, s.mu_r_prior, s.mu_r_prior_sigma))
         out.append((np.hypot(*a) - ms * g) / (ss * g))
         out.append((a_r - mr * g) / (sr * g))
+    if s.slip_prior:
+        return np.concatenate([np.asarray(out, dtype=float), slip_residuals(x, lay, s)])
     return np.asarray(out)
+
+
+def slip_velocity(v0: np.ndarray, a: np.ndarray, t_roll: float, tau: float) -> np.ndarray:
+    """Slip velocity (2,) mm/s of the cloth contact point of a move segment at ``tau`` (s).
+
+    ``u = v + omega x (-R z_hat)``. For a uniform solid sphere (I = 2/5 m R^2) under Coulomb cloth
+    friction ``a = -mu_s g u_hat`` while it slides and ``du/dt = -(7/2) mu_s g u_hat = (7/2) a``, so
+    with roll-over at ``t_roll`` ``u(tau) = -(7/2) a (t_roll - tau)``; ``u = 0`` once rolling.
+
+    >>> import numpy as np
+    >>> float(slip_velocity(np.array([700.0, 0]), np.array([-2000.0, 0]), 0.1, 0.0)[0])
+    700.0
+    """
+    return -3.5 * np.asarray(a, dtype=float) * max(float(t_roll) - float(tau), 0.0)
+
+
+def break_slip(x: np.ndarray, lay: ChainLayout, i: int) -> tuple[np.ndarray, np.ndarray]:
+    """(slip u (2,) mm/s, velocity v (2,) mm/s) at the end of the segment before break ``i``
+    (zeros for a rest segment)."""
+    prev = unpack_segment(x, lay, i)
+    if prev is None:
+        return np.zeros(2), np.zeros(2)
+    br = x[lay.break_offset : lay.break_offset + lay.n_seg - 1]
+    starts = np.concatenate([[lay.t_start], br])
+    tau = float(br[i] - starts[i])
+    v0, a, t_roll, a_r = prev
+    _, v = move_motion(np.array([tau]), v0, a, t_roll, a_r)
+    return slip_velocity(v0, a, t_roll, tau), v[0]
+
+
+def slip_residuals(x: np.ndarray, lay: ChainLayout, s: PhysicsSettings) -> np.ndarray:
+    """Prior residuals (2 per linked break, in sigmas) of cloth-slip continuity across a
+    ball-ball contact: ``u_start(k+1) - u_end(k) - dv``.
+
+    Equal balls on the cloth touch at the height of their centres, so the contact's normal and
+    friction (throw) impulses are horizontal at equator height: they change ``v`` by
+    ``dv = J / m`` and the spin only about the vertical axis, which does not move the cloth
+    contact point; hence ``u_after = u_before + dv``. A rest segment has ``u = v = 0``. Not used
+    across strikes (the cue tip adds any spin) or cushions (nose above the centre). The sigma
+    (see :class:`physics.settings.PhysicsSettings`) allows for vertical friction at the contact
+    (spin transfer along the impulse direction), cloth friction during the contact and
+    non-ideal balls.
+    """
+    links = lay.links
+    if not links.any():
+        return np.zeros(0)
+    br = x[lay.break_offset : lay.break_offset + lay.n_seg - 1]
+    starts = np.concatenate([[lay.t_start], br])
+    out = []
+    for i in np.flatnonzero(links):
+        prev, nxt = unpack_segment(x, lay, i), unpack_segment(x, lay, i + 1)
+        if nxt is None:
+            continue
+        tau = float(br[i] - starts[i])
+        if prev is None:
+            v_end = u_end = np.zeros(2)
+        else:
+            v0, a, t_roll, a_r = prev
+            _, v_end = move_motion(np.array([tau]), v0, a, t_roll, a_r)
+            v_end = v_end[0]
+            u_end = slip_velocity(v0, a, t_roll, tau)
+        v1, a1, t_roll1, _ = nxt
+        u_start = slip_velocity(v1, a1, t_roll1, 0.0)
+        dv = v1 - v_end
+        r = u_start - u_end - dv
+        sp = float(np.hypot(*dv))
+        sig_perp = np.hypot(s.slip_sigma_rel * sp, s.slip_sigma_mm_s)
+        if lay.slip_shift is not None and np.all(np.isfinite(lay.slip_shift[i])):
+            X, nx, ny = lay.slip_shift[i]
+            d = np.array([nx, ny])
+            r = r - X * d
+            sig_par = np.hypot(sig_perp, float(lay.slip_shift_sigma[i]))
+            out += [(r @ d) / sig_par, (d[0] * r[1] - d[1] * r[0]) / sig_perp]
+        elif sp > 1e-9:
+            d = dv / sp
+            sig_par = np.hypot(sig_perp, s.slip_sigma_rel_along * sp)
+            out += [(r @ d) / sig_par, (d[0] * r[1] - d[1] * r[0]) / sig_perp]
+        else:
+            out += list(r / sig_perp)
+    return np.asarray(out, dtype=float)
 
 
 def robust_residuals(r: np.ndarray, s: PhysicsSettings) -> np.ndarray:
@@ -313,6 +410,15 @@ def _move_start_guess(t, xy, sig, s: PhysicsSettings):
             r = xy[:, i] * w[:, i] - Aw @ c
             cost += float(r @ r)
             coefs.append(np.concatenate([c, np.zeros(4 - len(c))]))
+        if n_roll >= 3 and A.shape[1] == 4:
+            # a "roll" phase decelerating faster than any cloth lets a ball roll is a slide: a
+            # quadratic fits as well with t_roll = 0 as with t_roll = the end, and only the
+            # latter is physical (the model's roll phase cannot follow it)
+            vr_g = np.array([coefs[0][1] + coefs[0][2] * tr0, coefs[1][1] + coefs[1][2] * tr0])
+            b_g = np.array([coefs[0][3], coefs[1][3]])
+            sp_g = float(np.hypot(*vr_g))
+            if sp_g > 1e-9 and -(b_g @ vr_g) / sp_g > s.mu_r_max * s.g_mm_s2:
+                cost += 1e6
         if best is None or cost < best[0] - 1e-9:
             best = (cost, tr0, coefs)
     _, tr0, (cx, cy) = best
@@ -404,13 +510,16 @@ def fit_chain(
     free = res.active_mask == 0  # parameters held at a bound count as known (conditional cov)
     x_fit = res.x.copy()
     starts, _ = segment_starts(x_fit, lay)
+    linked_after = np.concatenate([[False], lay.links]) if s.slip_prior else np.zeros(lay.n_seg, bool)
     for k in range(lay.n_seg):
         o = lay.move_offset(k)
         if o is None:
             continue
         # a slide phase that contains no sample is not resolved: the ball rolls from the start
-        # (same path to well below the noise); its slide parameters are then not free
-        if x_fit[o + 4] > 0 and not np.any((tu > starts[k]) & (tu < starts[k] + x_fit[o + 4])):
+        # (same path to well below the noise); its slide parameters are then not free. Not so
+        # after a linked ball-ball break: there the slip prior resolves the slide.
+        if (x_fit[o + 4] > 0 and not linked_after[k]
+                and not np.any((tu > starts[k]) & (tu < starts[k] + x_fit[o + 4]))):
             # keep the velocity the samples see (the roll-start velocity); the path moves by
             # |a| t_roll^2 / 2, far below a sample interval's worth of travel
             x_fit[o : o + 2] = x_fit[o : o + 2] + x_fit[o + 2 : o + 4] * x_fit[o + 4]
@@ -448,7 +557,8 @@ def restart_after_breaks(x: np.ndarray, lay: ChainLayout, t: np.ndarray, xy: np.
     two starts, keeping the better: the current values, and the slide a ball gets when its spin
     passes through the contact unchanged (a ball rolling in leaves with slip ``v_out - v_in``,
     so it decelerates at ``mu_s g`` along ``-(v_out - v_in)`` for ``2 |slip| / (7 mu_s g)``; exact
-    for a frictionless ball-ball contact, a good start for cushions and strikes).
+    for a frictionless ball-ball contact, a good start for cushions and strikes; after a linked
+    ball-ball contact the slip brought in is added, see :func:`slip_residuals`).
     """
     x = x.copy()
     used = used_mask(t, lay)
@@ -469,6 +579,13 @@ def restart_after_breaks(x: np.ndarray, lay: ChainLayout, t: np.ndarray, xy: np.
         v_in = v_in[0]
         q_now = x[o : o + 6].copy()
         slip = q_now[0:2] - v_in
+        prev = unpack_segment(x, lay, k - 1)
+        if s.slip_prior and lay.links[k - 1]:
+            # across a ball-ball contact the slip a ball brings in is carried through
+            if prev is not None:
+                slip = slip + slip_velocity(prev[0], prev[1], prev[2], t0 - starts[k - 1])
+            if lay.slip_shift is not None and np.all(np.isfinite(lay.slip_shift[k - 1])):
+                slip = slip + lay.slip_shift[k - 1][0] * lay.slip_shift[k - 1][1:]
         us = float(np.hypot(*slip))
         cands = [q_now]
         if us > 1e-6:

@@ -109,6 +109,31 @@ class PhysicsSettings:
     #: Upper bound of the fitted sliding deceleration / g. Design choice (2x the published max).
     mu_s_max: float = 0.8
 
+    #: Cloth-slip continuity across a ball-ball contact (physics.segments.slip_residuals): the
+    #: cloth contact point's slip changes by the velocity change, u' = u + dv (equal balls meet at
+    #: centre height: the normal and throw impulses are horizontal through the equator and turn
+    #: the balls only about the vertical). Soft prior, sigma per component (mm/s):
+    #: across dv, hypot(slip_sigma_rel |dv|, slip_sigma_mm_s); along dv additionally
+    #: slip_sigma_rel_along |dv|. Reasoning, not fitting:
+    #: * vertical friction at the contact point (ball-ball friction 0.03-0.08, Physics of Pool
+    #:   FAQ) turns the balls about a horizontal axis; its impulse <= mu_bb J_n shifts each ball's
+    #:   slip along the line of centres (~ along dv) by <= (5/2) mu_bb |dv| (I = 2/5 m R^2), i.e.
+    #:   up to ~0.2 |dv|: slip_sigma_rel_along = 5/2 x 0.06 (one sigma covers 0-0.08 about 0.03);
+    #: * cloth friction during the ~0.3 ms contact (REFERENCES.md): mu_s g x 0.3 ms ~ 1 mm/s, and
+    #:   roll-over inside the contact or slightly unequal balls: a few % of |dv| and a few mm/s
+    #:   (design choice: 3 % and 5 mm/s).
+    slip_prior: bool = True
+    slip_sigma_rel: float = 0.03
+    slip_sigma_mm_s: float = 5.0
+    slip_sigma_rel_along: float = 0.15
+    #: Second pass: the vertical-friction shift is modelled per contact from the pass-1 fits
+    #: (physics.pipeline._with_slip_shifts) with the ball-ball friction between 0 and this
+    #: (upper end of the published 0.03-0.08, Physics of Pool FAQ); replaces the along-dv term.
+    slip_mu_bb_max: float = 0.08
+    #: Third pass: the shift is the same X n for both balls of a contact, so each ball's prior
+    #: on X takes in the other ball's estimate (physics.pipeline._shared_slip_shifts).
+    slip_share_shift: bool = True
+
     #: Second pass: every slide phase of the shot shares the cloth's mu_s and every roll phase its
     #: mu_r (one cloth, one ball set): the pass-1 shot estimates become priors with these relative
     #: floors on their sigma (design choice: allows ball-to-ball and speed dependence of a few %).

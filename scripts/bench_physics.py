@@ -7,18 +7,20 @@ Gaussian position noise of 0.2-0.5 mm, and analysed with :func:`physics.pipeline
 Reported: contacts found / missed / false, restitution errors by kind and frame rate, fraction of
 truths within 2 reported sigmas, contact-time error in frames, sliding-friction error.
 
-usage: python scripts/bench_physics.py [--n 36] [--fps 60,120,240] [--seed 1]
+usage: python scripts/bench_physics.py [--n 36] [--fps 60,120,240] [--seed 1] [--set slip_prior=false]
 """
 from __future__ import annotations
 
 import argparse
 import math
 import time
+from dataclasses import replace
 
 import numpy as np
 
 from feltlab.standards import table_preset
 from physics.pipeline import analyze_tracks, tables_from_positions
+from physics.settings import PhysicsSettings
 from physics.simulate import BallInit, SimParams, simulate
 
 TABLE = table_preset("pool-9ft")
@@ -76,7 +78,7 @@ def make_shot(rng: np.random.Generator, i: int):
     raise RuntimeError("could not place a shot")
 
 
-def run_shot(balls, params, t_end, fps, sigma, rng, rest_before_s=0.0):
+def run_shot(balls, params, t_end, fps, sigma, rng, rest_before_s=0.0, settings=None):
     res = simulate(balls, params, t_end)
     dt = 1.0 / fps
     t0 = rng.uniform(0, dt)
@@ -89,8 +91,22 @@ def run_shot(balls, params, t_end, fps, sigma, rng, rest_before_s=0.0):
             p[times < 0] = [balls[k].x_mm, balls[k].y_mm]
         pos[bid] = p
     tracks, det = tables_from_positions(times, pos, sigma, rng, fps)
-    out = analyze_tracks(tracks, det, TABLE, R, MASS, fps)
+    out = analyze_tracks(tracks, det, TABLE, R, MASS, fps, settings or PhysicsSettings())
     return res, out
+
+
+def _settings(items: list[str]) -> PhysicsSettings:
+    """PhysicsSettings with ``name=value`` overrides (bool, int, float)."""
+    kw = {}
+    base = PhysicsSettings()
+    for it in items:
+        k, _, v = it.partition("=")
+        cur = getattr(base, k)
+        if isinstance(cur, bool):
+            kw[k] = v.lower() in ("1", "true", "yes", "on")
+        else:
+            kw[k] = type(cur)(v)
+    return replace(base, **kw)
 
 
 def significant(c) -> bool:
@@ -155,7 +171,10 @@ def main() -> None:
     ap.add_argument("--verbose", action="store_true")
     ap.add_argument("--only", type=int, default=None, help="run one shot index and print details")
     ap.add_argument("--start", type=int, default=0, help="first shot index (to split a run)")
+    ap.add_argument("--set", action="append", default=[], metavar="NAME=VALUE",
+                    help="override a PhysicsSettings field (repeatable), e.g. slip_prior=false")
     a = ap.parse_args()
+    settings = _settings(a.set)
     fps_list = [float(f) for f in a.fps.split(",")]
     stats = {f: dict(bb=[], bc=[], z=[], dt=[], mu=[], missed=0, false=0, n=0, time=0.0) for f in fps_list}
     for i in range(a.start, a.n) if a.only is None else [a.only]:
@@ -165,7 +184,7 @@ def main() -> None:
             sigma = rng.uniform(0.2, 0.5)
             rest = 0.1 if kind == "cut-rest" else 0.0
             t0 = time.perf_counter()
-            res, out = run_shot(balls, params, t_end, fps, sigma, rng, rest)
+            res, out = run_shot(balls, params, t_end, fps, sigma, rng, rest, settings)
             s = stats[fps]
             s["time"] += time.perf_counter() - t0
             pairs, missed, false = match(res, out, fps)
