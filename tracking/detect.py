@@ -8,8 +8,14 @@ origin at the centre of the top-left pixel):
    ball-sized blobs that differ from a large-kernel median of the cloth are
    painted over with the surrounding cloth (``cv2.inpaint``); the result is the
    empty cloth, and a resting ball shows up as foreground in every frame.
-2. Foreground strength ``d`` = colour distance |frame - background| (DN).
-   Candidates are the peaks of ``d > threshold`` correlated with a paraboloid
+2. Foreground strength ``d`` = CIE 1976 colour difference Delta-E*ab
+   between frame and background (CIELAB, D65; CIE 15:2004), scaled by the
+   local noise level so that the threshold is a fixed multiple of the
+   background's own Delta-E noise in every region (dark corners of a
+   vignetted table are noisier in L*a*b* than the lit centre). A perceptual
+   difference separates a ball of the cloth's luminance but another hue, and
+   weights a shadow (mostly a drop of L*) far less than the RGB distance does
+   on dark cloth. Candidates are the peaks of ``d > threshold`` correlated with a paraboloid
    disc of the expected ball radius (from the calibration), so touching balls
    in a cluster give one peak each (their centres are two radii apart).
 3. Sub-pixel centre: rays are cast from the candidate; along each ray the
@@ -192,7 +198,9 @@ class Background:
     image: float32 (H, W, 3) BGR, DN, the cloth with no balls; median: the raw
     temporal median (uint8); mask: uint8 (H, W), 1 where a ball's silhouette
     may appear; roi: (x0, y0, x1, y1) bounding box of ``mask``;
-    noise_dn: per-channel noise sigma (DN); threshold_dn: foreground level;
+    noise_dn: robust per-axis noise sigma of the frame-background Delta-E*ab
+    (CIELAB units, despite the historical name); threshold_dn: foreground
+    level in the same units;
     radius_px: median expected ball radius over the table;
     static_px: (N,2) centres of blobs painted out of the median (balls that
     never moved).
@@ -211,6 +219,24 @@ class Background:
     radius_grid: np.ndarray | None = None
     offset_grid: np.ndarray | None = None
     grid_step: int = 32
+    #: CIELAB image of ``image`` (float32 H,W,3); built on first use if None.
+    lab: np.ndarray | None = None
+    #: Per-pixel weight (float32 H,W) = mask x (global / local noise sigma):
+    #: ``d`` = Delta-E x weight, so one threshold means the same number of
+    #: local noise sigmas everywhere. None: the mask alone.
+    weight: np.ndarray | None = None
+
+    def lab_image(self) -> np.ndarray:
+        """CIELAB background (float32 H,W,3), cached."""
+        if self.lab is None:
+            self.lab = to_lab(self.image)
+        return self.lab
+
+    def weight_map(self) -> np.ndarray:
+        """Foreground weight (float32 H,W): mask x noise normalisation, cached."""
+        if self.weight is None:
+            self.weight = self.mask.astype(np.float32)
+        return self.weight
 
     def lookup(self, x: float, y: float) -> tuple[float, float, float]:
         """(expected radius px, offset x px, offset y px) at image point (x, y), bilinear."""
@@ -227,9 +253,44 @@ class Background:
         return float(bil(self.radius_grid)), float(bil(self.offset_grid[..., 0])), float(bil(self.offset_grid[..., 1]))
 
 
+def to_lab(bgr: np.ndarray) -> np.ndarray:
+    """BGR image (0..255, any dtype) -> CIELAB float32 (L* 0..100, a*, b*), sRGB/D65.
+
+    OpenCV converts float32 input in 0..1 without quantisation (true L*a*b*).
+
+    >>> np.round(to_lab(np.array([[[255, 255, 255]]], np.uint8))[0, 0], 2).tolist()
+    [100.0, 0.0, 0.0]
+    """
+    return cv2.cvtColor(np.asarray(bgr, np.float32) * np.float32(1.0 / 255.0), cv2.COLOR_BGR2Lab)
+
+
+def delta_e76(lab_a: np.ndarray, lab_b: np.ndarray) -> np.ndarray:
+    """CIE 1976 colour difference Delta-E*ab = |Lab_a - Lab_b| (float32, per pixel)."""
+    diff = cv2.subtract(np.asarray(lab_a, np.float32), np.asarray(lab_b, np.float32))
+    return cv2.sqrt(cv2.transform(cv2.multiply(diff, diff), np.ones((1, 3), np.float32)))
+
+
 def _colour_distance(a: np.ndarray, b: np.ndarray) -> np.ndarray:
-    diff = a.astype(np.float32) - b.astype(np.float32)
-    return np.sqrt(np.sum(diff * diff, axis=2))
+    """Delta-E*ab between two BGR images (0..255)."""
+    return delta_e76(to_lab(a), to_lab(b))
+
+
+def local_noise(de_stack: np.ndarray, valid: np.ndarray, window_px: float, floor: float) -> np.ndarray:
+    """Per-pixel Delta-E noise sigma (float32 H,W) from per-frame Delta-E maps (N,H,W).
+
+    Per pixel: temporal median of Delta-E / 1.538 (the median length of 3-axis
+    Gaussian noise is 1.538 sigma); then averaged over a box ``window_px``
+    wide using ``valid`` pixels only (balls at rest or passing are excluded
+    and filled from their surroundings; normalised convolution); >= floor.
+    """
+    sig = np.median(de_stack, axis=0).astype(np.float32) / np.float32(1.538)
+    v = valid.astype(np.float32)
+    k = max(3, int(round(window_px)) | 1)
+    num = cv2.boxFilter(sig * v, -1, (k, k), normalize=True, borderType=cv2.BORDER_REFLECT)
+    den = cv2.boxFilter(v, -1, (k, k), normalize=True, borderType=cv2.BORDER_REFLECT)
+    ok = den > 1e-3
+    loc = np.where(ok, num / np.maximum(den, 1e-6), np.median(sig[valid]) if valid.any() else floor)
+    return np.maximum(loc, floor).astype(np.float32)
 
 
 def build_background(frames: list[np.ndarray], calibration: Calibration,
@@ -274,7 +335,7 @@ def build_background(frames: list[np.ndarray], calibration: Calibration,
     # model; keep balls whose centre lies on the cloth (a pocket or rail
     # feature cannot have its centre more than ~a radius inside the nose line).
     provisional = Background(image=cloth.astype(np.float32), median=med, mask=mask, roi=roi, noise_dn=noise0,
-                             threshold_dn=float(max(settings.fg_sigma * noise0, settings.fg_min_dn)),
+                             threshold_dn=float(max(settings.fg_sigma * noise0, settings.fg_min_de)),
                              radius_px=r_px, radius_grid=rad, offset_grid=off, grid_step=step)
     found = detect_frame(med, cal, settings, provisional)
     L, W = cal.table.length_mm, cal.table.width_mm
@@ -291,18 +352,30 @@ def build_background(frames: list[np.ndarray], calibration: Calibration,
         img = cv2.inpaint(med, paint, int(round(r_px)), cv2.INPAINT_TELEA)
     bg = img.astype(np.float32)
 
-    # Noise: per-channel sigma from the frame-to-background distance (the
-    # distance of 3-channel Gaussian noise is sigma * chi_3, median 1.538 sigma).
+    # Noise: per-axis sigma of the frame-to-background Delta-E (the length of
+    # 3-axis Gaussian noise is sigma * chi_3, median 1.538 sigma), globally and
+    # per region (normalised to the global level through ``weight``).
     x0, y0, x1, y1 = roi
-    samples = []
-    for f in frames[:: max(1, len(frames) // 5)]:
-        dd = _colour_distance(f[y0:y1, x0:x1], bg[y0:y1, x0:x1])[mask[y0:y1, x0:x1] > 0]
-        samples.append(np.median(dd) / 1.538)
-    noise = float(max(np.median(samples), 0.5))
-    thr = float(max(settings.fg_sigma * noise, settings.fg_min_dn))
+    bg_lab = to_lab(bg)
+    mroi = mask[y0:y1, x0:x1] > 0
+    des = np.stack([delta_e76(to_lab(f[y0:y1, x0:x1]), bg_lab[y0:y1, x0:x1])
+                    for f in frames[:: max(1, len(frames) // settings.noise_frames)]], axis=0)
+    med_de = np.median(des, axis=0)
+    noise0 = max(float(np.median(med_de[mroi])) / 1.538, settings.noise_min_de)
+    # pixels that look like a ball in the median (a resting ball, painted out
+    # of the background) say nothing about the cloth's noise
+    quiet = mroi & (med_de < 0.5 * settings.fg_sigma * noise0)
+    loc = local_noise(des, quiet, settings.noise_window * r_px, settings.noise_min_de)
+    noise = float(np.median(loc[mroi]))
+    thr = float(max(settings.fg_sigma * noise, settings.fg_min_de))
+    # d = Delta-E x noise / local noise: one threshold = the same number of
+    # local sigmas everywhere (clipped to [1/3, 3]: a bad estimate can neither
+    # silence nor flood a region)
+    weight = np.zeros((h, w), np.float32)
+    weight[y0:y1, x0:x1] = np.clip(noise / loc, 1.0 / 3.0, 3.0) * mroi
     return Background(image=bg, median=med, mask=mask, roi=roi, noise_dn=noise, threshold_dn=thr,
                       radius_px=r_px, static_px=np.array(static).reshape(-1, 2),
-                      radius_grid=rad, offset_grid=off, grid_step=step)
+                      radius_grid=rad, offset_grid=off, grid_step=step, lab=bg_lab, weight=weight)
 
 
 # --------------------------------------------------------------------------- candidates
@@ -773,24 +846,24 @@ def colour_summary(image: np.ndarray, x: float, y: float, r: float,
 
 # --------------------------------------------------------------------------- one frame
 def foreground_strength(image: np.ndarray, background: Background) -> np.ndarray:
-    """Colour distance |image - background| (DN) inside the surface ROI, 0 elsewhere (float32)."""
+    """Noise-weighted Delta-E*ab of image vs background inside the surface ROI, 0 elsewhere (float32)."""
     x0, y0, x1, y1 = background.roi
     d = np.zeros(image.shape[:2], np.float32)
-    diff = cv2.subtract(image[y0:y1, x0:x1].astype(np.float32), background.image[y0:y1, x0:x1])
-    sq = cv2.multiply(diff, diff)
-    d[y0:y1, x0:x1] = cv2.sqrt(cv2.transform(sq, np.ones((1, 3), np.float32))) * background.mask[y0:y1, x0:x1]
+    d[y0:y1, x0:x1] = delta_e76(to_lab(image[y0:y1, x0:x1]), background.lab_image()[y0:y1, x0:x1]) \
+        * background.weight_map()[y0:y1, x0:x1]
     return d
 
 
 def _half_res_background(bg: Background) -> tuple[np.ndarray, np.ndarray]:
-    """Half-resolution background and mask over the ROI (cached on the Background)."""
+    """Half-resolution CIELAB background and weight over the ROI (cached on the Background)."""
     cache = getattr(bg, "_half", None)
     if cache is None:
         x0, y0, x1, y1 = bg.roi
         size = ((x1 - x0) // 2, (y1 - y0) // 2)
-        sb = cv2.resize(bg.image[y0:y1, x0:x1], size, interpolation=cv2.INTER_AREA)
+        sb = to_lab(cv2.resize(bg.image[y0:y1, x0:x1], size, interpolation=cv2.INTER_AREA))
         sm = cv2.resize(bg.mask[y0:y1, x0:x1].astype(np.float32), size, interpolation=cv2.INTER_AREA)
-        cache = (sb.astype(np.float32), (sm > 0.5).astype(np.float32))
+        sw = cv2.resize(bg.weight_map()[y0:y1, x0:x1], size, interpolation=cv2.INTER_AREA)
+        cache = (sb.astype(np.float32), ((sm > 0.5) * sw).astype(np.float32))
         bg._half = cache
     return cache
 
@@ -811,14 +884,14 @@ def detect_frame(image: np.ndarray, calibration: Calibration, settings: Detectio
     r0 = background.radius_px
     x0, y0, x1, y1 = background.roi
     thr = background.threshold_dn
+    bg_lab, bg_w = background.lab_image(), background.weight_map()
     half_res = r0 >= 6.0
     if half_res:
         # Seeds from a half-resolution foreground map (4x fewer pixels); the
         # full-resolution strength is computed only in patches round the seeds.
         sb, sm_mask = _half_res_background(background)
         small_img = cv2.resize(image[y0:y1, x0:x1], (sb.shape[1], sb.shape[0]), interpolation=cv2.INTER_AREA)
-        diff = cv2.subtract(small_img.astype(np.float32), sb)
-        small = cv2.sqrt(cv2.transform(cv2.multiply(diff, diff), np.ones((1, 3), np.float32))) * sm_mask
+        small = delta_e76(to_lab(small_img), sb) * sm_mask
         d = np.zeros(image.shape[:2], np.float32)
         filled = np.zeros(image.shape[:2], bool)
     else:
@@ -832,9 +905,8 @@ def detect_frame(image: np.ndarray, calibration: Calibration, settings: Detectio
         xa_, ya_, xb_, yb_ = max(xa_, x0), max(ya_, y0), min(xb_, x1), min(yb_, y1)
         if xb_ <= xa_ or yb_ <= ya_ or filled[ya_:yb_, xa_:xb_].all():
             return
-        dd = cv2.subtract(image[ya_:yb_, xa_:xb_].astype(np.float32), background.image[ya_:yb_, xa_:xb_])
-        d[ya_:yb_, xa_:xb_] = cv2.sqrt(cv2.transform(cv2.multiply(dd, dd), np.ones((1, 3), np.float32))) \
-            * background.mask[ya_:yb_, xa_:xb_]
+        d[ya_:yb_, xa_:xb_] = delta_e76(to_lab(image[ya_:yb_, xa_:xb_]), bg_lab[ya_:yb_, xa_:xb_]) \
+            * bg_w[ya_:yb_, xa_:xb_]
         filled[ya_:yb_, xa_:xb_] = True
     fg = np.clip(small / thr - 0.5, 0, 1).astype(np.float32)
     if half_res:

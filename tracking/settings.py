@@ -143,10 +143,24 @@ class DetectionSettings:
     #: (MAD) noise sigma of the frame-background difference (6 sigma: < 1e-8
     #: false pixels per frame for Gaussian noise; standard tail probability).
     fg_sigma: float = 6.0
-    #: Minimum colour distance (DN, 0..255 scale) counted as foreground,
-    #: whatever the noise estimate (compression blocks reach ~5-8 DN; from
+    #: Unused since the foreground test moved to CIELAB (see fg_min_de); kept
+    #: so configs that set it still load. Was: minimum RGB colour distance
+    #: (DN, 0..255 scale) counted as foreground, whatever the noise estimate (compression blocks reach ~5-8 DN; from
     #: inspecting MPEG-4 part 2 output at default quality, from memory).
     fg_min_dn: float = 9.0
+    #: Minimum CIE 1976 Delta-E*ab counted as foreground whatever the noise
+    #: estimate (the foreground test works in CIELAB): ~1.3 x the just-
+    #: noticeable difference Delta-E ~ 2.3 (Sharma, Digital Color Imaging
+    #: Handbook, CRC 2003; from memory); 9 DN at mid-grey is ~3.5.
+    fg_min_de: float = 3.0
+    #: Lower bound of the Delta-E noise sigma (a noiseless render).
+    noise_min_de: float = 0.2
+    #: Frames (of the background samples) whose Delta-E to the background
+    #: gives the noise level; the per-pixel temporal median needs >= ~5.
+    noise_frames: int = 7
+    #: Width (x expected radius px) of the region over which the local noise
+    #: sigma is averaged: ~4 ball diameters, smaller than vignetting scales.
+    noise_window: float = 8.0
     #: Minimum Gaussian-weighted (sigma = r/2) foreground of a candidate (0..1;
     #: a filled disc scores 0.86; 0.6 keeps a ball whose disc is mostly above
     #: threshold, e.g.
