@@ -55,6 +55,8 @@ from scipy.special import erf as _erf
 from tracking.calibration import Calibration
 from tracking.settings import DetectionSettings
 
+#: ``contrast_dn``: mean foreground strength inside 0.6 radius, in noise-weighted
+#: CIE 1976 Delta-E*ab units since the CIELAB foreground test (name kept).
 DETECTION_COLUMNS = [
     "x_px", "y_px", "x_mm", "y_mm", "sx_mm", "sy_mm", "sigma_px", "confidence",
     "radius_px", "radius_expected_px", "support", "contrast_dn",
@@ -552,7 +554,7 @@ def _colour_edge_points(img: np.ndarray, centre: np.ndarray, r_exp: float, setti
 def refine_centre(d: np.ndarray, x0: float, y0: float, r_exp: float,
                   settings: DetectionSettings = DetectionSettings(), image: np.ndarray | None = None,
                   threshold_dn: float | None = None) -> dict | None:
-    """Sub-pixel silhouette centre near (x0, y0) in foreground-strength image ``d`` (DN).
+    """Sub-pixel silhouette centre near (x0, y0) in foreground-strength image ``d`` (Delta-E units).
 
     With ``image`` (the BGR frame) and ``threshold_dn``, rays that end on
     other foreground (a touching ball in a cluster) use the image instead:
