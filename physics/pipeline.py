@@ -302,10 +302,11 @@ def _implied_shift(z: np.ndarray, lay: ChainLayout, j: int, n: np.ndarray) -> fl
     return float((-3.5 * a1 * max(tr1, 0.0) - u_end - (v1 - v_end)) @ n)
 
 
-def _shared_slip_shifts(layouts, fits) -> dict[str, ChainLayout]:
+def _shared_slip_shifts(layouts, fits, s_share_z: float = 3.0) -> dict[str, ChainLayout]:
     """Pass-3 layouts: for each linked ball-ball break with a pass-2 shift prior (X0, s0), the
     other ball's data-only estimate of X (its pass-2 posterior with the prior's information
-    taken out) is combined into the prior. Only balls whose prior changes are returned."""
+    taken out) is combined into the prior, unless the two balls' estimates differ by more than
+    ``s_share_z`` combined sigmas. Only balls whose prior changes are returned."""
     est = {}
     for name, lay in layouts.items():
         f = fits.get(name)
@@ -338,6 +339,9 @@ def _shared_slip_shifts(layouts, fits) -> dict[str, ChainLayout]:
             if len(other) != 1:
                 continue
             Xd, vd, _ = other[0]
+            own = est.get((name, j))
+            if own is not None and abs(own[0] - Xd) > s_share_z * np.sqrt(own[1] + vd):
+                continue  # the two balls disagree: a model error on one side, do not spread it
             s0 = float(lay.slip_shift_sigma[j])
             wt = 1 / s0**2 + 1 / vd
             Xc = (X0 / s0**2 + Xd / vd) / wt
