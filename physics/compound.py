@@ -41,11 +41,6 @@ from physics.settings import PhysicsSettings
 #: Tangential (throw) impulse as a fraction of the velocity change: the published maximum of
 #: ball-ball friction (Physics of Pool FAQ, feltlab.standards.MU_BALL_BALL_RANGE).
 MU_BB_MAX = MU_BALL_BALL_RANGE[1]
-#: Velocity-change floor (mm/s) of a link and of a group's jumping ball. Below this even a
-#: perfect track cannot tell a touch from cloth effects: the sliding friction mu_s g (~2000 mm/s^2,
-#: Physics of Pool FAQ) changes a velocity by ~2 mm/s within a ms, and a ball passing within a
-#: frame of a neighbour at rest is indistinguishable from a touch this soft. Design choice.
-DV_FLOOR_MM_S = 5.0
 #: Note written on the links of a compound event.
 NOTE_SEQUENCE = ("sub-frame sequence: the balls of this group touched within one frame period, so each "
                  "link's own before/after velocities are not seen; e is not measurable, the group's "
@@ -203,7 +198,7 @@ def find_groups(samples: dict[str, BallSamples], times: np.ndarray, P, S, V, see
         for i in range(len(balls)):
             if np.all(np.isfinite(dv[i])):
                 zi = float(np.sqrt(dv[i] @ np.linalg.solve(cov[i] + 1e-9 * np.eye(2), dv[i])))
-                jump.append(zi > s.dv_z and np.hypot(*dv[i]) > DV_FLOOR_MM_S)
+                jump.append(zi > s.dv_z and np.hypot(*dv[i]) > s.link_dv_floor_mm_s)
             else:
                 jump.append(False)
         if not any(jump):
@@ -218,7 +213,7 @@ def find_groups(samples: dict[str, BallSamples], times: np.ndarray, P, S, V, see
         nrm = np.array(nrm)
         sol = solve_links(dv, cov, li, nrm)
         ok = [l for l in range(len(links))
-              if sol.J[l] > max(DV_FLOOR_MM_S, s.dv_z * sol.J_sigma[l])]
+              if sol.J[l] > max(s.link_dv_floor_mm_s, s.dv_z * sol.J_sigma[l])]
         # compound: accepted links that share balls (connected pieces of >= 2 links)
         comp = _components([li[l] for l in ok])
         t_grp = float(np.nanmedian(tb[[i for i in range(len(balls)) if jump[i]]]))

@@ -214,30 +214,18 @@ def kink_fit(
     return KinkFit(float(tb), vpre, vpost, cov * red, red, p_b=pb)
 
 
-#: Longer change-point windows, as multiples of the standard one, tried when a candidate's jump is
-#: not yet significant. A slow ball's velocity changes little over many frames (rolling
-#: deceleration ~100 mm/s^2, Physics of Pool FAQ), so a longer window keeps the two-sided quadratic
-#: model valid while its velocity error falls as window^-3/2: an 80 mm/s touch at 60 fps and 0.4 mm
-#: noise needs ~2x the standard window to pass 5 sigma. The windows still stop at neighbouring
-#: candidates, and a poor model inflates the covariance by its reduced chi^2. Design choice.
-WINDOW_SCALES = (1.0, 2.0, 4.0)
-#: A longer window counts only when the two-sided model still fits it (reduced chi^2 below this;
-#: for ~30 samples a chi^2/dof of 2 is beyond the 99.9 % point). Design choice.
-ESCALATE_MAX_CHI2 = 2.0
-
-
 def kink_fit_windows(b: BallSamples, t_c: float, lo_lim: float, hi_lim: float, guard: float, dt: float,
                      s: PhysicsSettings, n: np.ndarray | None = None, escalate: bool = True,
                      edge_ok: bool = True) -> KinkFit | None:
     """:func:`kink_fit` over the standard window (``side_window_s``, at least ``side_window_frames``
     periods, limited to (lo_lim, hi_lim)); while the jump along ``n`` (or its 2-D size if n is
     None) is below ``dv_z`` standard errors and ``escalate`` is set, longer windows
-    (WINDOW_SCALES) are tried and the most significant fit is returned (a longer window only while
-    the model fits it, ESCALATE_MAX_CHI2). Without ``edge_ok`` a fit whose break sits at the edge
+    (``s.kink_window_scales``) are tried and the most significant fit is returned (a longer window only while
+    the model fits it, ``s.kink_escalate_max_chi2``). Without ``edge_ok`` a fit whose break sits at the edge
     of the scanned frame is no evidence (the change it sees may have happened at another time)."""
     w0 = max(s.side_window_s, s.side_window_frames * dt)
     best, best_z, prev = None, -1.0, None
-    for scale in WINDOW_SCALES if escalate else WINDOW_SCALES[:1]:
+    for scale in s.kink_window_scales if escalate else s.kink_window_scales[:1]:
         lo = max(lo_lim + guard, t_c - scale * w0)
         hi = min(hi_lim - guard, t_c + scale * w0)
         if prev is not None and (lo, hi) == prev:
@@ -247,7 +235,7 @@ def kink_fit_windows(b: BallSamples, t_c: float, lo_lim: float, hi_lim: float, g
         if f is None:
             continue
         edge = abs(f.t_b - t_c) > 0.95 * dt
-        if (scale > 1.0 and f.chi2_red > ESCALATE_MAX_CHI2) or (edge and not edge_ok):
+        if (scale > 1.0 and f.chi2_red > s.kink_escalate_max_chi2) or (edge and not edge_ok):
             continue  # a window that holds another change, or a break at the scan's edge
         dv = f.v_post - f.v_pre
         if n is not None:

@@ -154,6 +154,21 @@ class PhysicsSettings:
     #: restitution difference between them is added to e_sigma as model-choice uncertainty.
     ambiguity_dcost: float = 2.0
 
+    # -- slow touches and compound events (physics.events, physics.compound) ------------------
+    #: Change-point windows tried (multiples of the standard window) while a jump is not yet
+    #: significant. A slow ball's velocity changes little over many frames (rolling deceleration
+    #: ~100 mm/s^2, Physics of Pool FAQ), so a longer window keeps the two-sided quadratic model
+    #: valid while its velocity error falls as window^-3/2: an 80 mm/s touch at 60 fps and 0.4 mm
+    #: noise needs ~2x the standard window to pass 5 sigma. Design choice.
+    kink_window_scales: tuple[float, ...] = (1.0, 2.0, 4.0)
+    #: A longer window counts only while the two-sided model still fits it (reduced chi^2 below
+    #: this; for ~30 samples a chi^2/dof of 2 is beyond the 99.9 % point). Design choice.
+    kink_escalate_max_chi2: float = 2.0
+    #: Velocity-change floor (mm/s) of a compound-event link and of a group's jumping ball: the
+    #: sliding friction mu_s g (~2000 mm/s^2, Physics of Pool FAQ) changes a velocity by ~2 mm/s
+    #: within a ms, so a softer touch cannot be told from cloth effects. Design choice.
+    link_dv_floor_mm_s: float = 5.0
+
     # -- robust fitting ----------------------------------------------------------------------
     #: scipy.optimize.least_squares loss and scale (in standard errors). Design choice: quadratic
     #: up to ~3 sigma, so Gaussian noise keeps full efficiency and outliers lose weight.
