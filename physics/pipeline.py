@@ -232,12 +232,31 @@ def _analyze(tracks, detections, table, ball_radius_mm, ball_mass_kg, fps, setti
         both = contacts.merge(alt[["_cand", "e"]], on="_cand", how="left", suffixes=("", "_alt"))
         d = np.nan_to_num(both["e_alt"].to_numpy(float) - both["e"].to_numpy(float))
         contacts["e_sigma"] = np.sqrt(contacts["e_sigma"].to_numpy(float) ** 2 + d**2)
+    contacts = _drop_non_separating(contacts, cands, s)
     # compound events (several balls touching within one frame): group columns, e NaN per link
     contacts = annotate_groups(contacts, cands, fits, maps, m)
     segments, _ = _segments_table(fits, samples, s2)
     events = _events_table(samples, fits, layouts, maps, contacts, segments, dt, s)
     return ShotPhysics(events, segments, contacts, *mu, fits=fits,
                        rest_xy={k: o.rest_xy for k, o in onsets.items() if o.rest_xy is not None})
+
+
+def _drop_non_separating(contacts: pd.DataFrame, cands, s: PhysicsSettings) -> pd.DataFrame:
+    """Contacts whose fitted motion still approaches after the break (e below 0 by more than
+    ``s.e_reject_z`` sigmas) have lost their kinematic evidence in the fit and are not reported:
+    a contact needs both kinds of evidence (module docstring of physics.events). Links of
+    compound events are kept (their pairwise e is not used)."""
+    if not len(contacts):
+        return contacts
+    grouped = np.array([getattr(cands[int(k)], "group", 0) > 0 for k in contacts["_cand"]], bool)
+    e = contacts["e"].to_numpy(float)
+    sig = np.nan_to_num(contacts["e_sigma"].to_numpy(float), nan=np.inf)
+    bad = ~grouped & np.isfinite(e) & (e + s.e_reject_z * sig < 0)
+    if not bad.any():
+        return contacts
+    out = contacts[~bad].reset_index(drop=True)
+    out["contact"] = np.arange(len(out))
+    return out
 
 
 def _with_slip_shifts(layouts, cands, fits, maps, R, dt, s: PhysicsSettings):

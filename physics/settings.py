@@ -169,6 +169,12 @@ class PhysicsSettings:
     #: within a ms, so a softer touch cannot be told from cloth effects. Design choice.
     link_dv_floor_mm_s: float = 5.0
 
+    #: A contact whose fitted restitution is below 0 by more than this many sigmas (the fitted
+    #: motion still approaches after the break) is not reported: its kinematic evidence did not
+    #: survive the fit. 2 sigma: ~2.3 % of true contacts with e near 0 would be lost, and true
+    #: restitution is >= 0.5 for every published ball and cushion (feltlab.standards). Design choice.
+    e_reject_z: float = 2.0
+
     # -- robust fitting ----------------------------------------------------------------------
     #: scipy.optimize.least_squares loss and scale (in standard errors). Design choice: quadratic
     #: up to ~3 sigma, so Gaussian noise keeps full efficiency and outliers lose weight.

@@ -144,3 +144,22 @@ def test_speed_in_and_impulse_signs():
     assert r.speed_in_mm_s == pytest.approx(1500.0 * math.cos(math.radians(20.0)), rel=0.01)
     assert r.impulse_n_Ns > 0 and abs(r.impulse_t_Ns) < 0.05 * r.impulse_n_Ns
     assert r.momentum_residual_pct < 2.0
+
+
+def test_contacts_whose_fit_shows_no_separation_are_dropped():
+    # Both kinds of evidence are required (physics.events docstring): published restitution is
+    # >= 0.5 for balls and cushions (feltlab.standards, Physics of Pool FAQ ranges), so a fitted
+    # e below 0 by more than 2 sigma means the fitted motion still approaches after the break.
+    from types import SimpleNamespace
+
+    import pandas as pd
+
+    from physics.pipeline import _drop_non_separating
+    from physics.settings import PhysicsSettings
+
+    cands = [SimpleNamespace(group=0), SimpleNamespace(group=0), SimpleNamespace(group=0), SimpleNamespace(group=2)]
+    df = pd.DataFrame({"contact": [0, 1, 2, 3], "_cand": [0, 1, 2, 3], "e": [0.93, -1.1, -0.05, -0.9],
+                       "e_sigma": [0.01, 0.2, 0.05, 0.1]})
+    out = _drop_non_separating(df, cands, PhysicsSettings())
+    assert out["_cand"].tolist() == [0, 2, 3]  # -1.1 +- 0.2 dropped; -0.05 +- 0.05 within noise; link kept
+    assert out["contact"].tolist() == [0, 1, 2]
