@@ -35,7 +35,7 @@ import pandas as pd
 from scipy.optimize import nnls
 
 from feltlab.standards import MU_BALL_BALL_RANGE
-from physics.events import BallSamples, ContactCandidate, kink_fit_windows, local_speed
+from physics.events import BallSamples, ContactCandidate, kink_fit_windows, local_speed, pair_gaps
 from physics.settings import PhysicsSettings
 
 #: Tangential (throw) impulse as a fraction of the velocity change: the published maximum of
@@ -103,20 +103,6 @@ def solve_links(dv: np.ndarray, cov: np.ndarray, links: list[tuple[int, int]],
     return LinkSolve(J, sig, red, dof)
 
 
-def _pair_gaps(P, S, V, names, radius_mm, dt, s):
-    """Per pair (a, b): gap (K,) mm and its touching margin (K,) mm (as in events.find_contacts)."""
-    out = {}
-    for i, a in enumerate(names):
-        for b in names[i + 1:]:
-            d = P[b] - P[a]
-            g = np.hypot(d[:, 0], d[:, 1]) - 2 * radius_mm
-            vrel = np.nan_to_num(V[a], nan=0.0) + np.nan_to_num(V[b], nan=0.0)
-            sg = np.hypot(np.nan_to_num(S[a], nan=1.0), np.nan_to_num(S[b], nan=1.0))
-            margin = s.gap_margin_mm + s.gap_margin_sigma * sg + s.gap_margin_frames * vrel * dt
-            out[(a, b)] = (g, margin)
-    return out
-
-
 def find_groups(samples: dict[str, BallSamples], times: np.ndarray, P, S, V, seeds, cand_t,
                 radius_mm: float, dt: float, s: PhysicsSettings,
                 accepted: list[ContactCandidate] = ()) -> list[ContactCandidate]:
@@ -129,7 +115,7 @@ def find_groups(samples: dict[str, BallSamples], times: np.ndarray, P, S, V, see
     with ``group`` set.
     """
     names = sorted(samples)
-    gaps = _pair_gaps(P, S, V, names, radius_mm, dt, s)
+    gaps = {k: (g, margin) for k, (_, g, _, margin) in pair_gaps(P, S, V, names, radius_mm, dt, s).items()}
     K = len(times)
     moving = {}
     for nm, bs in samples.items():

@@ -273,6 +273,22 @@ class ContactCandidate:
     simultaneous: bool = False
 
 
+def pair_gaps(P, S, V, names, radius_mm: float, dt: float, s: PhysicsSettings) -> dict:
+    """Per ball pair (a, b) on the common time grid: centre offset d (K,2) mm, gap g (K,) mm
+    (centre distance - 2R), summed speeds vrel (K,) mm/s and the touching margin (K,) mm that
+    allows for the position sigmas and ``gap_margin_frames`` frames of travel."""
+    out = {}
+    for i, a in enumerate(names):
+        for b in names[i + 1:]:
+            d = P[b] - P[a]
+            g = np.hypot(d[:, 0], d[:, 1]) - 2 * radius_mm
+            vrel = np.nan_to_num(V[a], nan=0.0) + np.nan_to_num(V[b], nan=0.0)
+            sg = np.hypot(np.nan_to_num(S[a], nan=1.0), np.nan_to_num(S[b], nan=1.0))
+            margin = s.gap_margin_mm + s.gap_margin_sigma * sg + s.gap_margin_frames * vrel * dt
+            out[(a, b)] = (d, g, vrel, margin)
+    return out
+
+
 def _local_minima(g: np.ndarray) -> np.ndarray:
     """Indices of interior local minima of a sequence with NaNs (NaN neighbours count as larger)."""
     gg = np.where(np.isfinite(g), g, np.inf)
@@ -334,18 +350,12 @@ def find_contacts(
                 if g[k] < margin[k] and V[a][k] > s.rest_speed_mm_s:
                     geo.append(("ball-cushion", a, "", c, k, float(g[k]), n))
                     run[("ball-cushion", a, "", c, k)] = _run_start(g < margin, k)
-    for i, a in enumerate(names):
-        for b in names[i + 1:]:
-            d = P[b] - P[a]
-            g = np.hypot(d[:, 0], d[:, 1]) - 2 * radius_mm
-            vrel = np.nan_to_num(V[a], nan=0.0) + np.nan_to_num(V[b], nan=0.0)
-            sg = np.hypot(np.nan_to_num(S[a], nan=1.0), np.nan_to_num(S[b], nan=1.0))
-            margin = s.gap_margin_mm + s.gap_margin_sigma * sg + s.gap_margin_frames * vrel * dt
-            for k in _local_minima(g):
-                if g[k] < margin[k] and vrel[k] > s.rest_speed_mm_s:
-                    n = d[k] / np.hypot(*d[k])
-                    geo.append(("ball-ball", a, b, "", k, float(g[k]), n))
-                    run[("ball-ball", a, b, "", k)] = _run_start(g < margin, k)
+    for (a, b), (d, g, vrel, margin) in pair_gaps(P, S, V, names, radius_mm, dt, s).items():
+        for k in _local_minima(g):
+            if g[k] < margin[k] and vrel[k] > s.rest_speed_mm_s:
+                n = d[k] / np.hypot(*d[k])
+                geo.append(("ball-ball", a, b, "", k, float(g[k]), n))
+                run[("ball-ball", a, b, "", k)] = _run_start(g < margin, k)
     # candidate times per ball: limit the change-point windows to the neighbouring candidates
     cand_t: dict[str, list[tuple[float, tuple]]] = {nm: [] for nm in names}
     same: dict[tuple, int] = {}  # (key, time) -> touching run: minima in one run are one contact
