@@ -103,10 +103,31 @@ def describe_contact(c: dict) -> str:
         if _ok(ang.get("rebound_deg")):
             s += f", {ang['rebound_deg']:.0f}° from the normal"
         parts.append(s)
-    parts.append(f"e = {pm(c.get('e'), c.get('e_sigma'))}")
+    if _ok(c.get("group")) and _f(c["group"]) > 0 and not _ok(c.get("e")):
+        parts.append(group_words(c))
+    else:
+        parts.append(f"e = {pm(c.get('e'), c.get('e_sigma'))}")
     if _ok(c.get("ke_loss_frac")):
         parts.append(f"{100 * _f(c['ke_loss_frac']):.1f}% of the kinetic energy lost")
     return head + "; ".join(parts) + "."
+
+
+def group_words(c: dict) -> str:
+    """Plain words for one link of a compound event (balls touching within one frame; pure).
+
+    >>> group_words({"group": 2, "group_balls": "blue red yellow", "group_momentum_residual_pct": 3.0,
+    ...     "group_momentum_residual_sigma_pct": 1.0, "group_ke_loss_frac": 0.12})
+    "one of the touches of group 2 (blue red yellow), all within one frame, so this touch's own e cannot be seen; the group's momentum changed by 3.0 ± 1.0% and it lost 12.0% of its kinetic energy"
+    """
+    s = f"one of the touches of group {int(_f(c['group']))}"
+    if str(c.get("group_balls", "") or ""):
+        s += f" ({c['group_balls']})"
+    s += ", all within one frame, so this touch's own e cannot be seen"
+    if _ok(c.get("group_momentum_residual_pct")):
+        s += f"; the group's momentum changed by {pm(c['group_momentum_residual_pct'], c.get('group_momentum_residual_sigma_pct'), 1)}%"
+    if _ok(c.get("group_ke_loss_frac")):
+        s += f" and it lost {100 * _f(c['group_ke_loss_frac']):.1f}% of its kinetic energy"
+    return s
 
 
 def speed_band(v_mm_s: float) -> str | None:
