@@ -518,3 +518,30 @@ def test_cli_writes_result_folder(tmp_path, monkeypatch):
     assert not (tmp_path / "o" / "drill" / "annotated.mp4").exists()
     shot = json.loads((tmp_path / "o" / "drill" / "shot.json").read_text())
     assert shot["fps_source"] == "override" and shot["settings"]["fps"] == 60.0
+
+
+def test_diagram_labels_a_compound_event_once_and_never_prints_nan(tmp_path, monkeypatch):
+    # Links of a compound event (balls touching within one frame) carry no per-link angles (e and
+    # velocities cannot be separated), so the diagram gives the group one label.
+    import matplotlib.axes
+
+    tracks, contacts, _, _ = synthetic_shot()
+    bb = contacts[contacts["kind"] == "ball-ball"].iloc[[0]]
+    links = pd.concat([bb] * 3, ignore_index=True)
+    for col in ("va_out_x_mm_s", "va_out_y_mm_s", "vb_out_x_mm_s", "vb_out_y_mm_s"):
+        links[col] = np.nan
+    links["group"], links["group_balls"] = 1, "a b c d"
+    rest = contacts.assign(group=-1, group_balls="")
+    allc = pd.concat([rest, links], ignore_index=True)
+    allc["contact"] = np.arange(len(allc))
+    texts = []
+    real = matplotlib.axes.Axes.annotate
+
+    def spy(self, text, *a, **k):
+        texts.append(str(text))
+        return real(self, text, *a, **k)
+
+    monkeypatch.setattr(matplotlib.axes.Axes, "annotate", spy)
+    plot_out.table_diagram(tracks, allc, TABLE, R, tmp_path / "table.png")
+    assert not any("nan" in t.lower() for t in texts), texts
+    assert sum("3 touches within one frame" in t for t in texts) == 1, texts

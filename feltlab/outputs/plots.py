@@ -38,6 +38,15 @@ DPI = 110
 MAX_SPEED_PANELS = 6
 
 
+def _group_id(c: dict) -> int:
+    """Compound-event id of a contact row (> 0), or -1 (missing, NaN or not part of a group)."""
+    try:
+        g = float(c.get("group", -1))
+    except (TypeError, ValueError):
+        return -1
+    return int(g) if np.isfinite(g) else -1
+
+
 def moving_balls(tracks: pd.DataFrame) -> list[str]:
     """Balls whose track spans more than ``MOVED_MM``, cue first."""
     out = []
@@ -204,6 +213,7 @@ def table_diagram(tracks: pd.DataFrame, contacts: pd.DataFrame | None, table, ba
         ax.add_patch(Circle(xy[-1], R, facecolor=c, edgecolor="0.1", lw=0.8, alpha=0.55, zorder=6))
         ax.annotate(b, xy[0], xytext=(7, 7), textcoords="offset points", fontsize=8, color="0.1", zorder=8)
     if contacts is not None:
+        labelled_groups: set[int] = set()
         for _, row in contacts.iterrows():
             c = row.to_dict()
             cp = np.array([c.get("x_mm", np.nan), c.get("y_mm", np.nan)], float)
@@ -211,17 +221,34 @@ def table_diagram(tracks: pd.DataFrame, contacts: pd.DataFrame | None, table, ba
             if not np.isfinite(cp).all():
                 continue
             ax.plot(*cp, marker="x", color="black", ms=7, mew=1.8, zorder=9)
-            ang = departure_angles(c)
-            if c.get("kind") == "ball-ball":
+            grp = _group_id(c)
+            if grp > 0:  # a compound event: one label for all its touches, no per-link circles
+                if grp in labelled_groups:
+                    continue
+                labelled_groups.add(grp)
+                ids = contacts.loc[contacts["group"] == c["group"], "contact"].astype(int)
+                txt = (f"C{ids.min()}-C{ids.max()}  {len(ids)} touches within one frame"
+                       + (f"\n({c['group_balls']})" if str(c.get("group_balls", "") or "") else ""))
+            elif c.get("kind") == "ball-ball":
+                ang = departure_angles(c)
                 if np.isfinite(n).all():
                     for sgn, who in ((-1, c["ball_a"]), (1, c["ball_b"])):
                         ctr = cp + sgn * R * n
                         ax.add_patch(Circle(ctr, R, facecolor="none", edgecolor=mpl(cols.get(str(who), (0, 0, 0))),
                                             ls="--", lw=1.0, zorder=7))
-                txt = (f"C{c['contact']}  {c['ball_b']} leaves {ang['object_deg']:.1f}°,"
-                       f"\n{c['ball_a']} {ang['cue_deg']:.1f}° off {c['ball_a']}'s path")
+                words = []
+                if np.isfinite(ang.get("object_deg", np.nan)):
+                    words.append(f"{c['ball_b']} leaves {ang['object_deg']:.1f}°")
+                if np.isfinite(ang.get("cue_deg", np.nan)):
+                    words.append(f"{c['ball_a']} {ang['cue_deg']:.1f}° off {c['ball_a']}'s path")
+                txt = f"C{c['contact']}  " + (",\n".join(words) if words else f"{c['ball_a']} - {c['ball_b']}")
             else:
-                txt = f"C{c['contact']}  in {ang['incidence_deg']:.1f}°, out {ang['rebound_deg']:.1f}°\nfrom the normal"
+                ang = departure_angles(c)
+                if np.isfinite(ang.get("incidence_deg", np.nan)) and np.isfinite(ang.get("rebound_deg", np.nan)):
+                    txt = (f"C{c['contact']}  in {ang['incidence_deg']:.1f}°, out {ang['rebound_deg']:.1f}°"
+                           "\nfrom the normal")
+                else:
+                    txt = f"C{c['contact']}  {c['ball_a']} on cushion {c.get('cushion', '')}"
             # Put the label towards the table centre so it stays on the drawing.
             d = np.array([L / 2, W / 2]) - cp
             d = d / (np.linalg.norm(d) + 1e-9)
