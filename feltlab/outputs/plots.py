@@ -24,6 +24,7 @@ import numpy as np  # noqa: E402
 import pandas as pd  # noqa: E402
 from matplotlib.patches import Circle, Rectangle  # noqa: E402
 
+from feltlab.outputs.label_layout import LabelSpec, place_labels  # noqa: E402
 from feltlab.outputs.style import ROLL_RGB, SLIDE_RGB, ball_colours, ball_order, mpl  # noqa: E402
 
 #: A ball whose track spans less than this (mm) is drawn as "did not move".
@@ -201,6 +202,9 @@ def table_diagram(tracks: pd.DataFrame, contacts: pd.DataFrame | None, table, ba
     fig, ax = plt.subplots(figsize=(fig_w, fig_w * (W + 2 * CUSHION_DRAW_MM + 260) / (L + 2 * CUSHION_DRAW_MM + 80)))
     _draw_table(ax, table)
     R = ball_radius_mm
+    name_specs: list[LabelSpec] = []
+    contact_specs: list[LabelSpec] = []
+    path_pts: list[np.ndarray] = []
     for b in ball_order(tracks["ball"].unique()):
         g = tracks[tracks["ball"] == b].sort_values("t_s")
         xy = g[["x_mm", "y_mm"]].to_numpy(float)
@@ -211,7 +215,11 @@ def table_diagram(tracks: pd.DataFrame, contacts: pd.DataFrame | None, table, ba
         ax.plot(xy[:, 0], xy[:, 1], color=c, lw=1.6, zorder=5, label=b)
         ax.add_patch(Circle(xy[0], R, facecolor="none", edgecolor=c, lw=1.4, zorder=6))
         ax.add_patch(Circle(xy[-1], R, facecolor=c, edgecolor="0.1", lw=0.8, alpha=0.55, zorder=6))
-        ax.annotate(b, xy[0], xytext=(7, 7), textcoords="offset points", fontsize=8, color="0.1", zorder=8)
+        name_specs.append(LabelSpec(tuple(xy[0]), str(b), prefer=(1.0, 1.0), radii_pt=(5.0, 10.0, 18.0, 30.0),
+                                    leader_from_pt=15.0, style=dict(fontsize=8, color="0.1", zorder=8)))
+        path_pts.append(xy[:: max(1, len(xy) // 400)])
+        # start and end circles count as many path points: a label should not hide a ball
+        path_pts.append(np.repeat(xy[[0, -1]], 12, axis=0))
     if contacts is not None:
         labelled_groups: set[int] = set()
         for _, row in contacts.iterrows():
@@ -249,13 +257,10 @@ def table_diagram(tracks: pd.DataFrame, contacts: pd.DataFrame | None, table, ba
                            "\nfrom the normal")
                 else:
                     txt = f"C{c['contact']}  {c['ball_a']} on cushion {c.get('cushion', '')}"
-            # Put the label towards the table centre so it stays on the drawing.
+            # Prefer the side towards the table centre, so the label stays on the drawing.
             d = np.array([L / 2, W / 2]) - cp
-            d = d / (np.linalg.norm(d) + 1e-9)
-            ax.annotate(txt, cp, xytext=(cp + d * 170), fontsize=8, zorder=10, multialignment="left",
-                        ha="left" if d[0] >= 0 else "right", va="bottom" if d[1] >= 0 else "top",
-                        bbox=dict(boxstyle="round,pad=0.25", fc="white", ec="0.6", alpha=0.9),
-                        arrowprops=dict(arrowstyle="-", color="0.4", lw=0.7))
+            contact_specs.append(LabelSpec(tuple(cp), txt, prefer=tuple(d), style=dict(
+                fontsize=8, zorder=10, bbox=dict(boxstyle="round,pad=0.25", fc="white", ec="0.6", alpha=0.9))))
     ax.set_xlim(-CUSHION_DRAW_MM - 10, L + CUSHION_DRAW_MM + 10)
     ax.set_ylim(-CUSHION_DRAW_MM - 10, W + CUSHION_DRAW_MM + 10)
     ax.set_aspect("equal")
@@ -270,6 +275,10 @@ def table_diagram(tracks: pd.DataFrame, contacts: pd.DataFrame | None, table, ba
               title_fontsize=8)
     ax.set_title(title or f"Top view, to scale ({table.name}, {L:.0f} x {W:.0f} mm)", loc="left", fontsize=11)
     fig.tight_layout()
+    # Labels last, once the layout is final: contact labels first (they matter
+    # most), then ball names, none covering another.
+    fig.set_dpi(DPI)
+    place_labels(ax, contact_specs + name_specs, np.vstack(path_pts) if path_pts else None)
     fig.savefig(path, dpi=DPI)
     plt.close(fig)
     return Path(path)
