@@ -168,6 +168,12 @@ class PhysicsSettings:
     #: sliding friction mu_s g (~2000 mm/s^2, Physics of Pool FAQ) changes a velocity by ~2 mm/s
     #: within a ms, so a softer touch cannot be told from cloth effects. Design choice.
     link_dv_floor_mm_s: float = 5.0
+    #: A pairwise contact's two balls must change their normal velocities alike (one impulse,
+    #: equal masses): the smaller change must reach this fraction of the larger, within dv_z
+    #: standard errors. Half: allows a cue ball up to twice an object ball's mass (the equal-mass
+    #: model; heavier coin-op cue balls are ~10-25 % heavier, from memory) and a few % of fit bias.
+    #: A ball that changes far less was pushed by another ball at that time. Physics, not tuned.
+    pair_impulse_ratio_min: float = 0.5
 
     #: A contact whose fitted restitution is below 0 by more than this many sigmas (the fitted
     #: motion still approaches after the break) is not reported: its kinematic evidence did not
