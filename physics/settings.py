@@ -174,6 +174,12 @@ class PhysicsSettings:
     #: model; heavier coin-op cue balls are ~10-25 % heavier, from memory) and a few % of fit bias.
     #: A ball that changes far less was pushed by another ball at that time. Physics, not tuned.
     pair_impulse_ratio_min: float = 0.5
+    #: Contacts have no energy source: the touching balls' translational kinetic energy just after
+    #: (fitted velocities at the break) must not exceed the energy before by more than this
+    #: fraction plus dv_z standard errors (restitution <= 1; spin is not turned into speed within
+    #: the ~0.3 ms contact, REFERENCES.md). A jump of resting neighbours found in a window that
+    #: reaches a later hit breaks it. 10 %: bias of velocities extrapolated to the break. Design choice.
+    ke_gain_tol: float = 0.1
 
     #: A contact whose fitted restitution is below 0 by more than this many sigmas (the fitted
     #: motion still approaches after the break) is not reported: its kinematic evidence did not
