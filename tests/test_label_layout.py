@@ -62,3 +62,26 @@ def test_lone_label_goes_the_preferred_way():
     a = ax.transData.transform((20.0, 50.0))
     assert bb.x0 > a[0]  # to the right of its anchor, as asked
     plt.close(fig)
+
+
+def test_ball_names_in_a_tight_rack_touch_no_other_ball_or_name():
+    # A 15-ball triangle of touching balls (r = 11 px) as seen in a 1280x720
+    # frame: every name box must clear every other ball's disc and every other
+    # name box (plain rectangle/disc geometry).
+    from feltlab.outputs.frames import layout_ball_names
+
+    r, fs = 11.0, 18
+    names = []
+    for row in range(5):
+        for k in range(row + 1):
+            c = (700.0 + row * r * np.sqrt(3), 360.0 + (k - row / 2) * 2 * r)
+            names.append((f"ball-{len(names) + 1}", c, (255, 255, 255)))
+    boxes, leads = layout_ball_names(names, r, fs, [], (0.0, 0.0, 1280.0, 720.0))
+    for i, (x0, y0, x1, y1) in enumerate(boxes):
+        for j, (_, c, _) in enumerate(names):
+            dx = max(x0 - c[0], 0.0, c[0] - x1)
+            dy = max(y0 - c[1], 0.0, c[1] - y1)
+            assert dx * dx + dy * dy >= r * r, (i, j)
+    for (a, b) in itertools.combinations(boxes, 2):
+        assert min(a[2], b[2]) <= max(a[0], b[0]) or min(a[3], b[3]) <= max(a[1], b[1])
+    assert sum(lead is not None for lead in leads) >= 1  # a packed rack needs some names moved out

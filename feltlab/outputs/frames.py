@@ -28,6 +28,7 @@ import pandas as pd
 from PIL import Image, ImageDraw, ImageFont
 
 from feltlab.errors import FeltlabError
+from feltlab.outputs.label_layout import choose_box
 from feltlab.outputs.style import CONTACT_RGB, ball_colours, ball_order, bgr, decimals_for
 
 #: Below this speed (mm/s) a ball gets no velocity arrow (it is at rest within
@@ -341,6 +342,7 @@ def draw_overlay(image: np.ndarray, ov: Overlay, frame: int, t_s: float | None =
             cv2.drawMarker(img, _pt(p), (0, 0, 0), cv2.MARKER_TILTED_CROSS, r + 4, 4, cv2.LINE_AA)
             cv2.drawMarker(img, _pt(p), bgr(CONTACT_RGB), cv2.MARKER_TILTED_CROSS, r + 4, 2, cv2.LINE_AA)
     # Trails, balls, labels, arrows.
+    names: list[tuple[str, np.ndarray, tuple[int, int, int]]] = []
     for b, p in ov.px.items():
         col = ov.colours[b]
         _line(img, T(p[: k + 1]), col, 1 if view is None else 2)
@@ -349,33 +351,76 @@ def draw_overlay(image: np.ndarray, ov: Overlay, frame: int, t_s: float | None =
         q = T(p[k])
         if b in ov.seen and not ov.seen[b][k]:  # predicted, not detected: a grey ring
             cv2.circle(img, _pt(q), r + 1, (128, 128, 128), 1, cv2.LINE_AA)
-            texts.append((f"{b} (predicted)", (q[0] + 0.75 * r + 3, q[1] - 0.75 * r - 3), (170, 170, 170), fs))
+            names.append((f"{b} (predicted)", q, (170, 170, 170)))
             continue
         cv2.circle(img, _pt(q), r + 1, (0, 0, 0), 3, cv2.LINE_AA)
         cv2.circle(img, _pt(q), r + 1, bgr(col), 1 if view is None else 2, cv2.LINE_AA)
         if ov.speed[b][k] >= MIN_ARROW_SPEED_MM_S:
             _arrow(img, q, T(ov.tip[b][k]), col, th)
-        texts.append((b, (q[0] + 0.75 * r + 3, q[1] - 0.75 * r - 3), col, fs))
+        names.append((b, q, col))
+    # Every drawn ball is a keep-out disc, so labels sit beside balls, not on them.
+    keep_out = np.array([[q[0], q[1], r + 2.0] for _, q, _ in names], float).reshape(-1, 3)
+    no_pts = np.empty((0, 2))
+    h_img, w_img = img.shape[:2]
+    bounds = (0.0, 0.0, float(w_img), float(h_img))
+    placed: list = []
     if view is None:
         for c in shown:
             if c["cp_px"] is None or not np.isfinite(c["cp_px"]).all():
                 continue
             p = c["cp_px"]
             lines = [c["label"], c["e_text"]]
-            x0, y0 = p[0] + 2 * r, p[1] + 2 * r + fs
-            # contact text on a dark box, so it never reads as a ball label
+            # contact text on a dark box, so it never reads as a ball label;
+            # placed below-right of the contact unless that covers a ball or a label
             bw = max(_text_width(s, fs) for s in lines) + 10
-            bx0, by0 = int(x0 - 5), int(y0 - 1.1 * fs)
-            bx1, by1 = int(x0 - 5 + bw), int(y0 + 1.3 * fs * (len(lines) - 1) + 0.45 * fs)
+            bh = 1.3 * fs * (len(lines) - 1) + 1.55 * fs
+            ox, oy, box = choose_box(np.asarray(p, float), bw, bh, math.pi / 4, [2.8 * r, 4.5 * r, 7.0 * r],
+                                     placed, no_pts, bounds, keep_out)
+            placed.append(box)
+            x0, y0 = box[0] + 5, box[1] + 1.1 * fs
             h_, w_ = img.shape[:2]
-            bx0, by0, bx1, by1 = max(0, bx0), max(0, by0), min(w_, bx1), min(h_, by1)
+            bx0, by0, bx1, by1 = max(0, int(box[0])), max(0, int(box[1])), min(w_, int(box[2])), min(h_, int(box[3]))
             if bx1 > bx0 and by1 > by0:
                 img[by0:by1, bx0:bx1] = (img[by0:by1, bx0:bx1] * 0.3).astype(img.dtype)
             for i, s in enumerate(lines):
                 texts.append((s, (x0, y0 + i * 1.3 * fs), (255, 255, 255), fs))
+    # Ball names beside their balls, none covering a ball or another label.
+    for (name, q, col), box, lead in zip(names, *layout_ball_names(names, r, fs, placed, bounds)):
+        if lead is not None:
+            cv2.line(img, _pt(lead[0]), _pt(lead[1]), bgr(col), 1, cv2.LINE_AA)
+        texts.append((name, (box[0], box[1] + 0.95 * fs), col, fs))
+    if view is None:
         _panel(img, ov, k, t, caption, texts)
     _draw_texts(img, texts)
     return img
+
+
+def layout_ball_names(names: list, r: float, fs: int, placed: list, bounds: tuple[float, float, float, float]
+                      ) -> tuple[list[tuple[float, float, float, float]], list]:
+    """Boxes (x0, y0, x1, y1 image px) for ball-name labels and their leader lines (or None).
+
+    ``names``: (text, centre px, colour) per drawn ball, ball image radius
+    ``r`` px, font size ``fs`` px; ``placed`` (extended in place): boxes
+    already taken. Each name goes up-right of its ball unless that covers
+    another ball or label; one pushed further out gets a leader line
+    (start, end px) from its ball's rim.
+    """
+    keep_out = np.array([[q[0], q[1], r + 2.0] for _, q, _ in names], float).reshape(-1, 3)
+    rings = [1.05 * r + 3, 1.6 * r + 6, 2.4 * r + 8, 3.4 * r + 10, 5.0 * r + 12, 7.0 * r + 14, 9.5 * r + 16]
+    boxes, leads = [], []
+    for name, q, _ in names:
+        q = np.asarray(q, float)
+        ox, oy, box = choose_box(q, _text_width(name, fs), 1.25 * fs, -math.pi / 4, rings, placed,
+                                 np.empty((0, 2)), bounds, keep_out)
+        placed.append(box)
+        boxes.append(box)
+        lead = None
+        if math.hypot(ox, oy) > rings[1] + 1e-6:
+            near = np.clip(q, [box[0], box[1]], [box[2], box[3]])
+            d = near - q
+            lead = (q + d / (np.linalg.norm(d) + 1e-9) * (r + 2), near)
+        leads.append(lead)
+    return boxes, leads
 
 
 def _panel(img, ov: Overlay, k: int, t: float, caption: str | None, texts: list) -> None:

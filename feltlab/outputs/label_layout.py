@@ -30,6 +30,7 @@ import numpy as np
 #: Penalty weights of a candidate position (dimensionless cost units).
 OVERLAP_COST_PER_PX2 = 1.0      # per px^2 of overlap with a placed label
 POINT_COST = 4.0                # per covered path point
+DISC_COST = 3000.0              # per ball disc the label touches
 OUTSIDE_COST = 1e9              # any part outside the axes
 RING_COST = 30.0                # per ring step further out
 TURN_COST = 8.0                 # per 22.5 degree turn from the preferred direction
@@ -46,6 +47,48 @@ class LabelSpec:
     #: Draw a leader line when the label ends up at least this far out (pt).
     leader_from_pt: float = 0.0
     style: dict = field(default_factory=dict)
+
+
+def choose_box(anchor: np.ndarray, w: float, h: float, prefer_rad: float, rings: list[float],
+               placed: list[tuple[float, float, float, float]], pts: np.ndarray,
+               bounds: tuple[float, float, float, float],
+               discs: np.ndarray | None = None) -> tuple[float, float, tuple[float, float, float, float]]:
+    """Best offset (ox, oy) of a w x h box from ``anchor`` and the box (x0, y0, x1, y1); all in one pixel frame.
+
+    The box hangs off the offset point on the side facing away from the
+    anchor (right of it when ox >= 0, above/below likewise). Works in either
+    y-up (display) or y-down (image) pixels, since only signs are used.
+    ``discs``: (n, 3) rows of centre x, y and radius a label should not touch (balls).
+    """
+    discs = np.empty((0, 3)) if discs is None else np.asarray(discs, float).reshape(-1, 3)
+    best = None
+    for ri, r in enumerate(rings):
+        for k in range(16):
+            turn = (k + 1) // 2 * (1 if k % 2 else -1)  # 0, +1, -1, +2, -2, ...
+            ang = prefer_rad + turn * math.pi / 8
+            ox, oy = r * math.cos(ang), r * math.sin(ang)
+            tx, ty = anchor[0] + ox, anchor[1] + oy
+            x0 = tx if ox >= 0 else tx - w
+            y0 = ty if oy >= 0 else ty - h
+            x1, y1 = x0 + w, y0 + h
+            cost = RING_COST * ri + TURN_COST * abs(turn)
+            if x0 < bounds[0] or y0 < bounds[1] or x1 > bounds[2] or y1 > bounds[3]:
+                cost += OUTSIDE_COST
+            for (u0, v0, u1, v1) in placed:
+                ow = min(x1, u1) - max(x0, u0)
+                oh = min(y1, v1) - max(y0, v0)
+                if ow > 0 and oh > 0:
+                    cost += OVERLAP_COST_PER_PX2 * ow * oh + 1e4
+            if len(discs):
+                dx = np.maximum.reduce([x0 - discs[:, 0], np.zeros(len(discs)), discs[:, 0] - x1])
+                dy = np.maximum.reduce([y0 - discs[:, 1], np.zeros(len(discs)), discs[:, 1] - y1])
+                cost += DISC_COST * float(np.sum(dx * dx + dy * dy < discs[:, 2] ** 2))
+            if len(pts):
+                inside = (pts[:, 0] > x0) & (pts[:, 0] < x1) & (pts[:, 1] > y0) & (pts[:, 1] < y1)
+                cost += POINT_COST * float(inside.sum())
+            if best is None or cost < best[0]:
+                best = (cost, ox, oy, (x0, y0, x1, y1))
+    return best[1], best[2], best[3]
 
 
 def _text_size_px(ax, text: str, style: dict, renderer) -> tuple[float, float]:
@@ -78,30 +121,8 @@ def place_labels(ax, specs: list[LabelSpec], avoid_xy: np.ndarray | None = None)
         a = ax.transData.transform(np.asarray(sp.anchor, float))
         p = np.asarray(sp.prefer, float)
         base = math.atan2(p[1], p[0]) if np.hypot(*p) > 0 else math.pi / 4
-        best = None
-        for ri, r in enumerate(sp.radii_pt):
-            for k in range(16):
-                turn = (k + 1) // 2 * (1 if k % 2 else -1)  # 0, +1, -1, +2, -2, ...
-                ang = base + turn * math.pi / 8
-                ox, oy = r * px_per_pt * math.cos(ang), r * px_per_pt * math.sin(ang)
-                tx, ty = a[0] + ox, a[1] + oy
-                x0 = tx if ox >= 0 else tx - w
-                y0 = ty if oy >= 0 else ty - h
-                x1, y1 = x0 + w, y0 + h
-                cost = RING_COST * ri + TURN_COST * abs(turn)
-                if x0 < axbox.x0 or y0 < axbox.y0 or x1 > axbox.x1 or y1 > axbox.y1:
-                    cost += OUTSIDE_COST
-                for (u0, v0, u1, v1) in placed:
-                    ow = min(x1, u1) - max(x0, u0)
-                    oh = min(y1, v1) - max(y0, v0)
-                    if ow > 0 and oh > 0:
-                        cost += OVERLAP_COST_PER_PX2 * ow * oh + 1e4
-                if len(pts):
-                    inside = (pts[:, 0] > x0) & (pts[:, 0] < x1) & (pts[:, 1] > y0) & (pts[:, 1] < y1)
-                    cost += POINT_COST * float(inside.sum())
-                if best is None or cost < best[0]:
-                    best = (cost, ox, oy, (x0, y0, x1, y1))
-        _, ox, oy, box = best
+        ox, oy, box = choose_box(a, w, h, base, [r * px_per_pt for r in sp.radii_pt], placed, pts,
+                                 (axbox.x0, axbox.y0, axbox.x1, axbox.y1))
         placed.append(box)
         kw = dict(style)
         kw.update(ha="left" if ox >= 0 else "right", va="bottom" if oy >= 0 else "top")
