@@ -14,6 +14,7 @@ pymunk = pytest.importorskip("pymunk")
 
 from feltlab.standards import table_preset  # noqa: E402
 from physics.pipeline import analyze_tracks, tables_from_positions  # noqa: E402
+from pymunk_scenes import build_space, run_frames  # noqa: E402
 
 TABLE = table_preset("pool-9ft")
 R = TABLE.ball.radius_mm
@@ -23,37 +24,8 @@ SUB = 20  # pymunk steps per video frame
 
 def run_pymunk(balls, e_each, fps, duration, cushion_y0=False):
     """Simulate circles (mm, mm/s) with pymunk; return times, positions, velocity history."""
-    space = pymunk.Space()
-    space.gravity = (0.0, 0.0)
-    space.damping = 1.0
-    bodies = {}
-    for name, (p, v) in balls.items():
-        b = pymunk.Body(M, pymunk.moment_for_circle(M, 0, R))
-        b.position = tuple(p)
-        b.velocity = tuple(v)
-        c = pymunk.Circle(b, R)
-        c.elasticity = e_each
-        c.friction = 0.0
-        space.add(b, c)
-        bodies[name] = b
-    if cushion_y0:
-        seg = pymunk.Segment(space.static_body, (-1000.0, 0.0), (4000.0, 0.0), 0.0)
-        seg.elasticity = e_each
-        seg.friction = 0.0
-        space.add(seg)
-    dt = 1.0 / fps / SUB
-    n_frames = int(duration * fps)
-    times, pos, hist = [], {k: [] for k in bodies}, []
-    for f in range(n_frames):
-        times.append(f / fps)
-        for k, b in bodies.items():
-            pos[k].append(tuple(b.position))
-        for _ in range(SUB):
-            before = {k: (np.array(b.position), np.array(b.velocity)) for k, b in bodies.items()}
-            space.step(dt)
-            after = {k: np.array(b.velocity) for k, b in bodies.items()}
-            hist.append((before, after))
-    return np.array(times), {k: np.array(v) for k, v in pos.items()}, hist
+    space, bodies, _ = build_space(balls, e_each, R, M, cushion_y0=cushion_y0)
+    return run_frames(space, bodies, fps, duration, SUB, history=True)
 
 
 def realised_ball_ball_e(hist, a, b):
