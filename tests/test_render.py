@@ -433,3 +433,28 @@ def test_flicker_gain_is_the_mean_light_over_the_exposure():
         else:
             ref = 1 - d * (1 - math.cos(2 * math.pi * f * t)) / 2
         assert flicker_gain(t, e, d, f) == pytest.approx(ref, rel=1e-9)
+
+
+def test_rack_scenarios_are_tight_triangles_and_get_broken():
+    """rack_scenario: the object balls form a triangle of touching balls (each interior
+    neighbour pair exactly 2R + gap apart: plane geometry of a triangular packing,
+    3 neighbours per inner ball), none overlapping, and the simulated cue ball hits
+    the apex ball within the first half of the clip."""
+    from scipy.spatial.distance import pdist
+
+    from feltlab.render import simulate_scenario
+    from feltlab.render.variety import rack_scenario
+
+    for seed in (1, 2):
+        sc = rack_scenario(seed, resolution=(160, 90), n_balls=12, gap_mm=0.3, duration_s=1.0)
+        R = sc.preset.ball.radius_mm
+        P = np.array([b.position_mm for b in sc.balls if b.label != "cue"])
+        assert len(P) == 12 and len({b.label for b in sc.balls}) == 13
+        d = pdist(P)
+        assert d.min() == pytest.approx(2 * R + 0.3, abs=1e-6)
+        # four full rows: 3 n (n - 1) / 2 = 18 neighbour pairs (triangular lattice of side
+        # n = 4); the two balls of row five add 1 + 2 pairs with row four and 1 with each other
+        assert int(np.sum(np.abs(d - (2 * R + 0.3)) < 1e-6)) == 22
+        sim = simulate_scenario(sc)
+        first = min(c.t_s for c in sim.contacts if c.kind == "ball-ball")
+        assert first < 0.5 * sc.duration_s
