@@ -30,7 +30,9 @@ Figures per clip (one row per clip and calibration):
   resting detections (median), to compare with the published diameter
   ``diam_pub`` (feltlab/standards.py).
 * ``det_rmse`` / ``det_z2``: detections' RMSE (mm) and their mean squared
-  normalised error (1 = honest sigmas); ``splits``: true contacts followed
+  normalised error (1 = honest sigmas; ``det_z2m`` over moving ball-frames
+  only); ``trk_z2`` / ``trk_z2m``: the same for the track output against its
+  own sx_mm, sy_mm (all / moving covered ball-frames; 1 = honest); ``splits``: true contacts followed
   by a motion-segment start within 2 frames; ``ms_fr``: wall time per frame.
 """
 from __future__ import annotations
@@ -144,7 +146,7 @@ def bench(clip: Path, auto: bool) -> dict:
     inv = {v: k for k, v in match.items()}
     mv_err, rest_err, jit_det, jit_trk, diam = [], [], [], [], []
     cov_hits = cov_total = wrong = switches = 0
-    det_err, det_z2 = [], []
+    det_err, det_z2, det_z2m, trk_z2, trk_z2m = [], [], [], [], []
     for bid in ids:
         P = truth["pos"][bid]
         view = in_view(tcal, P)
@@ -171,6 +173,11 @@ def bench(clip: Path, auto: bool) -> dict:
                 continue
             e = np.hypot(g.at[k, "x_mm"] - P[k, 0], g.at[k, "y_mm"] - P[k, 1])
             cov_hits += e <= COVER_MM
+            zt = ((g.at[k, "x_mm"] - P[k, 0]) / g.at[k, "sx_mm"]) ** 2 + ((g.at[k, "y_mm"] - P[k, 1]) / g.at[k, "sy_mm"]) ** 2
+            if np.isfinite(zt):
+                trk_z2.append(zt / 2)
+                if moving[k]:
+                    trk_z2m.append(zt / 2)
             (mv_err if moving[k] else rest_err).append(e)
             others = [np.hypot(g.at[k, "x_mm"] - truth["pos"][o][k, 0], g.at[k, "y_mm"] - truth["pos"][o][k, 1])
                       for o in ids if o != bid and np.isfinite(truth["pos"][o][k, 0])]
@@ -200,7 +207,9 @@ def bench(clip: Path, auto: bool) -> dict:
         ey = du.y_mm.to_numpy() - P[fu, 1]
         fin = np.isfinite(ex)
         det_err += list(np.hypot(ex[fin], ey[fin]))
-        det_z2 += list(((ex / du.sx_mm.to_numpy()) ** 2 + (ey / du.sy_mm.to_numpy()) ** 2)[fin] / 2)
+        z2 = ((ex / du.sx_mm.to_numpy()) ** 2 + (ey / du.sy_mm.to_numpy()) ** 2) / 2
+        det_z2 += list(z2[fin])
+        det_z2m += list(z2[fin & moving[fu]])
     seg_hits = seg_total = 0
     for t_c, kind, a, b in truth["contacts"]:
         for bid in (a, b):
@@ -218,6 +227,9 @@ def bench(clip: Path, auto: bool) -> dict:
         "wrong_fr": int(wrong), "corner_px": corner_error_px(res.calibration, tcal),
         "diam_mm": float(np.median(diam)) if diam else float("nan"), "diam_pub": float(tcal.table.ball.diameter_mm),
         "det_rmse": _rms(det_err), "det_z2": float(np.mean(det_z2)) if det_z2 else float("nan"),
+        "det_z2m": float(np.mean(det_z2m)) if det_z2m else float("nan"),
+        "trk_z2": float(np.mean(trk_z2)) if trk_z2 else float("nan"),
+        "trk_z2m": float(np.mean(trk_z2m)) if trk_z2m else float("nan"),
         "splits": f"{seg_hits}/{seg_total}", "ms_fr": 1000 * wall / max(res.n_frames, 1),
         "cpu_ms_fr": 1000 * cpu / max(res.n_frames, 1),
         "labels": ",".join(f"{k}={v}" for k, v in sorted(match.items(), key=lambda kv: kv[1])),
@@ -227,7 +239,7 @@ def bench(clip: Path, auto: bool) -> dict:
 
 
 COLS = ["clip", "cal", "fps", "size", "balls", "cov_view", "n_view", "rmse_move", "rmse_rest", "jit_det", "jit_trk",
-        "id_sw", "wrong_fr", "corner_px", "diam_mm", "diam_pub", "det_rmse", "det_z2", "splits", "ms_fr"]
+        "id_sw", "wrong_fr", "corner_px", "diam_mm", "diam_pub", "det_rmse", "det_z2", "det_z2m", "trk_z2", "trk_z2m", "splits", "ms_fr"]
 
 
 def fmt_row(r: dict) -> str:

@@ -29,6 +29,12 @@ one ball to where the other was predicted to be. Unmatched detections start
 tracks; tracks unseen for longer than ``max_missed_s`` end (pocketed, left the
 view, covered by a hand).
 
+Each detection's noise is its sigma plus the smear of the track's
+predicted motion during the exposure (tracking/kalman.py :func:`smear_cov`;
+exposure ``TrackingSettings.exposure_frac`` x the frame interval, the whole
+interval when unknown), so a fast, blurred ball is not gated out along its
+direction of travel.
+
 Colour signature: chromaticity (r, g, b) / (r + g + b) (unchanged by the
 overall brightness, so vignetting and lighting gradients do not change it),
 scaled x3, plus the white and dark pixel fractions.
@@ -42,7 +48,7 @@ import numpy as np
 import pandas as pd
 from scipy.optimize import linear_sum_assignment
 
-from tracking.kalman import H, cv_transition
+from tracking.kalman import H, cv_transition, smear_cov
 from tracking.settings import TrackingSettings
 
 FORBIDDEN = 1e9
@@ -140,6 +146,7 @@ class Linker:
         col = colour_signature(det) if n_det else np.zeros((0, 5))
         dt_frame = (t - self._t_prev) if self._t_prev is not None else 0.0
         self._t_prev = t
+        exp_s = dt_frame * (1.0 if s.exposure_frac is None else float(s.exposure_frac))
         # Predict all live tracks to t.
         preds = []
         for tr in self.live:
@@ -164,12 +171,13 @@ class Linker:
             if not visible[i] and t > tr.t:
                 continue
             S_base = H @ Pp @ H.T
+            R_smear = smear_cov(xp[2:], exp_s, s.smear_var_per_len2)[0]
             last_pos = tr.x[:2]
             reach = s.max_speed_mm_s * max(t - tr.t, dt_frame, 1e-6) + 2 * self.R
             can_jump = (t - tr.t) <= max(s.jump_max_gap_s, 1.5 * dt_frame)
             for j in range(n_det):
                 v = z[j] - xp[:2]
-                Rm = np.diag(sig[j] ** 2)
+                Rm = np.diag(sig[j] ** 2) + R_smear
                 S = S_base + Rm
                 d2 = float(v @ np.linalg.solve(S, v))
                 cd = float(np.linalg.norm(col[j] - tr.colour))
@@ -191,7 +199,7 @@ class Linker:
                     continue
                 tr = self.live[i]
                 xp, Pp = preds[i]
-                Rm = np.diag(sig[j] ** 2)
+                Rm = np.diag(sig[j] ** 2) + smear_cov(xp[2:], exp_s, s.smear_var_per_len2)[0]
                 if jump[i, j]:
                     # Velocity re-started from the displacement since the last fix.
                     dtt = max(t - tr.t, 1e-6)

@@ -14,6 +14,13 @@ squared (NIS). :func:`split_segments` cuts a ball's measurements there, and
 Striebel, AIAA J. 3(8):1445, 1965; filterpy's ``rts_smoother``) on each
 segment separately, so smoothing never mixes the motion before and after a
 contact.
+
+Measurement noise: each measurement carries a sigma pair (N,2) mm (an
+axis-aligned covariance) or a full covariance (N,2,2) mm^2. A ball moving
+during the exposure smears over L = speed x exposure mm; :func:`smear_cov`
+gives the extra covariance along the motion (a uniform smear of length L has
+variance L^2/12, the variance of the uniform distribution on an interval of
+length L), which the pipeline and the linker add to the detector's sigma.
 """
 from __future__ import annotations
 
@@ -26,6 +33,35 @@ H = np.array([[1.0, 0, 0, 0], [0, 1.0, 0, 0]])
 #: chi-square(2) 99% point (standard table value): a measurement this close to
 #: the old motion's prediction counts as agreeing with it.
 CONSISTENT_NIS = 9.21
+
+
+def as_cov(sig: np.ndarray) -> np.ndarray:
+    """Measurement covariances (N,2,2) mm^2 from sigmas (N,2) mm or covariances (N,2,2) (returned as is).
+
+    >>> as_cov(np.array([[1.0, 2.0]]))[0].tolist()
+    [[1.0, 0.0], [0.0, 4.0]]
+    """
+    sig = np.asarray(sig, float)
+    if sig.ndim == 3:
+        return sig
+    C = np.zeros((len(sig), 2, 2))
+    C[:, 0, 0] = sig[:, 0] ** 2
+    C[:, 1, 1] = sig[:, 1] ** 2
+    return C
+
+
+def smear_cov(v_mm_s: np.ndarray, exposure_s: float, var_per_len2: float = 1.0 / 12.0) -> np.ndarray:
+    """Extra centre covariance (N,2,2) mm^2 of balls moving at v (N,2) mm/s during an exposure (s).
+
+    The ball's image is swept over L = |v| exposure mm; a centre found
+    anywhere along the sweep with equal chance has variance L^2/12 along the
+    motion (uniform distribution on an interval of length L) and none across.
+
+    >>> round(float(smear_cov(np.array([[300.0, 0.0]]), 0.1)[0, 0, 0]), 6)  # L = 30 mm: 30^2 / 12
+    75.0
+    """
+    v = np.nan_to_num(np.asarray(v_mm_s, float).reshape(-1, 2))
+    return var_per_len2 * exposure_s ** 2 * v[:, :, None] * v[:, None, :]
 
 
 def cv_transition(dt: float, accel_sigma: float) -> tuple[np.ndarray, np.ndarray]:
@@ -71,9 +107,11 @@ class SegmentFit:
 def _initial_state(t: np.ndarray, z: np.ndarray, sig: np.ndarray, speed_sigma: float):
     """Position from the first measurement, velocity from a line through the first <= 4."""
     n = min(len(t), 4)
+    C = as_cov(sig)
     x0 = np.zeros(4)
     x0[:2] = z[0]
-    P0 = np.diag([sig[0, 0] ** 2, sig[0, 1] ** 2, speed_sigma ** 2, speed_sigma ** 2])
+    P0 = np.diag([1.0, 1.0, speed_sigma ** 2, speed_sigma ** 2])
+    P0[:2, :2] = C[0]
     if n >= 2 and t[n - 1] > t[0]:
         A = np.column_stack([np.ones(n), t[:n] - t[0]])
         coef, *_ = np.linalg.lstsq(A, z[:n], rcond=None)
@@ -81,7 +119,7 @@ def _initial_state(t: np.ndarray, z: np.ndarray, sig: np.ndarray, speed_sigma: f
         x0[2:] = coef[1]
         # velocity from n points: sigma sqrt(12 / (n (n^2-1))) / dt (regression result)
         dt = (t[n - 1] - t[0]) / (n - 1)
-        sv = np.max(sig[:n]) * np.sqrt(12.0 / (n * (n * n - 1))) / dt
+        sv = np.sqrt(np.max(C[:n, [0, 1], [0, 1]])) * np.sqrt(12.0 / (n * (n * n - 1))) / dt
         P0[2, 2] = P0[3, 3] = (3 * sv) ** 2 + (0.1 * speed_sigma) ** 2
     return x0, P0
 
@@ -93,9 +131,10 @@ def forward_filter(t_grid: np.ndarray, meas_idx: np.ndarray, z: np.ndarray, sig:
     Returns (xs, Ps, Fs, Qs, nis_grid) for filterpy's rts_smoother.
     """
     n = len(t_grid)
+    Rs = as_cov(sig)
     kf = KalmanFilter(dim_x=4, dim_z=2)
     kf.H = H.copy()
-    x0, P0 = _initial_state(t_grid[meas_idx], z, sig, speed_sigma)
+    x0, P0 = _initial_state(t_grid[meas_idx], z, Rs, speed_sigma)
     kf.x = x0.copy()
     kf.P = P0.copy()
     xs = np.zeros((n, 4))
@@ -114,7 +153,7 @@ def forward_filter(t_grid: np.ndarray, meas_idx: np.ndarray, z: np.ndarray, sig:
             Fs[k], Qs[k] = np.eye(4), np.zeros((4, 4))
         i = at.get(k)
         if i is not None:
-            Rm = np.diag(sig[i] ** 2)
+            Rm = Rs[i]
             if k > 0:
                 nis_g[k] = nis(z[i], kf.x, kf.P, Rm)
             kf.update(z[i], R=Rm)
@@ -149,6 +188,7 @@ def split_segments(t: np.ndarray, z: np.ndarray, sig: np.ndarray, accel_sigma: f
     outlier mask).
     """
     n = len(t)
+    Rs = as_cov(sig)
     out = np.zeros(n, bool)
     forced = forced or set()
     segs: list[tuple[int, int]] = []
@@ -159,7 +199,7 @@ def split_segments(t: np.ndarray, z: np.ndarray, sig: np.ndarray, accel_sigma: f
         if i == start or kf is None:
             kf = KalmanFilter(dim_x=4, dim_z=2)
             kf.H = H.copy()
-            x0, P0 = _initial_state(t[i:i + 1], z[i:i + 1], sig[i:i + 1], speed_sigma)
+            x0, P0 = _initial_state(t[i:i + 1], z[i:i + 1], Rs[i:i + 1], speed_sigma)
             kf.x, kf.P = x0, P0
             t_last = t[i]
             i += 1
@@ -168,7 +208,7 @@ def split_segments(t: np.ndarray, z: np.ndarray, sig: np.ndarray, accel_sigma: f
         F, Q = cv_transition(t[i] - t_last, accel_sigma)
         kf.F, kf.Q = F, Q
         kf.predict()
-        Rm = np.diag(sig[i] ** 2)
+        Rm = Rs[i]
         v = nis(z[i], kf.x, kf.P, Rm)
         # Only judge once the segment has >= 3 points (velocity known).
         spike = (i - start) >= 2 and v > split_nis
@@ -181,7 +221,7 @@ def split_segments(t: np.ndarray, z: np.ndarray, sig: np.ndarray, accel_sigma: f
                 P2 = F2 @ P_prev @ F2.T + Q2
                 # an outlier only if the next point clearly agrees with the old
                 # motion (NIS below the chi-square(2) 99% point, 9.21)
-                jump = nis(z[i + 1], x2, P2, np.diag(sig[i + 1] ** 2)) > CONSISTENT_NIS
+                jump = nis(z[i + 1], x2, P2, Rs[i + 1]) > CONSISTENT_NIS
             if jump:
                 segs.append((start, i))
                 start = i
@@ -236,3 +276,59 @@ def _refine_boundaries(t, z, sig, segs, out, m: int = 5, max_moves: int = 2):
             else:
                 break
     return [tuple(s) for s in segs if s[1] > s[0]]
+
+
+def smear_scale(pieces: list[tuple[np.ndarray, np.ndarray, np.ndarray]], c_max_s2: float,
+                outlier_chi2: float = 10.83) -> float:
+    """Clip-wide smear scale c (s^2): along-motion centre variance c |v|^2 beyond the detector's sigma.
+
+    pieces: per ball (t (N,) s, z (N,2) mm, R (N,2,2) mm^2 detector
+    covariances), time-sorted. For three detections a frame apart at nearly
+    constant velocity the second difference d = z[i+1] - 2 z[i] + z[i-1] has
+    covariance R[i-1] + 4 R[i] + R[i+1] (independent errors); its part along
+    the motion u then has variance u'(R[i-1] + 4 R[i] + R[i+1])u + 6 c |v|^2.
+    c is the moment estimate sum(d_u^2 - base) / sum(6 |v|^2) over all
+    triples (covariance matching: Mehra, IEEE Trans. Autom. Control 17:693,
+    1972), clipped to [0, c_max_s2]. A triple whose d_u^2 exceeds
+    ``outlier_chi2`` (chi-square 1 dof, p = 0.999) times its largest possible
+    variance (c = c_max_s2) cannot be blur - a contact or a wrong detection -
+    and is left out. The friction deceleration (<~2 m/s^2) adds (a dt^2)^2,
+    negligible against the smear at the speeds that matter.
+
+    >>> rng = np.random.default_rng(0)
+    >>> t = np.arange(400) / 30.0
+    >>> z = np.column_stack([2000.0 * t, 0 * t]) + rng.normal(0, 1, (400, 2)) * [[np.sqrt(1 + 2e-5 * 2000.0 ** 2), 1]]
+    >>> R = np.tile(np.eye(2), (400, 1, 1))
+    >>> round(smear_scale([(t, z, R)], 1e-3) / 2e-5, 1)  # true c = 2e-5 s^2
+    1.0
+    """
+    rows = []
+    for t, z, R in pieces:
+        n = len(t)
+        if n < 3:
+            continue
+        dt1, dt2 = t[1:-1] - t[:-2], t[2:] - t[1:-1]
+        even = (dt1 > 0) & (np.abs(dt2 - dt1) <= 0.05 * dt1)
+        v = (z[2:] - z[:-2]) / np.where(even, dt1 + dt2, 1.0)[:, None]
+        sp = np.hypot(v[:, 0], v[:, 1])
+        ok = even & (sp > 0)
+        if not ok.any():
+            continue
+        u = v[ok] / sp[ok, None]
+        d = (z[2:] - 2 * z[1:-1] + z[:-2])[ok]
+        B = (R[:-2] + 4 * R[1:-1] + R[2:])[ok]
+        rows.append(np.column_stack([np.einsum("ni,ni->n", d, u) ** 2, np.einsum("ni,nij,nj->n", u, B, u),
+                                     6 * sp[ok] ** 2]))
+    if not rows:
+        return 0.0
+    du2, base, w = np.vstack(rows).T
+    c = c_max_s2
+    for _ in range(20):
+        keep = du2 <= outlier_chi2 * (base + c * w)
+        if not keep.any() or w[keep].sum() <= 0:
+            return 0.0
+        c_new = float(np.clip(np.sum(du2[keep] - base[keep]) / np.sum(w[keep]), 0.0, c_max_s2))
+        if abs(c_new - c) <= 1e-3 * c_max_s2:
+            return c_new
+        c = c_new
+    return c

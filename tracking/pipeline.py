@@ -8,6 +8,22 @@ Per ball (:func:`smooth_ball`): rest runs (all detections within a few sigma
 of their mean for >= ``rest_min_s``) are averaged; the moving stretches are
 cut at contacts (NIS spikes, tracking/kalman.py) and each piece is
 RTS-smoothed on its own. Units: mm, s, mm/s; table frame (DEVELOPERS.md).
+
+Measurement noise (:func:`measurement_cov`): the detector's sigma plus
+c |v|^2 along the motion of a ball moving at v during the exposure (its
+image smears over L = |v| x exposure). The speed comes from the ball's own
+detections (central differences). c is measured from the clip
+(tracking/kalman.py :func:`smear_scale`, second differences of the
+detections), never above the bound of a centre found anywhere along a
+uniform smear, L^2/12 (:func:`smear_cov`), with the exposure
+``TrackingSettings.exposure_frac`` x the frame interval, or the whole frame
+interval when unknown (the longest a shutter can stay open).
+The detections table's ``sx_mm``, ``sy_mm`` carry this total (``sxy_mm2``
+its x-y covariance, ``smear_mm`` the bound's smear length |v| x exposure).
+
+A resting ball's track sigma keeps the part of the detector's sigma that
+its own scatter does not show (shading and shadow errors of a still ball do
+not average out over frames).
 """
 from __future__ import annotations
 
@@ -24,7 +40,7 @@ from feltlab.standards import DEFAULT_TABLE, TablePreset, table_preset
 from tracking.assign import Linker, colour_signature, view_test
 from tracking.calibration import Calibration
 from tracking.detect import build_background, detect_frame
-from tracking.kalman import smooth_segment, split_segments
+from tracking.kalman import as_cov, smear_cov, smear_scale, smooth_segment, split_segments
 from tracking.labels import label_tracks
 from tracking.settings import TrackClipSettings, TrackingSettings
 
@@ -59,6 +75,38 @@ class TrackResult:
 
 
 # --------------------------------------------------------------------------- per ball
+def exposure_s(frame_t: np.ndarray, s: TrackingSettings) -> float:
+    """Assumed exposure (s): ``exposure_frac`` (None: 1, a full-frame shutter) x the median frame interval."""
+    dt = np.diff(frame_t[np.isfinite(frame_t)])
+    dt = dt[dt > 0]
+    if not len(dt):
+        return 0.0
+    return float(np.median(dt)) * (1.0 if s.exposure_frac is None else float(s.exposure_frac))
+
+
+def detection_velocity(t: np.ndarray, z: np.ndarray) -> np.ndarray:
+    """(N,2) mm/s velocity at each time-sorted detection: central differences (one-sided at the ends).
+
+    >>> detection_velocity(np.array([0.0, 0.1, 0.2]), np.array([[0.0, 0], [10, 0], [20, 0]]))[:, 0].tolist()
+    [100.0, 100.0, 100.0]
+    """
+    n = len(t)
+    v = np.zeros((n, 2))
+    if n < 2:
+        return v
+    ia = np.r_[0, np.arange(n - 2), n - 2]
+    ib = np.r_[1, np.arange(2, n), n - 1]
+    dt = t[ib] - t[ia]
+    ok = dt > 0
+    v[ok] = (z[ib[ok]] - z[ia[ok]]) / dt[ok, None]
+    return v
+
+
+def measurement_cov(t: np.ndarray, z: np.ndarray, sig: np.ndarray, c_s2: float) -> np.ndarray:
+    """(N,2,2) mm^2: detector sigmas (N,2) plus c_s2 |v|^2 along the motion (module docstring)."""
+    return as_cov(sig) + smear_cov(detection_velocity(t, z), np.sqrt(max(c_s2, 0.0)), 1.0)
+
+
 def rest_runs(t: np.ndarray, z: np.ndarray, sig: np.ndarray, s: TrackingSettings) -> list[tuple[int, int]]:
     """Index ranges [i0, i1) where the ball sits still (see module docstring)."""
     n = len(t)
@@ -81,16 +129,19 @@ def rest_runs(t: np.ndarray, z: np.ndarray, sig: np.ndarray, s: TrackingSettings
 
 
 def smooth_ball(frames: np.ndarray, t: np.ndarray, z: np.ndarray, sig: np.ndarray, frame_t: np.ndarray,
-                jumps: set[int], s: TrackingSettings):
+                jumps: set[int], s: TrackingSettings, cov: np.ndarray | None = None):
     """Smoothed per-frame states of one ball from its time-sorted detections.
 
     frames: (N,) frame index of each detection; t: (N,) s; z: (N,2) mm;
     sig: (N,2) mm; frame_t: time (s) of every frame index of the clip;
     jumps: detection indices where the linker saw a velocity jump.
+    cov: (N,2,2) mm^2 measurement covariances for the moving pieces
+    (default: from ``sig`` alone).
     Returns (rows: dict of arrays over frames first..last, segments
     [(t0, t1, kind)], used: (N,) bool).
     """
     n = len(t)
+    C = as_cov(sig) if cov is None else np.asarray(cov, float)
     used = np.ones(n, bool)
     f0, f1 = int(frames[0]), int(frames[-1])
     grid_f = np.arange(f0, f1 + 1)
@@ -106,7 +157,7 @@ def smooth_ball(frames: np.ndarray, t: np.ndarray, z: np.ndarray, sig: np.ndarra
         if a > cursor:
             # The linker's jumps are hints only: it re-starts a track on any
             # gate failure; the NIS test below decides where motion pieces end.
-            segs, out = split_segments(t[cursor:a], z[cursor:a], sig[cursor:a], s.accel_sigma_mm_s2,
+            segs, out = split_segments(t[cursor:a], z[cursor:a], C[cursor:a], s.accel_sigma_mm_s2,
                                        s.birth_speed_sigma_mm_s, s.split_nis)
             used[cursor:a] &= ~out
             pieces += [(cursor + i0, cursor + i1, "move") for i0, i1 in segs]
@@ -120,17 +171,21 @@ def smooth_ball(frames: np.ndarray, t: np.ndarray, z: np.ndarray, sig: np.ndarra
             continue
         g0, g1 = int(frames[idx[0]]) - f0, int(frames[idx[-1]]) - f0
         if kind == "rest" or len(idx) == 1:
-            w = 1.0 / np.maximum(sig[idx] ** 2, 1e-6)
+            sg = sig[idx] if kind == "rest" else np.sqrt(C[idx][:, [0, 1], [0, 1]])
+            w = 1.0 / np.maximum(sg ** 2, 1e-6)
             m = np.sum(w * z[idx], axis=0) / np.sum(w, axis=0)
-            scatter = np.std(z[idx], axis=0, ddof=1) if len(idx) > 2 else np.median(sig[idx], axis=0)
-            se = np.maximum(scatter, np.median(sig[idx], axis=0)) / np.sqrt(len(idx))
+            var_det = np.median(sg ** 2, axis=0)
+            scatter2 = np.var(z[idx], axis=0, ddof=1) if len(idx) > 2 else var_det
+            # random part averages down; what the detector's sigma claims
+            # beyond the observed scatter (its model error) does not
+            se = np.sqrt(np.maximum(scatter2, var_det) / len(idx) + np.maximum(var_det - scatter2, 0.0))
             X[g0:g1 + 1] = [m[0], m[1], 0.0, 0.0]
-            SX[g0:g1 + 1] = se if len(idx) > 1 else sig[idx[0]]
+            SX[g0:g1 + 1] = se if len(idx) > 1 else sg[0]
             if len(idx) == 1 and kind == "move":
                 X[g0, 2:] = np.nan
         else:
             tg = frame_t[grid_f[g0:g1 + 1]]
-            fit = smooth_segment(tg, frames[idx] - f0 - g0, z[idx], sig[idx], s.accel_sigma_mm_s2,
+            fit = smooth_segment(tg, frames[idx] - f0 - g0, z[idx], C[idx], s.accel_sigma_mm_s2,
                                  s.birth_speed_sigma_mm_s)
             X[g0:g1 + 1] = fit.x
             SX[g0:g1 + 1] = np.sqrt(np.stack([fit.P[:, 0, 0], fit.P[:, 1, 1]], axis=1))
@@ -321,7 +376,8 @@ def track_clip(path: str | os.PathLike, table: str | TablePreset | None = DEFAUL
                        warnings=list(dict.fromkeys(list(src.warnings) + warnings)),
                        stats={"background_noise_dn": bg.noise_dn, "threshold_dn": bg.threshold_dn,
                               "radius_px": bg.radius_px, "static_balls_painted": int(len(bg.static_px)),
-                              "time_source": src.time_source})
+                              "time_source": src.time_source,
+                              "smear_scale_s2": float(result[1].attrs.get("smear_scale_s2", float("nan")))})
 
 
 def _finish(det_all: pd.DataFrame, jumps: dict[int, list[int]], frame_t: np.ndarray, cal: Calibration,
@@ -351,6 +407,18 @@ def _finish(det_all: pd.DataFrame, jumps: dict[int, list[int]], frame_t: np.ndar
     track_rows = []
     segs: dict[str, list] = {}
     used_all = pd.Series(True, index=det_all.index)
+    exp_s = exposure_s(frame_t, ts)
+    for c in ("sxy_mm2", "smear_mm"):
+        det_all[c] = 0.0
+    per_track = {}
+    for tid, g in det_all.groupby("track"):
+        g = g.sort_values("frame")
+        g = g[~g.frame.duplicated(keep="first")]
+        sig = np.maximum(g[["sx_mm", "sy_mm"]].to_numpy(float), 0.02)
+        per_track[tid] = (g.t_s.to_numpy(float), g[["x_mm", "y_mm"]].to_numpy(float), sig)
+    c_max = ts.smear_var_per_len2 * exp_s ** 2
+    c_s2 = smear_scale([(t_, z_, as_cov(s_)) for t_, z_, s_ in per_track.values()], c_max) \
+        if ts.smear_from_clip else c_max
     for tid, g in det_all.groupby("track"):
         g = g.sort_values("frame")
         g = g[~g.frame.duplicated(keep="first")]
@@ -359,8 +427,14 @@ def _finish(det_all: pd.DataFrame, jumps: dict[int, list[int]], frame_t: np.ndar
         jset = {rowpos[r] for r in jumps.get(int(tid), []) if r in rowpos}
         z = g[["x_mm", "y_mm"]].to_numpy(float)
         sig = np.maximum(g[["sx_mm", "sy_mm"]].to_numpy(float), 0.02)
-        rows, segments, used = smooth_ball(fr, g.t_s.to_numpy(float), z, sig, frame_t, jset, ts)
+        tt = g.t_s.to_numpy(float)
+        C = measurement_cov(tt, z, sig, c_s2)
+        rows, segments, used = smooth_ball(fr, tt, z, sig, frame_t, jset, ts, cov=C)
         used_all.loc[g.index] = used
+        det_all.loc[g.index, "sx_mm"] = np.sqrt(C[:, 0, 0])
+        det_all.loc[g.index, "sy_mm"] = np.sqrt(C[:, 1, 1])
+        det_all.loc[g.index, "sxy_mm2"] = C[:, 0, 1]
+        det_all.loc[g.index, "smear_mm"] = np.hypot(*detection_velocity(tt, z).T) * exp_s
         df = pd.DataFrame(rows)
         df["ball"] = names[int(tid)]
         track_rows.append(df)
@@ -370,6 +444,7 @@ def _finish(det_all: pd.DataFrame, jumps: dict[int, list[int]], frame_t: np.ndar
     det_all["used"] = used_all.reindex(det_all.index).fillna(False).astype(bool)
     extra = [c for c in det_all.columns if c not in DETECTION_OUT_COLUMNS and c not in ("track", "row")]
     dets = det_all[DETECTION_OUT_COLUMNS + extra].sort_values(["frame", "ball"]).reset_index(drop=True)
+    dets.attrs["smear_scale_s2"] = c_s2
     return tracks, dets, balls, segs
 
 

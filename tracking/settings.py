@@ -310,6 +310,19 @@ class TrackingSettings:
     rest_sigma: float = 3.0
     rest_tol_mm: float = 0.25
     rest_min_s: float = 0.1
+    #: Shutter open time as a fraction of the frame interval, when known.
+    #: None: unknown, and a full-frame shutter (exposure = 1/fps, the longest
+    #: possible, so the largest smear) is assumed.
+    exposure_frac: float | None = None
+    #: Extra centre variance along the motion per squared smear length
+    #: (L = speed x exposure, mm): 1/12, the variance of a uniform
+    #: distribution on an interval of length L (the silhouette centre of a
+    #: smeared ball may come out anywhere along its sweep).
+    smear_var_per_len2: float = 1.0 / 12.0
+    #: Measure the smear scale from the clip's own detections (second
+    #: differences, covariance matching; tracking/kalman.py smear_scale),
+    #: capped by the uniform-smear bound above; False: use the bound itself.
+    smear_from_clip: bool = True
 
 
 @dataclass(frozen=True)
