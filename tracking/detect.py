@@ -30,6 +30,14 @@ origin at the centre of the top-left pixel):
    point-symmetric about the mid-exposure centre, and its half-coverage
    contour lies at ~1 radius along the motion, so the symmetric fit returns
    the mid-exposure centre; the contour's elongation is not used.
+   Known bias: the ball's Lambertian limb darkening and its contact shadow
+   make the colour difference fall off over the last few px inside the
+   limb on the side away from the lamp, so the steepest drop sits up to
+   ~1 px inside there (the centre is pulled towards the lamp, the radius
+   comes out small). An opt-in second stage (``limb_linear``,
+   :func:`_limb_points`) splits each rim pixel into ball and cloth parts in
+   linear light and takes the 50 % coverage point; see the setting for what
+   it was measured to do.
 4. Perspective: the silhouette of a sphere is the image of its tangent cone,
    whose centre is not exactly the projection of the sphere centre. We
    project the exact tangent circle through the calibrated camera (with lens
@@ -521,6 +529,86 @@ def _edge_points(dsm: np.ndarray, centre: np.ndarray, r_exp: float, settings: De
     return pts, np.clip(strength, 0, None), valid, prof[:, -3:].mean(axis=1)
 
 
+def _limb_points(lin: np.ndarray, centre: np.ndarray, radius: float, settings: DetectionSettings):
+    """Limb points along rays from the cloth's share of each pixel's linear-light colour.
+
+    Returns (pts (n,2), weight (n,) >= 0, ok (n,)).
+
+    Near the rim a pixel's linear-light colour is ``P = k F + m (1 - a) C``:
+    a the disc coverage (blurred by the lens), F and C the colour directions
+    of the ball and of the cloth, k the ball's shading (it falls towards the
+    limb: Lambertian limb darkening) and m the cloth's lighting (the ball's
+    own shadow). Per ray, F and C are the mean colours of a window just
+    inside and one just outside the first limb estimate (a guard band
+    between them); least squares on the two directions splits each sample
+    into a ball part and a cloth part beta = m (1 - a). beta is zero on the
+    ball however dark its limb, and on the cloth follows the shadow, fitted
+    as a straight line over the outer window. Under a symmetric blur of
+    sigma px the limb is where beta reaches half that line, plus half its
+    slope times the mean outward reach of the blur, sigma sqrt(2/pi). Rays
+    whose ball and cloth colours are nearly parallel (the split is
+    ill-conditioned) or whose edge is much wider than the ball's median
+    (motion smear) are flagged not ok.
+    """
+    n = settings.n_rays
+    th = np.linspace(0, 2 * np.pi, n, endpoint=False)
+    idx = np.arange(n)
+    st = settings.ray_step_px
+    g, wi, wo = settings.limb_guard_px, settings.limb_inner_px, settings.limb_outer_px
+    wi = min(wi, max(radius - g, 0.0) * 0.5)
+    s = np.arange(radius - g - wi, radius + g + wo + 1e-6, st)
+    mx = (centre[0] + np.cos(th)[:, None] * s[None, :]).astype(np.float32)
+    my = (centre[1] + np.sin(th)[:, None] * s[None, :]).astype(np.float32)
+    h, w = lin.shape[:2]
+    inside = ((mx >= 0) & (mx <= w - 1) & (my >= 0) & (my <= h - 1)).all(axis=1)
+    prof = cv2.remap(lin, mx, my, cv2.INTER_LINEAR, borderMode=cv2.BORDER_REPLICATE).astype(np.float64)
+    inn, out = s <= radius - g + 1e-9, s >= radius + g - 1e-9
+    bad = (np.zeros((n, 2)), np.zeros(n), np.zeros(n, bool))
+    if inn.sum() < 2 or out.sum() < 3:
+        return bad
+    F = prof[:, inn].mean(axis=1)  # (n, 3)
+    C = prof[:, out].mean(axis=1)
+    # beta(s) = second row of pinv([F C]) . P(s)
+    ff, cc, fc = (F * F).sum(1), (C * C).sum(1), (F * C).sum(1)
+    det = ff * cc - fc * fc
+    sin2 = det / np.maximum(ff * cc, 1e-30)  # sin^2 of the angle between ball and cloth colours
+    rowc = (C * ff[:, None] - F * fc[:, None]) / np.maximum(det, 1e-30)[:, None]  # (n, 3)
+    beta = np.einsum("nmc,nc->nm", prof, rowc)
+    so = s[out] - radius
+    A = np.column_stack([np.ones(len(so)), so])
+    bo = beta[:, out] @ np.linalg.pinv(A).T  # (n, 2): level and slope of the cloth share
+    mid = ~inn & ~out
+    sm, bm = s[mid], beta[:, mid]
+    sigma = settings.limb_blur0_px
+    pos = np.full(n, np.nan)
+    sig_ray = np.full(n, np.inf)
+    for _ in range(2):
+        level = 0.5 * (bo[:, :1] + bo[:, 1:2] * ((sm - radius)[None, :] + sigma * np.sqrt(2.0 / np.pi)))
+        t = bm - level  # < 0 on the ball side
+        neg = t < 0
+        cross = neg[:, :-1] & ~neg[:, 1:]
+        dist = np.where(cross, np.abs(sm[:-1] + 0.5 * st - radius)[None, :], np.inf)
+        j = np.argmin(dist, axis=1)
+        has = np.isfinite(dist[idx, j])
+        t0, t1 = t[idx, j], t[idx, j + 1]
+        frac = np.clip(-t0 / np.where(t1 - t0 > 1e-12, t1 - t0, 1.0), 0, 1)
+        pos = np.where(has, sm[j] + frac * st, np.nan)
+        jl, jr = np.clip(j - 2, 0, len(sm) - 1), np.clip(j + 3, 0, len(sm) - 1)
+        slope = (t[idx, jr] - t[idx, jl]) / np.maximum(sm[jr] - sm[jl], 1e-9) / np.maximum(bo[:, 0], 1e-9)
+        sig_ray = np.where(slope > 0, 1.0 / (np.sqrt(2 * np.pi) * np.maximum(slope, 1e-9)), np.inf)
+        okr = has & inside & (sin2 > settings.limb_min_sin ** 2) & (bo[:, 0] > 0)
+        if okr.sum() < 6:
+            return bad
+        sigma = float(np.clip(np.median(sig_ray[okr]), settings.limb_blur_min_px, g))
+    ok = (np.isfinite(pos) & inside & (sin2 > settings.limb_min_sin ** 2) & (bo[:, 0] > 0)
+          & (sig_ray <= settings.limb_ray_blur_ratio * sigma))
+    # weight: the cloth's colour component perpendicular to the ball's (what the split sees)
+    wgt = np.sqrt(np.clip(cc * sin2, 0, None))
+    pos = np.where(ok, pos, radius)
+    pts = np.column_stack([centre[0] + np.cos(th) * pos, centre[1] + np.sin(th) * pos])
+    return pts, wgt, ok
+
+
 def _colour_edge_points(img: np.ndarray, centre: np.ndarray, r_exp: float, settings: DetectionSettings,
                         lo: float = 0.8, hi: float = 1.25):
     """Strongest colour change (vector derivative of BGR) along rays within [lo, hi] x radius.
@@ -601,6 +689,35 @@ def refine_centre(d: np.ndarray, x0: float, y0: float, r_exp: float,
     support = float(np.mean(fit["weights"] > 0.05))
     if support < settings.min_support or np.linalg.norm(c - [x0 - xa, y0 - ya]) > 0.8 * r_exp:
         return None
+    if settings.limb_linear and image is not None:
+        # Second stage: the 50 % coverage limb in linear light (see _limb_points);
+        # rays that end on another ball, or whose edge is smeared wider than
+        # the reference windows allow (motion), keep their first edge point.
+        lin = srgb_to_linear(image[ya:yb, xa:xb] if image.dtype == np.uint8
+                             else np.asarray(image[ya:yb, xa:xb], np.float32))
+        blocked = (end > threshold_dn) if threshold_dn is not None else np.zeros(len(pts), bool)
+        for _ in range(settings.limb_iters):
+            rad0 = float(fit["radius"])
+            lp, lc, lok = _limb_points(lin, c, rad0, settings)
+            use = lok & ~blocked
+            if use.sum() < max(6, settings.min_support * len(use)):
+                break
+            # the other rays keep their first-stage edge points
+            pts2 = np.where(use[:, None], lp, pts)
+            cmax = float(np.max(lc[use]))
+            w2 = np.where(use, np.sqrt(np.clip(lc / (cmax + 1e-12), 0, 1)), w0)
+            fit2 = fit_circle_robust(pts2, w2, c, None if not fixed else r_exp, settings.tukey_c)
+            if not fixed and (not np.isfinite(fit2["radius"])
+                              or abs(fit2["radius"] - r_exp) > settings.radius_tol * r_exp):
+                fit2 = fit_circle_robust(pts2, w2, c, r_exp, settings.tukey_c)
+                fixed = True
+            if not np.all(np.isfinite(fit2["centre"])) or np.linalg.norm(fit2["centre"] - c) > 0.25 * r_exp:
+                break
+            step = float(np.linalg.norm(fit2["centre"] - c)) + abs(fit2["radius"] - rad0)
+            fit, c = fit2, fit2["centre"]
+            support = float(np.mean(fit["weights"] > 0.05))
+            if step < 0.01:
+                break
     # Centre sigma: residual scale over the effective number of independent
     # rays (neighbouring rays closer than ~1.5 px share pixels).
     n_in = float(np.sum(fit["weights"] > 0.05))

@@ -205,6 +205,47 @@ class DetectionSettings:
     #: per-detection centre errors of ~0.2 px per axis (RMS) with the fit sigma
     #: at 0.05-0.1 px; 0.2 makes their mean squared normalised error ~1.
     model_sigma_px: float = 0.2
+    #: Second edge stage (detect._limb_points): each pixel near the rim is
+    #: split, in linear light, into a ball part and a cloth part (directions
+    #: from windows just inside and just outside), and the limb is where the
+    #: cloth part reaches half its outside level (the 50 % coverage contour).
+    #: EXPERIMENTAL, off by default. On closed-form Lambertian balls at full
+    #: colour resolution (tests/test_detect_limb.py) it removes the dark-limb
+    #: bias of the first stage (centre 0.26 -> 0.03 px RMS at r 11 px, blur
+    #: 0.9 px; radius bias -0.19 -> -0.07 px). On rendered clips the recovered
+    #: diameter mostly moves to the published one (bench diam_mm: D1 55.4 ->
+    #: 57.0, bench_restitution 55.8 -> 57.4, fresh pool renders 56.2-59.3 ->
+    #: 56.5-57.5; but a carom render 61.3 -> 59.7 for 61.25) while the
+    #: centres get worse (rmse_rest D1 1.07 -> 1.79 mm, drill_cut 0.30 ->
+    #: 0.80, 3 of 4 fresh renders worse, only bench_restitution better 0.30
+    #: -> 0.11; rmse_move worse on 5 of 9 clips):
+    #: with 4:2:0 chroma subsampling (MPEG-4 and nearly all consumer video)
+    #: colour differences are blurred at half resolution in gamma space, so
+    #: the split no longer follows coverage (closed form with simulated 4:2:0:
+    #: 0.03 -> 0.25 px), and the contact shadow darkens the cloth next to the
+    #: limb faster than the straight-line shadow model allows.
+    limb_linear: bool = False
+    #: Reference windows of detect._limb_points: a guard band of
+    #: limb_guard_px either side of the first limb estimate (> 2 sigma of a
+    #: sharp video camera's blur, lens plus demosaicing ~0.7-1 px; from
+    #: memory), then limb_inner_px inside (at most half of what is left of
+    #: the radius) and limb_outer_px outside.
+    limb_guard_px: float = 2.0
+    limb_inner_px: float = 2.0
+    limb_outer_px: float = 3.0
+    #: Starting blur sigma (px) and the floor of the measured one.
+    limb_blur0_px: float = 1.0
+    limb_blur_min_px: float = 0.3
+    #: Rays whose edge is wider than this multiple of the ball's median
+    #: edge width (motion smear along the direction of travel) keep the
+    #: first-stage point.
+    limb_ray_blur_ratio: float = 1.8
+    #: Smallest angle between the ball's and the cloth's linear colours
+    #: (sine) for the split into ball and cloth parts: the split's noise
+    #: grows as 1/sine; 0.1 (6 deg) is our choice, not a measured optimum.
+    limb_min_sin: float = 0.1
+    #: Passes of the second stage (each re-centres the rays on the last fit).
+    limb_iters: int = 3
     #: Photometric model fit of each ball's image after the silhouette fit
     #: (detect.fit_ball_model): disc of the expected radius with a blurred
     #: rim, per-sector limb-darkened shading and a shadow term, over the known
