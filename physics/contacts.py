@@ -52,10 +52,15 @@ def _touch_time(pos_vel, target_mm: float, tb: float, dt: float) -> float:
     return t if abs(t - tb) <= dt else tb
 
 
-def ball_ball_core(fa: ChainFit, ia: int, xa, fb: ChainFit, ib: int, xb, radius_mm: float, dt: float):
+def ball_ball_core(fa: ChainFit, ia: int, xa, fb: ChainFit, ib: int, xb, radius_mm: float, dt: float,
+                   time_weights: np.ndarray | None = None):
     """Core values of a ball-ball contact for parameter vectors xa, xb (also used for error
-    propagation): first-touch time from the pre-contact models (centres 2R apart), the normal
-    there, velocities at the breaks, e."""
+    propagation): touch time, the normal there, velocities at the breaks, e.
+
+    The touch time is seen three ways: where the pre-contact models are 2R apart (``t_geo``) and
+    at each ball's velocity break (``tba``, ``tbb``). ``time_weights`` (3,) combines them (see
+    :func:`touch_time_weights`); None uses ``t_geo`` alone. The normal is the unit line of
+    centres of the pre-contact models at that time."""
     tba, _, va0, va1 = fa.at_break(ia, xa)
     tbb, _, vb0, vb1 = fb.at_break(ib, xb)
     tb = 0.5 * (tba + tbb)
@@ -65,13 +70,46 @@ def ball_ball_core(fa: ChainFit, ia: int, xa, fb: ChainFit, ib: int, xb, radius_
         Pb, Vb, _ = chain_eval(xb, fb.layout, np.array([t]), seg=np.array([ib]))
         return Pb[0] - Pa[0], Vb[0] - Va[0]
 
-    t1 = _touch_time(rel, 2 * radius_mm, tb, dt)
+    t_geo = _touch_time(rel, 2 * radius_mm, tb, dt)
+    t1 = t_geo if time_weights is None else float(np.dot(time_weights, [t_geo, tba, tbb]))
     Pa, _, _ = chain_eval(xa, fa.layout, np.array([t1]), seg=np.array([ia]))
     d, _ = rel(t1)
     n = d / np.hypot(*d)
     den = (vb0 - va0) @ n
     e = -((vb1 - va1) @ n) / den if abs(den) > 1e-9 else np.nan
-    return dict(t=t1, n=n, pa=Pa[0], va0=va0, va1=va1, vb0=vb0, vb1=vb1, e=e)
+    return dict(t=t1, n=n, pa=Pa[0], va0=va0, va1=va1, vb0=vb0, vb1=vb1, e=e,
+                t_geo=t_geo, tba=tba, tbb=tbb)
+
+
+def touch_time_weights(cov3: np.ndarray) -> np.ndarray:
+    """Weights (3,) of the minimum-variance unbiased combination of three estimates of one time
+    with covariance ``cov3`` (3,3): ``w = C^-1 1 / (1^T C^-1 1)`` (generalised least squares,
+    e.g. Aitken 1935). Estimates with a zero or non-finite variance (a break held at its bound,
+    or not resolved) get weight 0; with none usable the first estimate alone is used.
+
+    >>> import numpy as np
+    >>> touch_time_weights(np.diag([1.0, 1.0, 2.0])).round(2).tolist()
+    [0.4, 0.4, 0.2]
+    """
+    c = np.asarray(cov3, dtype=float)
+    v = np.diag(c)
+    ok = np.isfinite(v) & (v > 0) & np.isfinite(c).all(axis=1)
+    w = np.zeros(3)
+    if not ok[0]:
+        w[0] = 1.0
+        return w
+    sub = c[np.ix_(ok, ok)]
+    try:
+        ci1 = np.linalg.solve(sub, np.ones(int(ok.sum())))
+    except np.linalg.LinAlgError:
+        w[0] = 1.0
+        return w
+    tot = float(ci1.sum())
+    if not (np.isfinite(tot) and tot > 0):
+        w[0] = 1.0
+        return w
+    w[ok] = ci1 / tot
+    return w
 
 
 def cushion_core(f: ChainFit, i: int, x, cushion: str, normal: np.ndarray,
@@ -94,8 +132,13 @@ def cushion_core(f: ChainFit, i: int, x, cushion: str, normal: np.ndarray,
     return dict(t=t1, n=normal, pa=P[0], va0=v0, va1=v1, e=e)
 
 
-def propagate(fn, x: np.ndarray, cov: np.ndarray) -> np.ndarray:
-    """Variance of the scalar outputs of ``fn(x)`` (array) by central differences."""
+def propagate_cov(fn, x: np.ndarray, cov: np.ndarray) -> np.ndarray:
+    """Covariance matrix of the outputs of ``fn(x)`` (array) by central differences."""
+    G = _jacobian(fn, x, cov)
+    return G @ cov @ G.T
+
+
+def _jacobian(fn, x: np.ndarray, cov: np.ndarray) -> np.ndarray:
     y0 = np.atleast_1d(np.asarray(fn(x), dtype=float))
     sd = np.sqrt(np.clip(np.diag(cov), 0, None))
     G = np.zeros((len(y0), len(x)))
@@ -107,6 +150,12 @@ def propagate(fn, x: np.ndarray, cov: np.ndarray) -> np.ndarray:
         xp[j] += h
         xm[j] -= h
         G[:, j] = (np.atleast_1d(fn(xp)) - np.atleast_1d(fn(xm))) / (2 * h)
+    return G
+
+
+def propagate(fn, x: np.ndarray, cov: np.ndarray) -> np.ndarray:
+    """Variance of the scalar outputs of ``fn(x)`` (array) by central differences."""
+    G = _jacobian(fn, x, cov)
     return np.einsum("ij,jk,ik->i", G, cov, G)
 
 

@@ -8,6 +8,7 @@ Stages: raw samples per ball -> contact candidates with geometric and kinematic 
 from __future__ import annotations
 
 from dataclasses import dataclass, field, replace
+from functools import partial
 
 import numpy as np
 import pandas as pd
@@ -16,7 +17,14 @@ from threadpoolctl import threadpool_limits
 from feltlab.errors import FeltlabError
 from feltlab.standards import TablePreset
 from physics.compound import annotate_groups
-from physics.contacts import ball_ball_core, cushion_core, derived, propagate
+from physics.contacts import (
+    ball_ball_core,
+    cushion_core,
+    derived,
+    propagate,
+    propagate_cov,
+    touch_time_weights,
+)
 from physics.events import (
     BallSamples,
     ball_samples,
@@ -30,6 +38,7 @@ from physics.segments import (
     fit_chain,
     restart_after_breaks,
     segment_starts,
+    slip_link_chi2,
     unpack_segment,
 )
 from physics.settings import PhysicsSettings
@@ -189,6 +198,7 @@ def _analyze(tracks, detections, table, ball_radius_mm, ball_mass_kg, fps, setti
             fits[name] = fit_chain(b.t, b.xy, b.sig, lay, replace(s, slip_prior=False))
     # pass 2: one cloth -> each segment's friction prior is the shot estimate from the OTHER
     # segments (leave-one-out, so no data count twice); pass-1 shot estimates are reported
+    pass1 = dict(fits)
     _, mu = _segments_table(fits, samples, s)
     _, (mus, mur) = _segments_table(fits, samples, s, per_segment=True)
     alternates: dict[str, ChainFit] = {}
@@ -223,6 +233,23 @@ def _analyze(tracks, detections, table, ball_radius_mm, ball_mass_kg, fps, setti
             pri = {k: _loo_prior(s, mus, mur, (name, k)) for k in range(lay3.n_seg)}
             f3 = fit_chain(b.t, b.xy, b.sig, lay3, s2, x_init=fits[name].x, seg_priors=pri)
             fits[name] = f3
+            alternates.pop(name, None)
+    if s2.slip_prior:
+        # a link whose prior the final fit still contradicts is a model error on that side: that
+        # ball is refitted without it, from its final and its prior-free pass-1 parameters
+        for name, f in list(fits.items()):
+            lay = f.layout
+            if lay.rest_first and lay.n_seg == 1:
+                continue
+            bad = slip_link_chi2(f.x, lay, s2) > s.slip_reject_chi2
+            if not bad.any():
+                continue
+            b = samples[name]
+            lay_u = replace(lay, slip_link=lay.links & ~bad)
+            pri = {k: _loo_prior(s, mus, mur, (name, k)) for k in range(lay_u.n_seg)}
+            tries = [fit_chain(b.t, b.xy, b.sig, lay_u, s2, x_init=x0, seg_priors=pri)
+                     for x0 in (f.x, _plausible_start(pass1[name].x, lay_u, s2))]
+            fits[name] = min(tries, key=lambda q: q.cost)
             alternates.pop(name, None)
     contacts = _contacts_table(cands, fits, maps, table, R, m, dt, s)
     if alternates:
@@ -454,13 +481,21 @@ def _contacts_table(cands, fits, maps, table, R, m, dt, s) -> pd.DataFrame:
                 continue
             na = len(fa.x)
 
-            def core_of(z, fa=fa, fb=fb, ia=ia, ib=ib, na=na):
-                return ball_ball_core(fa, ia, z[:na], fb, ib, z[na:], R, dt)
+            def core_of(z, fa=fa, fb=fb, ia=ia, ib=ib, na=na, w=None):
+                return ball_ball_core(fa, ia, z[:na], fb, ib, z[na:], R, dt, w)
 
             xz = np.concatenate([fa.x, fb.x])
             cz = np.zeros((len(xz), len(xz)))
             cz[:na, :na] = fa.cov
             cz[na:, na:] = fb.cov
+            # a break shared with another contact (within one frame) times that group, not this pair
+            own = all(list(maps[bn][0].values()).count(j) == 1 and not maps[bn][1][j].mixed
+                      for bn, j in ((c.ball_a, ia), (c.ball_b, ib)))
+            if s.touch_time_fuse and own:
+                # touch time from the gap and from both velocity breaks, combined by their
+                # covariance: the normal's direction follows the touch time (see settings)
+                c3 = propagate_cov(lambda z: _touch_times(core_of(z)), xz, cz)
+                core_of = partial(core_of, w=touch_time_weights(c3))
             core = core_of(xz)
             var = propagate(lambda z: _e_t(core_of(z)), xz, cz)
             rolls_a, rolls_b = _roll_flags(fa, ia), _roll_flags(fb, ib)
@@ -683,3 +718,7 @@ def tables_from_positions(
 
 def _e_t(core: dict) -> np.ndarray:
     return np.array([core["e"], core["t"]])
+
+
+def _touch_times(core: dict) -> np.ndarray:
+    return np.array([core["t_geo"], core["tba"], core["tbb"]])

@@ -233,40 +233,54 @@ def slip_residuals(x: np.ndarray, lay: ChainLayout, s: PhysicsSettings) -> np.nd
     links = lay.links
     if not links.any():
         return np.zeros(0)
+    out: list[float] = []
+    for i in np.flatnonzero(links):
+        out += _link_residuals(x, lay, s, int(i))
+    return np.asarray(out, dtype=float)
+
+
+def slip_link_chi2(x: np.ndarray, lay: ChainLayout, s: PhysicsSettings) -> np.ndarray:
+    """Per break (n_break,): sum of squared slip-prior residuals (see :func:`slip_residuals`)
+    of a linked break, 0 for an unlinked one. Dimensionless (chi^2, 2 degrees of freedom)."""
+    out = np.zeros(lay.n_seg - 1)
+    for i in np.flatnonzero(lay.links):
+        r = _link_residuals(x, lay, s, int(i))
+        out[i] = float(np.sum(np.square(r)))
+    return out
+
+
+def _link_residuals(x: np.ndarray, lay: ChainLayout, s: PhysicsSettings, i: int) -> list[float]:
+    """The two slip-prior residuals (along, across the shift direction; in sigmas) of break i."""
     br = x[lay.break_offset : lay.break_offset + lay.n_seg - 1]
     starts = np.concatenate([[lay.t_start], br])
-    out = []
-    for i in np.flatnonzero(links):
-        prev, nxt = unpack_segment(x, lay, i), unpack_segment(x, lay, i + 1)
-        if nxt is None:
-            continue
-        tau = float(br[i] - starts[i])
-        if prev is None:
-            v_end = u_end = np.zeros(2)
-        else:
-            v0, a, t_roll, a_r = prev
-            _, v_end = move_motion(np.array([tau]), v0, a, t_roll, a_r)
-            v_end = v_end[0]
-            u_end = slip_velocity(v0, a, t_roll, tau)
-        v1, a1, t_roll1, _ = nxt
-        u_start = slip_velocity(v1, a1, t_roll1, 0.0)
-        dv = v1 - v_end
-        r = u_start - u_end - dv
-        sp = float(np.hypot(*dv))
-        sig_perp = np.hypot(s.slip_sigma_rel * sp, s.slip_sigma_mm_s)
-        if lay.slip_shift is not None and np.all(np.isfinite(lay.slip_shift[i])):
-            X, nx, ny = lay.slip_shift[i]
-            d = np.array([nx, ny])
-            r = r - X * d
-            sig_par = np.hypot(sig_perp, float(lay.slip_shift_sigma[i]))
-            out += [(r @ d) / sig_par, (d[0] * r[1] - d[1] * r[0]) / sig_perp]
-        elif sp > 1e-9:
-            d = dv / sp
-            sig_par = np.hypot(sig_perp, s.slip_sigma_rel_along * sp)
-            out += [(r @ d) / sig_par, (d[0] * r[1] - d[1] * r[0]) / sig_perp]
-        else:
-            out += list(r / sig_perp)
-    return np.asarray(out, dtype=float)
+    prev, nxt = unpack_segment(x, lay, i), unpack_segment(x, lay, i + 1)
+    if nxt is None:
+        return []
+    tau = float(br[i] - starts[i])
+    if prev is None:
+        v_end = u_end = np.zeros(2)
+    else:
+        v0, a, t_roll, a_r = prev
+        _, v_end = move_motion(np.array([tau]), v0, a, t_roll, a_r)
+        v_end = v_end[0]
+        u_end = slip_velocity(v0, a, t_roll, tau)
+    v1, a1, t_roll1, _ = nxt
+    u_start = slip_velocity(v1, a1, t_roll1, 0.0)
+    dv = v1 - v_end
+    r = u_start - u_end - dv
+    sp = float(np.hypot(*dv))
+    sig_perp = np.hypot(s.slip_sigma_rel * sp, s.slip_sigma_mm_s)
+    if lay.slip_shift is not None and np.all(np.isfinite(lay.slip_shift[i])):
+        X, nx, ny = lay.slip_shift[i]
+        d = np.array([nx, ny])
+        r = r - X * d
+        sig_par = np.hypot(sig_perp, float(lay.slip_shift_sigma[i]))
+        return [(r @ d) / sig_par, (d[0] * r[1] - d[1] * r[0]) / sig_perp]
+    if sp > 1e-9:
+        d = dv / sp
+        sig_par = np.hypot(sig_perp, s.slip_sigma_rel_along * sp)
+        return [(r @ d) / sig_par, (d[0] * r[1] - d[1] * r[0]) / sig_perp]
+    return list(r / sig_perp)
 
 
 def robust_residuals(r: np.ndarray, s: PhysicsSettings) -> np.ndarray:

@@ -133,6 +133,17 @@ class PhysicsSettings:
     #: Third pass: the shift is the same X n for both balls of a contact, so each ball's prior
     #: on X takes in the other ball's estimate (physics.pipeline._shared_slip_shifts).
     slip_share_shift: bool = True
+    #: A linked contact whose fitted slip residuals still add up to more than this chi^2 (2 degrees
+    #: of freedom; 13.8 is the 99.9 % point) contradicts the prior: the motion model on one side is
+    #: wrong there (e.g. a roll-over fitted on the wrong side of the contact, where the slip has no
+    #: gradient and the fit cannot move it), so that ball is refitted without the link. Design choice.
+    slip_reject_chi2: float = 13.8
+    #: The ball-ball touch time (and with it the contact normal, the line of centres of the
+    #: pre-contact models then) combines three estimates by their covariance: the time the models
+    #: are 2R apart and the two balls' velocity breaks. At a cut angle phi a gap error moves the
+    #: gap-only time by gap / v_n, which turns the normal by v_t / v_n x that over 2R, so e's error
+    #: grows as tan^2 phi; the breaks are independent evidence of the same instant. Design choice.
+    touch_time_fuse: bool = True
 
     #: Second pass: every slide phase of the shot shares the cloth's mu_s and every roll phase its
     #: mu_r (one cloth, one ball set): the pass-1 shot estimates become priors with these relative

@@ -163,3 +163,25 @@ def test_contacts_whose_fit_shows_no_separation_are_dropped():
     out = _drop_non_separating(df, cands, PhysicsSettings())
     assert out["_cand"].tolist() == [0, 2, 3]  # -1.1 +- 0.2 dropped; -0.05 +- 0.05 within noise; link kept
     assert out["contact"].tolist() == [0, 1, 2]
+
+
+def test_touch_time_weights_match_generalised_least_squares():
+    """The combined touch time is the generalised-least-squares estimate of one constant from
+    three correlated estimates; statsmodels' GLS (independent library) gives the same value, and
+    an estimate with zero variance (a break held at its bound) is left out."""
+    import statsmodels.api as sm
+
+    from physics.contacts import touch_time_weights
+
+    rng = np.random.default_rng(3)
+    for _ in range(5):
+        A = rng.normal(size=(3, 3))
+        C = A @ A.T + 0.1 * np.eye(3)
+        y = rng.normal(size=3)
+        w = touch_time_weights(C)
+        ref = sm.GLS(y, np.ones((3, 1)), sigma=C).fit().params[0]
+        assert float(w @ y) == pytest.approx(ref, rel=1e-9, abs=1e-12)  # statsmodels GLS
+        assert w.sum() == pytest.approx(1.0)
+    C = np.diag([1.0, 0.0, 4.0])
+    w = touch_time_weights(C)
+    assert w[1] == 0.0 and w @ np.array([1.0, 9.0, 2.0]) == pytest.approx((1.0 + 2.0 / 4) / 1.25)
