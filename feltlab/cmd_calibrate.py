@@ -18,7 +18,7 @@ from feltlab.standards import DEFAULT_TABLE, table_preset
 
 
 @click.command(name="calibrate")
-@click.argument("clip", type=click.Path(path_type=Path, dir_okay=False))
+@click.argument("clip", type=click.Path(path_type=Path, dir_okay=True))
 @click.option("--table", default=None, metavar="PRESET",
               help=f"Table preset: pool-9ft, pool-8ft, pool-7ft, snooker, carom (default {DEFAULT_TABLE}, "
                    "or the --calib file's).")
@@ -47,7 +47,8 @@ def command(clip: Path, table: str | None, fps: float | None, calib: Path | None
             raise FeltlabError(str(exc)) from None
     dest = Path(out) if out is not None else Path("results") / clip.stem
     toml_path, png_path = dest / "calibration.toml", dest / "calibration.png"
-    src = open_video(clip, fps_override=fps)
+    # timing does not enter a calibration: a frame folder (no frame rate) needs no --fps here
+    src = open_video(clip, fps_override=fps if fps is not None or not clip.is_dir() else 1.0)
     if not replace:
         for p in (toml_path, png_path):
             if p.exists():

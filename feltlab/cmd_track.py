@@ -38,7 +38,7 @@ def parse_frames(text: str | None) -> tuple[int, int | None] | None:
 
 
 @click.command(name="track")
-@click.argument("clip", type=click.Path(path_type=Path, dir_okay=False))
+@click.argument("clip", type=click.Path(path_type=Path, dir_okay=True))
 @click.option("--table", default=None, metavar="PRESET",
               help=f"Table preset: pool-9ft, pool-8ft, pool-7ft, snooker, carom (default {DEFAULT_TABLE}, "
                    "or the --calib file's).")

@@ -114,9 +114,16 @@ class AnalysisResult:
 def _check_inputs(clip: Path, settings: AnalyzeSettings) -> None:
     if not clip.exists():
         raise FeltlabError(f"clip {clip} does not exist; check the path")
-    if not clip.is_file():
-        raise FeltlabError(f"clip {clip} is not a file; pass a video file (a folder goes to `feltlab batch`)")
-    if clip.stat().st_size == 0:
+    if clip.is_dir():
+        from tracking.video import FRAME_SUFFIXES
+
+        if not any(f.suffix.lower() in FRAME_SUFFIXES for f in clip.iterdir()):
+            raise FeltlabError(f"clip {clip} is a folder without frame images; pass a video file, a folder of "
+                               "frames (with --fps), or give a folder of clips to `feltlab batch`")
+        if settings.fps is None:
+            raise FeltlabError(f"clip {clip} is a folder of frames, which carries no frame rate; "
+                               "pass the capture rate with --fps")
+    elif clip.stat().st_size == 0:
         raise FeltlabError(f"clip {clip} is empty (0 bytes); re-copy or re-export the video")
     if settings.fps is not None and not (math.isfinite(settings.fps) and 0 < settings.fps <= 100000):
         raise FeltlabError(f"--fps {settings.fps} is not a frame rate; give the camera's capture rate, e.g. --fps 240")

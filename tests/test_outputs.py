@@ -454,6 +454,15 @@ def test_cli_bad_input_one_line_exit_2(tmp_path):
     r = CliRunner().invoke(main, ["analyze", str(tmp_path / "x.mp4"), "--table", "pool-10ft"])
     assert r.exit_code == 2 and "pool-9ft" in r.output
     assert not (Path("results") / "x").exists()
+    # a folder of frames needs --fps; a folder without frames is refused
+    seq = tmp_path / "seq"
+    seq.mkdir()
+    r = CliRunner().invoke(main, ["analyze", str(seq), "--out", str(tmp_path / "o")])
+    assert r.exit_code == 2 and r.output.strip().count("\n") == 0 and "without frame images" in r.output
+    (seq / "f1.png").write_bytes(b"x")
+    r = CliRunner().invoke(main, ["analyze", str(seq), "--out", str(tmp_path / "o")])
+    assert r.exit_code == 2 and "--fps" in r.output
+    assert not (tmp_path / "o").exists()
 
 
 def test_shot_without_contacts(tmp_path, monkeypatch):

@@ -133,3 +133,46 @@ def test_outside_footage_metadata():
     assert src.n_frames == truth["n_frames"]
     first = next(iter(src.frames(step=60)))
     assert first[0] == 0 and first[1] == 0.0
+
+
+def _write_frames(folder: Path, n: int, ext: str = "png", size=(96, 64), bits16: bool = False,
+                  grey: bool = False) -> Path:
+    """Frames f1..fn (unpadded numbers, so plain name order would be wrong), grey level = index."""
+    folder.mkdir(parents=True, exist_ok=True)
+    for k in range(n):
+        level = 5 * k + 30
+        img = np.full((size[1], size[0]) if grey else (size[1], size[0], 3), level, np.uint8)
+        if bits16:
+            img = img.astype(np.uint16) * 257  # the same brightness in 16 bits (x 65535 / 255)
+        assert cv2.imwrite(str(folder / f"f{k + 1}.{ext}"), img)
+    return folder
+
+
+@pytest.mark.parametrize("ext,bits16,grey", [("png", False, False), ("tif", True, False), ("png", False, True)])
+def test_frame_folder_reads_in_natural_order_at_the_given_rate(tmp_path, ext, bits16, grey):
+    # Images written with OpenCV's own imwrite (independent of our reader).
+    folder = _write_frames(tmp_path / "seq", 12, ext, bits16=bits16, grey=grey)
+    with pytest.raises(FeltlabError, match="--fps") as exc:
+        open_video(folder)
+    assert "\n" not in str(exc.value)
+    src = open_video(folder, fps_override=500.0, frame_range=(2, 11))
+    assert (src.width, src.height) == (96, 64) and src.n_frames == 9
+    got = [(i, t, _level(img), img.dtype, img.shape) for i, t, img in src]
+    assert [g[0] for g in got] == list(range(2, 11))
+    assert [g[1] for g in got] == [k / 500.0 for k in range(2, 11)]
+    assert [g[2] for g in got] == list(range(2, 11))  # f10 after f9, not after f1
+    assert all(g[3] == np.uint8 and g[4] == (64, 96, 3) for g in got)
+
+
+def test_frame_folder_errors(tmp_path):
+    empty = tmp_path / "empty"
+    empty.mkdir()
+    (empty / "notes.txt").write_text("no frames here\n")
+    with pytest.raises(FeltlabError, match="no frame images"):
+        open_video(empty, fps_override=100.0)
+    mixed = _write_frames(tmp_path / "mixed", 4)
+    cv2.imwrite(str(mixed / "f5.png"), np.zeros((32, 48, 3), np.uint8))
+    src = open_video(mixed, fps_override=100.0)
+    with pytest.raises(FeltlabError, match="one size") as exc:
+        list(src)
+    assert "\n" not in str(exc.value)

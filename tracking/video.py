@@ -18,6 +18,12 @@ Timestamps (``t_s``, seconds, first yielded frame of the clip at index 0 -> 0 s)
   A later time that goes backwards is replaced by the previous time plus one
   nominal frame interval and reported in ``warnings``.
 
+A folder of still frames (PNG, TIFF, BMP or JPEG; high-speed cameras often
+save these) reads as a clip too: files in natural order of their names
+(``f2`` before ``f10``), all of one size, read with OpenCV's ``imread``
+(16-bit and grey images become 8-bit BGR). A folder has no frame rate, so
+``fps_override`` is required, and times are ``index / fps``.
+
 Frame ``index`` always counts decoded frames from the start of the clip;
 ``frame_range = (start, stop)`` yields ``start <= index < stop`` (stop may be
 None for "to the end").
@@ -144,13 +150,84 @@ class VideoSource:
         return out
 
 
-def _open_capture(path: Path) -> cv2.VideoCapture:
+#: File types read from a folder of frames (lower-case suffixes).
+FRAME_SUFFIXES = (".png", ".tif", ".tiff", ".bmp", ".jpg", ".jpeg")
+
+
+def _natural_key(name: str) -> list:
+    """Sort key that orders the numbers inside a name by value ('f2' < 'f10')."""
+    import re
+
+    return [int(t) if t.isdigit() else t.lower() for t in re.split(r"(\d+)", name)]
+
+
+def frame_files(folder: Path) -> list[Path]:
+    """Image files of a frame folder in natural order; FeltlabError if there are none."""
+    files = sorted((f for f in folder.iterdir() if f.is_file() and f.suffix.lower() in FRAME_SUFFIXES),
+                   key=lambda f: _natural_key(f.name))
+    if not files:
+        raise FeltlabError(f"{folder}: is a folder with no frame images ({', '.join(FRAME_SUFFIXES)}); "
+                           "give a video file or a folder of frames")
+    return files
+
+
+class FrameFolder:
+    """The part of ``cv2.VideoCapture``'s interface we use, over a folder of still frames."""
+
+    def __init__(self, folder: Path):
+        self.folder = Path(folder)
+        self.files = frame_files(self.folder)
+        self.pos = 0  # index of the next frame to grab
+        self.size: tuple[int, int] | None = None
+
+    def isOpened(self) -> bool:  # noqa: N802 - mirrors cv2.VideoCapture
+        return True
+
+    def grab(self) -> bool:
+        if self.pos >= len(self.files):
+            return False
+        self.pos += 1
+        return True
+
+    def retrieve(self) -> tuple[bool, np.ndarray | None]:
+        f = self.files[self.pos - 1]
+        img = cv2.imread(str(f), cv2.IMREAD_COLOR)
+        if img is None:
+            raise FeltlabError(f"{f.name}: not a readable image; remove it from {self.folder.name} or replace it")
+        if self.size is None:
+            self.size = (img.shape[1], img.shape[0])
+        elif (img.shape[1], img.shape[0]) != self.size:
+            raise FeltlabError(f"{f.name} is {img.shape[1]}x{img.shape[0]} but earlier frames are "
+                               f"{self.size[0]}x{self.size[1]}; a frame folder must hold frames of one size")
+        return True, img
+
+    def read(self) -> tuple[bool, np.ndarray | None]:
+        return self.retrieve() if self.grab() else (False, None)
+
+    def get(self, prop: int) -> float:
+        if prop == cv2.CAP_PROP_FRAME_COUNT:
+            return float(len(self.files))
+        return 0.0  # no frame rate, no presentation times
+
+    def release(self) -> None:
+        pass
+
+
+def _open_capture(path: Path):
+    """A cv2.VideoCapture for a video file, a FrameFolder for a folder of frames."""
+    if path.is_dir():
+        return FrameFolder(path)
     cap = cv2.VideoCapture(str(path))
     if not cap.isOpened():
         cap.release()
         raise FeltlabError(f"{path.name}: not a readable video (damaged, truncated or an unsupported format); "
                            "convert it to MP4/H.264 or check the file")
     return cap
+
+
+def open_capture(path: str | os.PathLike):
+    """Open a video file or frame folder for plain sequential reading (``read()``, ``release()``)."""
+    return _open_capture(Path(path))
 
 
 def open_video(path: str | os.PathLike, fps_override: float | None = None,
@@ -166,8 +243,10 @@ def open_video(path: str | os.PathLike, fps_override: float | None = None,
     if not p.exists():
         raise FeltlabError(f"{p}: no such file; check the path")
     if p.is_dir():
-        raise FeltlabError(f"{p}: is a folder, not a video file")
-    if p.stat().st_size == 0:
+        frame_files(p)  # refuses a folder without frames
+        if fps_override is None:
+            raise FeltlabError(f"{p.name}: a folder of frames carries no frame rate; pass the capture rate with --fps")
+    elif p.stat().st_size == 0:
         raise FeltlabError(f"{p.name}: the file is empty (0 bytes)")
     if fps_override is not None:
         if not (isinstance(fps_override, (int, float)) and math.isfinite(fps_override) and fps_override > 0):

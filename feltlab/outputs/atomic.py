@@ -30,16 +30,25 @@ def finished_result(dest: Path) -> dict | None:
 
 
 def sha256_file(path: Path | str, chunk: int = 1 << 20) -> str:
-    """Hex SHA-256 of a file, read in 1 MiB chunks."""
+    """Hex SHA-256 of a file, read in 1 MiB chunks; of a frame folder, over its frames' names and bytes in order."""
     import hashlib
 
     h = hashlib.sha256()
-    with open(path, "rb") as f:
-        while True:
-            b = f.read(chunk)
-            if not b:
-                break
-            h.update(b)
+    if Path(path).is_dir():
+        from tracking.video import frame_files
+
+        files = frame_files(Path(path))
+    else:
+        files = [Path(path)]
+    for fp in files:
+        if len(files) > 1:
+            h.update(fp.name.encode() + b"\0")
+        with open(fp, "rb") as f:
+            while True:
+                b = f.read(chunk)
+                if not b:
+                    break
+                h.update(b)
     return h.hexdigest()
 
 

@@ -491,8 +491,13 @@ def render_annotations(video_path: Path, ov: Overlay, out_dir: Path, write_video
     cons = {c["contact"]: c for c in ov.contacts}
     boxes = {c["contact"]: closeup_box(ov, c) for c in ov.contacts}
     crops: dict[int, list] = {}
-    cap = cv2.VideoCapture(str(video_path))
-    if not cap.isOpened():
+    from tracking.video import open_capture
+
+    try:
+        cap = open_capture(video_path)
+    except FeltlabError:
+        cap = None
+    if cap is None or not cap.isOpened():
         raise FeltlabError(f"cannot re-open {video_path} to draw the annotated frames; check the file is readable",
                            stage="outputs")
     writer = None
