@@ -223,7 +223,13 @@ class Linker:
         # End tracks unseen for too long.
         keep = []
         for tr in self.live:
-            if t - tr.last_seen_t > s.max_missed_s:
+            # a tentative track (fewer than confirm_hits fixes: a streak end, a
+            # flash) is dropped as soon as it misses more than a re-start gap;
+            # kept alive, its unknown velocity lets its gate grow over the whole
+            # table and it would take the next ball that starts to move
+            # (M-of-N track confirmation, Blackman & Popoli 1999, ch. 9)
+            limit = s.max_missed_s if tr.hits >= s.confirm_hits else max(s.jump_max_gap_s, 1.5 * dt_frame)
+            if t - tr.last_seen_t > limit:
                 self.ended.append(tr)
             else:
                 keep.append(tr)

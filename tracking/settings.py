@@ -331,6 +331,10 @@ class TrackingSettings:
     split_nis: float = 18.4
     #: Frames a track may go unseen before it is ended (occlusion by cue/hand).
     max_missed_s: float = 0.5
+    #: Fixes before a track counts as confirmed; a tentative track is ended
+    #: once unseen for longer than jump_max_gap_s (M-of-N confirmation with
+    #: 3 of 3 is a common choice; Blackman & Popoli 1999, ch. 9, from memory).
+    confirm_hits: int = 3
     #: Longest gap (s) since a track's last fix across which the linker may
     #: re-start its motion (a contact) instead of continuing it through the
     #: gate. Two touching balls can merge into one blob for the frame or two
