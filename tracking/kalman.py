@@ -279,7 +279,7 @@ def _refine_boundaries(t, z, sig, segs, out, m: int = 5, max_moves: int = 2):
 
 
 def smear_scale(pieces: list[tuple[np.ndarray, np.ndarray, np.ndarray]], c_max_s2: float,
-                outlier_chi2: float = 10.83) -> float:
+                outlier_chi2: float = 10.83, max_drop: float = 0.1) -> float:
     """Clip-wide smear scale c (s^2): along-motion centre variance c |v|^2 beyond the detector's sigma.
 
     pieces: per ball (t (N,) s, z (N,2) mm, R (N,2,2) mm^2 detector
@@ -322,9 +322,14 @@ def smear_scale(pieces: list[tuple[np.ndarray, np.ndarray, np.ndarray]], c_max_s
     if not rows:
         return 0.0
     du2, base, w = np.vstack(rows).T
+    # at most max_drop of the triples (those least like blur at the bound)
+    # may be left out: contacts are a few per ball, and trimming a
+    # heavy-tailed blur error by its own shrinking estimate would run to 0
+    r = du2 / (base + c_max_s2 * w)
+    always = r <= np.quantile(r, 1.0 - max_drop)
     c = c_max_s2
     for _ in range(20):
-        keep = du2 <= outlier_chi2 * (base + c * w)
+        keep = always | (du2 <= outlier_chi2 * (base + c * w))
         if not keep.any() or w[keep].sum() <= 0:
             return 0.0
         c_new = float(np.clip(np.sum(du2[keep] - base[keep]) / np.sum(w[keep]), 0.0, c_max_s2))
