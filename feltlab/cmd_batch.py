@@ -20,9 +20,11 @@ EXIT_CLIP_FAILED = 1
 EXIT_SPEC_FAILED = 3
 
 
-def analyze_settings(table: str | None, calib: Path | None = None):
-    """The single-clip analyser's settings, with ``table`` (preset name or alias) and ``calib``
-    (manual calibration file used for every clip) set when given."""
+def analyze_settings(table: str | None, calib: Path | None = None, fps: float | None = None):
+    """The single-clip analyser's settings, with ``table`` (preset name or alias), ``calib``
+    (manual calibration file used for every clip) and ``fps`` (capture rate of every clip) set when given."""
+    import math
+
     from feltlab.standards import table_preset
 
     try:
@@ -42,6 +44,11 @@ def analyze_settings(table: str | None, calib: Path | None = None):
             raise FeltlabError(f"calibration file {calib} does not exist; check the path (or omit --calib)",
                                stage="input")
         kw["calib"] = str(Path(calib).resolve())
+    if fps is not None:
+        if not (math.isfinite(fps) and 0 < fps <= 100000):
+            raise FeltlabError(f"--fps {fps} is not a frame rate; give the camera's capture rate, e.g. --fps 240",
+                               stage="input")
+        kw["fps"] = float(fps)
     missing = set(kw) - names
     if missing:
         raise FeltlabError(f"this version of the analyser has no {', '.join(sorted(missing))} setting; "
@@ -61,12 +68,15 @@ def analyze_settings(table: str | None, calib: Path | None = None):
 @click.option("--table", default=None, metavar="PRESET", help="Table preset for every clip, e.g. pool-9ft, snooker, carom.")
 @click.option("--calib", type=click.Path(path_type=Path), default=None, metavar="FILE",
               help="Manual calibration (TOML) for every clip, e.g. a bench camera filming part of a table.")
+@click.option("--fps", type=float, default=None, metavar="N",
+              help="Capture frame rate of every clip, frames/s (high-speed cameras store a playback rate; "
+                   "needed for folders of frames).")
 @click.option("--spec", "spec_path", type=click.Path(path_type=Path), default=None, metavar="SPEC.toml",
               help="Acceptance bands to judge the series against (see clips/example_spec.toml).")
 @click.option("--quiet", is_flag=True, help="No progress bar, only the summary lines.")
 def command(folder: Path, out_dir: Path, workers: int | None, scheduler: str | None, table: str | None,
-            calib: Path | None, spec_path: Path | None, quiet: bool) -> None:
-    """Analyse every video clip below FOLDER; skip clips already finished with the same settings.
+            calib: Path | None, fps: float | None, spec_path: Path | None, quiet: bool) -> None:
+    """Analyse every video clip (or folder of frames) below FOLDER; skip clips already finished with the same settings.
 
     Writes failures.csv, all_contacts.csv/.parquet, series.csv, series.html and
     series_plots/ into OUT. Clips that cannot be analysed are listed with a reason and
@@ -78,7 +88,7 @@ def command(folder: Path, out_dir: Path, workers: int | None, scheduler: str | N
     from feltlab.batch.spec import load_spec
 
     spec = load_spec(spec_path) if spec_path is not None else None
-    settings = analyze_settings(table, calib)
+    settings = analyze_settings(table, calib, fps)
     show = not quiet and sys.stderr.isatty()
     try:
         report = run_batch(folder, out_dir, settings, workers=workers or os.cpu_count(), scheduler=scheduler,

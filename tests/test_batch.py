@@ -140,6 +140,34 @@ def test_discover_finds_video_extensions_any_case_and_skips_output(tmp_path: Pat
     assert is_video_name("clip.M2TS") and not is_video_name("mp4")
 
 
+def test_discover_takes_a_folder_of_frames_as_one_clip(tmp_path: Path) -> None:
+    root = tmp_path / "in"
+    for name in ["shot1/f1.png", "shot1/f2.png", "shot1/f10.png", "shot1/nested/x.mp4",
+                 "seq/a.TIF", "seq/b.tif", "lone/only.png", "mixed/v.mp4", "mixed/p.png", "mixed/q.png"]:
+        (root / name).parent.mkdir(parents=True, exist_ok=True)
+        (root / name).write_bytes(b"x" * 3)
+    clips = {c.rel: c for c in discover_clips(root)}
+    # a frame folder is one clip and is not searched further; one image alone is not a clip;
+    # a folder with a video holds clips, not frames
+    assert sorted(clips) == ["mixed/v.mp4", "seq", "shot1"]
+    assert clips["shot1"].result_rel == "shot1" and clips["shot1"].size_bytes == 9
+    # the batch's clip digest covers every frame, in order: editing one frame changes it
+    from feltlab.batch.discover import file_sha256
+
+    before = file_sha256(clips["shot1"].path)
+    (root / "shot1" / "f10.png").write_bytes(b"y" * 3)
+    assert file_sha256(clips["shot1"].path) != before
+
+
+def test_batch_fps_reaches_the_analyser_and_bad_rates_are_refused() -> None:
+    from feltlab.cmd_batch import analyze_settings
+
+    assert analyze_settings(None, None, 480.0).fps == 480.0
+    for bad in (0.0, -5.0, float("nan")):
+        with pytest.raises(FeltlabError, match="capture rate"):
+            analyze_settings(None, None, bad)
+
+
 def test_discover_empty_folder_is_a_clear_error(tmp_path: Path) -> None:
     (tmp_path / "notes.txt").write_text("x")
     with pytest.raises(FeltlabError, match="no video clips found"):
@@ -198,7 +226,7 @@ def test_cli_exits_nonzero_when_a_clip_fails(clip_folder: Path, tmp_path: Path,
     from feltlab.cli import main
 
     monkeypatch.setattr(runner, "default_analyzer", lambda: fake_analyze)
-    monkeypatch.setattr(cmd, "analyze_settings", lambda table, calib=None: {"table": table})
+    monkeypatch.setattr(cmd, "analyze_settings", lambda table, calib=None, fps=None: {"table": table})
     out = tmp_path / "out"
     res = CliRunner().invoke(main, ["batch", str(clip_folder), "--out", str(out), "--workers", "1", "--quiet"])
     assert res.exit_code == 1, res.output

@@ -7,6 +7,10 @@ anything inside ``out_dir``, and maps each clip to a result folder
 ``<relative path without extension>``. Two clips that would share a result
 folder (``a.mp4`` and ``a.mov`` side by side) both get the extension appended
 (``a_mp4``, ``a_mov``) so neither result hides the other.
+
+A folder that holds at least :data:`MIN_FOLDER_FRAMES` frame images and no
+video file is one clip (a high-speed camera's image sequence), named by its
+relative path; nothing below it is searched. Such clips need ``--fps``.
 """
 from __future__ import annotations
 
@@ -24,6 +28,19 @@ RESERVED_NAMES: frozenset[str] = frozenset(
     {"failures.csv", "all_contacts.csv", "all_contacts.parquet", "series.csv", "series.html",
      "series_session.csv", "series_friction.csv", "series_spec.csv", "series_outliers.csv", "series_plots"}
 )
+
+
+#: A folder with at least this many frame images (and no video) is a clip of frames.
+MIN_FOLDER_FRAMES = 2
+
+
+def _is_frame_folder(filenames: list[str]) -> bool:
+    from tracking.video import FRAME_SUFFIXES
+
+    if any(is_video_name(n) for n in filenames):
+        return False
+    return sum(1 for n in filenames if not n.startswith(".") and n.lower().endswith(FRAME_SUFFIXES)) \
+        >= MIN_FOLDER_FRAMES
 
 
 @dataclass(frozen=True)
@@ -60,6 +77,13 @@ def discover_clips(folder: Path | str, out_dir: Path | str | None = None) -> lis
     found: list[tuple[str, Path, int]] = []
     for dirpath, dirnames, filenames in os.walk(root, followlinks=False):
         here = Path(dirpath)
+        if _is_frame_folder(filenames):
+            from tracking.video import frame_files
+
+            rel = here.relative_to(root).as_posix() if here != root else root.name
+            found.append((rel, here, sum(f.stat().st_size for f in frame_files(here))))
+            dirnames[:] = []
+            continue
         dirnames[:] = sorted(
             d for d in dirnames
             if not d.startswith(".") and (skip is None or (here / d).resolve() != skip)
@@ -75,7 +99,8 @@ def discover_clips(folder: Path | str, out_dir: Path | str | None = None) -> lis
     if not found:
         exts = ", ".join(sorted(VIDEO_EXTENSIONS))
         raise FeltlabError(
-            f"no video clips found below {root}; expected files ending in one of: {exts}",
+            f"no video clips found below {root}; expected files ending in one of: {exts}, "
+            "or folders of frame images",
             stage="discover",
         )
     return _assign_result_folders(found)

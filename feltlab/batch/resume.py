@@ -303,14 +303,26 @@ class HashCache:
     def sha256(self, path: Path, hasher) -> str:
         """The file's SHA-256 from the cache when size and mtime match, else ``hasher(path)``."""
         p = Path(path).resolve()
-        st = p.stat()
+        size, mtime = _stat_signature(p)
         key = str(p)
         hit = self.entries.get(key)
-        if isinstance(hit, list) and len(hit) == 3 and hit[0] == st.st_size and hit[1] == st.st_mtime_ns:
+        if isinstance(hit, list) and len(hit) == 3 and hit[0] == size and hit[1] == mtime:
             return str(hit[2])
         sha = hasher(p)
-        self.entries[key] = [st.st_size, st.st_mtime_ns, sha]
+        self.entries[key] = [size, mtime, sha]
         return sha
 
     def save(self) -> None:
         write_json_atomic(self.path, self.entries)
+
+
+def _stat_signature(p: Path) -> tuple[int, int]:
+    """(size in bytes, latest mtime in ns) of a clip file, or over every frame of a frame folder
+    (a frame edited in place changes the folder's signature, not only its own)."""
+    if p.is_dir():
+        from tracking.video import frame_files
+
+        sts = [f.stat() for f in frame_files(p)]
+        return sum(st.st_size for st in sts) + len(sts), max(st.st_mtime_ns for st in sts)
+    st = p.stat()
+    return st.st_size, st.st_mtime_ns
