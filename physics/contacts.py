@@ -2,7 +2,9 @@
 
 Definitions (table plane, mm, s, kg; results in N·s, J, degrees):
 
-* normal ``n``: ball-ball, the unit line of centres from ball a to ball b at first touch;
+* normal ``n``: ball-ball, the unit line of centres from ball a to ball b at first touch (the
+  touch time combines the time the pre-contact models are 2R apart with both balls' velocity
+  breaks, weighted by their covariance: :func:`touch_time_weights`);
   ball-cushion, the in-plane cushion normal pointing into the table. The cushion nose is
   above the ball centre, so the real cushion force also has a vertical part; it is not seen
   from overhead and is not part of ``n``.
