@@ -13,8 +13,12 @@ solved for J >= 0 by weighted non-negative least squares (scipy.optimize.nnls, L
 "Solving Least Squares Problems", 1974). J is in mm/s (impulse / m). A link is a contact when J is
 larger than ``dv_z`` of its standard errors and ``dv_floor_mm_s``. Ball-ball friction (throw) adds
 a tangential impulse of up to mu_bb J (mu_bb 0.03-0.08, Physics of Pool FAQ;
-:data:`feltlab.standards.MU_BALL_BALL_RANGE`), not modelled as an unknown but carried as model
-error ``mu_bb_max |dv_i|`` per ball.
+:data:`feltlab.standards.MU_BALL_BALL_RANGE`) across the link's line of centres, on both of its
+balls: an unknown T_l per link with the prior T_l ~ N(0, (mu_bb_max J_l)^2) (a ball that passes a
+push on changes little, yet carries the throw of both its links).
+
+Further physical conditions on a group: an impulse source (some link closing before the event)
+and no energy source (the balls' kinetic energy does not rise, :func:`physics.events.energy_gain_z`).
 
 Evidence rules: geometric - every link's sampled gap is ~0 (below the same margin as a single
 contact: noise plus one frame of travel) within one frame of the group's time; kinematic - some
@@ -35,10 +39,17 @@ import pandas as pd
 from scipy.optimize import nnls
 
 from feltlab.standards import MU_BALL_BALL_RANGE
-from physics.events import BallSamples, ContactCandidate, kink_fit_windows, local_speed, pair_gaps
+from physics.events import (
+    BallSamples,
+    ContactCandidate,
+    energy_gain_z,
+    kink_fit_own,
+    local_speed,
+    pair_gaps,
+)
 from physics.settings import PhysicsSettings
 
-#: Tangential (throw) impulse as a fraction of the velocity change: the published maximum of
+#: Tangential (throw) impulse as a fraction of a link's normal impulse: the published maximum of
 #: ball-ball friction (Physics of Pool FAQ, feltlab.standards.MU_BALL_BALL_RANGE).
 MU_BB_MAX = MU_BALL_BALL_RANGE[1]
 #: Note written on the links of a compound event.
@@ -76,25 +87,50 @@ def solve_links(dv: np.ndarray, cov: np.ndarray, links: list[tuple[int, int]],
     for l, (a, b) in enumerate(links):
         A[2 * b : 2 * b + 2, l] += normals[l]
         A[2 * a : 2 * a + 2, l] -= normals[l]
-    rows, Wblocks, y = [], [], []
+    # throw: each link also carries a friction impulse across its line of centres, |T_l| <= mu_bb
+    # J_l on both of its balls (a ball that passes a push on changes little but carries the throw
+    # of both its links). T_l is an unknown of either sign (T+ - T-, both >= 0) with the prior
+    # T_l ~ N(0, (mu_bb J_l)^2); J_l comes from the solve: start without throw, then repeat.
+    tang = np.column_stack([-normals[:, 1], normals[:, 0]]) if L else np.zeros((0, 2))
+    At = np.zeros((2 * N, L))
+    for l, (a, b) in enumerate(links):
+        At[2 * b : 2 * b + 2, l] += tang[l]
+        At[2 * a : 2 * a + 2, l] -= tang[l]
+    rows, y = [], []
     for i in range(N):
         if not np.all(np.isfinite(dv[i])) or not np.all(np.isfinite(cov[i])):
             continue
-        c = cov[i] + (mu_bb * np.hypot(*dv[i])) ** 2 * np.eye(2)  # throw: model error
-        Wi = np.linalg.cholesky(np.linalg.inv(c)).T  # Wi^T Wi = c^-1
-        rows.append(Wi @ A[2 * i : 2 * i + 2])
+        Wi = np.linalg.cholesky(np.linalg.inv(cov[i])).T  # Wi^T Wi = cov^-1
+        rows.append(Wi @ np.hstack([A[2 * i : 2 * i + 2], At[2 * i : 2 * i + 2], -At[2 * i : 2 * i + 2]]))
         y.append(Wi @ dv[i])
     if not rows:
         return LinkSolve(np.zeros(L), np.full(L, np.inf), np.nan, 0)
-    Aw, yw = np.vstack(rows), np.concatenate(y)
-    J, rnorm = nnls(Aw, yw)
-    dof = max(len(yw) - int((J > 0).sum()), 1)
+    Ad, yd = np.vstack(rows), np.concatenate(y)
+    n_data = len(yd)
+    J, rnorm = nnls(Ad[:, :L], yd)
+    Aw, yw, x = Ad[:, :L], yd, J
+    for _ in range(3 if mu_bb > 0 else 0):
+        sd_t = np.maximum(mu_bb * J, 1.0)  # mm/s; floor keeps the prior rows finite
+        prior = np.zeros((L, 3 * L))
+        prior[np.arange(L), L + np.arange(L)] = 1.0 / sd_t
+        prior[np.arange(L), 2 * L + np.arange(L)] = -1.0 / sd_t
+        Aw, yw = np.vstack([Ad, prior]), np.concatenate([yd, np.zeros(L)])
+        x, rnorm = nnls(Aw, yw)
+        J_new = x[:L]
+        done = np.allclose(J_new, J, rtol=0.02, atol=1.0)
+        J = J_new
+        if done:
+            break
+    dof = max(n_data - int((J > 0).sum()), 1)
     red = max(float(rnorm**2) / dof, 1.0)
     sig = np.full(L, np.inf)
-    act = np.flatnonzero(J > 0)
+    act = np.flatnonzero(x > 0)
     if len(act):
         C = np.linalg.pinv(Aw[:, act].T @ Aw[:, act]) * red
-        sig[act] = np.sqrt(np.clip(np.diag(C), 0, None))
+        sd = np.sqrt(np.clip(np.diag(C), 0, None))
+        for j, a in enumerate(act):
+            if a < L:
+                sig[a] = sd[j]
     # a link at the bound: its one-sided sigma is that of the link fitted alone
     for l in np.flatnonzero(J <= 0):
         col = Aw[:, l]
@@ -105,14 +141,15 @@ def solve_links(dv: np.ndarray, cov: np.ndarray, links: list[tuple[int, int]],
 
 def find_groups(samples: dict[str, BallSamples], times: np.ndarray, P, S, V, seeds, cand_t,
                 radius_mm: float, dt: float, s: PhysicsSettings,
-                accepted: list[ContactCandidate] = ()) -> list[ContactCandidate]:
+                accepted: list[ContactCandidate] = (), covered: list | None = None) -> list[ContactCandidate]:
     """Contacts of compound events (>= 3 balls linked by significant impulses within one frame).
 
     seeds: (kind, a, b, cushion, k, gap, normal) geometric ball-ball candidates of
     :func:`physics.events.find_contacts`; cand_t: ball -> [(t, key)] candidate times (they limit
     the change-point windows, except noise minima of the group's own pairs); accepted: contacts
-    the pairwise test accepted (they always limit the windows). Returns one candidate per link,
-    with ``group`` set.
+    the pairwise test accepted (they always limit the windows); covered: if given, gets
+    (frozenset pair, t) for every touching pair a compound event's solve weighed, significant or
+    not. Returns one candidate per link, with ``group`` set.
     """
     names = sorted(samples)
     gaps = {k: (g, margin) for k, (_, g, _, margin) in pair_gaps(P, S, V, names, radius_mm, dt, s).items()}
@@ -171,7 +208,7 @@ def find_groups(samples: dict[str, BallSamples], times: np.ndarray, P, S, V, see
                        if ball in (c.ball_a, c.ball_b) and abs(c.t_init_s - t_c) > 2.5 * dt]
             lo = max([x for x in others if x < t_c], default=-np.inf)
             hi = min([x for x in others if x > t_c], default=np.inf)
-            f = kink_fit_windows(samples[ball], t_c, lo, hi, guard, dt, s)
+            f = kink_fit_own(samples[ball], t_c, lo, hi, guard, dt, s)
             if f is None:
                 continue
             dv[i] = f.v_post - f.v_pre
@@ -197,6 +234,17 @@ def find_groups(samples: dict[str, BallSamples], times: np.ndarray, P, S, V, see
             d = pb[iq] - pb[ip]
             nrm.append(d / np.hypot(*d) if np.all(np.isfinite(d)) and np.hypot(*d) > radius_mm else touch[(p, q)])
         nrm = np.array(nrm)
+        # an impulse source: balls at rest do not start pushing each other, so some link of the
+        # group must be closing (its balls approach along its line of centres) before the event;
+        # a group of resting neighbours whose windows reach a later hit has none
+        v0 = np.nan_to_num(vpre)
+        closing = [float((v0[ip] - v0[iq]) @ n) for (ip, iq), n in zip(li, nrm)]
+        if not any(c > s.dv_min_mm_s for c in closing):
+            continue
+        # ... and no energy source: the group's balls leave with no more energy than came in
+        fit_ok = np.all(np.isfinite(dv), axis=1) & np.all(np.isfinite(vpre), axis=1)
+        if fit_ok.any() and energy_gain_z(vpre[fit_ok], dv[fit_ok], cov[fit_ok], s) > s.dv_z:
+            continue
         sol = solve_links(dv, cov, li, nrm)
         ok = [l for l in range(len(links))
               if sol.J[l] > max(s.link_dv_floor_mm_s, s.dv_z * sol.J_sigma[l])]
@@ -206,6 +254,8 @@ def find_groups(samples: dict[str, BallSamples], times: np.ndarray, P, S, V, see
         # link order: hops from the fastest incoming ball (the sequence runs outwards from it)
         sp_in = np.nan_to_num(np.hypot(vpre[:, 0], vpre[:, 1]), nan=0.0)
         hops = _hops(int(np.argmax(sp_in)), [li[l] for l in ok], len(balls))
+        if covered is not None and any(len(p) >= 2 for p in comp):
+            covered.extend((frozenset(l), t_grp) for l in links)
         for piece in comp:
             if len(piece) < 2:
                 continue
@@ -255,10 +305,17 @@ def _components(links: list[tuple[int, int]]) -> list[list[tuple[int, int]]]:
 
 
 def merge_groups(pairwise: list[ContactCandidate], grouped: list[ContactCandidate],
-                 dt: float) -> list[ContactCandidate]:
-    """Pairwise candidates with those inside a compound event replaced by the event's links."""
+                 dt: float, covered: list = ()) -> list[ContactCandidate]:
+    """Pairwise candidates with those inside a compound event replaced by the event's links.
+
+    covered: (pair, t) of every touching pair a compound event weighed (:func:`find_groups`); a
+    pairwise candidate of such a pair within 1.5 frame periods is dropped too: the group's solve
+    shares each ball's velocity change among all its touching neighbours, while the pairwise
+    test gives the whole change to one of them."""
     if not grouped:
         return pairwise
+    pairwise = [c for c in pairwise if not (c.kind == "ball-ball" and any(
+        frozenset((c.ball_a, c.ball_b)) == pr and abs(c.t_init_s - t) < 1.5 * dt for pr, t in covered))]
     spans = {}
     for c in grouped:
         bs, t = spans.get(c.group, (set(), c.t_init_s))

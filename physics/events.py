@@ -3,12 +3,17 @@
 Table frame, mm, s. A contact is accepted only with both kinds of evidence:
 
 * geometric: the sampled gap (centre distance - 2R, or distance to a cushion-nose line - R)
-  has a local minimum below a margin that allows for noise and for one frame of travel;
+  has a local minimum below a margin that allows for noise and for one frame of travel, or (two
+  balls) a run of frames below that margin begins with an arrival;
 * kinematic: a change-point fit around the candidate (position continuous at a break time
   scanned across the candidate frame, separate velocity and acceleration on each side,
   weighted linear least squares) shows a velocity jump along the contact normal that is larger
   than ``dv_min_mm_s`` and ``dv_z`` standard errors, with the sign a contact requires (pushes
-  the balls apart; reverses the approach to a cushion).
+  the balls apart; reverses the approach to a cushion). For two balls the changes must also
+  come from one impulse: alike on both balls (``pair_impulse_ratio_min``) and with no rise of
+  their kinetic energy (``ke_gain_tol``). A change-point window ends at contacts already
+  accepted and at the ball's own larger change elsewhere (:func:`kink_fit_own`): one velocity
+  jump is evidence for one contact only.
 
 Nose lines: ``x0`` is x = 0, ``xL`` is x = L, ``y0`` is y = 0, ``yW`` is y = W (table frame);
 the in-plane cushion normal points into the table.
@@ -165,17 +170,22 @@ class KinkFit:
     ok: bool = True
     #: fitted position (2,) mm at the break (both sides meet there)
     p_b: np.ndarray | None = None
+    #: weighted sum of squared residuals, and the window (s) the fit used
+    chi2: float = float("nan")
+    lo: float = float("nan")
+    hi: float = float("nan")
 
 
 def kink_fit(
-    b: BallSamples, t_c: float, lo: float, hi: float, guard: float, dt: float, s: PhysicsSettings
+    b: BallSamples, t_c: float, lo: float, hi: float, guard: float, dt: float, s: PhysicsSettings,
+    scan: np.ndarray | None = None,
 ) -> KinkFit | None:
     """Fit position-continuous two-sided quadratics to samples in (lo, hi), break scanned over
-    [t_c - dt, t_c + dt]; samples within ``guard`` of ``t_c`` are left out."""
+    [t_c - dt, t_c + dt] (or the times ``scan``); samples within ``guard`` of ``t_c`` are left out."""
     m = (b.t > lo) & (b.t < hi) & (np.abs(b.t - t_c) > guard)
     t, xy, sig = b.t[m], b.xy[m], b.sig[m]
     best = None
-    for tb in np.linspace(t_c - dt, t_c + dt, 17):
+    for tb in np.linspace(t_c - dt, t_c + dt, 17) if scan is None else scan:
         pre = t < tb
         npre, npost = int(pre.sum()), int((~pre).sum())
         if npre < 2 or npost < 2:
@@ -211,7 +221,7 @@ def kink_fit(
         return None
     chi2, tb, vpre, vpost, cov, dof, pb = best
     red = max(chi2 / dof, 1.0)
-    return KinkFit(float(tb), vpre, vpost, cov * red, red, p_b=pb)
+    return KinkFit(float(tb), vpre, vpost, cov * red, red, p_b=pb, chi2=chi2, lo=lo, hi=hi)
 
 
 def kink_fit_windows(b: BallSamples, t_c: float, lo_lim: float, hi_lim: float, guard: float, dt: float,
@@ -247,6 +257,61 @@ def kink_fit_windows(b: BallSamples, t_c: float, lo_lim: float, hi_lim: float, g
         if best_z > s.dv_z:
             break
     return best
+
+
+def energy_gain_z(v_pre: np.ndarray, dv: np.ndarray, dv_cov: np.ndarray, s: PhysicsSettings) -> float:
+    """Rise of the balls' translational kinetic energy across a change, in standard errors.
+
+    v_pre (N,2) mm/s fitted velocities just before, dv (N,2) their jumps, dv_cov (N,2,2); equal
+    masses. (sum |v_pre + dv|^2 - (1 + ke_gain_tol) sum |v_pre|^2) / sigma: a contact cannot add
+    energy, so a value above ``dv_z`` says the balls were not pushed by each other.
+
+    >>> import numpy as np
+    >>> s = PhysicsSettings()
+    >>> cov = np.tile(np.eye(2) * 25.0, (2, 1, 1))
+    >>> head_on = energy_gain_z(np.array([[1000.0, 0], [0, 0]]), np.array([[-950.0, 0], [950, 0]]), cov, s)
+    >>> bool(head_on < 0)
+    True
+    >>> resting = energy_gain_z(np.zeros((2, 2)), np.array([[-300.0, 0], [300, 0]]), cov, s)
+    >>> bool(resting > s.dv_z)
+    True
+    """
+    v0 = np.asarray(v_pre, float)
+    v1 = v0 + np.asarray(dv, float)
+    gain = float((v1**2).sum() - (1.0 + s.ke_gain_tol) * (v0**2).sum())
+    # the jump's error moves |v1|^2 by 2 v1 . d(dv); the before-velocities' error is smaller than
+    # the jump's (one side of the fit), so counting it with the jump's covariance is conservative
+    var = sum(4.0 * float(a @ C @ a) + 4.0 * float(b @ C @ b) for a, b, C in zip(v1, v0, dv_cov))
+    return gain / max(float(np.sqrt(var)), 1e-9)
+
+
+def kink_fit_own(b: BallSamples, t_c: float, lo_lim: float, hi_lim: float, guard: float, dt: float,
+                 s: PhysicsSettings, n: np.ndarray | None = None, escalate: bool = True) -> KinkFit | None:
+    """:func:`kink_fit_windows`, but a window that holds the ball's own larger change at another
+    time is cut there first.
+
+    A ball changes velocity only at its contacts; a change-point fit scanned near ``t_c`` over a
+    window that reaches another change (a resting neighbour's window reaching the hit that
+    starts it, a few frames later) finds a jump at the wrong time. The single break that fits
+    the window best is looked for over the whole window; when it lies more than 2.5 frame
+    periods from ``t_c`` and fits better by more than dv_z^2 in chi^2, the window ends there
+    and the fit is repeated (the jump at ``t_c`` must stand on its own samples).
+    """
+    f = kink_fit_windows(b, t_c, lo_lim, hi_lim, guard, dt, s, n, escalate=escalate)
+    if f is None or not np.isfinite(f.lo):
+        return f
+    inside = b.t[(b.t > f.lo) & (b.t < f.hi)]
+    if len(inside) < 6:
+        return f
+    mids = 0.5 * (inside[1:] + inside[:-1])
+    g = kink_fit(b, t_c, f.lo, f.hi, guard, dt, s, scan=mids[np.abs(mids - t_c) > 2.5 * dt])
+    if g is None or f.chi2 - g.chi2 <= s.dv_z**2:
+        return f
+    if g.t_b > t_c:
+        hi_lim = min(hi_lim, g.t_b)
+    else:
+        lo_lim = max(lo_lim, g.t_b)
+    return kink_fit_windows(b, t_c, lo_lim, hi_lim, guard, dt, s, n, escalate=escalate)
 
 
 @dataclass
@@ -351,11 +416,25 @@ def find_contacts(
                     geo.append(("ball-cushion", a, "", c, k, float(g[k]), n))
                     run[("ball-cushion", a, "", c, k)] = _run_start(g < margin, k)
     for (a, b), (d, g, vrel, margin) in pair_gaps(P, S, V, names, radius_mm, dt, s).items():
+        mins = []
         for k in _local_minima(g):
             if g[k] < margin[k] and vrel[k] > s.rest_speed_mm_s:
                 n = d[k] / np.hypot(*d[k])
                 geo.append(("ball-ball", a, b, "", k, float(g[k]), n))
                 run[("ball-ball", a, b, "", k)] = _run_start(g < margin, k)
+                mins.append(k)
+        # balls that stay at the touching distance after a touch (a stop shot into a ball that
+        # passes the push on, a frozen pair) can have their smallest sampled gap frames after
+        # it: a run of touching frames that begins with an arrival is a candidate at its start
+        below = np.isfinite(g) & (g < margin)
+        for k0 in np.flatnonzero(below[1:] & ~below[:-1]) + 1:
+            k1 = k0
+            while k1 + 1 < len(g) and below[k1 + 1]:
+                k1 += 1
+            if k1 - k0 >= 2 and vrel[k0] > s.rest_speed_mm_s and not any(abs(k - k0) <= 1 for k in mins):
+                n = d[k0] / np.hypot(*d[k0])
+                geo.append(("ball-ball", a, b, "", int(k0), float(g[k0]), n))
+                run[("ball-ball", a, b, "", int(k0))] = int(k0)
     # candidate times per ball: limit the change-point windows to the neighbouring candidates
     cand_t: dict[str, list[tuple[float, tuple]]] = {nm: [] for nm in names}
     same: dict[tuple, int] = {}  # (key, time) -> touching run: minima in one run are one contact
@@ -367,8 +446,14 @@ def find_contacts(
         deepest[(key, r)] = min(deepest.get((key, r), np.inf), gap)
         if b:
             cand_t[b].append((times[k], key))
-    out: list[ContactCandidate] = []
-    for kind, a, b, c, k, gap, n in geo:
+    def evaluate(item: tuple, limits: dict[str, list[float]]) -> ContactCandidate | None:
+        """Kinematic test of one geometric candidate; ``limits``: ball -> times of contacts
+        already accepted, which also bound the change-point windows. A candidate that passes is
+        tested again with windows cut at each ball's own larger change (:func:`kink_fit_own`)."""
+        return None if judge(item, limits, False) is None else judge(item, limits, True)
+
+    def judge(item: tuple, limits: dict[str, list[float]], own: bool) -> ContactCandidate | None:
+        kind, a, b, c, k, gap, n = item
         t_c = float(times[k])
         guard = s.guard_ball_s if kind == "ball-ball" else s.guard_cushion_s
         fits = {}
@@ -380,58 +465,105 @@ def find_contacts(
             others = [x for x, kx in cand_t[ball]
                       if abs(x - t_c) > 2.5 * dt and not (kx == key and (
                           abs(x - t_c) < s.same_contact_s or same[(kx, x)] == same[(key, times[k])]))]
+            others += limits.get(ball, [])
             lo = max([x for x in others if x < t_c], default=-np.inf)
             hi = min([x for x in others if x > t_c], default=np.inf)
             # longer windows only at the deepest minimum of a touching run: the others are the same
             # touch seen through noise, or re-touches that must stand on the standard window
-            fits[ball] = kink_fit_windows(samples[ball], t_c, lo, hi, guard, dt, s, n,
-                                          escalate=gap <= deepest[(key, same[(key, times[k])])])
+            fit = kink_fit_own if own else kink_fit_windows
+            fits[ball] = fit(samples[ball], t_c, lo, hi, guard, dt, s, n,
+                             escalate=gap <= deepest[(key, same[(key, times[k])])])
         if kind == "ball-cushion":
             f = fits[a]
             if f is None:
-                continue
+                return None
             vn_pre, vn_post = f.v_pre @ n, f.v_post @ n
             dvn = vn_post - vn_pre
             sd = float(np.sqrt(n @ f.dv_cov @ n))
             z = dvn / max(sd, 1e-9)
             if vn_pre < 0 and vn_post > -sd and dvn > s.dv_min_mm_s and z > s.dv_z:
-                out.append(ContactCandidate(kind, a, "", c, f.t_b, n, gap, float(z),
-                                            f.v_post - f.v_pre))
+                return ContactCandidate(kind, a, "", c, f.t_b, n, gap, float(z), f.v_post - f.v_pre)
+            return None
+        zs, dvs, tbs, J, sJ = {}, {}, {}, {}, {}
+        ok_any, bad, z2 = False, False, 0.0
+        for ball, sign in ((a, -1.0), (b, 1.0)):
+            f = fits[ball]
+            if f is None:
+                continue
+            dv = f.v_post - f.v_pre
+            dvn = sign * (dv @ n)
+            sd = float(np.sqrt(n @ f.dv_cov @ n))
+            z = dvn / max(sd, 1e-9)
+            zs[ball], dvs[ball], tbs[ball], J[ball], sJ[ball] = z, dv, f.t_b, dvn, sd
+            if dvn > s.dv_min_mm_s:
+                z2 += z * z  # independent evidence from the two balls adds up
+                ok_any = ok_any or z > s.dv_z
+            if z < -s.dv_z and -dvn > s.dv_min_mm_s:
+                bad = True
+        if not (ok_any or np.sqrt(z2) > s.dv_z) or bad:
+            return None
+        if len(J) == 2:
+            # no energy source: a jump found between resting neighbours (a window that reaches
+            # a later hit) raises their energy from nothing
+            if energy_gain_z(np.array([fits[a].v_pre, fits[b].v_pre]), np.array([dvs[a], dvs[b]]),
+                             np.array([fits[a].dv_cov, fits[b].dv_cov]), s) > s.dv_z:
+                return None
+            # one impulse pushes both balls apart: equal masses change their normal velocities by
+            # the same amount. A ball that changes far less than its partner was pushed by
+            # something else at that time (a resting neighbour of a struck ball), or passed the
+            # push on within the frame (a compound event: physics.compound finds those)
+            lo_b, hi_b = sorted(J, key=J.get)
+            r = s.pair_impulse_ratio_min
+            slack = s.dv_z * float(np.hypot(sJ[lo_b], r * sJ[hi_b]))
+            if J[lo_b] < r * J[hi_b] - slack:
+                return None
+        # the striking ball approaches faster along the normal
+        fa, fb = fits[a], fits[b]
+        va = fa.v_pre @ n if fa is not None else 0.0
+        vb = fb.v_pre @ n if fb is not None else 0.0
+        best = max(zs, key=zs.get)
+        if va - 0.0 >= -vb:  # a moves towards b more than b towards a
+            A, B, nn = a, b, n
         else:
-            zs, dvs, tbs = {}, {}, {}
-            ok_any, bad, z2 = False, False, 0.0
-            for ball, sign in ((a, -1.0), (b, 1.0)):
-                f = fits[ball]
-                if f is None:
-                    continue
-                dv = f.v_post - f.v_pre
-                dvn = sign * (dv @ n)
-                sd = float(np.sqrt(n @ f.dv_cov @ n))
-                z = dvn / max(sd, 1e-9)
-                zs[ball], dvs[ball], tbs[ball] = z, dv, f.t_b
-                if dvn > s.dv_min_mm_s:
-                    z2 += z * z  # independent evidence from the two balls adds up
-                    ok_any = ok_any or z > s.dv_z
-                if z < -s.dv_z and -dvn > s.dv_min_mm_s:
-                    bad = True
-            if (ok_any or np.sqrt(z2) > s.dv_z) and not bad:
-                # the striking ball approaches faster along the normal
-                fa, fb = fits[a], fits[b]
-                va = fa.v_pre @ n if fa is not None else 0.0
-                vb = fb.v_pre @ n if fb is not None else 0.0
-                best = max(zs, key=zs.get)
-                if va - 0.0 >= -vb:  # a moves towards b more than b towards a
-                    A, B, nn = a, b, n
-                else:
-                    A, B, nn = b, a, -n
-                out.append(ContactCandidate(kind, A, B, "", tbs[best], nn, gap, float(zs[best]),
-                                            dvs.get(A, np.zeros(2)), dvs.get(B, np.zeros(2))))
-    out = _dedupe(out, dt)
+            A, B, nn = b, a, -n
+        return ContactCandidate(kind, A, B, "", tbs[best], nn, gap, float(zs[best]),
+                                dvs.get(A, np.zeros(2)), dvs.get(B, np.zeros(2)))
+
+    reach = max(s.kink_window_scales) * max(s.side_window_s, s.side_window_frames * dt) + dt
+
+    def settle(tested: list[tuple[ContactCandidate, int]], fixed: list[ContactCandidate]):
+        """One velocity jump belongs to one contact: candidates are taken in order of significance,
+        and a candidate whose windows reach over a contact already taken (``fixed`` first, then
+        the more significant ones; more than 2.5 frame periods away) is tested again with its
+        windows ending there."""
+        kept: list[tuple[ContactCandidate, int]] = []
+        for cand, gi in sorted(tested, key=lambda x: -x[0].z):
+            t_c = float(times[geo[gi][4]])
+            lim: dict[str, list[float]] = {}
+            for o in list(fixed) + [x[0] for x in kept]:
+                if abs(o.t_init_s - t_c) > 2.5 * dt and abs(o.t_init_s - t_c) < reach:
+                    for ball in {cand.ball_a, cand.ball_b} & {o.ball_a, o.ball_b} - {""}:
+                        lim.setdefault(ball, []).append(o.t_init_s)
+            if lim:
+                cand = evaluate(geo[gi], lim)
+            if cand is not None:
+                kept.append((cand, gi))
+        return kept
+
+    first = [(cand, gi) for gi, item in enumerate(geo) if (cand := evaluate(item, {})) is not None]
+    tested = settle(first, [])
+    gi_of = {id(c): gi for c, gi in tested}
+    out = _dedupe([c for c, _ in tested], dt)
     # compound events: links inside a group touching within one frame replace the pairwise view
     from physics.compound import find_groups, merge_groups  # noqa: PLC0415 - compound uses this module
 
     seeds = [g for g in geo if g[0] == "ball-ball"]
-    out = merge_groups(out, find_groups(samples, times, P, S, V, seeds, cand_t, radius_mm, dt, s, out), dt)
+    covered: list = []
+    grouped = find_groups(samples, times, P, S, V, seeds, cand_t, radius_mm, dt, s, out, covered)
+    if grouped:
+        # the groups' jumps are taken: pairwise candidates whose windows reached over them again
+        out = _dedupe([c for c, _ in settle([(c, gi_of[id(c)]) for c in out], grouped)], dt)
+    out = merge_groups(out, grouped, dt, covered)
     return sorted(out, key=lambda c: c.t_init_s)
 
 
