@@ -117,3 +117,28 @@ def test_resting_ball_sigma_keeps_the_detector_model_error():
         z2.append(np.mean((e / [rows["sx_mm"][0], rows["sy_mm"][0]]) ** 2))
     # 600 chi-square(1) terms: mean 1 +/- 0.06 (1 sigma); 0.8-1.25 is > 3 sigma
     assert 0.8 < np.mean(z2) < 1.25
+
+
+def test_point_after_a_contact_flagged_as_outlier_is_given_back_to_the_new_motion():
+    """Straight-line motion before and after a contact between frames 10 and 11 (closed form).
+    If the frame-11 point was flagged an outlier with the cut at frame 12, it is the new motion's
+    first point (it lies on the new line, within the chi-square(2) 99% point 9.21); a point off
+    both lines stays an outlier."""
+    from tracking.kalman import _reclaim_outliers
+
+    t = np.arange(30) / 30.0
+    tc = 10.5 / 30
+    v1, v2 = np.array([1200.0, 660.0]), np.array([210.0, 730.0])
+    pos = np.where(t[:, None] < tc, v1 * t[:, None], v1 * tc + v2 * (t[:, None] - tc))
+    R = as_cov(np.full((30, 2), 0.6))
+    s = TrackingSettings()
+    segs, out = [(0, 12), (12, 30)], np.zeros(30, bool)
+    out[11] = True
+    _reclaim_outliers(t, pos, R, segs, out, s.accel_sigma_mm_s2)
+    assert segs == [(0, 11), (11, 30)] and not out.any()
+    bad = pos.copy()
+    bad[11] += [0.0, 25.0]  # a wrong detection: 25 mm off the new line
+    segs, out = [(0, 12), (12, 30)], np.zeros(30, bool)
+    out[11] = True
+    _reclaim_outliers(t, bad, R, segs, out, s.accel_sigma_mm_s2)
+    assert segs == [(0, 12), (12, 30)] and out[11]

@@ -236,7 +236,44 @@ def split_segments(t: np.ndarray, z: np.ndarray, sig: np.ndarray, accel_sigma: f
         i += 1
     segs.append((start, n))
     segs = [s for s in segs if s[1] > s[0]]
-    return _refine_boundaries(t, z, sig, segs, out), out
+    segs = _refine_boundaries(t, z, sig, segs, out)
+    _reclaim_outliers(t, z, Rs, segs, out, accel_sigma)
+    return segs, out
+
+
+def _reclaim_outliers(t, z, Rs, segs, out, accel_sigma: float) -> None:
+    """An 'outlier' just before a cut that the next piece's motion explains is that piece's first point.
+
+    The outlier test compares the point after a spike with the old motion
+    predicted two frames ahead, whose process noise has grown (white
+    acceleration: position variance ~ dt^3); right after a contact that can
+    pass while the spike itself was already the new motion. Explains: the
+    straight line through the next piece's first two points, extrapolated
+    back (2 z1 - z2 at equal steps: variance 4 R1 + R2), is closer than the
+    line through the previous piece's last two points and within the
+    chi-square(2) 99% point with that variance, the point's own R and one
+    step of process noise. Only two points each side: the next piece may end
+    at another contact a few frames on. Edits segs/out in place.
+    """
+    for k in range(1, len(segs)):
+        b, b1 = segs[k]
+        j = b - 1
+        if j < segs[k - 1][0] or not out[j] or b1 - b < 2:
+            continue
+        ib = [i for i in range(b, b1) if not out[i]][:2]
+        ia = [i for i in range(segs[k - 1][0], j) if not out[i]][-2:]
+        if len(ib) < 2 or len(ia) < 2:
+            continue
+        v = z[j] - _line_predict(t[ib], z[ib], t[j])
+        va = z[j] - _line_predict(t[ia], z[ia], t[j])
+        r = (t[ib[0]] - t[j]) / max(t[ib[1]] - t[ib[0]], 1e-9)
+        _, Q = cv_transition(t[ib[0]] - t[j], accel_sigma)
+        S = Rs[j] + (1 + r) ** 2 * Rs[ib[0]] + r ** 2 * Rs[ib[1]] + Q[:2, :2]
+        if np.linalg.norm(v) < np.linalg.norm(va) and float(v @ np.linalg.solve(S, v)) <= CONSISTENT_NIS:
+            out[j] = False
+            segs[k - 1] = (segs[k - 1][0], j)
+            segs[k] = (j, b1)
+    segs[:] = [s for s in segs if s[1] > s[0]]
 
 
 def _line_predict(t: np.ndarray, z: np.ndarray, t_at: float) -> np.ndarray:
