@@ -1039,6 +1039,7 @@ def detect_frame(image: np.ndarray, calibration: Calibration, settings: Detectio
     n_cc, lab_s, stats, _ = cv2.connectedComponentsWithStats((small > thr).astype(np.uint8), connectivity=8)
     ball_area = np.pi * r0 * r0
     extra = []
+    blobs: list[tuple[int, int, np.ndarray]] = []  # (x, y) image offset and full-res mask of each cluster
     lab = None
     for i in range(1, n_cc):
         if scale * scale * stats[i, cv2.CC_STAT_AREA] < 1.7 * ball_area:
@@ -1053,6 +1054,7 @@ def detect_frame(image: np.ndarray, calibration: Calibration, settings: Detectio
         fill(x0 + xa, y0 + ya, x0 + xb, y0 + yb)
         lab[ya:yb, xa:xb][d[y0 + ya:y0 + yb, x0 + xa:x0 + xb] <= thr] = 0
         sub_mask = lab[ya:yb, xa:xb] == i
+        blobs.append((x0 + xa, y0 + ya, sub_mask.copy()))
         hc = cluster_candidates(image[y0 + ya:y0 + yb, x0 + xa:x0 + xb], sub_mask, r0, settings)
         if len(hc):
             hc[:, 0] += xa
@@ -1069,24 +1071,35 @@ def detect_frame(image: np.ndarray, calibration: Calibration, settings: Detectio
     if extra:
         cands = np.vstack([cands] + extra)
     found = []
-    for cx, cy, sc in cands:
-        gx, gy = cx + x0, cy + y0
+
+    def accept(gx: float, gy: float, min_contrast: float = settings.min_inner_contrast) -> bool:
+        """Refine a seed at image (gx, gy) px; append it to ``found`` when ball-like.
+
+        min_contrast: least mean strength inside 0.6 radius, x threshold.
+        """
         fill(int(gx) - pad, int(gy) - pad, int(gx) + pad + 2, int(gy) + pad + 2)
         if _disc_mean(d, gx, gy, 0.6 * r0) < settings.min_inner_contrast * thr:
-            continue  # not a ball-sized patch that differs from the cloth
+            return False  # not a ball-sized patch that differs from the cloth
         r_exp, _, _ = background.lookup(gx, gy)
         ref = refine_centre(d, gx, gy, r_exp, settings, image, thr)
         if ref is None:
-            continue
+            return False
         r_exp, ox, oy = background.lookup(ref["x"], ref["y"])
-        if _disc_mean(d, ref["x"], ref["y"], 0.6 * r_exp) < settings.min_inner_contrast * thr:
-            continue
+        if _disc_mean(d, ref["x"], ref["y"], 0.6 * r_exp) < min_contrast * thr:
+            return False
         if settings.model_fit and r_exp >= settings.model_min_radius_px:
             mf = fit_ball_model(image, background.image, ref["x"], ref["y"], r_exp, settings)
             if mf is not None:
                 ref = {**ref, "x": mf["x"], "y": mf["y"]}
                 r_exp, ox, oy = background.lookup(ref["x"], ref["y"])
         found.append((ref, r_exp, ox, oy))
+        return True
+
+    for cx, cy, sc in cands:
+        accept(cx + x0, cy + y0)
+    if settings.explain_clusters:
+        for bx0, by0, bmask in blobs:
+            _explain_cluster(bmask, bx0, by0, found, accept, background, settings)
     rows = []
     if found:
         pc = np.array([[f[0]["x"] - f[2], f[0]["y"] - f[3]] for f in found])
@@ -1109,6 +1122,70 @@ def detect_frame(image: np.ndarray, calibration: Calibration, settings: Detectio
             })
     rows = _drop_duplicates(rows, r0)
     return pd.DataFrame(rows, columns=DETECTION_COLUMNS)
+
+
+def _explain_cluster(blob: np.ndarray, bx0: int, by0: int, found: list, accept, background: Background,
+                     settings: DetectionSettings) -> None:
+    """Seed balls in the part of a cluster blob that no accepted ball explains.
+
+    Every foreground pixel of a blob of touching balls belongs to some ball
+    of known image radius. Discs of the expected radius round the accepted
+    centres (``found``, image px) are removed from ``blob`` (bool mask whose
+    top-left pixel is image (bx0, by0)); while the rest holds a part at
+    least ``explain_min_area`` balls large with an inscribed circle of at
+    least ``explain_min_inradius`` radii, the maximum of its Euclidean
+    distance transform (Borgefors 1986, as in ``cv2.distanceTransform``) is
+    refined like any seed (``accept``) and kept only when ball-like and
+    at least ``explain_min_sep`` radii from every accepted centre (rigid
+    balls: centres never closer than one diameter). A seed that fails is
+    blanked with a disc of its own so the search moves on.
+    """
+    free = blob.astype(np.uint8)
+    h, w = free.shape
+    r0 = background.radius_px
+    pad = settings.explain_disc_pad_px
+
+    def blank(x: float, y: float, r: float) -> None:
+        cv2.circle(free, (int(round((x - bx0) * 16)), int(round((y - by0) * 16))), int(round((r + pad) * 16)), 0, -1,
+                   lineType=cv2.LINE_8, shift=4)
+
+    for ref, r_exp, _, _ in found:
+        if -2 * r_exp <= ref["x"] - bx0 <= w + 2 * r_exp and -2 * r_exp <= ref["y"] - by0 <= h + 2 * r_exp:
+            blank(ref["x"], ref["y"], r_exp)
+    for _ in range(settings.explain_max_seeds):
+        n_cc, lab, stats, _c = cv2.connectedComponentsWithStats(free, connectivity=8)
+        big = [j for j in range(1, n_cc) if stats[j, cv2.CC_STAT_AREA] >= settings.explain_min_area * np.pi * r0 * r0]
+        if not big:
+            return
+        part = np.isin(lab, big).astype(np.uint8)
+        dt = cv2.distanceTransform(part, cv2.DIST_L2, cv2.DIST_MASK_PRECISE)
+        yy, xx = np.unravel_index(int(np.argmax(dt)), dt.shape)
+        gx, gy = float(xx + bx0), float(yy + by0)
+        r_exp, _, _ = background.lookup(gx, gy)
+        if dt[yy, xx] < settings.explain_min_inradius * r_exp:
+            return
+        n_before = len(found)
+        if accept(gx, gy, settings.explain_min_contrast):
+            ref, r_new = found[-1][0], found[-1][1]
+            sep = min((np.hypot(ref["x"] - f[0]["x"], ref["y"] - f[0]["y"]) / f[1] for f in found[:n_before]),
+                      default=np.inf)
+            if sep >= settings.explain_min_sep and _mask_fill(blob, ref["x"] - bx0, ref["y"] - by0,
+                                                              settings.explain_fill_radius * r_new) \
+                    >= settings.explain_min_fill:
+                blank(ref["x"], ref["y"], found[-1][1])
+                continue
+            found.pop()  # refined onto a ball we already have
+        blank(gx, gy, r_exp)
+
+
+def _mask_fill(mask: np.ndarray, x: float, y: float, r: float) -> float:
+    """Share of the disc of radius r (px) about (x, y) that is inside the image and True in ``mask``."""
+    n = int(np.ceil(r))
+    yy, xx = np.mgrid[-n:n + 1, -n:n + 1]
+    inside = xx * xx + yy * yy <= r * r
+    px, py = np.round(x).astype(int) + xx[inside], np.round(y).astype(int) + yy[inside]
+    ok = (px >= 0) & (px < mask.shape[1]) & (py >= 0) & (py < mask.shape[0])
+    return float(mask[py[ok], px[ok]].sum()) / max(int(inside.sum()), 1)
 
 
 def _disc_mean(d: np.ndarray, x: float, y: float, r: float) -> float:

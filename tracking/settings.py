@@ -303,6 +303,40 @@ class DetectionSettings:
     #: (stripe/cue summary); 0..1 scale, common practice for "white" in HSV.
     white_saturation: float = 0.28
     white_value: float = 0.62
+    #: Explain each cluster blob (detect._explain_cluster): discs of the
+    #: expected radius round the accepted balls are removed from the blob of
+    #: touching balls, and any ball-sized remainder is seeded at its distance-
+    #: transform maximum and refined like any candidate (a dark ball among dark
+    #: neighbours on dark cloth casts too few Hough votes to be seeded).
+    explain_clusters: bool = True
+    #: A remainder is seeded only when it covers >= this many ball areas and
+    #: holds an inscribed circle of >= explain_min_inradius radii. Rigid
+    #: neighbours never cover a missing ball's own disc, so its remainder
+    #: holds nearly the whole disc (inscribed radius ~r less the neighbours'
+    #: centre errors, pad and blur: 0.6 leaves 0.4 r for those); the rim, blur
+    #: and shadow crescents left round accepted balls are a few px wide, and
+    #: the end of a motion smear past a ball's disc is narrower (0.4 r let one
+    #: through on outside footage D2).
+    explain_min_area: float = 0.5
+    explain_min_inradius: float = 0.6
+    #: Removed discs reach this far (px) past the expected radius: the edge
+    #: blur of a sharp video camera, ~1 px (lens plus demosaicing; from memory).
+    explain_disc_pad_px: float = 1.0
+    #: A new ball must lie at least this many radii from every accepted one:
+    #: rigid balls' centres are >= 2 radii apart, less ~0.15 r centre error each.
+    explain_min_sep: float = 1.7
+    #: Seeds tried per blob (a 15-ball rack plus the cue ball fits).
+    explain_max_seeds: int = 16
+    #: A new ball's disc out to explain_fill_radius radii (inside the rim blur)
+    #: must be foreground over >= explain_min_fill of its area (half, as
+    #: explain_min_area): a ball differs from the cloth over its whole disc
+    #: except where its colour or shading comes near the cloth's (a green
+    #: ball on green cloth was measured at 0.6 in a compressed render).
+    explain_fill_radius: float = 0.8
+    explain_min_fill: float = 0.5
+    #: Mean strength inside 0.6 radius of a ball found this way, x threshold
+    #: (min_inner_contrast for any candidate).
+    explain_min_contrast: float = 1.0
 
 
 @dataclass(frozen=True)
