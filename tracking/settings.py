@@ -335,8 +335,11 @@ class DetectionSettings:
     explain_fill_radius: float = 0.8
     explain_min_fill: float = 0.5
     #: Mean strength inside 0.6 radius of a ball found this way, x threshold
-    #: (min_inner_contrast for any candidate).
-    explain_min_contrast: float = 1.0
+    #: (min_inner_contrast = 1 for other candidates): such a ball has neither
+    #: Hough nor disc-score support, so it must differ from the cloth by
+    #: 2 thresholds (12 noise sigma); the end of a motion smear is part cloth
+    #: and weaker (at 1.0 one passed on outside footage D2).
+    explain_min_contrast: float = 2.0
 
 
 @dataclass(frozen=True)
