@@ -81,3 +81,17 @@ def test_constraints_met_fixed_points_kept_duplicates_left(pts, fixed_flags):
             if d1[i, j] <= R:  # pushed into another pair's duplicate zone: not constrained any more
                 continue
             assert d1[i, j] >= 2 * R - 1e-2 or d0[i, j] >= 2 * R
+
+
+def test_frame_of_detections_is_separated_and_left_alone_when_apart():
+    import pandas as pd
+
+    from tracking.pipeline import separate_detections
+
+    det = pd.DataFrame({"x_mm": [100.0, 156.0, 400.0], "y_mm": [50.0, 50.0, 50.0],
+                        "sx_mm": [0.2, 0.2, 0.2], "sy_mm": [0.2, 0.2, 0.2], "colour": ["a", "b", "c"]})
+    out = separate_detections(det, R)
+    assert out["x_mm"].tolist() == pytest.approx([100.0 - 0.575, 156.0 + 0.575, 400.0])
+    assert out["colour"].tolist() == ["a", "b", "c"] and det["x_mm"].tolist() == [100.0, 156.0, 400.0]
+    apart = det.assign(x_mm=[100.0, 160.0, 400.0])
+    assert separate_detections(apart, R) is apart

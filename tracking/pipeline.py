@@ -42,6 +42,7 @@ from tracking.calibration import Calibration
 from tracking.detect import build_background, detect_frame
 from tracking.kalman import as_cov, smear_cov, smear_scale, smooth_segment, split_segments
 from tracking.labels import label_tracks
+from tracking.overlap import separate_overlaps
 from tracking.settings import TrackClipSettings, TrackingSettings
 
 TRACK_COLUMNS = ["frame", "t_s", "ball", "x_mm", "y_mm", "vx_mm_s", "vy_mm_s", "sx_mm", "sy_mm", "visible"]
@@ -257,6 +258,26 @@ def merge_overlapping(det: pd.DataFrame, radius_mm: float, frac: float) -> pd.Da
     return pd.DataFrame(rows).reset_index(drop=True)
 
 
+def separate_detections(det: pd.DataFrame, radius_mm: float) -> pd.DataFrame:
+    """Detections of one frame moved apart where two are closer than one diameter (table mm).
+
+    See :func:`tracking.overlap.separate_overlaps`; each detection's
+    covariance is its sx_mm, sy_mm. Pure: returns a new frame.
+    """
+    if len(det) < 2:
+        return det
+    xy = det[["x_mm", "y_mm"]].to_numpy(float)
+    s = np.maximum(det[["sx_mm", "sy_mm"]].to_numpy(float), 1e-3)
+    cov = np.zeros((len(det), 2, 2))
+    cov[:, 0, 0], cov[:, 1, 1] = s[:, 0] ** 2, s[:, 1] ** 2
+    p = separate_overlaps(xy, cov, radius_mm)
+    if np.allclose(p, xy):
+        return det
+    out = det.copy()
+    out["x_mm"], out["y_mm"] = p[:, 0], p[:, 1]
+    return out
+
+
 # --------------------------------------------------------------------------- stitching
 def _stitch(det: pd.DataFrame, s: TrackingSettings, radius_mm: float) -> pd.DataFrame:
     """Join a track that ends to one that starts later nearby with the same colour."""
@@ -349,6 +370,8 @@ def track_clip(path: str | os.PathLike, table: str | TablePreset | None = DEFAUL
     done = 0
     for idx, t, img in src:
         det = merge_overlapping(detect_frame(img, cal, ds, bg), cal.ball_radius_mm, ts.merge_below_frac)
+        if ts.separate_overlaps:
+            det = separate_detections(det, cal.ball_radius_mm)
         frame_times[idx] = t
         ids = np.arange(row0, row0 + len(det))
         tid = linker.step(t, det, ids)

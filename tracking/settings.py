@@ -384,6 +384,11 @@ class TrackingSettings:
     #: and detection errors are a few mm, well under 20% of a diameter). A long
     #: motion streak can otherwise come out as two blobs at its ends.
     merge_below_frac: float = 0.8
+    #: Push apart detections of one frame closer than one ball diameter
+    #: (tracking/overlap.py): rigid balls cannot interpenetrate, so in a
+    #: cluster a fit that leans into its neighbour is corrected, each ball
+    #: moving in proportion to its variance along the line of centres.
+    separate_overlaps: bool = True
     #: Tracks shorter than this (s) with no stationary part are dropped as
     #: clutter (a real ball is on the table for the whole shot or rolls in).
     min_track_s: float = 0.08
