@@ -121,7 +121,8 @@ def bench(clip: Path, auto: bool) -> dict:
     tcal = truth["cal"]
     t0, c0 = time.perf_counter(), time.process_time()
     try:
-        res = track_clip(clip, table=tcal.table, calibration=None if auto else tcal)
+        res = track_clip(clip, table=tcal.table, calibration=None if auto else tcal,
+                         fps=truth["fps"] if clip.is_dir() else None)  # a frame folder has no rate
     except FeltlabError as exc:
         return {"clip": clip.stem, "cal": "auto" if auto else "truth", "error": str(exc)}
     wall, cpu = time.perf_counter() - t0, time.process_time() - c0
