@@ -1149,9 +1149,16 @@ def _explain_cluster(blob: np.ndarray, bx0: int, by0: int, found: list, accept, 
         cv2.circle(free, (int(round((x - bx0) * 16)), int(round((y - by0) * 16))), int(round((r + pad) * 16)), 0, -1,
                    lineType=cv2.LINE_8, shift=4)
 
+    n_in = 0
     for ref, r_exp, _, _ in found:
         if -2 * r_exp <= ref["x"] - bx0 <= w + 2 * r_exp and -2 * r_exp <= ref["y"] - by0 <= h + 2 * r_exp:
             blank(ref["x"], ref["y"], r_exp)
+            xi, yi = int(round(ref["x"] - bx0)), int(round(ref["y"] - by0))
+            n_in += bool(0 <= xi < w and 0 <= yi < h and blob[yi, xi])
+    if n_in < 2:
+        # one ball and a remainder: its own motion smear or shadow rather than
+        # a missed neighbour (two touching balls already give a disc-score peak each)
+        return
     for _ in range(settings.explain_max_seeds):
         n_cc, lab, stats, _c = cv2.connectedComponentsWithStats(free, connectivity=8)
         big = [j for j in range(1, n_cc) if stats[j, cv2.CC_STAT_AREA] >= settings.explain_min_area * np.pi * r0 * r0]
