@@ -19,10 +19,10 @@ for why the stage is opt-in.
 """
 from __future__ import annotations
 
-import cv2
 import numpy as np
 import pytest
 
+from lambert_ball import encode_frame, lambert_ball  # noqa: E402
 from tracking.detect import delta_e76, refine_centre, to_lab
 from tracking.settings import DetectionSettings
 
@@ -30,36 +30,9 @@ ON = DetectionSettings(limb_linear=True)
 OFF = DetectionSettings(limb_linear=False)
 
 
-def srgb_encode(lin: np.ndarray) -> np.ndarray:
-    """Linear 0-1 -> sRGB 0-255 (IEC 61966-2-1 closed form)."""
-    lin = np.clip(lin, 0.0, 1.0)
-    return 255.0 * np.where(lin <= 0.0031308, 12.92 * lin, 1.055 * lin ** (1 / 2.4) - 0.055)
-
-
-def lambert_ball(cx: float, cy: float, r: float, ball_bgr, cloth_bgr, light, ambient: float,
-                 size: tuple[int, int], ss: int = 8) -> np.ndarray:
-    """Linear-light BGR image (H, W, 3) of one ball on flat cloth (module docstring)."""
-    w, h = size
-    sub = (np.arange(ss) + 0.5) / ss - 0.5
-    ys, xs = np.mgrid[0:h, 0:w]
-    dx = (xs[..., None, None] + sub[None, None, None, :] - cx) / r
-    dy = (ys[..., None, None] + sub[None, None, :, None] - cy) / r
-    q2 = dx * dx + dy * dy
-    nz = np.sqrt(np.clip(1.0 - q2, 0.0, 1.0))
-    lv = np.asarray(light, float) / np.linalg.norm(light)
-    shade = ambient + (1.0 - ambient) * np.clip(dx * lv[0] + dy * lv[1] + nz * lv[2], 0.0, None)
-    img = np.empty((h, w, 3))
-    for c in range(3):
-        img[..., c] = np.where(q2 < 1.0, ball_bgr[c] * shade, cloth_bgr[c]).mean(axis=(2, 3))
-    return img
-
-
 def encode(img_lin: np.ndarray, cloth_bgr, blur_px: float, seed: int) -> tuple[np.ndarray, np.ndarray]:
     """Blur in linear light, sRGB-encode, add 1 DN noise -> (frame uint8, Delta-E map vs the empty cloth)."""
-    rng = np.random.default_rng(seed)
-    img = cv2.GaussianBlur(img_lin, (0, 0), blur_px)
-    frame = np.clip(np.round(srgb_encode(img) + rng.normal(0.0, 1.0, img.shape)), 0, 255).astype(np.uint8)
-    bg = np.broadcast_to(srgb_encode(np.asarray(cloth_bgr, float)), img.shape).astype(np.float32)
+    frame, bg = encode_frame(img_lin, cloth_bgr, blur_px=blur_px, noise_dn=1.0, seed=seed)
     return frame, delta_e76(to_lab(frame), to_lab(bg))
 
 

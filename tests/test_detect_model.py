@@ -16,46 +16,23 @@ the ball ends.
 """
 from __future__ import annotations
 
-import cv2
 import numpy as np
 import pytest
 
+from lambert_ball import encode_frame, lambert_ball  # noqa: E402
 from tracking.detect import fit_ball_model, refine_centre, srgb_to_linear
 from tracking.settings import DetectionSettings
-
-
-def srgb_encode(lin: np.ndarray) -> np.ndarray:
-    """Linear 0-1 -> sRGB 0-255 (IEC 61966-2-1 closed form)."""
-    lin = np.clip(lin, 0.0, 1.0)
-    return 255.0 * np.where(lin <= 0.0031308, 12.92 * lin, 1.055 * lin ** (1 / 2.4) - 0.055)
 
 
 def ball_linear(cx: float, cy: float, r: float, ball_bgr, cloth_bgr, light, ambient: float, *, size=(63, 55),
                 ss: int = 8) -> np.ndarray:
     """Linear-light BGR image (H, W, 3) of one ball on the cloth; colours linear 0-1."""
-    w, h = size
-    sub = (np.arange(ss) + 0.5) / ss - 0.5
-    ys, xs = np.mgrid[0:h, 0:w]
-    dx = (xs[..., None, None] + sub[None, None, None, :] - cx) / r
-    dy = (ys[..., None, None] + sub[None, None, :, None] - cy) / r
-    q2 = dx * dx + dy * dy
-    hit = q2 < 1.0
-    nz = np.sqrt(np.clip(1.0 - q2, 0.0, 1.0))
-    lv = np.asarray(light, float) / np.linalg.norm(light)
-    shade = ambient + (1.0 - ambient) * np.clip(dx * lv[0] + dy * lv[1] + nz * lv[2], 0.0, None)
-    img = np.empty((h, w, 3))
-    for c in range(3):
-        img[..., c] = np.where(hit, ball_bgr[c] * shade, cloth_bgr[c]).mean(axis=(2, 3))
-    return img
+    return lambert_ball(cx, cy, r, ball_bgr, cloth_bgr, light, ambient, size, ss)
 
 
 def to_frame(img_lin: np.ndarray, cloth_bgr, *, blur_px: float = 0.8, noise_dn: float = 1.0, seed: int = 0):
     """Blur (linear light), sRGB-encode and add noise: (frame uint8, background float32 DN)."""
-    img = cv2.GaussianBlur(img_lin, (0, 0), blur_px)
-    rng = np.random.default_rng(seed)
-    frame = np.clip(np.round(srgb_encode(img) + rng.normal(0.0, noise_dn, img.shape)), 0, 255).astype(np.uint8)
-    bg = np.broadcast_to(srgb_encode(np.asarray(cloth_bgr, float)), img.shape).astype(np.float32)
-    return frame, np.ascontiguousarray(bg)
+    return encode_frame(img_lin, cloth_bgr, blur_px=blur_px, noise_dn=noise_dn, seed=seed)
 
 
 def draw_ball(cx: float, cy: float, r: float, ball_bgr, cloth_bgr, light, ambient: float, *, seed: int = 0):
