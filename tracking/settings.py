@@ -410,6 +410,14 @@ class TrackingSettings:
     #: differences, covariance matching; tracking/kalman.py smear_scale),
     #: capped by the uniform-smear bound above; False: use the bound itself.
     smear_from_clip: bool = True
+    #: Warn when the balls' image size (median fitted / expected silhouette
+    #: radius of resting balls, tracking/ball_size.py) is off by more than this
+    #: fraction: a wrong --table preset or ball set. The detector's own bias on
+    #: that ratio is -3 % to +1 % (recovered diameters 55.4-57.5 mm for
+    #: 57.15 mm balls on outside and rendered footage); a preset mistake is
+    #: 7.6-8.9 % (8-ft vs 9-ft pool 100/92 in; snooker 52.5 or carom 61.5 mm
+    #: balls vs 57.15 mm pool balls; WPA, WPBSA, UMB specifications).
+    ball_size_tolerance: float = 0.045
 
 
 @dataclass(frozen=True)

@@ -1,0 +1,76 @@
+"""Does the ball size seen in the clip agree with the chosen table preset?
+
+Every pool table has the same 2:1 playing surface, so an automatic
+calibration made with the wrong preset (``pool-9ft`` for an 8-ft table) still
+fits the cushion lines to a fraction of a pixel: it simply places the camera
+further away and every millimetre comes out scaled (by 2540/2337 = 1.087 in
+that example). The one thing in the picture with a known size that the fit
+did not use is the ball: with the wrong preset its image is that much larger
+(or smaller) than the preset's ball predicts. The same holds for a ball set
+other than the preset's (snooker 52.5 mm or carom 61.5 mm balls on a pool
+preset: 8-9 % off).
+
+The measure is the median, over resting detections whose silhouette radius
+was fitted freely, of fitted / expected image radius (both px). The detector's
+own bias on that ratio is -3 % to +1 % on outside and rendered footage
+(recovered diameters 55.4-57.5 mm for 57.15 mm balls, see
+``DetectionSettings.limb_linear``), so the check warns only beyond a margin
+that clears it; it cannot tell a mis-sized table from a mis-sized ball set,
+and says so.
+
+>>> import pandas as pd
+>>> det = pd.DataFrame({"radius_px": [13.0] * 40, "radius_expected_px": [12.0] * 40,
+...                     "smear_mm": [0.0] * 40})
+>>> round(size_ratio(det), 3)
+1.083
+"""
+from __future__ import annotations
+
+import numpy as np
+import pandas as pd
+
+#: Fewest free-radius detections for a verdict (a few seconds of one resting
+#: ball at video rates; fewer are left unjudged).
+MIN_DETECTIONS = 30
+
+
+def size_ratio(det: pd.DataFrame, max_smear_mm: float = 1.0) -> float:
+    """Median fitted / expected image radius of slow, free-radius detections (NaN if too few).
+
+    det: detections with ``radius_px`` and ``radius_expected_px`` (px) and,
+    optionally, ``smear_mm`` (motion smear over the exposure, mm: a smeared
+    silhouette is longer than the ball, so only detections smeared less than
+    ``max_smear_mm`` count); detections
+    whose radius was pinned to the expected value (ratio exactly 1: cushion
+    overlap, clusters, occlusion) carry no size information and are left out.
+    """
+    if det is None or len(det) == 0 or "radius_px" not in det or "radius_expected_px" not in det:
+        return float("nan")
+    r = det["radius_px"].to_numpy(float)
+    r0 = det["radius_expected_px"].to_numpy(float)
+    ok = np.isfinite(r) & np.isfinite(r0) & (r0 > 0)
+    if "smear_mm" in det:
+        ok &= det["smear_mm"].to_numpy(float) <= max_smear_mm
+    ratio = r[ok] / r0[ok]
+    ratio = ratio[ratio != 1.0]
+    if len(ratio) < MIN_DETECTIONS:
+        return float("nan")
+    return float(np.median(ratio))
+
+
+def size_warning(ratio: float, preset_name: str, ball_mm: float, tolerance: float) -> str | None:
+    """One-line warning when the balls' image size disagrees with the preset by more than ``tolerance``.
+
+    ratio: from :func:`size_ratio`; ball_mm: the preset's ball diameter (mm).
+
+    >>> size_warning(1.087, "pool-9ft", 57.15, 0.045) is not None
+    True
+    >>> size_warning(0.975, "pool-9ft", 57.15, 0.045) is None
+    True
+    """
+    if not np.isfinite(ratio) or abs(ratio - 1.0) <= tolerance:
+        return None
+    word = "larger" if ratio > 1 else "smaller"
+    return (f"balls look {abs(ratio - 1) * 100:.0f}% {word} than the {preset_name} preset's "
+            f"{ball_mm:.2f} mm ball predicts: if the table or ball set is not {preset_name}, pass the right "
+            f"--table (every distance and speed scales with it)")
