@@ -38,6 +38,7 @@ import pandas as pd
 from feltlab.errors import FeltlabError
 from feltlab.standards import DEFAULT_TABLE, TablePreset, table_preset
 from tracking.assign import Linker, colour_signature, view_test
+from tracking.ball_size import size_ratio, size_warning
 from tracking.calibration import Calibration
 from tracking.detect import build_background, detect_frame
 from tracking.kalman import as_cov, smear_cov, smear_scale, smooth_segment, split_segments
@@ -400,7 +401,8 @@ def track_clip(path: str | os.PathLike, table: str | TablePreset | None = DEFAUL
                        stats={"background_noise_dn": bg.noise_dn, "threshold_dn": bg.threshold_dn,
                               "radius_px": bg.radius_px, "static_balls_painted": int(len(bg.static_px)),
                               "time_source": src.time_source,
-                              "smear_scale_s2": float(result[1].attrs.get("smear_scale_s2", float("nan")))})
+                              "smear_scale_s2": float(result[1].attrs.get("smear_scale_s2", float("nan"))),
+                              "ball_size_ratio": float(result[1].attrs.get("ball_size_ratio", float("nan")))})
 
 
 def _finish(det_all: pd.DataFrame, jumps: dict[int, list[int]], frame_t: np.ndarray, cal: Calibration,
@@ -468,6 +470,13 @@ def _finish(det_all: pd.DataFrame, jumps: dict[int, list[int]], frame_t: np.ndar
     extra = [c for c in det_all.columns if c not in DETECTION_OUT_COLUMNS and c not in ("track", "row")]
     dets = det_all[DETECTION_OUT_COLUMNS + extra].sort_values(["frame", "ball"]).reset_index(drop=True)
     dets.attrs["smear_scale_s2"] = c_s2
+    # A wrong --table preset fits the cushions just as well (all pool tables
+    # are 2:1); only the balls' image size can tell (tracking/ball_size.py).
+    ratio = size_ratio(det_all[det_all.used])
+    dets.attrs["ball_size_ratio"] = ratio
+    msg = size_warning(ratio, cal.table.name, cal.ball_diameter_mm, ts.ball_size_tolerance)
+    if msg:
+        warnings.append(msg)
     return tracks, dets, balls, segs
 
 
