@@ -61,6 +61,7 @@ import pandas as pd
 from scipy.special import erf as _erf
 
 from tracking.calibration import Calibration
+from tracking.pockets import inside_corner_mouth
 from tracking.settings import DetectionSettings
 
 #: ``contrast_dn``: mean foreground strength inside 0.6 radius, in noise-weighted
@@ -351,6 +352,9 @@ def build_background(frames: list[np.ndarray], calibration: Calibration,
     L, W = cal.table.length_mm, cal.table.width_mm
     m = 0.8 * R
     found = found[(found.x_mm >= m) & (found.x_mm <= L - m) & (found.y_mm >= m) & (found.y_mm <= W - m)]
+    # the visible part of a corner pocket is a ball-sized dark blob where no ball can rest
+    found = found[~inside_corner_mouth(found[["x_mm", "y_mm"]].to_numpy(float), cal.table,
+                                       settings.corner_mouth_min_mm)]
     static = found[["x_px", "y_px"]].to_numpy()
     img = med.copy()
     if len(static):

@@ -136,6 +136,11 @@ class DetectionSettings:
     resolution.
     """
 
+    #: A resting "ball" whose centre lies between a corner point and that
+    #: pocket's mouth (tracking/pockets.py) is the pocket itself: no slate
+    #: under it. The narrowest corner mouth of our pocketed presets: snooker
+    #: ~3 3/8 in = 86 mm (pool 4 7/8-5 1/8 in, WPA); both from memory.
+    corner_mouth_min_mm: float = 86.0
     #: Frames sampled for the temporal-median background (a median over >= ~15
     #: samples rejects a ball present in fewer than half of them; common practice).
     background_samples: int = 31
