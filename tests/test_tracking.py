@@ -393,3 +393,33 @@ def test_synthetic_clip_end_to_end_and_cli(tmp_path):
         # shaded limb of a resting ball shifts its silhouette centre by ~0.5 mm here (measured
         # 0.52 mm); moving balls and low-contrast balls got better. Reported, not hidden.
         pytest.xfail(f"resting-ball bias {rest_err:.2f} mm > 0.5 mm (known shortfall, issue 3)")
+
+
+def test_dim_light_cue_is_the_ball_bright_in_every_channel():
+    """Dim warm light: no pixel reaches the 'white' value, yet the white ball is the cue.
+
+    Colours are computed, not chosen: albedo x illuminant x exposure in linear
+    light, sRGB-encoded (IEC 61966-2-1 closed form); HSV from colorsys
+    (Python standard library). A white ball reflects every channel, so its
+    darkest channel is the brightest of the set (common practice: one white
+    cue ball per pool set).
+    """
+    import colorsys
+
+    from lambert_ball import srgb_encode
+
+    light = np.array([1.0, 0.85, 0.65]) * 0.25  # warm lamp, dark scene (R, G, B linear)
+    albedo = {"white": (0.85, 0.85, 0.85), "yellow": (0.85, 0.7, 0.06), "purple": (0.3, 0.12, 0.4),
+              "orange": (0.9, 0.3, 0.03), "black": (0.03, 0.03, 0.03)}
+    rows = []
+    for k, (name, a) in enumerate(albedo.items()):
+        rgb = srgb_encode(np.asarray(a) * light)
+        h, s, v = colorsys.rgb_to_hsv(*(rgb / 255.0))
+        for _ in range(3):
+            rows.append(dict(track=k, r=rgb[0], g=rgb[1], b=rgb[2], hue_deg=360 * h, sat=s, val=v,
+                             white_frac=0.0, dark_frac=0.9 if name == "black" else 0.0))
+    det = pd.DataFrame(rows)
+    assert det.val.max() < 0.62  # below the 'white' value of detection: the usual rules find no cue
+    names, _ = label_tracks(det)
+    assert names[0] == "cue"
+    assert "cue" not in [names[k] for k in range(1, 5)]

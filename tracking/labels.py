@@ -52,6 +52,11 @@ BLACK_DARK_FRAC = 0.45
 #: DetectionSettings.white_saturation) may still be the cue.
 CUE_FALLBACK_WHITE_FRAC = 0.2
 CUE_FALLBACK_SAT = 0.28
+#: Dim light (no white pixels anywhere): the cue is the unsaturated ball whose
+#: darkest colour channel is at least this factor brighter than any other
+#: ball's (our choice: a white ball reflects ~2-4x more than a coloured one in
+#: that ball's dark channel; pale pastel sets may not separate and stay unnamed).
+CUE_DIM_MARGIN = 1.25
 
 HUE_BANDS = [  # (name, hue from, hue to) degrees
     ("red", 345.0, 360.0), ("red", 0.0, 12.0), ("orange", 12.0, 40.0), ("yellow", 40.0, 70.0),
@@ -120,6 +125,17 @@ def label_tracks(det: pd.DataFrame, track_col: str = "track") -> tuple[dict[int,
         cand = (info["white_frac"] >= CUE_FALLBACK_WHITE_FRAC) & (info["sat"] < CUE_FALLBACK_SAT)
         if cand.any():
             cue_idx = int(whiteness[cand].idxmax())
+        elif len(info) >= 2:
+            # Dim light: no pixel reaches the "white" value. A white ball
+            # reflects every channel, so under the same light its darkest
+            # channel is the brightest of all balls' (a coloured ball is dark
+            # in at least one channel); it is taken only when unsaturated and
+            # clearly ahead of every other ball.
+            lo = info[["r", "g", "b"]].min(axis=1).to_numpy(float)
+            k = int(np.argmax(lo))
+            rest = np.delete(lo, k)
+            if info["sat"].iloc[k] < CUE_FALLBACK_SAT and lo[k] >= CUE_DIM_MARGIN * rest.max():
+                cue_idx = int(info.index[k])
     base = []
     pattern = []
     for k, r in info.iterrows():

@@ -41,6 +41,7 @@ from tracking.assign import Linker, colour_signature, view_test
 from tracking.ball_size import size_ratio, size_warning
 from tracking.calibration import Calibration
 from tracking.detect import build_background, detect_frame
+from tracking.exposure import ExposureMatcher
 from tracking.kalman import as_cov, smear_cov, smear_scale, smooth_segment, split_segments
 from tracking.labels import label_tracks
 from tracking.overlap import separate_overlaps
@@ -359,6 +360,7 @@ def track_clip(path: str | os.PathLike, table: str | TablePreset | None = DEFAUL
                            f"{imgs[0].shape[1]}x{imgs[0].shape[0]}; calibrate this clip")
     bg = build_background(imgs, cal, ds)
     del imgs, sample
+    exposure = ExposureMatcher(bg.image, bg.mask, settings.exposure)
 
     # A ball whose centre is up to one radius outside the picture still shows
     # a part of itself; beyond that it has left the view.
@@ -370,6 +372,7 @@ def track_clip(path: str | os.PathLike, table: str | TablePreset | None = DEFAUL
     total = src.n_frames
     done = 0
     for idx, t, img in src:
+        img = exposure.correct(img)  # lamp flicker / auto exposure out
         det = merge_overlapping(detect_frame(img, cal, ds, bg), cal.ball_radius_mm, ts.merge_below_frac)
         if ts.separate_overlaps:
             det = separate_detections(det, cal.ball_radius_mm)

@@ -426,10 +426,40 @@ class TrackingSettings:
 
 
 @dataclass(frozen=True)
+class ExposureSettings:
+    """Brightness matching of each frame to the background (tracking/exposure.py)."""
+
+    #: Sample grid step (px) over the background mask.
+    step_px: int = 8
+    #: Polynomial order of the gain field in x, y (2: one lamp's pool of light
+    #: plus steady ambient light varies smoothly over the table).
+    order: int = 2
+    #: Background pixels darker than this (DN) are not sampled (the toe of the
+    #: sRGB curve, and noise dominates the ratio).
+    min_dn: float = 12.0
+    #: Tukey biweight constant x robust scale (4.685: 95 % efficiency under
+    #: Gaussian noise; Holland & Welsch 1977) and iterations.
+    tukey_c: float = 4.685
+    iters: int = 4
+    #: Correct only when the fitted field departs from 1 by more than this
+    #: somewhere on the cloth (q units; 0.006 is a 1.5 % linear gain, < 1 DN on
+    #: a mid-grey pixel): steady footage is left bit for bit as it was. The
+    #: fit's own scatter on steady clips reaches 0.002-0.004 (measured on the
+    #: outside footage D1/D2, a bundled clip and a steady render).
+    min_change: float = 0.006
+    #: Largest change corrected (q units; 0.25 ~ a factor 1.7 in linear
+    #: light): beyond it the frame is not a brightness change of this scene
+    #: (a cut, a flash) and is left alone.
+    max_change: float = 0.25
+
+
+@dataclass(frozen=True)
 class TrackClipSettings:
     """Everything :func:`tracking.pipeline.track_clip` needs besides the clip."""
 
     detection: DetectionSettings = DetectionSettings()
     tracking: TrackingSettings = TrackingSettings()
+    #: Brightness matching of each frame to the background (flicker, auto exposure).
+    exposure: ExposureSettings = ExposureSettings()
     #: Frames handed to automatic calibration when no calibration is given.
     calibration_frames: int = 9
