@@ -52,11 +52,12 @@ def test_wrong_preset_is_flagged_and_right_one_is_not():
     frames = [render(right, balls, rng, noise_dn=1.5, light=(0.3, -0.2, 1.0)) for _ in range(12)]
     r_ok = _ratio(frames, right, empty)
     r_bad = _ratio(frames, wrong, empty)
-    tol = TrackingSettings().ball_size_tolerance
+    ts = TrackingSettings()
+    band = (ts.ball_size_low, ts.ball_size_high)
     # Same pixels, so the two ratios differ by exactly the scene scale (closed form above).
     assert abs(r_bad / r_ok - s) < 0.01 * s
-    assert size_warning(r_ok, "pool-8ft", POOL_BALL.diameter_mm, tol) is None
-    msg = size_warning(r_bad, "pool-9ft", POOL_BALL.diameter_mm, tol)
+    assert size_warning(r_ok, "pool-8ft", POOL_BALL.diameter_mm, *band) is None
+    msg = size_warning(r_bad, "pool-9ft", POOL_BALL.diameter_mm, *band)
     assert msg is not None and "larger" in msg and "--table" in msg
 
 

@@ -11,12 +11,13 @@ other than the preset's (snooker 52.5 mm or carom 61.5 mm balls on a pool
 preset: 8-9 % off).
 
 The measure is the median, over resting detections whose silhouette radius
-was fitted freely, of fitted / expected image radius (both px). The detector's
-own bias on that ratio is -3 % to +1 % on outside and rendered footage
-(recovered diameters 55.4-57.5 mm for 57.15 mm balls, see
-``DetectionSettings.limb_linear``), so the check warns only beyond a margin
-that clears it; it cannot tell a mis-sized table from a mis-sized ball set,
-and says so.
+was fitted freely, of fitted / expected image radius (both px; expected:
+:meth:`tracking.calibration.Calibration.ball_radius_px`, the exact sphere
+silhouette). The detector's own bias on that ratio is -5 % to -1 % on outside
+and rendered footage (it finds the limb slightly inside the ball), so the
+check warns only outside a band that clears it (``TrackingSettings``
+ball_size_low/high); it cannot tell a mis-sized table from a mis-sized ball
+set, and says so.
 
 >>> import pandas as pd
 >>> det = pd.DataFrame({"radius_px": [13.0] * 40, "radius_expected_px": [12.0] * 40,
@@ -58,17 +59,17 @@ def size_ratio(det: pd.DataFrame, max_smear_mm: float = 1.0) -> float:
     return float(np.median(ratio))
 
 
-def size_warning(ratio: float, preset_name: str, ball_mm: float, tolerance: float) -> str | None:
-    """One-line warning when the balls' image size disagrees with the preset by more than ``tolerance``.
+def size_warning(ratio: float, preset_name: str, ball_mm: float, low: float, high: float) -> str | None:
+    """One-line warning when the balls' image size ratio lies outside [low, high].
 
     ratio: from :func:`size_ratio`; ball_mm: the preset's ball diameter (mm).
 
-    >>> size_warning(1.087, "pool-9ft", 57.15, 0.045) is not None
+    >>> size_warning(1.07, "pool-9ft", 57.15, 0.925, 1.03) is not None
     True
-    >>> size_warning(0.975, "pool-9ft", 57.15, 0.045) is None
+    >>> size_warning(0.955, "pool-9ft", 57.15, 0.925, 1.03) is None
     True
     """
-    if not np.isfinite(ratio) or abs(ratio - 1.0) <= tolerance:
+    if not np.isfinite(ratio) or low <= ratio <= high:
         return None
     word = "larger" if ratio > 1 else "smaller"
     return (f"balls look {abs(ratio - 1) * 100:.0f}% {word} than the {preset_name} preset's "

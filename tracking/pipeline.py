@@ -477,7 +477,8 @@ def _finish(det_all: pd.DataFrame, jumps: dict[int, list[int]], frame_t: np.ndar
     # are 2:1); only the balls' image size can tell (tracking/ball_size.py).
     ratio = size_ratio(det_all[det_all.used])
     dets.attrs["ball_size_ratio"] = ratio
-    msg = size_warning(ratio, cal.table.name, cal.ball_diameter_mm, ts.ball_size_tolerance)
+    msg = size_warning(ratio, cal.table.name, cal.ball_diameter_mm, ts.ball_size_low,
+                       ts.ball_size_high)
     if msg:
         warnings.append(msg)
     return tracks, dets, balls, segs

@@ -416,13 +416,16 @@ class TrackingSettings:
     #: capped by the uniform-smear bound above; False: use the bound itself.
     smear_from_clip: bool = True
     #: Warn when the balls' image size (median fitted / expected silhouette
-    #: radius of resting balls, tracking/ball_size.py) is off by more than this
-    #: fraction: a wrong --table preset or ball set. The detector's own bias on
-    #: that ratio is -3 % to +1 % (recovered diameters 55.4-57.5 mm for
-    #: 57.15 mm balls on outside and rendered footage); a preset mistake is
-    #: 7.6-8.9 % (8-ft vs 9-ft pool 100/92 in; snooker 52.5 or carom 61.5 mm
-    #: balls vs 57.15 mm pool balls; WPA, WPBSA, UMB specifications).
-    ball_size_tolerance: float = 0.045
+    #: radius of resting balls, tracking/ball_size.py) lies outside
+    #: [ball_size_low, ball_size_high]: a wrong --table preset or ball set.
+    #: The detector finds the silhouette slightly inside the true limb: the
+    #: ratio is 0.95-0.99 with the right preset (outside footage D1/D2 0.953,
+    #: renders 0.98); a preset mistake multiplies it by 1.087 or 1/1.087 (8-ft
+    #: vs 9-ft pool, 100/92 in, WPA), 0.919 (snooker 52.5 mm balls, WPBSA, on
+    #: a pool preset) or 1.076 (carom 61.5 mm, UMB); the band keeps >= 2 %
+    #: clear of both (a carom set on a pool preset can go unnoticed).
+    ball_size_low: float = 0.925
+    ball_size_high: float = 1.03
 
 
 @dataclass(frozen=True)
