@@ -63,13 +63,18 @@ from scipy.special import erf as _erf
 from tracking.calibration import Calibration
 from tracking.pockets import inside_corner_mouth
 from tracking.settings import DetectionSettings
+from tracking.streak import refine_streak, streak_axis
 
 #: ``contrast_dn``: mean foreground strength inside 0.6 radius, in noise-weighted
 #: CIE 1976 Delta-E*ab units since the CIELAB foreground test (name kept).
+#: ``streak_px``, ``streak_deg``: smear length (px; 0 for a circle fit) and
+#: its direction (degrees, image frame; NaN) of a ball centred by the streak
+#: fit (tracking/streak.py); its ``radius_px`` is then the mean radius of the
+#: fitted contour, not a silhouette radius.
 DETECTION_COLUMNS = [
     "x_px", "y_px", "x_mm", "y_mm", "sx_mm", "sy_mm", "sigma_px", "confidence",
     "radius_px", "radius_expected_px", "support", "contrast_dn",
-    "r", "g", "b", "hue_deg", "sat", "val", "white_frac", "dark_frac",
+    "r", "g", "b", "hue_deg", "sat", "val", "white_frac", "dark_frac", "streak_px", "streak_deg",
 ]
 
 
@@ -1076,6 +1081,17 @@ def detect_frame(image: np.ndarray, calibration: Calibration, settings: Detectio
         cands = np.vstack([cands] + extra)
     found = []
 
+    def streak_centre(gx: float, gy: float, r_exp: float) -> dict | None:
+        """Mid-exposure centre of a motion streak round seed (gx, gy) px, or None (not a streak)."""
+        hw = int(np.ceil(r_exp * (1.0 + 0.5 * settings.streak_max_len))) + 3
+        fill(int(gx) - hw, int(gy) - hw, int(gx) + hw + 2, int(gy) + hw + 2)
+        ax = streak_axis(d, gx, gy, r_exp, thr, settings)
+        if ax is None or not ax["ok"] or ax["length"] < settings.streak_min_len * r_exp:
+            return None
+        hw = int(np.ceil((r_exp + 0.5 * ax["length"]) * settings.streak_ray_max + 3 * settings.edge_smooth_px)) + 5
+        fill(int(ax["x"]) - hw, int(ax["y"]) - hw, int(ax["x"]) + hw + 2, int(ax["y"]) + hw + 2)
+        return refine_streak(d, ax, r_exp, settings, thr)
+
     def accept(gx: float, gy: float, min_contrast: float = settings.min_inner_contrast) -> bool:
         """Refine a seed at image (gx, gy) px; append it to ``found`` when ball-like.
 
@@ -1085,7 +1101,9 @@ def detect_frame(image: np.ndarray, calibration: Calibration, settings: Detectio
         if _disc_mean(d, gx, gy, 0.6 * r0) < settings.min_inner_contrast * thr:
             return False  # not a ball-sized patch that differs from the cloth
         r_exp, _, _ = background.lookup(gx, gy)
-        ref = refine_centre(d, gx, gy, r_exp, settings, image, thr)
+        ref = streak_centre(gx, gy, r_exp) if settings.streak_fit else None
+        if ref is None:
+            ref = refine_centre(d, gx, gy, r_exp, settings, image, thr)
         if ref is None:
             return False
         r_exp, ox, oy = background.lookup(ref["x"], ref["y"])
@@ -1104,6 +1122,7 @@ def detect_frame(image: np.ndarray, calibration: Calibration, settings: Detectio
     if settings.explain_clusters:
         for bx0, by0, bmask in blobs:
             _explain_cluster(bmask, bx0, by0, found, accept, background, settings)
+    found = _drop_streak_ends(found, settings)
     rows = []
     if found:
         pc = np.array([[f[0]["x"] - f[2], f[0]["y"] - f[3]] for f in found])
@@ -1123,9 +1142,37 @@ def detect_frame(image: np.ndarray, calibration: Calibration, settings: Detectio
                 "sx_mm": ref["sigma_px"] * mmpp, "sy_mm": ref["sigma_px"] * mmpp, "sigma_px": ref["sigma_px"],
                 "confidence": conf, "radius_px": ref["radius"], "radius_expected_px": r_exp,
                 "support": ref["support"], "contrast_dn": contrast, **col,
+                "streak_px": ref.get("smear_px", 0.0), "streak_deg": float(np.degrees(ref.get("smear_angle", np.nan))),
             })
     rows = _drop_duplicates(rows, r0)
     return pd.DataFrame(rows, columns=DETECTION_COLUMNS)
+
+
+def _drop_streak_ends(found: list, settings: DetectionSettings) -> list:
+    """Drop circle-fit detections that sit on the smear path of a streak-fit one.
+
+    A seed near one end of a long streak that did not pass as a streak
+    itself is fitted to that end; its centre lies within
+    ``streak_end_sep`` radii of the streak's path (the mid-exposure centre
+    +- half the smear length). A touching ball's centre is two radii from
+    the moving ball's, at least 2 - L/(2r) radii from the path.
+    """
+    streaks = [f for f in found if "smear_px" in f[0]]
+    if not streaks:
+        return found
+    keep = []
+    for f in found:
+        ref, r_exp = f[0], f[1]
+        on_path = False
+        if "smear_px" not in ref:
+            for g in streaks:
+                u = np.array([np.cos(g[0]["smear_angle"]), np.sin(g[0]["smear_angle"])])
+                v = np.array([ref["x"] - g[0]["x"], ref["y"] - g[0]["y"]])
+                t = float(np.clip(v @ u, -0.5 * g[0]["smear_px"], 0.5 * g[0]["smear_px"]))
+                on_path |= bool(np.linalg.norm(v - t * u) < settings.streak_end_sep * g[1])
+        if not on_path:
+            keep.append(f)
+    return keep
 
 
 def _explain_cluster(blob: np.ndarray, bx0: int, by0: int, found: list, accept, background: Background,

@@ -304,6 +304,50 @@ class DetectionSettings:
     #: A model centre further than this (x radius) from the silhouette centre
     #: is rejected (the silhouette centre is kept).
     model_max_shift: float = 0.25
+    #: Motion streaks (tracking/streak.py): when the foreground blob round a
+    #: seed is a stadium (a swept disc) with a smear length over
+    #: streak_min_len radii, its centre comes from a point-symmetric fit all
+    #: round the streak instead of the circle fit (which reaches only
+    #: ~1.3 radii from its seed and settles on one end of a long smear).
+    #: 1.0: below about one radius the circle fit reaches both ends (its
+    #: outermost-drop search goes to 1.3 radii, a smear's ends lie at
+    #: 1 + L/2r) and both fits measured alike on our fast renders.
+    streak_fit: bool = True
+    streak_min_len: float = 1.0
+    #: Longest smear searched, x radius (blob window 1 + streak_max_len/2 radii).
+    streak_max_len: float = 4.0
+    #: Rays of the streak fit and their search window, x the stadium's reach
+    #: in each direction; the outermost clear drop within streak_outer x reach.
+    streak_rays: int = 96
+    streak_ray_min: float = 0.3
+    streak_ray_max: float = 1.35
+    streak_outer: float = 1.2
+    #: Edge position: first moment of the drop over its run above this share
+    #: of the peak (a smeared end is a ramp: its middle).
+    streak_run_frac: float = 0.5
+    #: A drop counts as clear when >= this share of the ray's strongest.
+    streak_strong_frac: float = 0.15
+    #: Even harmonics of the point-symmetric contour (rho(phi) up to cos/sin
+    #: of this order); re-cast passes.
+    streak_harmonics: int = 4
+    streak_iters: int = 4
+    #: Centre sigma added in quadrature, x smear length px: along-motion
+    #: errors of ~0.05 L RMS measured on our own fast renders (streaks of
+    #: 15-55 px; shadows and compression make the two ends differ).
+    streak_sigma_frac: float = 0.05
+    #: A circle-fit detection whose centre lies within this many radii of a
+    #: streak's smear path is that streak's end and is dropped (a touching
+    #: ball is >= 2 - L/(2r) radii from the path: safe for L < 2.8 r).
+    streak_end_sep: float = 0.6
+    #: A streak's ends must be ramps: the median steepest drop on the rays
+    #: within 22.5 deg of the smear axis, at either end, at most this share of
+    #: the sides'. A ramp L px long under an edge blur b px would give
+    #: ~2.5 b / L in coverage, but the colour difference rises fastest at low
+    #: coverage, so measured on our fast renders smears of 1.2-2.4 radii gave
+    #: 0.45-0.8 (one 1.26), while resting balls stretched by their shadow
+    #: (outside footage D1) gave 1.04-1.7. Both this and streak_min_len must
+    #: hold; our choice between the two groups.
+    streak_max_end_ratio: float = 0.9
     #: Pixels whose HSV saturation < this and value > white_value count as white
     #: (stripe/cue summary); 0..1 scale, common practice for "white" in HSV.
     white_saturation: float = 0.28
