@@ -41,6 +41,7 @@ from tracking.assign import Linker, colour_signature, view_test
 from tracking.ball_size import size_ratio, size_warning
 from tracking.calibration import Calibration
 from tracking.detect import build_background, detect_frame
+from tracking.faint import add_faint, faint_background
 from tracking.exposure import ExposureMatcher
 from tracking.kalman import as_cov, smear_cov, smear_scale, smooth_segment, split_segments
 from tracking.labels import label_tracks
@@ -359,6 +360,7 @@ def track_clip(path: str | os.PathLike, table: str | TablePreset | None = DEFAUL
         raise FeltlabError(f"the calibration is for {w}x{h} images but the clip is "
                            f"{imgs[0].shape[1]}x{imgs[0].shape[0]}; calibrate this clip")
     bg = build_background(imgs, cal, ds)
+    bg = faint_background(bg, cal, ds)  # faint resting balls out of the background too
     del imgs, sample
     exposure = ExposureMatcher(bg.image, bg.mask, settings.exposure)
 
@@ -373,7 +375,8 @@ def track_clip(path: str | os.PathLike, table: str | TablePreset | None = DEFAUL
     done = 0
     for idx, t, img in src:
         img = exposure.correct(img)  # lamp flicker / auto exposure out
-        det = merge_overlapping(detect_frame(img, cal, ds, bg), cal.ball_radius_mm, ts.merge_below_frac)
+        det = merge_overlapping(add_faint(detect_frame(img, cal, ds, bg), img, cal, bg, ds), cal.ball_radius_mm,
+                                ts.merge_below_frac)
         if ts.separate_overlaps:
             det = separate_detections(det, cal.ball_radius_mm)
         frame_times[idx] = t

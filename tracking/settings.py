@@ -389,6 +389,78 @@ class DetectionSettings:
     #: 2 thresholds (12 noise sigma); the end of a motion smear is part cloth
     #: and weaker (at 1.0 one passed on outside footage D2).
     explain_min_contrast: float = 2.0
+    #: Faint-ball search (tracking/faint.py): a matched disc filter over the
+    #: signed CIELAB difference finds balls too close to the cloth's colour for
+    #: the per-pixel test (green on green cloth, maroon on red). Off: the
+    #: detector alone.
+    faint_search: bool = True
+    #: Probability of one false seed per frame (over the frame's independent
+    #: disc positions; Bonferroni). A false seed must still pass the shape and
+    #: surround tests, and a track must last min_track_s. Our choice.
+    faint_false_alarm: float = 1e-4
+    #: Quantile of the frame's own chi-square statistic above which its tail
+    #: is fitted (faint.tail_level, peaks over threshold): 0.99, where a ball
+    #: (< 1% of the positions) cannot move it.
+    faint_tail_p: float = 0.99
+    #: Surround ring of the centre-surround filter, x radius: from outside the
+    #: rim blur and the darkest part of the ball's own shadow (~0.3 r; see
+    #: model_shadow_decay) to about one diameter past the rim.
+    faint_ring_in: float = 1.3
+    faint_ring_out: float = 2.2
+    #: Pixels within this many radii of a detected ball carry no weight in
+    #: the faint search (its disc plus rim blur and shadow).
+    faint_known_pad: float = 1.25
+    #: A faint ball's centre lies at least this many radii from every detected
+    #: one (explain_min_sep: rigid balls, less two centre errors).
+    faint_min_sep: float = 1.7
+    #: Least usable (on-cloth, not under a detected ball) share of the disc
+    #: and of the ring for a position to be tested (a ball against a cushion
+    #: has nearly half its ring off the cloth).
+    faint_min_cover: float = 0.5
+    #: Seeds refined per frame (more than one faint ball of a set is rare).
+    faint_max_seeds: int = 4
+    #: At most this share of the ring may be per-pixel foreground that no
+    #: detected ball explains: a cue stick, a hand or a motion streak runs
+    #: through the surround; a lone faint ball's ring is cloth and shadow.
+    faint_max_strong_ring: float = 0.25
+    #: Shape test in 8 sectors of 45 deg: the ring must differ from the disc
+    #: (by half the mean step) along the seed's colour direction in all but
+    #: faint_max_open of the sectors that can be seen (ring mostly on cloth,
+    #: not under a detected ball), and at least faint_min_sectors must be
+    #: seen. A ball's silhouette is closed; a line (cushion shadow, wrinkle,
+    #: cue) is open at both ends, a shadow crescent on its sides.
+    faint_min_sectors: int = 4
+    faint_max_open: int = 1
+    #: Centre at least this many mm (x ball radius) inside the cushion nose.
+    faint_margin: float = 0.8
+    #: Edge floor of the silhouette fit of a faint ball, x threshold (its
+    #: edges are weaker than a clear ball's).
+    faint_edge_frac: float = 0.3
+    #: The silhouette centre is used when within this many radii of the
+    #: template peak; else the template peak is.
+    faint_agree: float = 0.35
+    #: Least model error of a faint ball's centre, x its radius: measured on
+    #: our renders (rack and cut-shot scenes, green on green), faint centres
+    #: lie 0.03-0.3 r from the truth at rest, silhouette and template alike.
+    faint_model_frac: float = 0.12
+    #: Edge blur sigma (px) assumed by the template centre sigma: a sharp
+    #: video camera's lens plus demosaicing, ~0.7-1 px (from memory).
+    faint_blur_px: float = 1.0
+    #: A seed whose colour change points within faint_shadow_cos (cosine) of
+    #: a pure darkening of the cloth (a shadow: the cloth's linear colour
+    #: scaled by k < 1) and lies within faint_shadow_reach radii of a detected
+    #: ball is that ball's shadow: a lamp 0.8-1.6 m above the cloth and up to
+    #: ~1 m to the side casts a shadow up to ~R tan(zenith) + R ~ 2 R past
+    #: the centre (geometric); the reach adds the disc's own radius.
+    faint_shadow_cos: float = 0.9
+    faint_shadow_reach: float = 3.2
+    #: A faint ball is taken only this many radii or more from every detected
+    #: ball: the inner edge of its ring (faint_ring_in = 1.3) plus a
+    #: neighbour's excluded disc (faint_known_pad = 1.25) plus ~0.25 r for
+    #: its shadow. Closer (a faint ball in a rack), the neighbours' rims and
+    #: shadows pull both centre estimates: measured on our rack renders,
+    #: 10-30 mm errors at 2.0-2.7 radii against 1-7 mm beyond 2.8.
+    faint_isolation: float = 2.8
 
 
 @dataclass(frozen=True)
