@@ -38,6 +38,7 @@ from physics.segments import (
     fit_chain,
     restart_after_breaks,
     segment_starts,
+    slide_into_breaks,
     slip_link_chi2,
     unpack_segment,
 )
@@ -222,6 +223,8 @@ def _analyze(tracks, detections, table, ball_radius_mm, ball_mass_kg, fps, setti
             x2 = restart_after_breaks(x2, lay, b.t, b.xy, b.sig, s2, pri)
             fb = fit_chain(b.t, b.xy, b.sig, lay, s2, x_init=x2, seg_priors=pri)
             fits[name], other = (fb, fa) if fb.cost < fa.cost - 1e-9 else (fa, fb)
+            # third start: a ball fitted as rolling into a contact whose slip link says it slid
+            fits[name], other = _slide_into(fits[name], other, b, lay, s2, pri)
             if other.cost - fits[name].cost < s.ambiguity_dcost:
                 alternates[name] = other
     if s2.slip_prior and s2.slip_share_shift:
@@ -245,6 +248,13 @@ def _analyze(tracks, detections, table, ball_radius_mm, ball_mass_kg, fps, setti
             if not bad.any():
                 continue
             b = samples[name]
+            pri = {k: _loo_prior(s, mus, mur, (name, k)) for k in range(lay.n_seg)}
+            f, _ = _slide_into(f, None, b, lay, s2, pri)
+            fits[name] = f
+            bad = slip_link_chi2(f.x, lay, s2) > s.slip_reject_chi2
+            if not bad.any():
+                alternates.pop(name, None)
+                continue
             lay_u = replace(lay, slip_link=lay.links & ~bad)
             pri = {k: _loo_prior(s, mus, mur, (name, k)) for k in range(lay_u.n_seg)}
             tries = [fit_chain(b.t, b.xy, b.sig, lay_u, s2, x_init=x0, seg_priors=pri)
@@ -266,6 +276,24 @@ def _analyze(tracks, detections, table, ball_radius_mm, ball_mass_kg, fps, setti
     events = _events_table(samples, fits, layouts, maps, contacts, segments, dt, s)
     return ShotPhysics(events, segments, contacts, *mu, fits=fits,
                        rest_xy={k: o.rest_xy for k, o in onsets.items() if o.rest_xy is not None})
+
+
+def _slide_into(best: ChainFit, other: ChainFit | None, b: BallSamples, lay: ChainLayout,
+                s: PhysicsSettings, pri: dict) -> tuple[ChainFit, ChainFit | None]:
+    """(best, runner-up) after up to two more starts in which the ball slides through linked
+    contacts as their slip links say: into them where ``best`` rolls in, then out of them where
+    its slide after disagrees (physics.segments.slide_into_breaks); a start that fits worse
+    (robust cost with priors) is kept only as the runner-up."""
+    for side in ("before", "after"):
+        x3 = slide_into_breaks(best.x, lay, s, pri, side)
+        if x3 is None:
+            continue
+        fc = fit_chain(b.t, b.xy, b.sig, lay, s, x_init=x3, seg_priors=pri)
+        if fc.cost < best.cost - 1e-9:
+            best, other = fc, best
+        elif other is None or fc.cost < other.cost:
+            other = fc
+    return best, other
 
 
 def _drop_non_separating(contacts: pd.DataFrame, cands, s: PhysicsSettings) -> pd.DataFrame:

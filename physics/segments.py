@@ -377,13 +377,21 @@ def _bounds(lay: ChainLayout, t_end: float, s: PhysicsSettings):
     starts = np.concatenate([[lay.t_start], lay.break_init])
     ends = np.concatenate([lay.break_init, [t_end]])
     g = s.g_mm_s2
+    # next to a linked ball-ball break the slip prior gives a roll-over beyond the segment's end
+    # a meaning (the slip at the break): there the physical limit bounds it (settings)
+    linked = np.zeros(lay.n_seg, bool)
+    if s.slip_prior and s.slide_through_restart and lay.n_seg > 1:
+        lk = lay.links
+        linked[:-1] |= lk
+        linked[1:] |= lk
     for k in range(lay.n_seg):
         o = lay.move_offset(k)
         if o is None:
             continue
         lo[o + 2 : o + 4] = -s.mu_s_max * g
         hi[o + 2 : o + 4] = s.mu_s_max * g
-        lo[o + 4], hi[o + 4] = 0.0, 3.0 * (ends[k] - starts[k]) + 0.1
+        hi_roll = 3.0 * (ends[k] - starts[k]) + 0.1
+        lo[o + 4], hi[o + 4] = 0.0, max(hi_roll, s.t_roll_max_s) if linked[k] else hi_roll
         lo[o + 5], hi[o + 5] = 0.0, s.mu_r_max * g
     b = lay.break_offset
     for i in range(lay.n_seg - 1):
@@ -622,3 +630,74 @@ def restart_after_breaks(x: np.ndarray, lay: ChainLayout, t: np.ndarray, xy: np.
         if best is not None:
             x[o : o + 6] = best.x
     return x
+
+
+def slide_into_breaks(x: np.ndarray, lay: ChainLayout, s: PhysicsSettings,
+                      seg_priors: dict | None = None, side: str = "before",
+                      min_sigmas: float = 1.0) -> np.ndarray | None:
+    """Start values in which a ball slides through a linked ball-ball break as its slip link says.
+
+    Over a few frames the samples hardly tell a slide from a roll (the paths differ by
+    ``|a| t^2 / 2``), so a fit can put a roll-over just before a contact, or just before the end
+    of the segment after it. Rolling at the break, the slip is 0 with no gradient in ``t_roll``
+    and the cloth-slip prior (:func:`slip_residuals`: ``u_start(k+1) = u_end(k) + dv + X n``)
+    cannot move it; a short slide after the break has a gradient, but the fit reaches the long
+    slide the prior asks for only past a ridge of data cost. Each such start is therefore tried
+    as a whole: ``side="before"``: segment k, rolling at the break, becomes one slide (a ball
+    sliding at a break slid through its whole segment: while sliding the slip keeps its
+    direction and only shrinks, module docstring) with slip ``u_in = u_start(k+1) - dv - X n``
+    there; ``side="after"``: segment k+1 starts with slip ``u_out = u_end(k) + dv + X n``. The
+    slide decelerates at ``mu_s g`` along ``-u`` and rolls over ``|u| / (7/2 mu_s g)`` later; the
+    velocity at the break is kept. Only breaks whose slip disagrees with the link by more than
+    ``min_sigmas`` link sigmas are changed; None when there is none.
+
+    Units: x as in :func:`fit_chain` (mm, mm/s, mm/s^2, s); ``seg_priors`` as in :func:`fit_chain`.
+    """
+    if not (s.slip_prior and s.slide_through_restart):
+        return None
+    x = np.asarray(x, dtype=float).copy()
+    changed = False
+    g = s.g_mm_s2
+    for i in np.flatnonzero(lay.links):
+        i = int(i)
+        prev, nxt = unpack_segment(x, lay, i), unpack_segment(x, lay, i + 1)
+        if nxt is None or (prev is None and side == "before"):
+            continue
+        br = x[lay.break_offset : lay.break_offset + lay.n_seg - 1]
+        starts = np.concatenate([[lay.t_start], br])
+        tau = float(br[i] - starts[i])
+        if prev is None:
+            v_end = u_end = np.zeros(2)
+        else:
+            v0, a, t_roll, a_r = prev
+            _, v_end = move_motion(np.array([tau]), v0, a, t_roll, a_r)
+            v_end = v_end[0]
+            u_end = slip_velocity(v0, a, t_roll, tau)
+        v1, a1, t_roll1, _ = nxt
+        u_start = slip_velocity(v1, a1, t_roll1, 0.0)
+        dv = v1 - v_end
+        shift = np.zeros(2)
+        sig = np.hypot(s.slip_sigma_rel * float(np.hypot(*dv)), s.slip_sigma_mm_s)
+        if lay.slip_shift is not None and np.all(np.isfinite(lay.slip_shift[i])):
+            X, nx, ny = lay.slip_shift[i]
+            shift = X * np.array([nx, ny])
+            sig = np.hypot(sig, float(lay.slip_shift_sigma[i]))
+        if side == "before":
+            if t_roll > tau:
+                continue  # already sliding at the break: the prior has a gradient there
+            u, k, t_b, v_b = u_start - dv - shift, i, tau, v_end
+        else:
+            u, k, t_b, v_b = u_end + dv + shift, i + 1, 0.0, v1
+            if float(np.hypot(*(u - u_start))) <= min_sigmas * sig:
+                continue
+        us = float(np.hypot(*u))
+        if us <= min_sigmas * sig:
+            continue
+        mu = (seg_priors or {}).get(k, (s.mu_s_prior,))[0]
+        a_new = -mu * g * u / us
+        o = lay.move_offset(k)
+        x[o : o + 2] = v_b - a_new * t_b
+        x[o + 2 : o + 4] = a_new
+        x[o + 4] = t_b + us / (3.5 * mu * g)
+        changed = True
+    return x if changed else None

@@ -108,6 +108,13 @@ class PhysicsSettings:
     mu_r_max: float = 0.15
     #: Upper bound of the fitted sliding deceleration / g. Design choice (2x the published max).
     mu_s_max: float = 0.8
+    #: Upper bound of a slide's duration (s) where the cloth-slip prior gives it a meaning beyond
+    #: the segment (next to a linked ball-ball contact; elsewhere 3x the segment + 0.1 s). Physics:
+    #: a cue tip hits at most ~R/2 off centre (miscue limit, common practice), giving R omega <=
+    #: (5/2)(1/2) v = 1.25 v, so a struck ball's slip is <= 2.25 v, and a contact adds at most v
+    #: (u' = u + dv): |u| <= 3.25 v; with v <= 13 m/s (break speeds, Physics of Pool FAQ) and
+    #: mu_s >= 0.15 the slide lasts <= 2 |u| / (7 mu_s g) = 8.2 s.
+    t_roll_max_s: float = 8.2
 
     #: Cloth-slip continuity across a ball-ball contact (physics.segments.slip_residuals): the
     #: cloth contact point's slip changes by the velocity change, u' = u + dv (equal balls meet at
@@ -138,6 +145,10 @@ class PhysicsSettings:
     #: wrong there (e.g. a roll-over fitted on the wrong side of the contact, where the slip has no
     #: gradient and the fit cannot move it), so that ball is refitted without the link. Design choice.
     slip_reject_chi2: float = 13.8
+    #: A ball fitted as rolling into a linked contact, or out of it shorter than its link says,
+    #: gets one more start sliding through it (physics.segments.slide_into_breaks): rolling, the
+    #: slip is 0 with no gradient, so the prior alone cannot move the fit there.
+    slide_through_restart: bool = True
     #: The ball-ball touch time (and with it the contact normal, the line of centres of the
     #: pre-contact models then) combines three estimates by their covariance: the time the models
     #: are 2R apart and the two balls' velocity breaks. At a cut angle phi a gap error moves the

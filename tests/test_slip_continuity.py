@@ -166,3 +166,27 @@ def test_drawing_cue_ball_sliding_into_a_thin_cut_keeps_restitution():
     for err, sig, dtf in got:
         assert abs(err) < min(3 * sig, 0.05), got  # closed form: e = 0.97
         assert abs(dtf) < 0.25, got
+
+
+def test_cue_ball_sliding_into_a_fuller_hit_is_fitted_sliding():
+    """A stunned cue ball at 2.9 m/s, struck ~0.1 s before the hit and still sliding straight into it
+    (slip 0.3 v along its velocity, so it would roll only ~0.1 s later), cuts a resting ball at
+    3-20 degrees, 240 fps, 0.45 mm noise. Over the last frames before the hit the samples cannot
+    tell the slide (deceleration mu_s g) from a roll (mu_r g), and a fit that rolls over there has
+    slip 0 with no gradient, so the slip prior u' = u + dv (module docstring) cannot pull it back;
+    the approach speed is then ~(mu_s - mu_r) g x that time (40-50 mm/s) too high. The fit must
+    have the cue ball sliding in, its approach speed along the line of centres within 15 mm/s
+    (~3x its noise-driven scatter at this noise and segment length) and e within 3 reported sigmas
+    and 0.006 of the closed-form truth (frictionless collision of equal balls, e = 0.95)."""
+    for phi, heading, seed in [(3.0, 135.0, 0), (5.0, 40.0, 11), (20.0, 280.0, 17)]:
+        tracks, det, tr = sliding_cut(phi, 0.95, v_c=2900.0, slip_ratio=0.3, mu_s=0.24, mu_r=0.012,
+                                      t_pre=0.105, seed=seed, heading_deg=heading, sigma=0.45, t_post=0.5)
+        c = analyze_tracks(tracks, det, TABLE, R, M, 240.0).contacts
+        bb = c[c.kind == "ball-ball"]
+        assert len(bb) == 1, c[["t_s", "kind", "ball_a", "ball_b", "cushion"]]
+        r = bb.iloc[0]
+        va_in = np.array([r.va_in_x_mm_s, r.va_in_y_mm_s])
+        case = (phi, seed, r.a_phase_in, r.e, r.e_sigma, va_in, tr["va"])
+        assert r.a_phase_in == "slide", case  # closed form: slip 0.3 v > 0 at the hit
+        assert abs((va_in - tr["va"]) @ tr["n"]) < 15.0, case
+        assert abs(r.e - 0.95) < min(3 * r.e_sigma, 0.006), case  # closed form: e = 0.95
