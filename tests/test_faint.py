@@ -135,6 +135,26 @@ def test_smooth_lighting_gradient_and_a_line_are_not_balls():
     assert seeds == []
 
 
+def test_small_bright_mark_is_not_a_ball():
+    # A table spot or chalk mark: a disc of 1/5 the ball's radius (1/25 of
+    # its area; spots are ~1/20 of a ball's area, common practice) so bright
+    # that the mean over a ball-sized disc is as large as a clear faint
+    # ball's (lambda ~ 900). A matched filter alone would claim it; a ball
+    # changes most of its disc, the mark only the mean.
+    rng = np.random.default_rng(5)
+    img = (np.broadcast_to(CLOTH, (H, W, 3)) + rng.normal(0, SIGMA, (H, W, 3))).astype(np.float32)
+    k = disc_kernel(0.2 * R)
+    cov = k / k.max()
+    n = k.shape[0] // 2
+    step = 25.0 * _contrast_for(900.0)  # x25: the mark's mean over the ball disc matches lambda 900
+    img[75 - n:75 + n + 1, 115 - n:115 + n + 1] += cov[..., None] * step.astype(np.float32)
+    seeds, info = _search(img)
+    assert seeds == []
+    # ... while the same mean spread over a whole ball-sized disc is found
+    seeds, _ = _search(_disc_image(115.0, 75.0, _contrast_for(900.0), 5))
+    assert len(seeds) == 1
+
+
 def test_tail_level_matches_chi_square_for_gaussian_noise():
     # Peaks over threshold (exponential tail) on chi-square(3) samples must
     # give about the chi-square level itself (scipy.stats.chi2.isf).

@@ -1085,7 +1085,7 @@ def detect_frame(image: np.ndarray, calibration: Calibration, settings: Detectio
         """Mid-exposure centre of a motion streak round seed (gx, gy) px, or None (not a streak)."""
         hw = int(np.ceil(r_exp * (1.0 + 0.5 * settings.streak_max_len))) + 3
         fill(int(gx) - hw, int(gy) - hw, int(gx) + hw + 2, int(gy) + hw + 2)
-        ax = streak_axis(d, gx, gy, r_exp, thr, settings)
+        ax = streak_axis(d, gx, gy, r_exp, thr, settings, fill)
         if ax is None or not ax["ok"] or ax["length"] < settings.streak_min_len * r_exp:
             return None
         hw = int(np.ceil((r_exp + 0.5 * ax["length"]) * settings.streak_ray_max + 3 * settings.edge_smooth_px)) + 5

@@ -357,7 +357,12 @@ def faint_search(image_lab: np.ndarray, ref_lab: np.ndarray, valid: np.ndarray, 
                   / float(stats.chi2.ppf(settings.faint_tail_p, 3)))
     info = {"level": level, "cov": cov, "mu": mu, "kappa": kappa * inflate, "n_positions": n_pos,
             "cov_pix": cov_pix, "inflate": inflate, "q": q}
-    ok = far if centre_ok is None else far & centre_ok
+    # the whole disc in the picture: a ball cut by the image edge is left
+    # to the detector (half a disc matches a ball and a dark border alike)
+    ri = int(np.ceil(r))
+    inside = np.zeros((h, w), bool)
+    inside[ri:h - ri, ri:w - ri] = True
+    ok = far & inside if centre_ok is None else far & inside & centre_ok
     cand = _peaks(q, level, settings.nms_radius * r, usable, settings.faint_max_seeds, ok)
     seeds = []
     for x, y, qv in cand:
@@ -380,12 +385,17 @@ def faint_search(image_lab: np.ndarray, ref_lab: np.ndarray, valid: np.ndarray, 
                 continue  # a cue, hand or streak runs through the surround
         sp = s[ya:yb, xa:xb]
         inner = float(np.median(sp[disc]))
+        ring_med = float(np.median(sp[ring]))
+        # the change must cover most of the disc: a small mark (a table
+        # spot, chalk) moves the disc's mean, not its median
+        if inner - ring_med < settings.faint_min_extent * (float(np.mean(sp[disc])) - ring_med):
+            continue
         # per sector (8 of 45 deg) the ring's median must lie below the disc's
         ang = (np.arctan2(dy, dx) % (2 * np.pi)) * (8 / (2 * np.pi))
         sec = np.floor(ang).astype(int) % 8
         full = (rho >= settings.faint_ring_in * r) & (rho <= settings.faint_ring_out * r)
         n_obs = n_open = 0
-        half_step = 0.5 * (inner - float(np.median(sp[ring])))
+        half_step = 0.5 * (inner - ring_med)
         for k in range(8):
             m = ring & (sec == k)
             if m.sum() < max(2, 0.3 * (full & (sec == k)).sum()):

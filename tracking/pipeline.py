@@ -41,8 +41,8 @@ from tracking.assign import Linker, colour_signature, view_test
 from tracking.ball_size import size_ratio, size_warning
 from tracking.calibration import Calibration
 from tracking.detect import build_background, detect_frame
-from tracking.faint import add_faint, faint_background
 from tracking.exposure import ExposureMatcher
+from tracking.faint import add_faint, faint_background
 from tracking.kalman import as_cov, smear_cov, smear_scale, smooth_segment, split_segments
 from tracking.labels import label_tracks
 from tracking.overlap import separate_overlaps

@@ -348,6 +348,10 @@ class DetectionSettings:
     #: (outside footage D1) gave 1.04-1.7. Both this and streak_min_len must
     #: hold; our choice between the two groups.
     streak_max_end_ratio: float = 0.9
+    #: ... and its sides at least this many radii from the centre (a swept
+    #: disc's half-coverage contour lies sqrt(1 - (L/4r)^2) radii out: 0.66
+    #: at L = 3r; two touching balls pinch to ~0 between them).
+    streak_min_width: float = 0.5
     #: Pixels whose HSV saturation < this and value > white_value count as white
     #: (stripe/cue summary); 0..1 scale, common practice for "white" in HSV.
     white_saturation: float = 0.28
@@ -461,6 +465,10 @@ class DetectionSettings:
     #: shadows pull both centre estimates: measured on our rack renders,
     #: 10-30 mm errors at 2.0-2.7 radii against 1-7 mm beyond 2.8.
     faint_isolation: float = 2.8
+    #: The median change over the disc must reach this share of its mean
+    #: (both less the ring's median): a ball changes most of its disc, a
+    #: small bright mark (a table spot ~1/20 of a ball's area) only its mean.
+    faint_min_extent: float = 0.5
 
 
 @dataclass(frozen=True)

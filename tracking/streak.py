@@ -96,19 +96,34 @@ def stadium_reach(theta: np.ndarray, axis_angle: float, half_len: float, radius:
 
 # --------------------------------------------------------------------------- smear from the blob
 def streak_axis(d: np.ndarray, x: float, y: float, r_exp: float, threshold: float,
-                settings: DetectionSettings = DetectionSettings()) -> dict | None:
+                settings: DetectionSettings = DetectionSettings(), fill=None) -> dict | None:
     """Smear of the blob of ``d`` > ``threshold`` that holds image point (x, y) px.
 
-    Looks within (1 + streak_max_len / 2) radii of the seed. Returns
-    dict(x, y: blob centroid px, angle: smear direction (rad, image frame),
-    length: smear length L px, radius: stadium radius px, area_ratio:
-    blob area over the stadium's) or None when there is no blob there, or
-    when it is not one ball's smear: its stadium radius is off the expected
-    one by more than ``radius_tol`` or it is much bigger than the stadium
-    its moments describe (touching balls, a ball in its own shadow).
+    Looks within (1 + streak_max_len / 2) radii of the seed, then, if the
+    blob reaches past that, within (1 + streak_max_len) radii
+    (``fill(xa, ya, xb, yb)``, if given, is called first to complete ``d``
+    over the wider box). Returns dict(x, y: blob centroid px, angle: smear
+    direction (rad, image frame), length: smear length L px, radius:
+    stadium radius px, area_ratio: blob area over the stadium's, ok), or
+    None when there is no blob there or it reaches past both windows. ``ok``
+    is False when it is not one ball's smear: its stadium radius is off the
+    expected one by more than ``radius_tol`` or it is much bigger than the
+    stadium its moments describe (touching balls, a ball in its own shadow).
     """
+    out = _streak_axis(d, x, y, r_exp, threshold, settings, 1.0 + 0.5 * settings.streak_max_len)
+    if out == "edge":  # the seed sat near one end: look twice as far
+        if fill is not None:
+            hw = int(np.ceil(r_exp * (1.0 + settings.streak_max_len))) + 3
+            fill(int(x) - hw, int(y) - hw, int(x) + hw + 2, int(y) + hw + 2)
+        out = _streak_axis(d, x, y, r_exp, threshold, settings, 1.0 + settings.streak_max_len)
+    return out if isinstance(out, dict) else None
+
+
+def _streak_axis(d: np.ndarray, x: float, y: float, r_exp: float, threshold: float,
+                 settings: DetectionSettings, window: float):
+    """:func:`streak_axis` within ``window`` radii of the seed; "edge" when the blob reaches past it."""
     h, w = d.shape
-    half = int(np.ceil(r_exp * (1.0 + 0.5 * settings.streak_max_len) + 2))
+    half = int(np.ceil(r_exp * window + 2))
     xi, yi = int(round(x)), int(round(y))
     xa, ya, xb, yb = max(0, xi - half), max(0, yi - half), min(w, xi + half + 1), min(h, yi + half + 1)
     if xb - xa < 3 or yb - ya < 3:
@@ -129,7 +144,7 @@ def streak_axis(d: np.ndarray, x: float, y: float, r_exp: float, threshold: floa
     # the blob must not run into the window's edge (longer than we search)
     if xs.min() == 0 and xa > 0 or ys.min() == 0 and ya > 0 or xs.max() == xb - xa - 1 and xb < w \
             or ys.max() == yb - ya - 1 and yb < h:
-        return None
+        return "edge"
     cx, cy = xs.mean(), ys.mean()
     cov = np.cov(np.vstack([xs - cx, ys - cy]), bias=True) + np.eye(2) / 12.0  # + pixel's own variance
     ev, evec = np.linalg.eigh(cov)
@@ -305,6 +320,12 @@ def refine_streak(d: np.ndarray, axis: dict, r_exp: float, settings: DetectionSe
         return None
     ratio = max(float(np.median(stren[e])) for e in ends) / max(float(np.median(stren[side])), 1e-12)
     if ratio > settings.streak_max_end_ratio:
+        return None
+    # A swept disc is at least sqrt(r^2 - L^2/16) wide either side of its
+    # centre (its half-coverage contour; 0.66 r at L = 3 r); two touching
+    # balls seen as one blob pinch to nothing between them.
+    width = float(np.median(np.linalg.norm(pts[side] - c, axis=1)))
+    if width < settings.streak_min_width * r_exp:
         return None
     if support < settings.min_support or np.hypot(c[0] + xa - x0, c[1] + ya - y0) > 0.5 * r_exp + a:
         return None
