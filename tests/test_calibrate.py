@@ -48,13 +48,18 @@ def _corners(table, z):
 
 # --------------------------------------------------------------------------- synthetic tables
 def render_table(cam: CameraModel, table, cloth_bgr, face="vertical", ss=2, seed=0, gradient=(0.15, -0.1),
-                 vignette=0.25, noise=2.0, blur=0.7, balls=(), cushion_mm=50.0, rail_mm=130.0):
+                 vignette=0.25, noise=2.0, blur=0.7, balls=(), cushion_mm=50.0, rail_mm=130.0, tone="none"):
     """Ray-cast a plain table: cloth (z = 0), cushion tops and rails at nose height h.
 
     face: 'vertical' (the cushion face between cloth and nose is seen, shaded),
     'shadow' (a lighter shade there), 'none' (cloth right up to the nose).
     Pixel rays come from OpenCV's undistortPoints (its inverse of its own lens
     model); ``ss`` x ``ss`` rays per pixel, averaged.
+
+    Like a camera, the light is added up (pixel area, lighting, blur) in
+    linear light and then encoded with the sRGB curve (IEC 61966-2-1) when
+    ``tone`` is "srgb"; colours are given as sRGB values. tone "none" keeps
+    everything in the 8-bit values (a linear camera).
     """
     w, h = cam.image_size
     L, W = table.length_mm, table.width_mm
@@ -72,15 +77,16 @@ def render_table(cam: CameraModel, table, cloth_bgr, face="vertical", ss=2, seed
         s = (z - c[2]) / d[:, 2]
         return c[0] + s * d[:, 0], c[1] + s * d[:, 1]
 
-    cloth = np.asarray(cloth_bgr, float)
+    lin = srgb_decode if tone == "srgb" else (lambda v: np.asarray(v, float))
+    cloth = lin(cloth_bgr)
     img = np.empty((len(d), 3))
-    img[:] = (40, 40, 45)
+    img[:] = lin((40, 40, 45))
     xh, yh = at(zn)
     x0, y0 = at(0.0)
     out_h = np.maximum.reduce([-xh, xh - L, -yh, yh - W])
     top = out_h > 0
     img[top & (out_h <= cushion_mm)] = cloth * 0.78
-    img[top & (out_h > cushion_mm) & (out_h <= cushion_mm + rail_mm)] = (30, 70, 120)
+    img[top & (out_h > cushion_mm) & (out_h <= cushion_mm + rail_mm)] = lin((30, 70, 120))
     in0 = (x0 >= 0) & (x0 <= L) & (y0 >= 0) & (y0 <= W)
     img[~top & in0] = cloth
     band = ~top & ~in0
@@ -88,13 +94,13 @@ def render_table(cam: CameraModel, table, cloth_bgr, face="vertical", ss=2, seed
     if table.pockets:
         for px, py in [(-35, -35), (L / 2, -62), (L + 35, -35), (-35, W + 35), (L / 2, W + 62), (L + 35, W + 35)]:
             hit = ((xh - px) ** 2 + (yh - py) ** 2 < 60 ** 2) | (~top & ((x0 - px) ** 2 + (y0 - py) ** 2 < 60 ** 2))
-            img[hit] = (8, 8, 8)
+            img[hit] = lin((8, 8, 8))
     r = table.ball.radius_mm
     for bx, by, col in balls:
         oc = c - np.array([bx, by, r])
         b = d @ oc / np.sum(d * d, axis=1)
         disc = b * b - (oc @ oc - r * r) / np.sum(d * d, axis=1)
-        img[disc > 0] = col
+        img[disc > 0] = lin(col)
     img = cv2.resize(img.reshape(h * ss, w * ss, 3), (w, h), interpolation=cv2.INTER_AREA)
     u = (np.arange(w) / w - 0.5)[None, :]
     v = (np.arange(h) / h - 0.5)[:, None]
@@ -102,8 +108,22 @@ def render_table(cam: CameraModel, table, cloth_bgr, face="vertical", ss=2, seed
     img = img * gain[..., None]
     if blur:
         img = cv2.GaussianBlur(img, (0, 0), blur)
+    if tone == "srgb":
+        img = srgb_encode(img)
     img = img + np.random.default_rng(seed).normal(0, noise, img.shape)
     return np.clip(img + 0.5, 0, 255).astype(np.uint8)
+
+
+def srgb_decode(v):
+    """sRGB 0-255 -> linear 0-255 (IEC 61966-2-1 transfer curve)."""
+    c = np.clip(np.asarray(v, float) / 255.0, 0, 1)
+    return 255.0 * np.where(c <= 0.04045, c / 12.92, ((c + 0.055) / 1.055) ** 2.4)
+
+
+def srgb_encode(v):
+    """Linear 0-255 -> sRGB 0-255 (IEC 61966-2-1 transfer curve)."""
+    c = np.clip(np.asarray(v, float) / 255.0, 0, 1)
+    return 255.0 * np.where(c <= 0.0031308, 12.92 * c, 1.055 * c ** (1 / 2.4) - 0.055)
 
 
 CASES = {

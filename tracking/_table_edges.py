@@ -23,6 +23,21 @@ Edges are first found as gradient peaks; where a band lies between cloth and
 cushion top both its edges are refined together with a blurred two-step
 (+ shading ramp) model (:func:`refine_band_edges`), since the peaks of two
 edges a few pixels apart pull on each other.
+
+Sub-pixel positions in linear light (optional)
+----------------------------------------------
+Lens and sensor blur act on light, before the camera's tone curve; video is
+stored tone-encoded (sRGB / Rec. 709, roughly a 1/2.2 power). A step blurred
+by the lens alone, seen through that curve, is lopsided: its gradient peak
+moves towards the dark side, by 0.2-0.8 px for a dark face band against a lit
+cushion top at 0.6-1.5 px blur (closed form: the peak of
+d/dx enc(a + (b - a) Phi(x / s)); see tests/test_calib_linear_light.py).
+Blur added after encoding (resizing, remapping, filters on 8-bit frames) is
+symmetric in the stored values instead. With ``CalibrationSettings.tone_curve``
+set, edges are still *detected* on the stored image (its noise thresholds are
+in DN) but *located* on the profile decoded to linear light
+(:func:`linear_gray`); by default they are located on the stored values
+(see the setting for the figures behind that choice).
 """
 from __future__ import annotations
 
@@ -63,6 +78,28 @@ def median_image(frames: list[np.ndarray], max_frames: int) -> np.ndarray:
             block = block[..., None]
         out[r0: r0 + rows] = np.median(block, axis=0)
     return out
+
+
+def linear_gray(image: np.ndarray, tone_curve: str = "srgb") -> np.ndarray:
+    """Grey image in linear light, 0..255 (float32), from an 8-bit tone-encoded BGR or grey image.
+
+    tone_curve "srgb": the IEC 61966-2-1 decoding (Rec. 709 video differs from
+    it by well under the blur effects it corrects); "none": the image is
+    already linear (raw or linear-light footage). Channels are decoded before
+    they are averaged.
+
+    >>> [round(float(v), 2) for v in linear_gray(np.array([[0, 128, 255]], np.uint8))[0]]
+    [0.0, 55.04, 255.0]
+    """
+    a = np.asarray(image, np.float32)
+    if tone_curve == "none":
+        lin = a
+    elif tone_curve == "srgb":
+        c = np.clip(a / 255.0, 0.0, 1.0)
+        lin = 255.0 * np.where(c <= 0.04045, c / 12.92, ((c + 0.055) / 1.055) ** 2.4)
+    else:
+        raise ValueError(f"unknown tone curve {tone_curve!r}; use 'srgb' or 'none'")
+    return (lin.mean(axis=2) if lin.ndim == 3 else lin).astype(np.float32)
 
 
 def cloth_mask(image: np.ndarray, settings: CalibrationSettings) -> np.ndarray:
@@ -253,14 +290,20 @@ def nose_offset(profile: np.ndarray, step: float, plateau_n: int, settings: Cali
 
 def refine_band_edges(x: np.ndarray, prof: np.ndarray, e1: np.ndarray, e2: np.ndarray, lo: np.ndarray,
                       hi: np.ndarray, sigma0: float, iters: int = 12,
-                      ramp: bool = True) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+                      ramp: bool = True, slopes: bool = False) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
     """Fit two blurred steps (cloth -> band -> cushion top) to many profiles at once.
 
     Model per profile: g(x) = a0 + a1 Phi((x - e1)/s) + a2 Phi((x - e2)/s)
     [+ a3 B(x)], Phi the normal CDF (a step blurred by a Gaussian PSF of width
     s px) and B the same blur of a ramp rising across the band from e1 to e2
     (a face whose shading changes with height; B = s (psi(z1) - psi(z2)),
-    psi(z) = z Phi(z) + phi(z), the integral of Phi). The
+    psi(z) = z Phi(z) + phi(z), the integral of Phi) [+ a4 s psi(-z1) +
+    a5 s psi(z2)]: with ``slopes``, the same blur of a linear shading on the
+    cloth side of e1 and on the cushion-top side of e2 (light falling off
+    towards the cushion, a rounded nose catching the lamps). Unmodelled, such
+    a slope next to an edge pulls the fitted edge towards it by a few tenths
+    of a px; it is not an edge, and the fitting window (a few px either side of
+    the band) keeps the first-order term enough. The
     levels enter linearly and are solved exactly for each trial (e1, e2, s)
     (variable projection, Golub & Pereyra, SIAM J. Numer. Anal. 10, 1973);
     (e1, e2, log s) follow Levenberg-Marquardt steps. Unlike gradient peaks,
@@ -286,6 +329,11 @@ def refine_band_edges(x: np.ndarray, prof: np.ndarray, e1: np.ndarray, e2: np.nd
             psi1 = z1 * p1 + np.exp(-0.5 * z1 * z1) / np.sqrt(2 * np.pi)
             psi2 = z2 * p2 + np.exp(-0.5 * z2 * z2) / np.sqrt(2 * np.pi)
             cols.append(s * (psi1 - psi2))
+        if slopes:
+            m1 = -z1
+            cols.append(s * (m1 * ndtr(m1) + np.exp(-0.5 * m1 * m1) / np.sqrt(2 * np.pi)))
+            psi2o = z2 * p2 + np.exp(-0.5 * z2 * z2) / np.sqrt(2 * np.pi)
+            cols.append(s * psi2o)
         A = np.stack(cols, axis=2)
         Aw = A * w[..., None]
         At = Aw.transpose(0, 2, 1)
@@ -320,12 +368,45 @@ def refine_band_edges(x: np.ndarray, prof: np.ndarray, e1: np.ndarray, e2: np.nd
     return th[:, 0], th[:, 1], np.sqrt(cost / n)
 
 
+def _relocate_peaks(prof: np.ndarray, offs: np.ndarray, pos: np.ndarray, settings: CalibrationSettings,
+                    reach_px: float = 1.5) -> np.ndarray:
+    """Gradient-peak positions (px) of single edges in profiles ``prof`` (P, N), near ``pos`` (P,).
+
+    The strongest |gradient| (Gaussian derivative, ``edge_sigma_px``) within
+    ``reach_px`` of each start position, refined by a parabola through the
+    peak and its neighbours. A peak on the window's rim (the edge lies
+    further away, or there is none) leaves the start position.
+    """
+    step = float(offs[1] - offs[0])
+    dg = np.abs(gaussian_filter1d(prof.astype(float), settings.edge_sigma_px / step, order=1, axis=1))
+    c = np.round((pos - offs[0]) / step).astype(int)
+    m = max(int(round(reach_px / step)), 1)
+    out = pos.astype(float).copy()
+    n = prof.shape[1]
+    for i in range(len(pos)):
+        lo, hi = max(c[i] - m, 1), min(c[i] + m, n - 2)
+        if hi <= lo:
+            continue
+        k = lo + int(np.argmax(dg[i, lo: hi + 1]))
+        if k in (lo, hi):
+            continue
+        a, b, cc = dg[i, k - 1], dg[i, k], dg[i, k + 1]
+        den = a - 2 * b + cc
+        frac = float(np.clip(0.5 * (a - cc) / den, -0.5, 0.5)) if den < 0 else 0.0
+        out[i] = offs[0] + (k + frac) * step
+    return out
+
+
 def edge_points_along(gray: np.ndarray, p0: np.ndarray, p1: np.ndarray, outward: np.ndarray,
                       s_ranges: list[tuple[float, float]], inner_px: float, outer_px: float,
                       plateau_px: float, settings: CalibrationSettings,
-                      curve=None, n_profiles: int | None = None
+                      curve=None, n_profiles: int | None = None, gray_lin: np.ndarray | None = None
                       ) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
     """Nose points along the segment p0->p1 (px), profiles taken along ``outward``.
+
+    ``gray`` (tone-encoded DN) is used to detect the edges; ``gray_lin`` (the
+    same image in linear light, :func:`linear_gray`), when given, to locate
+    them to sub-pixel (module docstring).
 
     Returns (nose points (N,2), edge contrast (N,), band inner-edge points
     (N,2), NaN where the profile shows no band).
@@ -356,6 +437,7 @@ def edge_points_along(gray: np.ndarray, p0: np.ndarray, p1: np.ndarray, outward:
     pts = (base[:, None, None, :] + offs[None, :, None, None] * nrm[:, None, None, :]
            + strip[None, None, :, None] * tang[:, None, None, :])
     prof = _sample(gray, pts).mean(axis=2)
+    prof_l = prof if gray_lin is None else _sample(gray_lin, pts).mean(axis=2)
     inner_n = max(int(0.35 * inner_px / step), 4)
     plateau_n = max(int(plateau_px / step), 4)
     band_max_n = max(int(plateau_px * settings.band_max_mm / settings.plateau_mm / step), 4)
@@ -372,18 +454,23 @@ def edge_points_along(gray: np.ndarray, p0: np.ndarray, p1: np.ndarray, outward:
     if rows:
         rows_a, nose_a, inner_a = np.array(rows), np.array(nose), np.array(inner)
         band = np.isfinite(inner_a)
+        if gray_lin is not None and (~band).any():
+            nose_a[~band] = _relocate_peaks(prof_l[rows_a[~band]], offs, nose_a[~band], settings)
         if band.any():
+            # the fit sees the band and a margin either side of it: shading
+            # further out (light falling off towards a cushion, a highlight
+            # on a rounded nose) is not part of the edges and would pull them
             margin = 3.0 * settings.edge_sigma_px + 2.0
             lo_w = inner_a[band] - margin
-            hi_w = np.array(wend)[band]
+            hi_w = np.minimum(np.array(wend)[band], nose_a[band] + margin)
             i_lo = np.clip(((lo_w - offs[0]) / step).astype(int), 0, len(offs) - 1)
             span = int(np.ceil(np.max(hi_w - lo_w) / step)) + 2
             sub = max(int(round(0.5 / step)), 1)  # fit on a ~0.5 px grid
             idx = np.clip(i_lo[:, None] + np.arange(0, span, sub)[None, :], 0, len(offs) - 1)
             xs = offs[idx]
-            sel = prof[rows_a[band]][np.arange(len(idx))[:, None], idx]
-            e1, e2, rms = refine_band_edges(xs, sel, inner_a[band], nose_a[band], lo_w, hi_w,
-                                              settings.edge_sigma_px)
+            sel = prof_l[rows_a[band]][np.arange(len(idx))[:, None], idx]
+            e1, e2, _ = refine_band_edges(xs, sel, inner_a[band], nose_a[band], lo_w, hi_w,
+                                          settings.edge_sigma_px, slopes=settings.band_shading_slopes)
             sane = (np.abs(e2 - nose_a[band]) < 1.5) & (np.abs(e1 - inner_a[band]) < 1.5) & (e2 > e1)
             nose_a[np.nonzero(band)[0][sane]] = e2[sane]
             inner_a[np.nonzero(band)[0][sane]] = e1[sane]

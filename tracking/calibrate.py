@@ -9,6 +9,10 @@ Automatic (:func:`calibrate_auto`)
 3. Nose-edge points: profiles across each side find the cushion nose, the inner
    edge of the cushion top (see :mod:`tracking._table_edges` for why this edge
    lies at nose height h above the cloth). Stretches at pockets are skipped.
+   Where a face or shadow band lies between cloth and nose, both its edges
+   are located by a model fit over the band and a few px either side only
+   (shading further out is no edge and would pull them).
+   ``CalibrationSettings.tone_curve`` optionally locates edges in linear light.
 4. Camera fit (scipy ``least_squares``, soft-L1 loss): focal, pose, radial k1
    (k2 optional) so that the four nose lines x = 0, x = L, y = 0, y = W at
    z = h project through the points; the curvature of the lines fixes k1 and
@@ -69,7 +73,7 @@ import numpy as np
 from feltlab.errors import FeltlabError
 from feltlab.standards import TablePreset, table_preset
 from tracking._camera_fit import SIDE_ORDER, fit_edges, fit_points, initial_camera
-from tracking._table_edges import cloth_mask, edge_points_along, median_image, rough_quad
+from tracking._table_edges import cloth_mask, edge_points_along, linear_gray, median_image, rough_quad
 from tracking.calibration import Calibration
 from tracking.camera import CameraModel
 from tracking.settings import CalibrationSettings
@@ -192,6 +196,10 @@ def calibrate_auto(frames: list[np.ndarray], table: TablePreset, ball_diameter_m
     img = median_image(imgs, settings.max_frames)
     h, w = img.shape[:2]
     gray = img.mean(axis=2).astype(np.float32)
+    try:
+        gray_lin = None if settings.tone_curve is None else linear_gray(img, settings.tone_curve)
+    except ValueError as exc:
+        raise FeltlabError(f"CalibrationSettings.tone_curve: {exc}") from None
     mask = cloth_mask(img, settings)
     frac = mask.mean()
     if frac < 0.05 or frac > 0.97:
@@ -225,13 +233,14 @@ def calibrate_auto(frames: list[np.ndarray], table: TablePreset, ball_diameter_m
                 if np.dot(nrm, (p0 + p1) / 2 - corners.mean(axis=0)) < 0:
                     nrm = -nrm
                 found, _, band = edge_points_along(gray, p0, p1, nrm, ranges, settings.search_in_frac * w_px,
-                                                   settings.search_out_frac * w_px, plateau_px, settings)
+                                                   settings.search_out_frac * w_px, plateau_px, settings,
+                                                   gray_lin=gray_lin)
             else:
                 win = settings.refine_window_px
                 found, _, band = edge_points_along(
                     gray, None, None, None, ranges, 1.5 * win + plateau_px / 2, win + plateau_px * 1.5,
                     plateau_px, settings, curve=_curve(fit.camera, side, L, W, z_nose),
-                    n_profiles=_n_profiles(fit.camera, side, L, W, z_nose, settings))
+                    n_profiles=_n_profiles(fit.camera, side, L, W, z_nose, settings), gray_lin=gray_lin)
                 if len(found):
                     r = np.abs(_point_resid_px(fit.camera, side, found, L, W, z_nose))
                     ok = r < max(settings.outlier_px, 4 * settings.loss_scale_px) + (win if it == 1 else 0)
