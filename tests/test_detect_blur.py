@@ -184,11 +184,11 @@ def test_stadium_moments_match_opencv():
 
 
 def test_two_touching_balls_are_not_a_streak():
-    """Two touching still balls make a stadium-like blob (length 2 r) but no streak.
+    """Two touching still balls make a stadium-like blob (length ~2 r) but no streak.
 
-    Their outline pinches to nothing between them, where a swept disc is at
-    least sqrt(r^2 - L^2/16) = 0.87 r wide (closed form above), and their
-    ends are sharp; the blob's centre must not be reported as a ball.
+    Their outline pinches to the edge blur between them, where the support
+    of a swept disc is 2 r wide all along its middle (closed form above),
+    and their ends are sharp; the blob's centre must not be reported as a ball.
     """
     r = 12.0
     cloth = (0.05, 0.25, 0.04)

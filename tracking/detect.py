@@ -1155,7 +1155,11 @@ def _drop_streak_ends(found: list, settings: DetectionSettings) -> list:
     itself is fitted to that end; its centre lies within
     ``streak_end_sep`` radii of the streak's path (the mid-exposure centre
     +- half the smear length). A touching ball's centre is two radii from
-    the moving ball's, at least 2 - L/(2r) radii from the path.
+    the moving ball's, at least 2 - L/(2r) radii from the path. The length
+    from the blob's moments runs short, so a detection within
+    ``streak_end_sep`` radii of the smear axis and inside the streak's fitted
+    outline (its reach along the axis) is dropped too; for smears over ~2
+    radii that can take a touching ball straight ahead at the contact frame.
     """
     streaks = [f for f in found if "smear_px" in f[0]]
     if not streaks:
@@ -1170,6 +1174,9 @@ def _drop_streak_ends(found: list, settings: DetectionSettings) -> list:
                 v = np.array([ref["x"] - g[0]["x"], ref["y"] - g[0]["y"]])
                 t = float(np.clip(v @ u, -0.5 * g[0]["smear_px"], 0.5 * g[0]["smear_px"]))
                 on_path |= bool(np.linalg.norm(v - t * u) < settings.streak_end_sep * g[1])
+                # or inside the streak's own fitted outline, near its axis
+                on_path |= bool(abs(v @ u) < g[0].get("reach_px", 0.0)
+                                and abs(v @ [-u[1], u[0]]) < settings.streak_end_sep * g[1])
         if not on_path:
             keep.append(f)
     return keep

@@ -371,10 +371,17 @@ class DetectionSettings:
     #: (outside footage D1) gave 1.04-1.7. Both this and streak_min_len must
     #: hold; our choice between the two groups.
     streak_max_end_ratio: float = 0.9
-    #: ... and its sides at least this many radii from the centre (a swept
-    #: disc's half-coverage contour lies sqrt(1 - (L/4r)^2) radii out: 0.66
-    #: at L = 3r; two touching balls pinch to ~0 between them).
-    streak_min_width: float = 0.5
+    #: The end-ramp test applies to smears shorter than this many radii
+    #: only: a cast shadow stretches a resting ball's blob by about a radius
+    #: at most (lamp <= 45 deg off the vertical: R tan 45 deg past the limb;
+    #: 0.8 r measured on D1), while beyond ~2 radii no pixel is covered for
+    #: the whole exposure (peak coverage 2r/L), the sides weaken as much as
+    #: the ends and the ratio says nothing (1.3 measured at L = 3.9 r).
+    streak_ratio_max_len: float = 2.0
+    #: The blob's width across its axis through the centroid, over its widest,
+    #: must reach this: a swept disc's support is 2r wide all along its middle
+    #: (1.0), two touching balls pinch to the edge blur between them (~0.2).
+    streak_min_waist: float = 0.75
     #: Pixels whose HSV saturation < this and value > white_value count as white
     #: (stripe/cue summary); 0..1 scale, common practice for "white" in HSV.
     white_saturation: float = 0.28

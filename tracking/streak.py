@@ -107,8 +107,10 @@ def streak_axis(d: np.ndarray, x: float, y: float, r_exp: float, threshold: floa
     stadium radius px, area_ratio: blob area over the stadium's, ok), or
     None when there is no blob there or it reaches past both windows. ``ok``
     is False when it is not one ball's smear: its stadium radius is off the
-    expected one by more than ``radius_tol`` or it is much bigger than the
-    stadium its moments describe (touching balls, a ball in its own shadow).
+    expected one by more than ``radius_tol``, it is much bigger than the
+    stadium its moments describe (touching balls, a ball in its own shadow),
+    or its waist (width across the axis through the centroid, over the
+    widest) is under ``streak_min_waist`` (two touching balls).
     """
     out = _streak_axis(d, x, y, r_exp, threshold, settings, 1.0 + 0.5 * settings.streak_max_len)
     if out == "edge":  # the seed sat near one end: look twice as far
@@ -150,9 +152,18 @@ def _streak_axis(d: np.ndarray, x: float, y: float, r_exp: float, threshold: flo
     ev, evec = np.linalg.eigh(cov)
     L, r = stadium_from_moments(ev[1], ev[0])
     area = stadium_moments(L / 2, r)[0]
+    # waist: a swept disc's support is 2r wide all along its middle; two
+    # touching balls seen as one blob pinch to a few px between them
+    along = (xs - cx) * evec[0, 1] + (ys - cy) * evec[1, 1]
+    bins = np.round(along).astype(int)
+    counts = np.bincount(bins - bins.min())
+    mid = counts[max(0, -bins.min() - 1):-bins.min() + 2]
+    waist = float(mid.mean()) / max(float(counts.max()), 1.0) if len(mid) else 0.0
     return {"x": float(cx + xa), "y": float(cy + ya), "angle": float(np.arctan2(evec[1, 1], evec[0, 1])),
             "length": L, "radius": r, "area_ratio": float(len(xs) / area),
-            "ok": bool(abs(r - r_exp) <= settings.radius_tol * r_exp + 1.0 and len(xs) <= 1.3 * area)}
+            "waist": waist,
+            "ok": bool(abs(r - r_exp) <= settings.radius_tol * r_exp + 1.0 and len(xs) <= 1.3 * area
+                       and waist >= settings.streak_min_waist)}
 
 
 # --------------------------------------------------------------------------- edge points
@@ -278,7 +289,8 @@ def refine_streak(d: np.ndarray, axis: dict, r_exp: float, settings: DetectionSe
 
     axis: :func:`streak_axis` output (blob centroid, smear angle and length
     px). Returns dict(x, y, radius (mean contour radius a0, px), sigma_px,
-    support, fixed_radius False, smear_px, smear_angle) or None when the
+    reach_px (the fitted contour's radius along the smear), support,
+    fixed_radius False, smear_px, smear_angle) or None when the
     edge points do not support a streak.
     """
     h, w = d.shape
@@ -319,13 +331,7 @@ def refine_streak(d: np.ndarray, axis: dict, r_exp: float, settings: DetectionSe
     if side.sum() < 3 or any(e.sum() < 2 for e in ends):
         return None
     ratio = max(float(np.median(stren[e])) for e in ends) / max(float(np.median(stren[side])), 1e-12)
-    if ratio > settings.streak_max_end_ratio:
-        return None
-    # A swept disc is at least sqrt(r^2 - L^2/16) wide either side of its
-    # centre (its half-coverage contour; 0.66 r at L = 3 r); two touching
-    # balls seen as one blob pinch to nothing between them.
-    width = float(np.median(np.linalg.norm(pts[side] - c, axis=1)))
-    if width < settings.streak_min_width * r_exp:
+    if ratio > settings.streak_max_end_ratio and axis["length"] < settings.streak_ratio_max_len * r_exp:
         return None
     if support < settings.min_support or np.hypot(c[0] + xa - x0, c[1] + ya - y0) > 0.5 * r_exp + a:
         return None
@@ -335,6 +341,10 @@ def refine_streak(d: np.ndarray, axis: dict, r_exp: float, settings: DetectionSe
     sig = fit["scale"] * np.sqrt(2.0 / n_eff)
     sig = float(np.sqrt(max(sig, settings.sigma_floor_px) ** 2 + settings.model_sigma_px ** 2
                         + (settings.streak_sigma_frac * axis["length"]) ** 2))
-    return {"x": c[0] + xa, "y": c[1] + ya, "radius": float(fit["coef"][0]), "sigma_px": sig,
+    ks = np.arange(2, int(settings.streak_harmonics) + 1, 2)
+    phi = axis["angle"]
+    reach_along = float(fit["coef"][0] + sum(fit["coef"][1 + 2 * i] * np.cos(k * phi) + fit["coef"][2 + 2 * i]
+                                             * np.sin(k * phi) for i, k in enumerate(ks)))
+    return {"x": c[0] + xa, "y": c[1] + ya, "radius": float(fit["coef"][0]), "sigma_px": sig, "reach_px": reach_along,
             "support": support, "fixed_radius": False, "smear_px": float(axis["length"]),
             "smear_angle": float(axis["angle"]), "end_ratio": ratio}
