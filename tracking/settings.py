@@ -376,8 +376,10 @@ class DetectionSettings:
     #: at most (lamp <= 45 deg off the vertical: R tan 45 deg past the limb;
     #: 0.8 r measured on D1), while beyond ~2 radii no pixel is covered for
     #: the whole exposure (peak coverage 2r/L), the sides weaken as much as
-    #: the ends and the ratio says nothing (1.3 measured at L = 3.9 r).
-    streak_ratio_max_len: float = 2.0
+    #: the ends and the ratio says nothing (1.3 measured at L = 3.9 r). Two
+    #: touching balls read as a stadium of L = 2.4 r (closed-form moments of
+    #: two discs), so the test must still apply there: 3.0.
+    streak_ratio_max_len: float = 3.0
     #: The blob's width across its axis through the centroid, over its widest,
     #: must reach this: a swept disc's support is 2r wide all along its middle
     #: (1.0), two touching balls pinch to the edge blur between them (~0.2).
