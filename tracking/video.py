@@ -139,9 +139,7 @@ class VideoSource:
         """About ``n`` frames spread evenly over the range (streams the clip once)."""
         start, stop = self.frame_range
         end = stop if stop is not None else max(self.container_frames, start + 1)
-        # rounded up, so that the samples reach the end of the range (a
-        # floor step on a 60-frame clip with n = 31 took only its first half)
-        step = max(-(-(end - start) // max(n, 1)), 1)
+        step = max((end - start) // max(n, 1), 1)
         out = []
         for item in self.frames(step=step):
             out.append(item)
