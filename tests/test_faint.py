@@ -268,3 +268,27 @@ def test_empty_frame_gives_no_faint_ball():
     for k in range(5):
         img = draw(cal, cloth, [], NOISE_DN, np.random.default_rng(40 + k))
         assert find_faint(img, cal, bg, np.zeros((0, 2))).empty
+
+
+def test_faint_disc_in_a_corner_pocket_mouth_is_not_a_ball():
+    """A faint resting disc whose own disc reaches past a corner pocket's mouth line is left alone.
+
+    Geometry (tracking/pockets.py): the mouth is the chord mouth/sqrt(2) from the
+    corner along each nose line; with no clear silhouette a faint find there is the
+    pocket's shaded rim (seen on snooker renders), so its disc must clear the
+    mouth line (u + v >= (mouth + 2R)/sqrt(2)). Checked both ways: with the
+    mouth set to 0 the same disc is painted out like the two in the open.
+    """
+    from dataclasses import replace as _replace
+
+    cal = calibration()
+    cloth = lab_to_srgb_cie(CLOTH_LAB)
+    _, ball = _below_threshold_ball(cal, cloth)
+    rng = np.random.default_rng(33)
+    corner = (45.0, 45.0)  # u + v = 90 mm < (86 + 57.15) / sqrt(2) = 101 mm
+    frames = [draw(cal, cloth, [(x, y, ball) for x, y in POS + [corner]], NOISE_DN, rng) for _ in range(9)]
+    bg = build_background(frames, cal)
+    off = faint_background(bg, cal, _replace(DetectionSettings(), corner_mouth_min_mm=0.0))
+    assert len(off.static_px) == len(POS) + 1  # the rule is what keeps it out
+    on = faint_background(bg, cal)
+    assert len(on.static_px) == len(POS)

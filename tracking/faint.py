@@ -72,6 +72,7 @@ from scipy import stats
 from tracking.calibration import Calibration
 from tracking.detect import (DETECTION_COLUMNS, Background, _half_res_background, colour_summary, delta_e76,
                              refine_centre, surface_polygon_px, to_lab)
+from tracking.pockets import inside_corner_mouth
 from tracking.settings import DetectionSettings
 
 
@@ -553,6 +554,13 @@ def add_faint(det: pd.DataFrame, image: np.ndarray, calibration: Calibration, ba
         return det
     known = det[["x_px", "y_px"]].to_numpy(float) if len(det) else np.zeros((0, 2))
     extra = find_faint(image, calibration, background, known, settings)
+    if not extra.empty:
+        # A faint disc overlapping a corner pocket's mouth is the pocket's
+        # shaded rim far more often than a ball (a faint find has no clear
+        # silhouette to tell them apart): its disc must clear the mouth line.
+        R = calibration.ball_radius_mm
+        extra = extra[~inside_corner_mouth(extra[["x_mm", "y_mm"]].to_numpy(float), calibration.table,
+                                           settings.corner_mouth_min_mm + 2.0 * R)]
     if extra.empty:
         return det
     extra = extra[DETECTION_COLUMNS]
@@ -597,6 +605,10 @@ def faint_background(background: Background, calibration: Calibration,
     for sd in seeds:
         gx, gy = sd["x"] * sc + 0.5 * (sc - 1) + x0, sd["y"] * sc + 0.5 * (sc - 1) + y0
         if not _on_cloth(calibration, np.array([[gx, gy]]), settings.faint_margin * calibration.ball_radius_mm)[0]:
+            continue
+        # a corner pocket's shaded rim, not a ball (see add_faint)
+        if inside_corner_mouth(calibration.px_to_table(np.array([[gx, gy]])), calibration.table,
+                               settings.corner_mouth_min_mm + 2.0 * calibration.ball_radius_mm)[0]:
             continue
         r_exp, _, _ = background.lookup(gx, gy)
         # 1.8 radii as build_background: the ball, its blur and its shadow
