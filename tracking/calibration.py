@@ -58,35 +58,20 @@ class Calibration:
     def ball_radius_px(self, xy_mm: np.ndarray, n: int = 24) -> np.ndarray:
         """Apparent ball radius (px) at table points (N,2): radius of the circle fitted to the ball's silhouette.
 
-        The silhouette is the image of the tangent cone from the camera
-        centre O to the sphere (centre C at height R, distance d): the circle
-        of centre C + (R^2/d) u and radius R sqrt(1 - R^2/d^2), u = (O - C)/d,
-        projected with the full camera model (lens distortion included) and
-        fitted by least squares (Kasa 1976). Off the optical axis by theta the
+        The silhouette (:meth:`CameraModel.sphere_silhouette`, the tangent
+        cone through the full camera model) is fitted by least squares
+        (Kasa 1976). Off the optical axis by theta the
         silhouette is an ellipse stretched radially by ~1/cos(theta), so this
         is up to several per cent larger than R times the local scale of the
         ball-centre plane, which a wide-angle lens close to the table shows.
         """
         xy = np.asarray(xy_mm, dtype=float).reshape(-1, 2)
         R = self.ball_radius_mm
-        O = self.camera.centre_mm
-        phi = np.linspace(0, 2 * np.pi, n, endpoint=False)
         out = np.empty(len(xy))
         for i, (x, y) in enumerate(xy):
-            C = np.array([x, y, R])
-            v = O - C
-            d = float(np.linalg.norm(v))
-            u = v / d
-            e1 = np.cross(u, [0.0, 0.0, 1.0])
-            if np.linalg.norm(e1) < 1e-9:
-                e1 = np.array([1.0, 0.0, 0.0])
-            e1 /= np.linalg.norm(e1)
-            e2 = np.cross(u, e1)
-            rho = R * np.sqrt(max(1.0 - (R / d) ** 2, 0.0))
-            pts = C + (R * R / d) * u + rho * (np.cos(phi)[:, None] * e1 + np.sin(phi)[:, None] * e2)
-            sil = self.camera.project(pts)
+            sil = self.camera.sphere_silhouette([x, y, R], R, n)
             # Kasa algebraic circle fit: x^2 + y^2 = 2 a x + 2 b y + c
-            A = np.column_stack([2 * sil[:, 0], 2 * sil[:, 1], np.ones(n)])
+            A = np.column_stack([2 * sil[:, 0], 2 * sil[:, 1], np.ones(len(sil))])
             a, b, c = np.linalg.lstsq(A, (sil ** 2).sum(axis=1), rcond=None)[0]
             out[i] = float(np.sqrt(max(c + a * a + b * b, 0.0)))
         return out

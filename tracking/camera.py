@@ -193,6 +193,29 @@ class CameraModel:
         M = self.K @ np.column_stack([self.R[:, 0], self.R[:, 1], self.R[:, 2] * z_mm + self.t])
         return M / M[2, 2]
 
+    def sphere_silhouette(self, centre_mm: ArrayLike, radius_mm: float, n: int = 24) -> np.ndarray:
+        """Image (n, 2) px of the outline of a sphere (centre (3,) mm, table frame).
+
+        The tangent cone from the camera centre O touches the sphere (centre
+        C, radius R, distance d) along a circle of centre C + (R^2/d) u and
+        radius R sqrt(1 - R^2/d^2), u = (O - C)/d; that circle is projected
+        with the full model (distortion included).
+        """
+        C = np.asarray(centre_mm, dtype=float).reshape(3)
+        R = float(radius_mm)
+        v = self.centre_mm - C
+        d = float(np.linalg.norm(v))
+        u = v / d
+        e1 = np.cross(u, [0.0, 0.0, 1.0])
+        if np.linalg.norm(e1) < 1e-9:
+            e1 = np.array([1.0, 0.0, 0.0])
+        e1 /= np.linalg.norm(e1)
+        e2 = np.cross(u, e1)
+        phi = np.linspace(0, 2 * np.pi, n, endpoint=False)
+        rho = R * np.sqrt(max(1.0 - (R / d) ** 2, 0.0))
+        pts = C + (R * R / d) * u + rho * (np.cos(phi)[:, None] * e1 + np.sin(phi)[:, None] * e2)
+        return self.project(pts)
+
     def mm_per_px(self, point_mm: ArrayLike) -> float:
         """Approximate ground-sample distance (mm per pixel) at a table point (3,)."""
         p = np.asarray(point_mm, dtype=float).reshape(1, 3)

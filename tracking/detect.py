@@ -63,7 +63,7 @@ from scipy.special import erf as _erf
 from tracking.calibration import Calibration
 from tracking.pockets import inside_corner_mouth
 from tracking.settings import DetectionSettings
-from tracking.streak import refine_streak, streak_axis
+from tracking.streak import edge_patch, refine_streak, streak_axis
 
 #: ``contrast_dn``: mean foreground strength inside 0.6 radius, in noise-weighted
 #: CIE 1976 Delta-E*ab units since the CIELAB foreground test (name kept).
@@ -110,22 +110,10 @@ def silhouette_offset_px(calibration: Calibration, xy_mm: np.ndarray, n: int = 4
     """
     xy = np.asarray(xy_mm, float).reshape(-1, 2)
     R = calibration.ball_radius_mm
-    O = calibration.camera.centre_mm
-    phi = np.linspace(0, 2 * np.pi, n, endpoint=False)
     out = np.zeros((len(xy), 2))
     for i, (x, y) in enumerate(xy):
         C = np.array([x, y, R])
-        v = O - C
-        d = np.linalg.norm(v)
-        nvec = v / d
-        e1 = np.cross(nvec, [0.0, 0.0, 1.0])
-        if np.linalg.norm(e1) < 1e-9:
-            e1 = np.array([1.0, 0.0, 0.0])
-        e1 /= np.linalg.norm(e1)
-        e2 = np.cross(nvec, e1)
-        rho = R * np.sqrt(1 - (R / d) ** 2)
-        pts = C + (R * R / d) * nvec + rho * (np.cos(phi)[:, None] * e1 + np.sin(phi)[:, None] * e2)
-        sil = calibration.camera.project(pts)
+        sil = calibration.camera.sphere_silhouette(C, R, n)
         cx, cy, _ = fit_circle_algebraic(sil)
         out[i] = [cx, cy] - calibration.camera.project(C[None])[0]
     return out
@@ -659,14 +647,12 @@ def refine_centre(d: np.ndarray, x0: float, y0: float, r_exp: float,
     Returns dict(x, y, radius, sigma_px, support, fixed_radius) or None when
     the silhouette is not ball-like.
     """
-    h, w = d.shape
     half = int(np.ceil(settings.ray_max * r_exp + 3 * settings.edge_smooth_px + 3))
-    xa, ya = max(0, int(x0) - half), max(0, int(y0) - half)
-    xb, yb = min(w, int(x0) + half + 2), min(h, int(y0) + half + 2)
-    patch = d[ya:yb, xa:xb]
-    if patch.size == 0:
+    got = edge_patch(d, x0, y0, half, settings.edge_smooth_px)
+    if got is None:
         return None
-    dsm = cv2.GaussianBlur(patch, (0, 0), settings.edge_smooth_px)
+    dsm, xa, ya = got
+    xb, yb = xa + dsm.shape[1], ya + dsm.shape[0]
     c = np.array([x0 - xa, y0 - ya], float)
     own = None
     if image is not None and threshold_dn is not None:

@@ -167,6 +167,20 @@ def _streak_axis(d: np.ndarray, x: float, y: float, r_exp: float, threshold: flo
 
 
 # --------------------------------------------------------------------------- edge points
+def edge_patch(d: np.ndarray, x0: float, y0: float, half: int, smooth_px: float):
+    """(Gaussian-smoothed patch of ``d`` round (x0, y0) px, its x offset, its y offset), or None if empty.
+
+    The patch reaches ``half`` px left/up of the centre and ``half + 1`` right/down, clipped to the image.
+    """
+    h, w = d.shape
+    xa, ya = max(0, int(x0) - half), max(0, int(y0) - half)
+    xb, yb = min(w, int(x0) + half + 2), min(h, int(y0) + half + 2)
+    patch = d[ya:yb, xa:xb]
+    if patch.size == 0:
+        return None
+    return cv2.GaussianBlur(patch, (0, 0), smooth_px), xa, ya
+
+
 def _streak_edge_points(dsm: np.ndarray, centre: np.ndarray, reach: np.ndarray, theta: np.ndarray,
                         settings: DetectionSettings, edge_floor: float | None):
     """Outermost clear drop of ``dsm`` along rays ``theta`` from ``centre``, searched out to ~``reach``.
@@ -298,12 +312,11 @@ def refine_streak(d: np.ndarray, axis: dict, r_exp: float, settings: DetectionSe
     reach_max = (r_exp + a) * settings.streak_ray_max
     half = int(np.ceil(reach_max + 3 * settings.edge_smooth_px + 3))
     x0, y0 = axis["x"], axis["y"]
-    xa, ya = max(0, int(x0) - half), max(0, int(y0) - half)
-    xb, yb = min(w, int(x0) + half + 2), min(h, int(y0) + half + 2)
-    patch = d[ya:yb, xa:xb]
-    if patch.size == 0:
+    got = edge_patch(d, x0, y0, half, settings.edge_smooth_px)
+    if got is None:
         return None
-    dsm = cv2.GaussianBlur(patch, (0, 0), settings.edge_smooth_px)
+    dsm, xa, ya = got
+    xb, yb = xa + dsm.shape[1], ya + dsm.shape[0]
     n = settings.streak_rays
     theta = np.linspace(0, 2 * np.pi, n, endpoint=False)
     reach = stadium_reach(theta, axis["angle"], a, r_exp)
