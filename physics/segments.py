@@ -249,13 +249,18 @@ def slip_link_chi2(x: np.ndarray, lay: ChainLayout, s: PhysicsSettings) -> np.nd
     return out
 
 
-def _link_residuals(x: np.ndarray, lay: ChainLayout, s: PhysicsSettings, i: int) -> list[float]:
-    """The two slip-prior residuals (along, across the shift direction; in sigmas) of break i."""
+def _link_state(x: np.ndarray, lay: ChainLayout, i: int):
+    """Motion either side of break i, or None when segment i+1 has no motion parameters.
+
+    Returns (prev, tau, v_end, u_end, v1, u_start, dv): segment i's parameters (None: at rest)
+    and its duration tau (s); its velocity and cloth slip at the break (mm/s; zero at rest);
+    segment i+1's start velocity and slip (mm/s); the velocity change dv = v1 - v_end (mm/s).
+    """
     br = x[lay.break_offset : lay.break_offset + lay.n_seg - 1]
     starts = np.concatenate([[lay.t_start], br])
     prev, nxt = unpack_segment(x, lay, i), unpack_segment(x, lay, i + 1)
     if nxt is None:
-        return []
+        return None
     tau = float(br[i] - starts[i])
     if prev is None:
         v_end = u_end = np.zeros(2)
@@ -266,7 +271,15 @@ def _link_residuals(x: np.ndarray, lay: ChainLayout, s: PhysicsSettings, i: int)
         u_end = slip_velocity(v0, a, t_roll, tau)
     v1, a1, t_roll1, _ = nxt
     u_start = slip_velocity(v1, a1, t_roll1, 0.0)
-    dv = v1 - v_end
+    return prev, tau, v_end, u_end, v1, u_start, v1 - v_end
+
+
+def _link_residuals(x: np.ndarray, lay: ChainLayout, s: PhysicsSettings, i: int) -> list[float]:
+    """The two slip-prior residuals (along, across the shift direction; in sigmas) of break i."""
+    st = _link_state(x, lay, i)
+    if st is None:
+        return []
+    _, _, v_end, u_end, _, u_start, dv = st
     r = u_start - u_end - dv
     sp = float(np.hypot(*dv))
     sig_perp = np.hypot(s.slip_sigma_rel * sp, s.slip_sigma_mm_s)
@@ -660,22 +673,10 @@ def slide_into_breaks(x: np.ndarray, lay: ChainLayout, s: PhysicsSettings,
     g = s.g_mm_s2
     for i in np.flatnonzero(lay.links):
         i = int(i)
-        prev, nxt = unpack_segment(x, lay, i), unpack_segment(x, lay, i + 1)
-        if nxt is None or (prev is None and side == "before"):
+        st = _link_state(x, lay, i)
+        if st is None or (st[0] is None and side == "before"):
             continue
-        br = x[lay.break_offset : lay.break_offset + lay.n_seg - 1]
-        starts = np.concatenate([[lay.t_start], br])
-        tau = float(br[i] - starts[i])
-        if prev is None:
-            v_end = u_end = np.zeros(2)
-        else:
-            v0, a, t_roll, a_r = prev
-            _, v_end = move_motion(np.array([tau]), v0, a, t_roll, a_r)
-            v_end = v_end[0]
-            u_end = slip_velocity(v0, a, t_roll, tau)
-        v1, a1, t_roll1, _ = nxt
-        u_start = slip_velocity(v1, a1, t_roll1, 0.0)
-        dv = v1 - v_end
+        prev, tau, v_end, u_end, v1, u_start, dv = st
         shift = np.zeros(2)
         sig = np.hypot(s.slip_sigma_rel * float(np.hypot(*dv)), s.slip_sigma_mm_s)
         if lay.slip_shift is not None and np.all(np.isfinite(lay.slip_shift[i])):
@@ -683,7 +684,7 @@ def slide_into_breaks(x: np.ndarray, lay: ChainLayout, s: PhysicsSettings,
             shift = X * np.array([nx, ny])
             sig = np.hypot(sig, float(lay.slip_shift_sigma[i]))
         if side == "before":
-            if t_roll > tau:
+            if prev[2] > tau:  # t_roll of segment i
                 continue  # already sliding at the break: the prior has a gradient there
             u, k, t_b, v_b = u_start - dv - shift, i, tau, v_end
         else:
