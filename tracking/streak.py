@@ -307,7 +307,6 @@ def refine_streak(d: np.ndarray, axis: dict, r_exp: float, settings: DetectionSe
     fixed_radius False, smear_px, smear_angle) or None when the
     edge points do not support a streak.
     """
-    h, w = d.shape
     a = 0.5 * axis["length"]
     reach_max = (r_exp + a) * settings.streak_ray_max
     half = int(np.ceil(reach_max + 3 * settings.edge_smooth_px + 3))
@@ -316,7 +315,6 @@ def refine_streak(d: np.ndarray, axis: dict, r_exp: float, settings: DetectionSe
     if got is None:
         return None
     dsm, xa, ya = got
-    xb, yb = xa + dsm.shape[1], ya + dsm.shape[0]
     n = settings.streak_rays
     theta = np.linspace(0, 2 * np.pi, n, endpoint=False)
     reach = stadium_reach(theta, axis["angle"], a, r_exp)
