@@ -41,7 +41,7 @@ def parse_frames(text: str | None) -> tuple[int, int | None] | None:
 @click.argument("clip", type=click.Path(path_type=Path, dir_okay=True))
 @click.option("--table", default=None, metavar="PRESET",
               help=f"Table preset: pool-9ft, pool-8ft, pool-7ft, snooker, carom (default {DEFAULT_TABLE}, "
-                   "or the --calib file's).")
+                   "the --calib file's, or the pool size / snooker preset the balls' image size points to).")
 @click.option("--calib", type=click.Path(path_type=Path), default=None, metavar="FILE",
               help="Calibration TOML (from feltlab calibrate, or manual corners); default: fit automatically.")
 @click.option("--fps", type=float, default=None, metavar="N",
@@ -69,7 +69,8 @@ def command(clip: Path, table: str | None, calib: Path | None, fps: float | None
             click.echo(f"track: {pct}%", err=True)
             state["last"] = pct
 
-    res = track_clip(clip, table=table, calibration=calib, fps=fps, frame_range=rng, progress=progress)
+    res = track_clip(clip, table=table, calibration=calib, fps=fps, frame_range=rng, progress=progress,
+                     auto_table=table is None and calib is None)
     dest.mkdir(parents=True, exist_ok=True)
     tmp = {name: dest / f".{name}.partial" for name in OUTPUTS}
     try:

@@ -44,7 +44,8 @@ Progress = Callable[[str, int, int], None]
 class AnalyzeSettings:
     """Everything that decides what ``analyze_clip`` produces.
 
-    table: preset name (None: the calibration file's preset, else pool-9ft).
+    table: preset name (None: the calibration file's preset, else pool-9ft or the pool size /
+    snooker preset the balls' image size points to: tracking/ball_size.py).
     calib: manual calibration file (TOML; None: automatic calibration).
     fps: frame rate override (frames/s; high-speed cameras often write a
     playback rate such as 30 into the file). ball_mass_kg: None -> the
@@ -196,7 +197,8 @@ def _calibration(settings: AnalyzeSettings, table: TablePreset | None):
 def _track(clip: Path, table: TablePreset, cal, settings: AnalyzeSettings, progress: Progress | None):
     from tracking.pipeline import track_clip
 
-    kw: dict[str, Any] = dict(table=table, calibration=cal, fps=settings.fps, frame_range=settings.frame_range)
+    kw: dict[str, Any] = dict(table=table, calibration=cal, fps=settings.fps, frame_range=settings.frame_range,
+                              auto_table=settings.table is None and cal is None)
     if settings.tracking is not None:
         kw["settings"] = settings.tracking
     if progress is not None:
@@ -268,6 +270,7 @@ def analyze_clip(clip_path, out_dir, settings: AnalyzeSettings | None = None, pr
         tr = _track(clip, table, cal, settings, progress)
     timings["track_s"] = time.perf_counter() - t
     cal = tr.calibration
+    table = cal.table  # the balls' size may have chosen another preset (tracking/ball_size.py)
     log.info("calibration: %s, residual %s px / %s mm, %.3f px/mm", cal.method, _fmt(cal.residual_px, None),
              _fmt(cal.residual_mm, None), cal.px_per_mm)
     for w in getattr(tr, "warnings", None) or []:

@@ -69,3 +69,50 @@ def test_pinned_and_moving_detections_are_left_out():
     assert np.isnan(size_ratio(det))
     det.loc[: n - 1, "radius_px"] = 12.6
     assert abs(size_ratio(det) - 1.05) < 1e-9
+
+
+def test_suggested_preset_follows_the_measured_size():
+    """The presets' predicted size factors are closed forms of their published dimensions, and a
+    measured ratio inside a candidate's band picks it (pool sizes: WPA; snooker: WPBSA)."""
+    from tracking.ball_size import predicted_size_factor, suggest_preset
+
+    p9, p8, p7, sn = (table_preset(n) for n in ("pool-9ft", "pool-8ft", "pool-7ft", "snooker"))
+    assert abs(predicted_size_factor(p9, p8) - 100 / 92) < 1e-9
+    assert abs(predicted_size_factor(p9, p7) - 100 / 78) < 1e-9
+    assert abs(predicted_size_factor(p9, sn) - (52.5 / 57.15) * (2540.0 / 3569.0)) < 1e-3
+    ts = TrackingSettings()
+    band = (ts.ball_size_low, ts.ball_size_high)
+    for bias in (0.95, 0.97, 0.99):  # the detector's measured range with the right preset
+        assert suggest_preset(bias, p9, *band) is None
+        for true in (p8, p7, sn):
+            got = suggest_preset(bias * predicted_size_factor(p9, true), p9, *band)
+            assert got is not None and got.name == true.name
+            assert suggest_preset(bias, true, *band) is None
+    # far outside every band: keep the assumed preset (and its warning)
+    assert suggest_preset(2.0, p9, *band) is None
+    assert suggest_preset(float("nan"), p9, *band) is None
+
+
+def test_eight_foot_table_is_recognised_without_a_preset(tmp_path):
+    """End to end: a clip of an 8-ft table (rendered by feltlab's renderer), tracked with no preset
+    named. The cushion fit alone cannot tell 8 ft from 9 ft (closed form in the module docstring);
+    the balls' size must, and the positions must then come out in the 8-ft table's millimetres."""
+    from feltlab.render import render_scenario, scenario_from_dict
+    from tracking.pipeline import track_clip
+
+    pos = {"cue": [500.0, 400.0], "red": [1200.0, 800.0], "yellow": [1800.0, 350.0]}
+    sc = scenario_from_dict({
+        "clip": {"table": "pool-8ft", "fps": 30, "duration_s": 0.5, "resolution": [960, 540], "seed": 5},
+        "camera": {"height_mm": 2500, "fov_deg": 60, "pitch_deg": 1.0, "k1": -0.02},
+        "ball": [{"label": k, "position_mm": v} for k, v in pos.items()],
+    })
+    clip = tmp_path / "eight.mp4"
+    render_scenario(sc, clip)
+    res = track_clip(clip, table=None, auto_table=True)
+    assert res.calibration.table.name == "pool-8ft"
+    assert any("pool-8ft" in w and "--table" in w for w in res.warnings)
+    got = res.tracks.groupby("ball")[["x_mm", "y_mm"]].median().to_numpy()
+    truth = np.array(list(pos.values()))
+    # every true ball within 3 mm of a track (with the 9-ft preset they would be 60-150 mm off)
+    d = np.hypot(got[:, None, 0] - truth[None, :, 0], got[:, None, 1] - truth[None, :, 1])
+    assert d.shape[0] == 3 and np.all(d.min(axis=0) < 3.0)

@@ -75,3 +75,67 @@ def size_warning(ratio: float, preset_name: str, ball_mm: float, low: float, hig
     return (f"balls look {abs(ratio - 1) * 100:.0f}% {word} than the {preset_name} preset's "
             f"{ball_mm:.2f} mm ball predicts: if the table or ball set is not {preset_name}, pass the right "
             f"--table (every distance and speed scales with it)")
+
+
+#: Presets the size check may choose between when the user named none. They
+#: are told apart by ball image size alone: pool 9/8/7 ft and snooker sit
+#: >= 8 % apart in predicted image radius on one camera fit (100/92 in,
+#: 92/78 in, WPA; snooker 52.5 mm balls on a 3569 mm bed, WPBSA). Carom
+#: (61.5 mm balls on 2840 mm, UMB) predicts a ball image only 3.8 % smaller
+#: than 9-ft pool, inside the detector's own spread, so it is never chosen
+#: automatically: carom footage needs ``--table carom``.
+AUTO_PRESETS: tuple[str, ...] = ("pool-9ft", "pool-8ft", "pool-7ft", "snooker")
+
+
+def predicted_size_factor(assumed, actual) -> float:
+    """Image radius a ball of ``actual``'s set shows, over what ``assumed`` predicts (same cushion fit).
+
+    Both are TablePreset. The automatic calibration fits the cushion rectangle
+    whatever its size: with the assumed preset every length is scaled by
+    L_assumed / L_actual, so the assumed preset's ball of d_assumed mm is
+    predicted at d_assumed * s px while the real one shows d_actual * s *
+    L_assumed / L_actual (s: px per assumed mm). Needs equal aspect ratios
+    (all presets here are 2:1 within 0.4 %).
+
+    >>> from feltlab.standards import table_preset
+    >>> round(predicted_size_factor(table_preset("pool-9ft"), table_preset("pool-8ft")), 4)
+    1.087
+    """
+    return (actual.ball.diameter_mm / assumed.ball.diameter_mm) * (assumed.length_mm / actual.length_mm)
+
+
+def suggest_preset(ratio: float, assumed, low: float, high: float, names: tuple[str, ...] = AUTO_PRESETS):
+    """The preset the measured size ratio points to, or None to keep ``assumed``.
+
+    ratio: :func:`size_ratio` measured with ``assumed`` (a TablePreset).
+    Each candidate predicts ratio = bias x :func:`predicted_size_factor`,
+    with the detector's bias anywhere in [low, high]; the candidate whose
+    prediction lies nearest (in log ratio, to the band's geometric centre)
+    wins, and only a candidate whose band holds the measurement may replace
+    the assumed preset. Returns None when the assumed preset wins, when no
+    band holds the ratio, or when the ratio is NaN.
+
+    >>> from feltlab.standards import table_preset
+    >>> suggest_preset(0.96, table_preset("pool-9ft"), 0.925, 1.03) is None
+    True
+    >>> suggest_preset(1.05, table_preset("pool-9ft"), 0.925, 1.03).name
+    'pool-8ft'
+    """
+    from feltlab.standards import table_preset
+
+    if not np.isfinite(ratio) or ratio <= 0:
+        return None
+    centre = 0.5 * (np.log(low) + np.log(high))
+    best, best_d = None, np.inf
+    for name in dict.fromkeys((assumed.name,) + tuple(names)):
+        cand = table_preset(name)
+        f = predicted_size_factor(assumed, cand)
+        if abs(cand.length_mm / cand.width_mm - assumed.length_mm / assumed.width_mm) > 0.02:
+            continue  # a different shape: the cushion fit would not have passed
+        d = abs(np.log(ratio / f) - centre)
+        if d < best_d:
+            best, best_d = cand, d
+    if best is None or best.name == assumed.name:
+        return None
+    f = predicted_size_factor(assumed, best)
+    return best if low <= ratio / f <= high else None

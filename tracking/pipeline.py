@@ -27,6 +27,7 @@ not average out over frames).
 """
 from __future__ import annotations
 
+import logging
 import os
 from collections.abc import Callable
 from dataclasses import dataclass, field
@@ -38,7 +39,7 @@ import pandas as pd
 from feltlab.errors import FeltlabError
 from feltlab.standards import DEFAULT_TABLE, TablePreset, table_preset
 from tracking.assign import Linker, colour_signature, view_test
-from tracking.ball_size import size_ratio, size_warning
+from tracking.ball_size import size_ratio, size_warning, suggest_preset
 from tracking.calibration import Calibration
 from tracking.detect import build_background, detect_frame
 from tracking.exposure import ExposureMatcher
@@ -47,6 +48,8 @@ from tracking.kalman import as_cov, smear_cov, smear_scale, smooth_segment, spli
 from tracking.labels import label_tracks
 from tracking.overlap import separate_overlaps
 from tracking.settings import TrackClipSettings, TrackingSettings
+
+log = logging.getLogger("feltlab.tracking")
 
 TRACK_COLUMNS = ["frame", "t_s", "ball", "x_mm", "y_mm", "vx_mm_s", "vy_mm_s", "sx_mm", "sy_mm", "visible"]
 DETECTION_OUT_COLUMNS = ["frame", "t_s", "ball", "x_mm", "y_mm", "sx_mm", "sy_mm", "x_px", "y_px", "confidence",
@@ -325,7 +328,7 @@ def track_clip(path: str | os.PathLike, table: str | TablePreset | None = DEFAUL
                calibration: Calibration | str | os.PathLike | None = None, fps: float | None = None,
                frame_range: tuple[int, int | None] | None = None,
                settings: TrackClipSettings = TrackClipSettings(),
-               progress: Callable[[int, int], None] | None = None) -> TrackResult:
+               progress: Callable[[int, int], None] | None = None, auto_table: bool = False) -> TrackResult:
     """Track every ball in a clip; see :class:`TrackResult` for the output.
 
     table: preset name (or TablePreset; None: the calibration file's, else
@@ -334,6 +337,11 @@ def track_clip(path: str | os.PathLike, table: str | TablePreset | None = DEFAUL
     cushion lines. fps: capture rate override (high-speed clips).
     frame_range: (start, stop) frame indices. progress(done, total) is called
     after every frame (total 0 when the container does not say).
+    auto_table: with automatic calibration, let the balls' image size choose
+    between the presets that differ only in size (tracking/ball_size.py,
+    :func:`~tracking.ball_size.suggest_preset`); the clip is tracked again
+    with the preset it points to, and a warning says so. For callers whose
+    user named no preset.
     """
     from tracking.video import open_video
 
@@ -401,6 +409,17 @@ def track_clip(path: str | os.PathLike, table: str | TablePreset | None = DEFAUL
         columns=list(chunks[0].columns) if chunks else ["frame", "t_s", "track", "row", "x_mm", "y_mm"])
     jumps = linker.jumps()
     result = _finish(det_all, jumps, frame_t, cal, ts, warnings)
+    if auto_table and calibration is None:
+        ratio = float(result[1].attrs.get("ball_size_ratio", float("nan")))
+        alt = suggest_preset(ratio, cal.table, ts.ball_size_low, ts.ball_size_high)
+        if alt is not None:
+            log.info("ball size %.3f x the %s prediction: tracking again as %s", ratio, cal.table.name, alt.name)
+            again = track_clip(path, table=alt, calibration=None, fps=fps, frame_range=frame_range,
+                               settings=settings, progress=progress, auto_table=False)
+            note = (f"table taken as {alt.name} from the balls' image size ({ratio:.3f} x what "
+                    f"{cal.table.name} predicts); pass --table to set it")
+            again.warnings.insert(0, note)
+            return again
     return TrackResult(tracks=result[0], detections=result[1], calibration=cal, fps=src.fps,
                        fps_source=src.fps_source, n_frames=n_frames, balls=result[2], segments_hint=result[3],
                        warnings=list(dict.fromkeys(list(src.warnings) + warnings)),
