@@ -61,8 +61,8 @@ def _restore_logging(saved: tuple) -> None:
 @click.argument("clip", type=click.Path(path_type=Path, dir_okay=True))
 @click.option("--table", default=None, metavar="PRESET",
               help="Table preset: pool-9ft, pool-8ft, pool-7ft, snooker, carom "
-                   "(default: the calibration file's, else pool-9ft, or the pool size / snooker preset "
-                   "the balls' image size points to).")
+                   "(default: the calibration file's, else pool-9ft, or the preset the picture points "
+                   "to: carom without side pockets, else the pool size / snooker by the balls' size).")
 @click.option("--calib", type=click.Path(path_type=Path), default=None, metavar="FILE",
               help="Manual calibration TOML (default: calibrate automatically from the table's cushions).")
 @click.option("--fps", type=float, default=None, metavar="N",

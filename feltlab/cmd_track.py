@@ -41,7 +41,8 @@ def parse_frames(text: str | None) -> tuple[int, int | None] | None:
 @click.argument("clip", type=click.Path(path_type=Path, dir_okay=True))
 @click.option("--table", default=None, metavar="PRESET",
               help=f"Table preset: pool-9ft, pool-8ft, pool-7ft, snooker, carom (default {DEFAULT_TABLE}, "
-                   "the --calib file's, or the pool size / snooker preset the balls' image size points to).")
+                   "the --calib file's, or the preset the picture points to: carom without side pockets, "
+                   "else the pool size / snooker by the balls' size).")
 @click.option("--calib", type=click.Path(path_type=Path), default=None, metavar="FILE",
               help="Calibration TOML (from feltlab calibrate, or manual corners); default: fit automatically.")
 @click.option("--fps", type=float, default=None, metavar="N",

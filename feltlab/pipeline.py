@@ -44,8 +44,9 @@ Progress = Callable[[str, int, int], None]
 class AnalyzeSettings:
     """Everything that decides what ``analyze_clip`` produces.
 
-    table: preset name (None: the calibration file's preset, else pool-9ft or the pool size /
-    snooker preset the balls' image size points to: tracking/ball_size.py).
+    table: preset name (None: the calibration file's preset, else the preset the picture points
+    to: carom when the long cushions have no side pockets, else pool-9ft or the pool size /
+    snooker preset the balls' image size points to; tracking/pockets.py, ball_size.py).
     calib: manual calibration file (TOML; None: automatic calibration).
     fps: frame rate override (frames/s; high-speed cameras often write a
     playback rate such as 30 into the file). ball_mass_kg: None -> the

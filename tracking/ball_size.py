@@ -132,6 +132,8 @@ def suggest_preset(ratio: float, assumed, low: float, high: float, names: tuple[
         f = predicted_size_factor(assumed, cand)
         if abs(cand.length_mm / cand.width_mm - assumed.length_mm / assumed.width_mm) > 0.02:
             continue  # a different shape: the cushion fit would not have passed
+        if cand.pockets != assumed.pockets:
+            continue  # pockets were seen (or not) before the size check: tracking/pockets.py
         d = abs(np.log(ratio / f) - centre)
         if d < best_d:
             best, best_d = cand, d

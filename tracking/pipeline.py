@@ -40,6 +40,7 @@ from feltlab.errors import FeltlabError
 from feltlab.standards import DEFAULT_TABLE, TablePreset, table_preset
 from tracking.assign import Linker, colour_signature, view_test
 from tracking.ball_size import size_ratio, size_warning, suggest_preset
+from tracking.calibrate import nose_height_mm
 from tracking.calibration import Calibration
 from tracking.detect import build_background, detect_frame
 from tracking.exposure import ExposureMatcher
@@ -47,6 +48,7 @@ from tracking.faint import add_faint, faint_background
 from tracking.kalman import as_cov, smear_cov, smear_scale, smooth_segment, split_segments
 from tracking.labels import label_tracks
 from tracking.overlap import separate_overlaps
+from tracking.pockets import has_side_pockets, side_pocket_contrast
 from tracking.settings import TrackClipSettings, TrackingSettings
 
 log = logging.getLogger("feltlab.tracking")
@@ -109,9 +111,24 @@ def detection_velocity(t: np.ndarray, z: np.ndarray) -> np.ndarray:
     return v
 
 
-def measurement_cov(t: np.ndarray, z: np.ndarray, sig: np.ndarray, c_s2: float) -> np.ndarray:
-    """(N,2,2) mm^2: detector sigmas (N,2) plus c_s2 |v|^2 along the motion (module docstring)."""
-    return as_cov(sig) + smear_cov(detection_velocity(t, z), np.sqrt(max(c_s2, 0.0)), 1.0)
+def measurement_cov(t: np.ndarray, z: np.ndarray, sig: np.ndarray, c_s2: float,
+                    smeared: np.ndarray | None = None) -> np.ndarray:
+    """(N,2,2) mm^2: detector sigmas (N,2) plus c_s2 |v|^2 along the motion (module docstring).
+
+    smeared: (N,) 0/1, where the smear term applies (0 for streak-fitted
+    centres, whose own sigma carries their smear error); default all.
+    """
+    S = smear_cov(detection_velocity(t, z), np.sqrt(max(c_s2, 0.0)), 1.0)
+    if smeared is not None:
+        S = S * np.asarray(smeared, float)[:, None, None]
+    return as_cov(sig) + S
+
+
+def smear_applies(g: pd.DataFrame) -> np.ndarray:
+    """(N,) 1.0 where a detection's centre may lie anywhere along its smear, 0.0 for a streak fit."""
+    if "streak_px" not in g:
+        return np.ones(len(g))
+    return np.where(g["streak_px"].to_numpy(float) > 0, 0.0, 1.0)
 
 
 def rest_runs(t: np.ndarray, z: np.ndarray, sig: np.ndarray, s: TrackingSettings) -> list[tuple[int, int]]:
@@ -337,11 +354,13 @@ def track_clip(path: str | os.PathLike, table: str | TablePreset | None = DEFAUL
     cushion lines. fps: capture rate override (high-speed clips).
     frame_range: (start, stop) frame indices. progress(done, total) is called
     after every frame (total 0 when the container does not say).
-    auto_table: with automatic calibration, let the balls' image size choose
-    between the presets that differ only in size (tracking/ball_size.py,
-    :func:`~tracking.ball_size.suggest_preset`); the clip is tracked again
-    with the preset it points to, and a warning says so. For callers whose
-    user named no preset.
+    auto_table: with automatic calibration, choose the preset from the
+    picture: a table without side pockets is carom (tracking/pockets.py);
+    among the pocketed presets, which differ only in size, the balls' image
+    size chooses (tracking/ball_size.py,
+    :func:`~tracking.ball_size.suggest_preset`) and the clip is tracked again
+    with the preset it points to. A warning says what was chosen. For
+    callers whose user named no preset.
     """
     from tracking.video import open_video
 
@@ -356,6 +375,18 @@ def track_clip(path: str | os.PathLike, table: str | TablePreset | None = DEFAUL
 
         step = max(1, len(imgs) // settings.calibration_frames)
         cal = calibrate_auto(imgs[::step][: settings.calibration_frames], tp or table_preset(DEFAULT_TABLE))
+        if auto_table and cal.table.pockets:
+            # A carom table is 2:1 like pool and its balls are nearly pool sized:
+            # only the missing side pockets tell (tracking/pockets.py).
+            contrast = np.nanmedian([side_pocket_contrast(im, cal.camera, cal.table,
+                                                          nose_height_mm(cal.table, cal.ball_diameter_mm))
+                                     for im in imgs[::step][:5]], axis=0)
+            if has_side_pockets(list(contrast)) is False:
+                carom = table_preset("carom")
+                log.info("no side pockets (mid-cushion brightness %.2f, %.2f of the cushion's): carom", *contrast)
+                cal = calibrate_auto(imgs[::step][: settings.calibration_frames], carom)
+                warnings.append("table taken as carom: the long cushions have no side pockets; "
+                                "pass --table to set it")
     elif isinstance(calibration, Calibration):
         cal = calibration
     else:
@@ -465,9 +496,9 @@ def _finish(det_all: pd.DataFrame, jumps: dict[int, list[int]], frame_t: np.ndar
         g = g.sort_values("frame")
         g = g[~g.frame.duplicated(keep="first")]
         sig = np.maximum(g[["sx_mm", "sy_mm"]].to_numpy(float), 0.02)
-        per_track[tid] = (g.t_s.to_numpy(float), g[["x_mm", "y_mm"]].to_numpy(float), sig)
+        per_track[tid] = (g.t_s.to_numpy(float), g[["x_mm", "y_mm"]].to_numpy(float), sig, smear_applies(g))
     c_max = ts.smear_var_per_len2 * exp_s ** 2
-    c_s2 = smear_scale([(t_, z_, as_cov(s_)) for t_, z_, s_ in per_track.values()], c_max) \
+    c_s2 = smear_scale([(t_, z_, as_cov(s_), f_) for t_, z_, s_, f_ in per_track.values()], c_max) \
         if ts.smear_from_clip else c_max
     for tid, g in det_all.groupby("track"):
         g = g.sort_values("frame")
@@ -478,7 +509,7 @@ def _finish(det_all: pd.DataFrame, jumps: dict[int, list[int]], frame_t: np.ndar
         z = g[["x_mm", "y_mm"]].to_numpy(float)
         sig = np.maximum(g[["sx_mm", "sy_mm"]].to_numpy(float), 0.02)
         tt = g.t_s.to_numpy(float)
-        C = measurement_cov(tt, z, sig, c_s2)
+        C = measurement_cov(tt, z, sig, c_s2, smear_applies(g))
         rows, segments, used = smooth_ball(fr, tt, z, sig, frame_t, jset, ts, cov=C)
         used_all.loc[g.index] = used
         det_all.loc[g.index, "sx_mm"] = np.sqrt(C[:, 0, 0])
