@@ -61,3 +61,24 @@ def test_carom_clip_is_recognised_without_a_preset(tmp_path):
     best = min(np.hypot(got[:, None, 0] - t_[None, :, 0], got[:, None, 1] - t_[None, :, 1]).min(axis=0).max()
                for t_ in (truth, np.column_stack([L - truth[:, 0], W - truth[:, 1]])))
     assert len(got) == 3 and best < 3.0  # read as 9-ft pool: 60-200 mm off
+
+
+def test_pocketless_table_with_a_pool_ball_set_stays_pool(tmp_path):
+    """No side pockets but six balls (a carom set has three or four; common practice): the missing
+    pockets are not believed (some renderers and practice tables draw none) and the default pool
+    preset is kept, with a warning that says why."""
+    from tracking.pipeline import track_clip
+
+    sc = scenario_from_dict({
+        "clip": {"table": "carom", "fps": 30, "duration_s": 0.3, "resolution": [960, 540], "seed": 63},
+        "camera": {"height_mm": 2700, "fov_deg": 62, "pitch_deg": 1.0, "k1": -0.02},
+        "ball": [{"label": k, "position_mm": v} for k, v in
+                 {"cue": [500.0, 400.0], "yellow": [1000.0, 900.0], "red": [1500.0, 300.0], "blue": [2000.0, 700.0],
+                  "green": [800.0, 1100.0], "black": [2400.0, 1200.0]}.items()],
+    })
+    clip = tmp_path / "pocketless.mp4"
+    render_scenario(sc, clip)
+    res = track_clip(clip, table=None, auto_table=True)
+    assert res.tracks.ball.nunique() >= 5
+    assert res.calibration.table.name == "pool-9ft"
+    assert any("not a carom set" in w for w in res.warnings)

@@ -440,6 +440,15 @@ def track_clip(path: str | os.PathLike, table: str | TablePreset | None = DEFAUL
         columns=list(chunks[0].columns) if chunks else ["frame", "t_s", "track", "row", "x_mm", "y_mm"])
     jumps = linker.jumps()
     result = _finish(det_all, jumps, frame_t, cal, ts, warnings)
+    if auto_table and calibration is None and not cal.table.pockets and not _carom_set(result[2]):
+        # No side pockets, but not a carom ball set either (more than four
+        # balls, or stripes): a pool table drawn without pockets. Pool it is.
+        log.info("no side pockets but %d balls / stripes: tracking again as %s", len(result[2]), DEFAULT_TABLE)
+        again = track_clip(path, table=DEFAULT_TABLE, calibration=None, fps=fps, frame_range=frame_range,
+                           settings=settings, progress=progress, auto_table=False)
+        again.warnings.insert(0, f"no side pockets seen, but the balls are not a carom set: table taken as "
+                                 f"{again.calibration.table.name}; pass --table to set it")
+        return again
     if auto_table and calibration is None:
         ratio = float(result[1].attrs.get("ball_size_ratio", float("nan")))
         alt = suggest_preset(ratio, cal.table, ts.ball_size_low, ts.ball_size_high)
@@ -535,6 +544,15 @@ def _finish(det_all: pd.DataFrame, jumps: dict[int, list[int]], frame_t: np.ndar
     if msg:
         warnings.append(msg)
     return tracks, dets, balls, segs
+
+
+def _carom_set(balls: pd.DataFrame) -> bool:
+    """Could these tracked balls be a carom set? At most four balls (three in carom games, four in
+    four-ball; common practice) and no stripe balls."""
+    if balls is None or len(balls) == 0:
+        return True
+    stripes = "pattern" in balls and bool((balls["pattern"] == "stripe").any())
+    return len(balls) <= 4 and not stripes
 
 
 def calibration_from_truth(truth: dict, table: str = "pool-9ft") -> Calibration:
