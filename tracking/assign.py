@@ -33,7 +33,9 @@ Each detection's noise is its sigma plus the smear of the track's
 predicted motion during the exposure (tracking/kalman.py :func:`smear_cov`;
 exposure ``TrackingSettings.exposure_frac`` x the frame interval, the whole
 interval when unknown), so a fast, blurred ball is not gated out along its
-direction of travel.
+direction of travel; a streak-fitted detection (``streak_px`` > 0,
+tracking/streak.py) is the mid-exposure centre and its sigma already holds
+its smear error, so it gets no smear term.
 
 Colour signature: chromaticity (r, g, b) / (r + g + b) (unchanged by the
 overall brightness, so vignetting and lighting gradients do not change it),
@@ -144,6 +146,9 @@ class Linker:
         sig = det[["sx_mm", "sy_mm"]].to_numpy(float) if n_det else np.zeros((0, 2))
         sig = np.maximum(np.nan_to_num(sig, nan=1.0), 0.05)
         col = colour_signature(det) if n_det else np.zeros((0, 5))
+        # a streak-fitted centre is the mid-exposure centre: no smear term
+        smeared = (np.where(det["streak_px"].to_numpy(float) > 0, 0.0, 1.0) if n_det and "streak_px" in det
+                   else np.ones(n_det))
         dt_frame = (t - self._t_prev) if self._t_prev is not None else 0.0
         self._t_prev = t
         exp_s = dt_frame * (1.0 if s.exposure_frac is None else float(s.exposure_frac))
@@ -177,7 +182,7 @@ class Linker:
             can_jump = (t - tr.t) <= max(s.jump_max_gap_s, 1.5 * dt_frame)
             for j in range(n_det):
                 v = z[j] - xp[:2]
-                Rm = np.diag(sig[j] ** 2) + R_smear
+                Rm = np.diag(sig[j] ** 2) + smeared[j] * R_smear
                 S = S_base + Rm
                 d2 = float(v @ np.linalg.solve(S, v))
                 cd = float(np.linalg.norm(col[j] - tr.colour))
@@ -199,7 +204,7 @@ class Linker:
                     continue
                 tr = self.live[i]
                 xp, Pp = preds[i]
-                Rm = np.diag(sig[j] ** 2) + smear_cov(xp[2:], exp_s, s.smear_var_per_len2)[0]
+                Rm = np.diag(sig[j] ** 2) + smeared[j] * smear_cov(xp[2:], exp_s, s.smear_var_per_len2)[0]
                 if jump[i, j]:
                     # Velocity re-started from the displacement since the last fix.
                     dtt = max(t - tr.t, 1e-6)

@@ -315,15 +315,19 @@ def _refine_boundaries(t, z, sig, segs, out, m: int = 5, max_moves: int = 2):
     return [tuple(s) for s in segs if s[1] > s[0]]
 
 
-def smear_scale(pieces: list[tuple[np.ndarray, np.ndarray, np.ndarray]], c_max_s2: float,
+def smear_scale(pieces: list[tuple], c_max_s2: float,
                 outlier_chi2: float = 10.83, max_drop: float = 0.1) -> float:
     """Clip-wide smear scale c (s^2): along-motion centre variance c |v|^2 beyond the detector's sigma.
 
     pieces: per ball (t (N,) s, z (N,2) mm, R (N,2,2) mm^2 detector
-    covariances), time-sorted. For three detections a frame apart at nearly
+    covariances[, f (N,) 0/1: whether the smear term applies to that
+    detection; default all 1]), time-sorted. A streak-fitted centre
+    (tracking/streak.py) is the mid-exposure centre itself, its smear error
+    already in its own sigma: f = 0 there. For three detections a frame apart at nearly
     constant velocity the second difference d = z[i+1] - 2 z[i] + z[i-1] has
     covariance R[i-1] + 4 R[i] + R[i+1] (independent errors); its part along
-    the motion u then has variance u'(R[i-1] + 4 R[i] + R[i+1])u + 6 c |v|^2.
+    the motion u then has variance u'(R[i-1] + 4 R[i] + R[i+1])u
+    + c |v|^2 (f[i-1] + 4 f[i] + f[i+1]).
     c is the moment estimate sum(d_u^2 - base) / sum(6 |v|^2) over all
     triples (covariance matching: Mehra, IEEE Trans. Autom. Control 17:693,
     1972), clipped to [0, c_max_s2]. A triple whose d_u^2 exceeds
@@ -340,8 +344,10 @@ def smear_scale(pieces: list[tuple[np.ndarray, np.ndarray, np.ndarray]], c_max_s
     1.0
     """
     rows = []
-    for t, z, R in pieces:
+    for piece in pieces:
+        t, z, R = piece[:3]
         n = len(t)
+        f = np.ones(n) if len(piece) < 4 or piece[3] is None else np.asarray(piece[3], float)
         if n < 3:
             continue
         dt1, dt2 = t[1:-1] - t[:-2], t[2:] - t[1:-1]
@@ -355,10 +361,12 @@ def smear_scale(pieces: list[tuple[np.ndarray, np.ndarray, np.ndarray]], c_max_s
         d = (z[2:] - 2 * z[1:-1] + z[:-2])[ok]
         B = (R[:-2] + 4 * R[1:-1] + R[2:])[ok]
         rows.append(np.column_stack([np.einsum("ni,ni->n", d, u) ** 2, np.einsum("ni,nij,nj->n", u, B, u),
-                                     6 * sp[ok] ** 2]))
+                                     (f[:-2] + 4 * f[1:-1] + f[2:])[ok] * sp[ok] ** 2]))
     if not rows:
         return 0.0
     du2, base, w = np.vstack(rows).T
+    if w.sum() <= 0:
+        return 0.0
     # at most max_drop of the triples (those least like blur at the bound)
     # may be left out: contacts are a few per ball, and trimming a
     # heavy-tailed blur error by its own shrinking estimate would run to 0

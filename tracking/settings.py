@@ -337,8 +337,11 @@ class DetectionSettings:
     #: 1 + L/2r) and both fits measured alike on our fast renders.
     streak_fit: bool = True
     streak_min_len: float = 1.0
-    #: Longest smear searched, x radius (blob window 1 + streak_max_len/2 radii).
-    streak_max_len: float = 4.0
+    #: Longest smear searched, x radius (blob window 1 + streak_max_len/2 radii):
+    #: a ball at 6 m/s (a hard break, common practice) over a 0.95 x 1/30 s
+    #: exposure smears 190 mm, 6.6 radii of a 57.15 mm ball; 8 is the end of
+    #: the stadium moment table.
+    streak_max_len: float = 8.0
     #: Rays of the streak fit and their search window, x the stadium's reach
     #: in each direction; the outermost clear drop within streak_outer x reach.
     streak_rays: int = 96
@@ -384,6 +387,23 @@ class DetectionSettings:
     #: must reach this: a swept disc's support is 2r wide all along its middle
     #: (1.0), two touching balls pinch to the edge blur between them (~0.2).
     streak_min_waist: float = 0.75
+    #: The blob's stadium radius (from its moments) over the expected ball
+    #: radius, lower and upper bound (+-1 px). The blob is every pixel above
+    #: the foreground threshold, so its edge lies outside the limb by the
+    #: optical blur and the ball's contact shadow, a few px whatever the ball's
+    #: size: measured 1.14-1.47 at r = 9-11 px and 1.01-1.16 at r = 21 px on
+    #: 30 fps 960x540 renders. Two balls side by side read as >= 2.2 (closed-
+    #: form moments of two touching discs: across variance r^2/4 + r^2).
+    streak_blob_radius: tuple = (0.8, 1.6)
+    #: Largest point asymmetry of a streak (streak.point_asymmetry: the share
+    #: of its foreground strength a half turn about the fitted centre does not
+    #: map onto itself). A swept disc is symmetric under that half turn; a
+    #: streak that ran into a resting ball at a contact frame is not (the rest
+    #: ball's full-coverage disc sits at one end). Measured on our 30 and
+    #: 60 fps fast renders: single streaks 0.01-0.15, streak + resting ball
+    #: 0.26-0.35; our choice between the two groups. Such a blob falls back
+    #: to circle fits.
+    streak_max_asym: float = 0.2
     #: Pixels whose HSV saturation < this and value > white_value count as white
     #: (stripe/cue summary); 0..1 scale, common practice for "white" in HSV.
     white_saturation: float = 0.28

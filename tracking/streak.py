@@ -109,6 +109,7 @@ def streak_axis(d: np.ndarray, x: float, y: float, r_exp: float, threshold: floa
     is False when it is not one ball's smear: its stadium radius is off the
     expected one by more than ``radius_tol``, it is much bigger than the
     stadium its moments describe (touching balls, a ball in its own shadow),
+    its stadium radius is outside ``streak_blob_radius`` x the expected one,
     or its waist (width across the axis through the centroid, over the
     widest) is under ``streak_min_waist`` (two touching balls).
     """
@@ -162,8 +163,8 @@ def _streak_axis(d: np.ndarray, x: float, y: float, r_exp: float, threshold: flo
     return {"x": float(cx + xa), "y": float(cy + ya), "angle": float(np.arctan2(evec[1, 1], evec[0, 1])),
             "length": L, "radius": r, "area_ratio": float(len(xs) / area),
             "waist": waist,
-            "ok": bool(abs(r - r_exp) <= settings.radius_tol * r_exp + 1.0 and len(xs) <= 1.3 * area
-                       and waist >= settings.streak_min_waist)}
+            "ok": bool(settings.streak_blob_radius[0] * r_exp - 1.0 <= r <= settings.streak_blob_radius[1] * r_exp + 1.0
+                       and len(xs) <= 1.3 * area and waist >= settings.streak_min_waist)}
 
 
 # --------------------------------------------------------------------------- edge points
@@ -297,6 +298,26 @@ def fit_point_symmetric(pts: np.ndarray, w0: np.ndarray, centre0: np.ndarray, ha
     return {"centre": c, "coef": coef, "residuals": res, "weights": w, "scale": sig, "cov": cov}
 
 
+def point_asymmetry(dsm: np.ndarray, c: np.ndarray, threshold: float) -> float:
+    """Share of the foreground strength that a half turn about c (px) does not map onto itself.
+
+    sum |d(p) - d(2c - p)| / sum (d(p) + d(2c - p)) over the pixels where
+    either is above ``threshold``. A uniformly swept disc is symmetric under
+    that half turn (module docstring): 0 up to shading, shadow and noise. A
+    streak that has run into a resting ball (a contact frame) carries that
+    ball's full-coverage disc at one end only: its share is about the rest
+    ball's over the blob's whole strength.
+    """
+    M = np.array([[-1.0, 0.0, 2.0 * c[0]], [0.0, -1.0, 2.0 * c[1]]])
+    h, w = dsm.shape
+    rot = cv2.warpAffine(dsm, M, (w, h), flags=cv2.INTER_LINEAR, borderMode=cv2.BORDER_CONSTANT, borderValue=np.nan)
+    a = np.maximum(dsm, 0.0)
+    b = np.maximum(rot, 0.0)
+    m = np.isfinite(rot) & ((dsm > threshold) | (rot > threshold))
+    den = float(np.sum(a[m] + b[m]))
+    return float(np.sum(np.abs(a[m] - b[m]))) / den if den > 0 else 1.0
+
+
 def refine_streak(d: np.ndarray, axis: dict, r_exp: float, settings: DetectionSettings = DetectionSettings(),
                   threshold_dn: float | None = None) -> dict | None:
     """Mid-exposure centre (px) of a smeared ball from its streak in foreground strength ``d``.
@@ -346,6 +367,9 @@ def refine_streak(d: np.ndarray, axis: dict, r_exp: float, settings: DetectionSe
         return None
     if support < settings.min_support or np.hypot(c[0] + xa - x0, c[1] + ya - y0) > 0.5 * r_exp + a:
         return None
+    asym = point_asymmetry(dsm, c, threshold_dn if threshold_dn is not None else 0.0)
+    if asym > settings.streak_max_asym:
+        return None
     n_in = float(np.sum(fit["weights"] > 0.05))
     perim = 2 * np.pi * r_exp + 2 * axis["length"]
     n_eff = max(3.0, min(n_in, perim * support / 1.5))
@@ -358,4 +382,4 @@ def refine_streak(d: np.ndarray, axis: dict, r_exp: float, settings: DetectionSe
                                              * np.sin(k * phi) for i, k in enumerate(ks)))
     return {"x": c[0] + xa, "y": c[1] + ya, "radius": float(fit["coef"][0]), "sigma_px": sig, "reach_px": reach_along,
             "support": support, "fixed_radius": False, "smear_px": float(axis["length"]),
-            "smear_angle": float(axis["angle"]), "end_ratio": ratio}
+            "smear_angle": float(axis["angle"]), "end_ratio": ratio, "asym": asym}
