@@ -196,6 +196,8 @@ class Linker:
                     if dist <= reach:
                         cost[i, j] = s.gate_chi2 + JUMP_PENALTY + s.colour_weight * cd + dist / self.R
                         jump[i, j] = True
+        if nt and n_det and s.pass_through_tol is not None:
+            self._forbid_pass_through(cost, z, t, dt_frame)
         matched_det = set()
         if nt and n_det:
             ri, ci = linear_sum_assignment(cost)
@@ -251,6 +253,43 @@ class Linker:
             tr = self._birth(int(row_ids[j]), z[j], sig[j], col[j], t)
             out[j] = tr.id
         return out
+
+    def _forbid_pass_through(self, cost: np.ndarray, z: np.ndarray, t: float, dt_frame: float) -> None:
+        """Forbid (in ``cost``) track -> detection links whose path crosses a resting ball.
+
+        For a track i fixed in the previous frame, the straight path from its
+        last fix to detection j may not pass within (2 - pass_through_tol)
+        radii of the last fix of another confirmed track k fixed in the previous
+        frame and resting (moving less than half a radius a frame): rigid
+        balls' centres stay two radii apart. Segment-point distance: closest point
+        of the segment, clamped projection (elementary geometry).
+        """
+        if dt_frame <= 0:
+            return
+        R = self.R
+        lim = (2.0 - self.s.pass_through_tol) * R
+        fresh = [tr.t < t and t - tr.t <= 1.5 * dt_frame for tr in self.live]
+        # confirmed tracks only: a tentative one may be a streak's end, no ball
+        rest = [k for k, tr in enumerate(self.live) if fresh[k] and tr.hits >= self.s.confirm_hits
+                and np.hypot(tr.x[2], tr.x[3]) * dt_frame < 0.5 * R]
+        if not rest:
+            return
+        for i, tr in enumerate(self.live):
+            if not fresh[i]:
+                continue
+            a = tr.x[:2]
+            for k in rest:
+                if k == i:
+                    continue
+                b = self.live[k].x[:2]
+                d = z - a                                   # (n_det, 2)
+                L2 = np.maximum(np.einsum("ni,ni->n", d, d), 1e-12)
+                u = np.clip(((b - a) @ d.T) / L2, 0.0, 1.0)  # (n_det,)
+                near = np.hypot(*(a[None, :] + u[:, None] * d - b[None, :]).T) < lim
+                # a ball already touching (or overlapping, by detection error)
+                # that stays put is not crossing it
+                near &= np.linalg.norm(a - b) >= lim
+                cost[i, near] = FORBIDDEN
 
     def jumps(self) -> dict[int, list[int]]:
         """Track id -> detection row ids where the linker re-started the motion."""

@@ -357,10 +357,12 @@ class DetectionSettings:
     #: of this order); re-cast passes.
     streak_harmonics: int = 4
     streak_iters: int = 4
-    #: Centre sigma added in quadrature, x smear length px: along-motion
-    #: errors of ~0.05 L RMS measured on our own fast renders (streaks of
-    #: 15-55 px; shadows and compression make the two ends differ).
-    streak_sigma_frac: float = 0.05
+    #: Centre sigma added in quadrature (per axis), x smear length px: along-
+    #: motion errors of 0.012-0.026 L RMS (across 0.2-1 mm) measured on our
+    #: 30 and 60 fps fast renders (streaks of 1.5-3 radii; shadows and
+    #: compression make the two ends differ); 0.05 there gave streak
+    #: detections a mean squared normalised error of 0.03-0.4.
+    streak_sigma_frac: float = 0.025
     #: A circle-fit detection whose centre lies within this many radii of a
     #: streak's smear path is that streak's end and is dropped (a touching
     #: ball is >= 2 - L/(2r) radii from the path: safe for L < 2.8 r).
@@ -560,6 +562,15 @@ class TrackingSettings:
     #: is always allowed). A ball lost for longer (left the view, covered)
     #: must come back through the gate or start a new track (then stitched).
     jump_max_gap_s: float = 0.05
+    #: Rigid balls cannot pass through each other: a detection is not given
+    #: to a track whose straight path from its last fix (one frame before) to
+    #: it would pass closer than (2 - pass_through_tol) radii to the centre of
+    #: another ball resting there (assign.Linker). At a full hit the moving
+    #: ball's prediction runs on to where the struck ball went; this keeps that
+    #: detection for the struck ball. The tolerance covers the detection
+    #: errors at a contact frame (end fits of a smeared ball: up to ~half a
+    #: radius). None: no such rule.
+    pass_through_tol: float | None = 0.5
     #: Detections in one frame closer than this fraction of a ball diameter are
     #: one ball (balls cannot overlap; touching balls are one diameter apart,
     #: and detection errors are a few mm, well under 20% of a diameter). A long
