@@ -37,7 +37,11 @@ origin at the centre of the top-left pixel):
    comes out small). An opt-in second stage (``limb_linear``,
    :func:`_limb_points`) splits each rim pixel into ball and cloth parts in
    linear light and takes the 50 % coverage point; see the setting for what
-   it was measured to do.
+   it was measured to do. A second opt-in (``edge_shade_free``,
+   :func:`shade_free_de`) locates the edge on a colour difference that
+   ignores darkening of the cloth along its own colour (the cast shadow the
+   dark limb runs into), so the cloth just outside the limb no longer reads
+   as foreground there.
 4. Perspective: the silhouette of a sphere is the image of its tangent cone,
    whose centre is not exactly the projection of the sphere centre. We
    project the exact tangent circle through the calibrated camera (with lens
@@ -272,6 +276,38 @@ def delta_e76(lab_a: np.ndarray, lab_b: np.ndarray) -> np.ndarray:
     """CIE 1976 colour difference Delta-E*ab = |Lab_a - Lab_b| (float32, per pixel)."""
     diff = cv2.subtract(np.asarray(lab_a, np.float32), np.asarray(lab_b, np.float32))
     return cv2.sqrt(cv2.transform(cv2.multiply(diff, diff), np.ones((1, 3), np.float32)))
+
+
+def shade_free_de(lab: np.ndarray, bg_lab: np.ndarray, min_light: float = 0.15) -> np.ndarray:
+    """Colour difference (Delta-E*ab units) that ignores shadow-like darkening of the background.
+
+    With v = (L* + 16, a*, b*) of the pixel and c the same of the background:
+    a pure intensity scale k of a colour multiplies v by k^(1/3) (CIELAB's
+    cube-root branch, CIE 15:2004), so a shadow on the cloth moves v along c,
+    down to min_light^(1/3) |c| (a shadow keeps at least ``min_light`` of
+    the light). Returns the part of v across c combined (root sum of
+    squares) with any brightening past |c| and any darkening below that
+    floor (float32).
+    """
+    v = np.asarray(lab, np.float32) + np.float32([16.0, 0.0, 0.0])
+    c = np.asarray(bg_lab, np.float32) + np.float32([16.0, 0.0, 0.0])
+    cn = np.sqrt(np.einsum("...k,...k->...", c, c)) + np.float32(1e-6)
+    along = np.einsum("...k,...k->...", v, c) / cn
+    perp2 = np.maximum(np.einsum("...k,...k->...", v, v) - along * along, 0.0)
+    over = np.maximum(along - cn, 0.0) + np.maximum(np.float32(min_light ** (1.0 / 3.0)) * cn - along, 0.0)
+    return np.sqrt(perp2 + over * over).astype(np.float32)
+
+
+def edge_map(d: np.ndarray, de: np.ndarray | None, x: float, y: float, r: float,
+             settings: DetectionSettings) -> np.ndarray:
+    """The map to locate a ball's edge on: ``de`` (shade-free) when given and the ball keeps its contrast there.
+
+    Keeps: mean of ``de`` inside 0.6 r of (x, y) px >= edge_shade_free_min_ratio
+    x that of the Delta-E map ``d`` (a black ball does not; see the setting).
+    """
+    if de is not None and _disc_mean(de, x, y, 0.6 * r) >= settings.edge_shade_free_min_ratio * _disc_mean(d, x, y, 0.6 * r):
+        return de
+    return d
 
 
 def _colour_distance(a: np.ndarray, b: np.ndarray) -> np.ndarray:
@@ -1000,6 +1036,9 @@ def detect_frame(image: np.ndarray, calibration: Calibration, settings: Detectio
     thr = background.threshold_dn
     bg_lab, bg_w = background.lab_image(), background.weight_map()
     half_res = r0 >= 6.0
+    # Edge-location strength: Delta-E, or the shade-free difference (see
+    # DetectionSettings.edge_shade_free), filled alongside d.
+    de = None
     if half_res:
         # Seeds from a half-resolution foreground map (4x fewer pixels); the
         # full-resolution strength is computed only in patches round the seeds.
@@ -1012,6 +1051,12 @@ def detect_frame(image: np.ndarray, calibration: Calibration, settings: Detectio
         d = foreground_strength(image, background)
         small = d[y0:y1, x0:x1]
         filled = np.ones(image.shape[:2], bool)
+        if settings.edge_shade_free:
+            de = np.zeros(image.shape[:2], np.float32)
+            de[y0:y1, x0:x1] = shade_free_de(to_lab(image[y0:y1, x0:x1]), bg_lab[y0:y1, x0:x1], settings.shade_min_light) \
+                * bg_w[y0:y1, x0:x1]
+    if half_res and settings.edge_shade_free:
+        de = np.zeros(image.shape[:2], np.float32)
     pad = int(np.ceil(settings.ray_max * float(np.max(background.radius_grid)) + 3 * settings.edge_smooth_px)) + 8
 
     def fill(xa_: int, ya_: int, xb_: int, yb_: int) -> None:
@@ -1019,8 +1064,10 @@ def detect_frame(image: np.ndarray, calibration: Calibration, settings: Detectio
         xa_, ya_, xb_, yb_ = max(xa_, x0), max(ya_, y0), min(xb_, x1), min(yb_, y1)
         if xb_ <= xa_ or yb_ <= ya_ or filled[ya_:yb_, xa_:xb_].all():
             return
-        d[ya_:yb_, xa_:xb_] = delta_e76(to_lab(image[ya_:yb_, xa_:xb_]), bg_lab[ya_:yb_, xa_:xb_]) \
-            * bg_w[ya_:yb_, xa_:xb_]
+        lab_p = to_lab(image[ya_:yb_, xa_:xb_])
+        d[ya_:yb_, xa_:xb_] = delta_e76(lab_p, bg_lab[ya_:yb_, xa_:xb_]) * bg_w[ya_:yb_, xa_:xb_]
+        if de is not None:
+            de[ya_:yb_, xa_:xb_] = shade_free_de(lab_p, bg_lab[ya_:yb_, xa_:xb_], settings.shade_min_light) * bg_w[ya_:yb_, xa_:xb_]
         filled[ya_:yb_, xa_:xb_] = True
     fg = np.clip(small / thr - 0.5, 0, 1).astype(np.float32)
     if half_res:
@@ -1089,7 +1136,7 @@ def detect_frame(image: np.ndarray, calibration: Calibration, settings: Detectio
         r_exp, _, _ = background.lookup(gx, gy)
         ref = streak_centre(gx, gy, r_exp) if settings.streak_fit else None
         if ref is None:
-            ref = refine_centre(d, gx, gy, r_exp, settings, image, thr)
+            ref = refine_centre(edge_map(d, de, gx, gy, r0, settings), gx, gy, r_exp, settings, image, thr)
         if ref is None:
             return False
         r_exp, ox, oy = background.lookup(ref["x"], ref["y"])

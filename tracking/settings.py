@@ -253,6 +253,34 @@ class DetectionSettings:
     #: 0.03 -> 0.25 px), and the contact shadow darkens the cloth next to the
     #: limb faster than the straight-line shadow model allows.
     limb_linear: bool = False
+    #: Edge location on a shade-free colour difference (detect.shade_free_de)
+    #: instead of Delta-E*ab: darkening of the cloth along its own colour
+    #: (the ball's cast shadow) does not count. In CIELAB a pure intensity
+    #: scale k of a colour multiplies (L* + 16, a*, b*) by k^(1/3) (CIE
+    #: 15:2004 cube-root branch, Y/Yn > 0.008856), so a shadow keeps that
+    #: vector's direction; the shade-free difference is the pixel vector's
+    #: part across the cloth's direction plus any brightening past the cloth
+    #: or darkening deeper than a shadow (shade_min_light).
+    #: Seeds, contrast tests and streaks keep Delta-E. Only the silhouette
+    #: edge moves: on the side away from the lamp the limb is dark and runs
+    #: into the ball's own shadow, so with Delta-E the cloth just outside
+    #: still reads as foreground and the steepest drop sits inside the limb.
+    edge_shade_free: bool = False
+    #: A ball that differs from the cloth mostly by being darker along the
+    #: cloth's own colour (a black ball; a dark ball of the cloth's hue) loses
+    #: most of its contrast in the shade-free difference and is located on
+    #: Delta-E: the shade-free map is used when the mean inside 0.6 radius
+    #: keeps at least this share of the Delta-E one. Closed-form Lambertian
+    #: balls (tests/test_limb_shade.py colours: orange, red, blue, white,
+    #: yellow on green, blue, red cloth) keep 0.84-1.0, a black ball
+    #: 0.41-0.48; 0.65 is our choice between the two groups.
+    edge_shade_free_min_ratio: float = 0.65
+    #: Least share of the light a cast shadow keeps (linear light): darker
+    #: than that is not shadow and counts in the shade-free difference (a
+    #: black ball's limb). Under one lamp in a dark room the umbra keeps
+    #: ~10-30 % (ambient and bounce light; from memory), under a row of
+    #: lamps far more; 0.15 is our choice at the low end.
+    shade_min_light: float = 0.15
     #: Reference windows of detect._limb_points: a guard band of
     #: limb_guard_px either side of the first limb estimate (> 2 sigma of a
     #: sharp video camera's blur, lens plus demosaicing ~0.7-1 px; from
