@@ -115,9 +115,10 @@ def touch_time_weights(cov3: np.ndarray) -> np.ndarray:
 
 
 def cushion_core(f: ChainFit, i: int, x, cushion: str, normal: np.ndarray,
-                 length_mm: float, width_mm: float, radius_mm: float, dt: float):
+                 length_mm: float, width_mm: float, contact_mm: float, dt: float):
     """Core values of a ball-cushion contact for parameter vector x: first touch where the
-    pre-contact model is R from the nose line, velocities at the break, e."""
+    pre-contact model is ``contact_mm`` from the nose line (the nose is above the ball's centre:
+    physics/cushion_geometry.py), velocities at the break, e."""
     tb, _, v0, v1 = f.at_break(i, x)
     off = {"x0": np.array([0.0, 0.0]), "xL": np.array([length_mm, 0.0]),
            "y0": np.array([0.0, 0.0]), "yW": np.array([0.0, width_mm])}[cushion]
@@ -127,7 +128,7 @@ def cushion_core(f: ChainFit, i: int, x, cushion: str, normal: np.ndarray,
         dn = (P[0] - off) @ normal
         return np.array([dn, 0.0]) if dn >= 0 else np.array([1e-9, 0.0]), np.array([V[0] @ normal, 0.0])
 
-    t1 = _touch_time(rel, radius_mm, tb, dt)
+    t1 = _touch_time(rel, contact_mm, tb, dt)
     P, _, _ = chain_eval(x, f.layout, np.array([t1]), seg=np.array([i]))
     den = v0 @ normal
     e = -(v1 @ normal) / den if abs(den) > 1e-9 else np.nan

@@ -17,6 +17,7 @@ from threadpoolctl import threadpool_limits
 from feltlab.errors import FeltlabError
 from feltlab.standards import TablePreset
 from physics.compound import annotate_groups
+from physics.cushion_geometry import contact_distance_mm
 from physics.contacts import (
     ball_ball_core,
     cushion_core,
@@ -546,7 +547,8 @@ def _contacts_table(cands, fits, maps, table, R, m, dt, s) -> pd.DataFrame:
                 continue
 
             def core_of(z, f=f, i=i, c=c):
-                return cushion_core(f, i, z, c.cushion, c.normal, table.length_mm, table.width_mm, R, dt)
+                return cushion_core(f, i, z, c.cushion, c.normal, table.length_mm, table.width_mm,
+                                    contact_distance_mm(R, table.cushion_nose_height_mm), dt)
 
             core = core_of(f.x)
             var = propagate(lambda z: _e_t(core_of(z)), f.x, f.cov)

@@ -3,7 +3,8 @@
 Units: mm, s, mm/s, rad/s, kg; impulses N s. Table frame per DEVELOPERS.md
 (x along the long side 0..L, y along the short side 0..W, z up; cushion nose
 lines x=0 ``x0``, x=L ``xL``, y=0 ``y0``, y=W ``yW``; a ball touches a cushion
-when its centre is R from the line).
+when its centre is sqrt(R^2 - (h - R)^2) from the line, h the nose height:
+physics/cushion_geometry.py).
 
 Model and sources
 -----------------
@@ -78,15 +79,13 @@ from feltlab.standards import (
 )
 from physics import _sim_contacts as contacts
 from physics._sim_motion import PHASES, Segment, cushion_time, make_segment, pair_time
+from physics.cushion_geometry import NOSE_HEIGHT_FRACTION, contact_distance_mm
 
 __all__ = [
     "BallInit", "SimParams", "TrueContact", "SimEvent", "SimStates", "SimResult", "simulate",
     "CUSHIONS", "NOSE_HEIGHT_FRACTION",
 ]
 
-#: Cushion nose height as a fraction of ball diameter when the table gives
-#: none: ~63.5% (WPA range 62.5-64.5%, from memory; shared REFERENCES.md).
-NOSE_HEIGHT_FRACTION = 0.635
 
 #: Cushion name -> inward unit normal (from the cushion into the table).
 CUSHIONS: dict[str, tuple[float, float]] = {
@@ -387,14 +386,16 @@ def _check_balls(balls: list[BallInit], params: SimParams) -> None:
         if b.radius_mm <= 0 or b.mass_kg <= 0:
             raise FeltlabError(f"simulate: ball {b.id!r} needs positive radius_mm and mass_kg")
         R = b.radius_mm
-        if not (R - tol <= b.x_mm <= L - R + tol and R - tol <= b.y_mm <= W - R + tol):
-            raise FeltlabError(
-                f"simulate: ball {b.id!r} at ({b.x_mm}, {b.y_mm}) mm is not on the {L} x {W} mm "
-                f"table (its centre must be at least R = {R} mm from every cushion nose)")
         h = params.cushion_height_mm
         if h is not None and not (0.0 < h < 2.0 * R):
             raise FeltlabError(
                 f"SimParams.cushion_height_mm={h} must lie between 0 and the ball diameter {2 * R} mm")
+        dc = contact_distance_mm(R, h)
+        if not (dc - tol <= b.x_mm <= L - dc + tol and dc - tol <= b.y_mm <= W - dc + tol):
+            raise FeltlabError(
+                f"simulate: ball {b.id!r} at ({b.x_mm}, {b.y_mm}) mm is not on the {L} x {W} mm "
+                f"table (its centre must be at least {dc:.2f} mm from every cushion nose, where it "
+                f"touches the nose)")
     for i, a in enumerate(balls):
         for b in balls[i + 1:]:
             d = math.hypot(a.x_mm - b.x_mm, a.y_mm - b.y_mm)
@@ -424,7 +425,10 @@ class _Sim:
             seg = self._segment(i, 0.0, np.array([b.x_mm, b.y_mm]), np.array([b.vx_mm_s, b.vy_mm_s]),
                                 np.array([b.wx, b.wy, b.wz]))
             self.segs.append([seg])
-        self.offsets = {i: {"x0": self.R[i], "xL": self.R[i] - L, "y0": self.R[i], "yW": self.R[i] - W}
+        # a ball touches a cushion when its centre is d from the nose line, d < R
+        # because the nose is above the ball's centre (physics/cushion_geometry.py)
+        dc = [contact_distance_mm(R, params.cushion_height_mm) for R in self.R]
+        self.offsets = {i: {"x0": dc[i], "xL": dc[i] - L, "y0": dc[i], "yW": dc[i] - W}
                         for i in range(self.N)}
         self.next_cushion: list[tuple[float, str | None]] = [(np.inf, None)] * self.N
         self.next_pair: dict[tuple[int, int], float] = {}

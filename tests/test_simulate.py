@@ -14,9 +14,12 @@ from hypothesis import strategies as st
 
 from feltlab.errors import FeltlabError
 from feltlab.standards import G_MM_S2, TABLES
+from physics.cushion_geometry import contact_distance_mm
 from physics.simulate import BallInit, SimParams, simulate
 
 R = 57.15 / 2.0
+#: centre-to-nose distance of a touching ball, default nose height (physics/cushion_geometry.py)
+DC = contact_distance_mm(R, None)
 M = 0.163
 BIG = dict(length_mm=20000.0, width_mm=10000.0)  # no cushion within reach
 
@@ -183,8 +186,9 @@ def test_break_shot_touching_rack(gap):
     for i in range(16):
         d = np.hypot(*(s.pos[:, i + 1:] - s.pos[:, i:i + 1]).transpose(2, 0, 1))
         assert d.size == 0 or d.min() >= 2 * R - 1e-6
-    assert s.pos[..., 0].min() >= R - 1e-6 and s.pos[..., 0].max() <= p.length_mm - R + 1e-6
-    assert s.pos[..., 1].min() >= R - 1e-6 and s.pos[..., 1].max() <= p.width_mm - R + 1e-6
+    dc = contact_distance_mm(R, p.cushion_height_mm)  # centre-to-nose distance at touch (< R)
+    assert s.pos[..., 0].min() >= dc - 1e-6 and s.pos[..., 0].max() <= p.length_mm - dc + 1e-6
+    assert s.pos[..., 1].min() >= dc - 1e-6 and s.pos[..., 1].max() <= p.width_mm - dc + 1e-6
     ke = res.kinetic_energy_J(times)
     n_micro = sum(c.micro for c in res.contacts)
     assert np.all(np.diff(ke) <= n_micro * 0.5 * 0.0815 * (p.min_bounce_mm_s * 1e-3) ** 2 + 1e-12)
@@ -209,8 +213,8 @@ def test_follow_shot_pushing_a_ball_terminates():
 
 @pytest.mark.parametrize("balls", [
     [BallInit("cue", 1000.0, 600.0, wy=100.0), BallInit("b", 1000.0 + 2 * R, 600.0)],  # spin drives it into b
-    [BallInit("cue", R, 600.0, wy=-100.0)],  # spin drives it into the x0 cushion
-    [BallInit("cue", 900.0, 1270.0 - R, wx=-80.0, wz=20.0)],  # into yW
+    [BallInit("cue", DC, 600.0, wy=-100.0)],  # spin drives it into the x0 cushion
+    [BallInit("cue", 900.0, 1270.0 - DC, wx=-80.0, wz=20.0)],  # into yW
 ])
 def test_spinning_ball_at_rest_against_contact_does_not_penetrate(balls):
     """A ball touching a ball or cushion with zero speed but spin that drives it
@@ -220,7 +224,7 @@ def test_spinning_ball_at_rest_against_contact_does_not_penetrate(balls):
     res = simulate(balls, p, 3.0)
     t = np.unique(np.concatenate([np.linspace(0.0, 3.0, 3001), [e.t_s for e in res.events]]))
     s = res.state_at(t)
-    assert s.pos[..., 0].min() >= R - 1e-6 and s.pos[..., 1].max() <= 1270.0 - R + 1e-6
+    assert s.pos[..., 0].min() >= DC - 1e-6 and s.pos[..., 1].max() <= 1270.0 - DC + 1e-6
     if len(balls) == 2:
         assert np.hypot(*(s.pos[:, 1] - s.pos[:, 0]).T).min() >= 2 * R - 1e-6
         assert s.pos[-1, 1, 0] > balls[1].x_mm + 10.0  # b was pushed along
@@ -418,7 +422,8 @@ def test_cushion_frictionless_reverses_normal_times_e(name, start, vel):
     """No cushion friction, no spin: normal velocity reversed times e, the
     tangential component unchanged (Newton's restitution law; rigid cushion
     model, Mathavan et al. 2010 with mu = 0). The contact happens when the
-    centre is R from the nose line."""
+    centre is sqrt(R^2 - (h - R)^2) from the nose line (the nose at height h
+    touches the sphere: physics/cushion_geometry.py)."""
     p = SimParams.for_table(TABLES["pool-9ft"], e_cushion=0.8, mu_cushion=0.0, mu_slide=0.0)
     res = simulate([BallInit("cue", *start, *vel)], p, 2.0)
     c = res.contacts[0]
@@ -429,7 +434,7 @@ def test_cushion_frictionless_reverses_normal_times_e(name, start, vel):
     assert c.va_post @ t == pytest.approx(c.va_pre @ t, abs=1e-9)
     pos = res.state_at([c.t_s]).pos[0, 0]
     line = {"x0": pos[0], "xL": p.length_mm - pos[0], "y0": pos[1], "yW": p.width_mm - pos[1]}[name]
-    assert line == pytest.approx(R, abs=1e-9)
+    assert line == pytest.approx(np.sqrt(R**2 - (p.cushion_height_mm - R) ** 2), abs=1e-9)
 
 
 def test_cushion_with_friction_loses_energy_and_reports_e():
@@ -524,8 +529,9 @@ def test_properties_no_overlap_energy_on_table(scene):
     s = res.state_at(times)
     R_ = balls[0].radius_mm
     tol = 1e-6
-    assert np.all(s.pos[..., 0] >= R_ - tol) and np.all(s.pos[..., 0] <= params.length_mm - R_ + tol)
-    assert np.all(s.pos[..., 1] >= R_ - tol) and np.all(s.pos[..., 1] <= params.width_mm - R_ + tol)
+    dc = contact_distance_mm(R_, params.cushion_height_mm)  # touching the nose (< R_)
+    assert np.all(s.pos[..., 0] >= dc - tol) and np.all(s.pos[..., 0] <= params.length_mm - dc + tol)
+    assert np.all(s.pos[..., 1] >= dc - tol) and np.all(s.pos[..., 1] <= params.width_mm - dc + tol)
     N = len(balls)
     for i in range(N):
         for j in range(i + 1, N):
