@@ -135,6 +135,21 @@ def cushion_core(f: ChainFit, i: int, x, cushion: str, normal: np.ndarray,
     return dict(t=t1, n=normal, pa=P[0], va0=v0, va1=v1, e=e)
 
 
+def hidden_slide_dv(sigma_mm: float, fps: float, mu_s: float, g_mm_s2: float, t_guard_s: float,
+                    z: float) -> float:
+    """Largest velocity change (mm/s) of a slide that starts at a break and that samples with
+    position noise ``sigma_mm`` at ``fps`` do not show at ``z`` sigmas (see
+    PhysicsSettings.hidden_slide_sigma): ``mu_s g t_s`` with
+    ``t_s = t_guard + (20 z^2 sigma^2 / (fps mu_s^2 g^2))^(1/5)``.
+
+    >>> round(hidden_slide_dv(0.3, 60.0, 0.22, 9806.65, 0.004, 2.0))
+    74
+    """
+    a = mu_s * g_mm_s2
+    t_s = t_guard_s + (20.0 * z**2 * sigma_mm**2 / (fps * a**2)) ** 0.2
+    return float(a * t_s)
+
+
 def propagate_cov(fn, x: np.ndarray, cov: np.ndarray) -> np.ndarray:
     """Covariance matrix of the outputs of ``fn(x)`` (array) by central differences."""
     G = _jacobian(fn, x, cov)

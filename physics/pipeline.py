@@ -22,19 +22,26 @@ from physics.contacts import (
     ball_ball_core,
     cushion_core,
     derived,
+    hidden_slide_dv,
     propagate,
     propagate_cov,
     touch_time_weights,
 )
 from physics.events import (
+    CUSHION_NORMALS,
     BallSamples,
+    ContactCandidate,
+    _local_minima,
     ball_samples,
+    cushion_distance,
     find_contacts,
+    gap_step,
     motion_onset,
 )
 from physics.segments import (
     ChainFit,
     ChainLayout,
+    _link_state,
     break_slip,
     fit_chain,
     restart_after_breaks,
@@ -262,11 +269,19 @@ def _analyze(tracks, detections, table, ball_radius_mm, ball_mass_kg, fps, setti
                      for x0 in (f.x, _plausible_start(pass1[name].x, lay_u, s2))]
             fits[name] = min(tries, key=lambda q: q.cost)
             alternates.pop(name, None)
-    contacts = _contacts_table(cands, fits, maps, table, R, m, dt, s)
+    if s.split_hidden:
+        before_split = dict(fits)
+        cands, fits, maps = _split_hidden(samples, cands, onsets, fits, maps, table, R, dt, s, s2, mus, mur)
+        for name in fits:
+            if fits[name] is not before_split[name]:
+                alternates.pop(name, None)  # its runner-up has the old breaks
+    hid = dict(sig={k: float(np.median(b.sig)) for k, b in samples.items()},
+               mu_s=s2.mu_s_prior if np.isfinite(mu[0]) else s.mu_s_prior)
+    contacts = _contacts_table(cands, fits, maps, table, R, m, dt, s, hid)
     if alternates:
         # two fits that explain the samples about equally well: the spread of their restitution
         # is a model-choice uncertainty, added to the propagated sigma
-        alt = _contacts_table(cands, {**fits, **alternates}, maps, table, R, m, dt, s)
+        alt = _contacts_table(cands, {**fits, **alternates}, maps, table, R, m, dt, s, hid)
         both = contacts.merge(alt[["_cand", "e"]], on="_cand", how="left", suffixes=("", "_alt"))
         d = np.nan_to_num(both["e_alt"].to_numpy(float) - both["e"].to_numpy(float))
         contacts["e_sigma"] = np.sqrt(contacts["e_sigma"].to_numpy(float) ** 2 + d**2)
@@ -352,13 +367,13 @@ def _with_slip_shifts(layouts, cands, fits, maps, R, dt, s: PhysicsSettings):
         except (IndexError, ValueError):
             continue
         n = core["n"]
-        ua, _ = break_slip(fa.x, fa.layout, ia)
-        ub, _ = break_slip(fb.x, fb.layout, ib)
         jn = 0.5 * float(((core["vb1"] - core["vb0"]) - (core["va1"] - core["va0"])) @ n)
-        sz = float((ua - core["va0"]) @ n + (ub - core["vb0"]) @ n)
+        bound_x = 2.5 * s.slip_mu_bb_max * max(jn, 0.0)
+        sz = sum(_vertical_slip(f, j, n, bound_x, s.slip_roll_check_z, s.slip_roll_min_samples)
+                 for f, j in ((fa, ia), (fb, ib)))
         if not (np.isfinite(jn) and np.isfinite(sz) and np.all(np.isfinite(n))):
             continue
-        bound = min(2.5 * s.slip_mu_bb_max * max(jn, 0.0), 0.5 * abs(sz))
+        bound = min(bound_x, 0.5 * abs(sz))
         X = -np.sign(sz) * 0.5 * bound
         for b, j in ((c.ball_a, ia), (c.ball_b, ib)):
             shifts[b][j] = (X, n[0], n[1])
@@ -368,6 +383,51 @@ def _with_slip_shifts(layouts, cands, fits, maps, R, dt, s: PhysicsSettings):
             lay.slip_shift = shifts[k]
             lay.slip_shift_sigma = sigmas[k]
     return out
+
+
+def _vertical_slip(f: ChainFit, j: int, n: np.ndarray, x_max: float, z_consistent: float,
+                   min_roll_samples: int) -> float:
+    """Vertical velocity (mm/s) of a ball's contact point just before linked break j, seen from
+    the pass-1 chain: ``(u - v) . n`` with cloth slip u and velocity v (see
+    :func:`_with_slip_shifts`); 0 for a ball at rest.
+
+    Normally the segment before gives it (its slip at the break). Over the last frames before a
+    contact a slide and a roll hardly differ in position, so a fit may roll over there although
+    the ball slides into the contact; rolling, the slip is 0 with no error bar, and for a
+    drawing ball the sign of ``(u - v) . n`` comes out wrong. When the fitted roll phase before
+    the break holds fewer than ``min_roll_samples`` used samples, the segment after is asked
+    too, through slip continuity ``u_before = u_after - dv - X n`` (true up to the unknown shift
+    ``|X| <= x_max``); its estimate replaces the roll's when they differ by more than ``x_max``
+    plus ``z_consistent`` of its propagated sigmas."""
+    lay = f.layout
+    prev = unpack_segment(f.x, lay, j)
+    if prev is None:
+        return 0.0
+    u_end, v_end = break_slip(f.x, lay, j)
+    b = float((u_end - v_end) @ n)
+    starts, _ = segment_starts(f.x, lay)
+    tb = float(f.breaks()[j])
+    t_roll_abs = starts[j] + prev[2]
+    if t_roll_abs >= tb:
+        return b  # sliding at the break: the slip has a gradient there
+    tu = f.t[f.used]
+    if int(((tu > t_roll_abs) & (tu < tb)).sum()) >= min_roll_samples:
+        return b  # a roll the samples show
+
+    def after(z):
+        st = _link_state(z, lay, j)
+        if st is None:
+            return np.array([np.nan])
+        _, _, v_e, _, _, u_start, dv = st
+        return np.array([float((u_start - dv - v_e) @ n)])
+
+    a = float(after(f.x)[0])
+    if not np.isfinite(a):
+        return b
+    va = float(propagate(after, f.x, f.cov)[0])
+    if abs(a - b) <= x_max + z_consistent * np.sqrt(max(va, 0.0)):
+        return b
+    return a
 
 
 def _implied_shift(z: np.ndarray, lay: ChainLayout, j: int, n: np.ndarray) -> float:
@@ -490,6 +550,91 @@ def _rest_fit(b: BallSamples, lay: ChainLayout) -> ChainFit:
     return ChainFit(lay, x, cov, rms, len(b.t), chi2, b.t, b.xy, np.ones(len(b.t), bool))
 
 
+def _split_hidden(samples, cands, onsets, fits, maps, table, R, dt, s, s2, mus, mur):
+    """A segment whose fit is far worse than the noise (reduced chi^2 above ``s.split_chi2``) holds
+    a change the contact finder missed. Each cushion the ball comes near inside it (a local minimum
+    of the sampled gap below the touching margin of physics.events: geometric evidence) is tried
+    as an extra break (free to move 1.5 frame periods, as the sampled minimum may be a frame off
+    the touch); the refitted chain is kept when its robust cost falls by more than dv_z^2 / 2 (the
+    chi^2 gain of a change at dv_z sigmas) and it shows the velocity jump
+    a cushion contact needs at the break (reverses the approach along the normal, larger than
+    ``dv_min_mm_s`` and ``dv_z`` of its propagated sigmas: kinematic evidence). Never a contact
+    without both. Returns (cands, fits, maps), with any new contacts appended to ``cands``."""
+    L, W = table.length_mm, table.width_mm
+    cands = list(cands)
+    for name in list(fits):
+        f = fits[name]
+        lay = f.layout
+        if lay.rest_first and lay.n_seg == 1:
+            continue
+        b = samples[name]
+        starts, _ = segment_starts(f.x, lay)
+        ends = np.concatenate([starts[1:], [b.t[-1] + 1e-9]])
+        P, _ = f.state(b.t)
+        r2 = np.sum(((P - b.xy) / b.sig) ** 2, axis=1)
+        tried = []
+        for k in range(lay.n_seg):
+            if lay.move_offset(k) is None:
+                continue
+            m = f.used & (b.t > starts[k] + 2 * dt) & (b.t < ends[k] - 2 * dt)
+            n = int(m.sum())
+            if n < s.split_min_samples or r2[m].sum() / max(2 * n - 6, 1) < s.split_chi2:
+                continue
+            idx = np.flatnonzero(m)
+            for c, nrm in CUSHION_NORMALS.items():
+                g = cushion_distance(b.xy[idx], c, L, W) - R
+                margin = (s.gap_margin_mm + s.gap_margin_sigma * b.sig[idx].mean(axis=1)
+                          + s.gap_margin_frames * gap_step(g))
+                for j in _local_minima(g):
+                    if g[j] < margin[j]:
+                        tried.append((float(g[j]), float(b.t[idx[j]]), c, nrm))
+        best = None
+        for gap, t_m, c, nrm in sorted(tried):
+            cand = ContactCandidate("ball-cushion", name, "", c, t_m, nrm, gap, 0.0)
+            trial = cands + [cand]
+            lays, mps = _layouts({name: b}, trial, {name: onsets[name]}, dt, s)
+            lay_n = lays[name]
+            ci = len(trial) - 1
+            if ci not in mps[name][0]:
+                continue
+            lay_n = replace(lay_n, break_halfwidth=np.where(
+                np.isclose(lay_n.break_init, t_m), 1.5 * dt, lay_n.break_halfwidth))
+            pri = {kk: _loo_prior(s, mus, mur, (name, kk)) for kk in range(lay_n.n_seg)}
+            fn = fit_chain(b.t, b.xy, b.sig, lay_n, s2, seg_priors=pri)
+            if not (fn.cost < f.cost - 0.5 * s.dv_z**2):
+                continue
+            i = mps[name][0][ci]
+
+            def jump(z, i=i, nrm=nrm):
+                _, _, v0, v1 = fn.at_break(i, z)
+                return np.array([float((v1 - v0) @ nrm)])
+
+            _, _, v0, v1 = fn.at_break(i)
+            dvn = float((v1 - v0) @ nrm)
+            sd = float(np.sqrt(max(propagate(jump, fn.x, fn.cov)[0], 0.0)))
+            if not (v0 @ nrm < 0 and v1 @ nrm > -sd and dvn > s.dv_min_mm_s and dvn > s.dv_z * sd):
+                continue
+            if best is None or fn.cost < best[0].cost:
+                cand.t_init_s = float(fn.breaks()[i])
+                cand.z = dvn / max(sd, 1e-9)
+                best = (fn, cand, mps[name])
+        if best is not None:
+            fits[name] = best[0]
+            cands.append(best[1])
+            maps = {**maps, name: best[2]}
+    return cands, fits, maps
+
+
+def _slide_samples_after(f: ChainFit, i: int) -> int:
+    """Used samples inside the slide phase of the segment after break ``i`` (0: rolls from it)."""
+    par = unpack_segment(f.x, f.layout, i + 1)
+    if par is None:
+        return 0
+    tb = float(f.breaks()[i])
+    tu = f.t[f.used]
+    return int(((tu > tb) & (tu < tb + par[2])).sum())
+
+
 def _roll_flags(f: ChainFit, i: int, x=None) -> tuple[bool, bool]:
     """(rolling or resting before break i, rolling or resting after break i)."""
     tb = float(f.breaks(x)[i])
@@ -498,7 +643,9 @@ def _roll_flags(f: ChainFit, i: int, x=None) -> tuple[bool, bool]:
     return ph0 in ("roll", "rest"), ph1 in ("roll", "rest")
 
 
-def _contacts_table(cands, fits, maps, table, R, m, dt, s) -> pd.DataFrame:
+def _contacts_table(cands, fits, maps, table, R, m, dt, s, hidden=None) -> pd.DataFrame:
+    """Contact rows; ``hidden``: {"sig": ball -> median sample sigma (mm), "mu_s": shot sliding
+    friction} for the hidden-slide term after cushions (PhysicsSettings.hidden_slide_sigma)."""
     rows = []
     for ci, c in enumerate(cands):
         if c.kind == "ball-ball":
@@ -556,6 +703,19 @@ def _contacts_table(cands, fits, maps, table, R, m, dt, s) -> pd.DataFrame:
             d = derived(core, m, False, flags, (False, False))
             dvm = s.mu_s_prior * s.g_mm_s2 * s.model_time_cushion_s
             var[0] += (not flags[1]) * (dvm / max(abs(core["va0"] @ core["n"]), 1e-9)) ** 2
+            # other cushion contacts sharing this break (within one frame): their friction may
+            # have changed this contact's incoming velocity before it (settings)
+            for cj, j in maps[c.ball_a][0].items():
+                if cj != ci and j == i and cands[cj].kind == "ball-cushion":
+                    n_o = cands[cj].normal
+                    dvo = abs(float((core["va1"] - core["va0"]) @ n_o))
+                    var[0] += (s.shared_cushion_mu * dvo / max(abs(core["va0"] @ core["n"]), 1e-9)) ** 2
+            if s.hidden_slide_sigma and hidden is not None and c.ball_a in hidden["sig"]:
+                n_sl = _slide_samples_after(f, i)
+                if n_sl < s.hidden_slide_min_samples:
+                    dvh = hidden_slide_dv(hidden["sig"][c.ball_a], 1.0 / dt, hidden["mu_s"], s.g_mm_s2,
+                                          s.guard_cushion_s, s.hidden_slide_z)
+                    var[0] += (dvh / max(abs(core["va0"] @ core["n"]), 1e-9)) ** 2
             pt = core["pa"] - R * core["n"]
             phase_a = f.phase_at(i, float(f.breaks()[i]) - 1e-6)
             phase_b = ""

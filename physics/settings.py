@@ -10,6 +10,7 @@ from dataclasses import dataclass
 
 from feltlab.standards import (
     G_MM_S2,
+    MU_CUSHION,
     MU_ROLL_RANGE,
     MU_ROLL_TYPICAL,
     MU_SLIDE_CLOTH_RANGE,
@@ -66,6 +67,12 @@ class PhysicsSettings:
     same_contact_s: float = 0.05
 
     # -- kinematic evidence -----------------------------------------------------------------
+    #: Two cushion candidates of one ball at most this many frame periods apart (a corner) are
+    #: also judged by one fit with both changes (physics.events.kink_fit_double), since each
+    #: one-sided window then holds too few samples. Geometry: a ball meeting the second cushion
+    #: within ~2 ball radii of travel after the first, at 0.5-4.5 m/s (Physics of Pool FAQ
+    #: shot speeds) and 60-240 fps, is 1-6 frames later. Design choice.
+    corner_frames: float = 6.0
     side_window_s: float = 0.08
     #: ... but at least this many frame periods on each side (low frame rates). Design choice.
     side_window_frames: float = 8.0
@@ -95,6 +102,25 @@ class PhysicsSettings:
     #: after the contact is uncertain by mu_s g times it.
     model_time_cushion_s: float = 0.0015
     model_time_ball_s: float = 0.0003
+    #: A ball leaves a cushion sliding (its spin is not reversed with its velocity), but a short
+    #: slide can hide in the samples: its path differs from a roll from the break (whose time the
+    #: fit may move) by at most ~ dv (t_s - t)^2 / (2 t_s) over the slide of duration t_s, with
+    #: dv = mu_s g t_s. Summed over the samples after the guard t_g at ``fps``, the squared
+    #: deviation is ~ fps mu_s^2 g^2 (t_s - t_g)^5 / 20 (integral of the square); a slide is
+    #: seen once that reaches ``hidden_slide_z``^2 sigma^2. Where the fit shows no slide after a
+    #: cushion (fewer than ``hidden_slide_min_samples`` used samples in it), the velocity just
+    #: after is uncertain by the largest hidden dv, added to e's sigma. Derivation ours; z = 2
+    #: and 3 samples are design choices.
+    #: Two cushion contacts of one ball within one frame period share one break of its fit (a
+    #: ball into a corner), so the fit sees only their summed velocity change, and the cushion
+    #: met first changes the other's incoming velocity along that other normal by its friction,
+    #: up to mu_c times its own normal change (Coulomb). Each such contact's e gets that much of
+    #: the other's normal change, over its own approach speed, as extra sigma. mu_c: cushion
+    #: friction 0.14 (Mathavan, Jackson & Parkin, Proc. IMechE C 224(9):1863, 2010; feltlab.standards).
+    shared_cushion_mu: float = MU_CUSHION
+    hidden_slide_sigma: bool = True
+    hidden_slide_z: float = 2.0
+    hidden_slide_min_samples: int = 3
 
     # -- motion-model priors (weak; keep parameters defined when data say nothing) -----------
     #: Ball-cloth sliding friction, typical 0.2, range 0.15-0.4 (Physics of Pool FAQ, CSU).
@@ -137,6 +163,12 @@ class PhysicsSettings:
     #: (physics.pipeline._with_slip_shifts) with the ball-ball friction between 0 and this
     #: (upper end of the published 0.03-0.08, Physics of Pool FAQ); replaces the along-dv term.
     slip_mu_bb_max: float = 0.08
+    #: ... whose sign needs each ball's slip just before the contact: a pass-1 fit that rolls over
+    #: within the last ``slip_roll_min_samples`` samples before the contact is not trusted there
+    #: when the slip after the contact (through u' = u + dv + X n) disagrees by more than the
+    #: largest |X| plus ``slip_roll_check_z`` sigmas (physics.pipeline._vertical_slip). Design choice.
+    slip_roll_min_samples: int = 3
+    slip_roll_check_z: float = 3.0
     #: Third pass: the shift is the same X n for both balls of a contact, so each ball's prior
     #: on X takes in the other ball's estimate (physics.pipeline._shared_slip_shifts).
     slip_share_shift: bool = True
@@ -208,6 +240,15 @@ class PhysicsSettings:
     #: survive the fit. 2 sigma: ~2.3 % of true contacts with e near 0 would be lost, and true
     #: restitution is >= 0.5 for every published ball and cushion (feltlab.standards). Design choice.
     e_reject_z: float = 2.0
+
+    #: A move segment whose fit leaves a reduced chi^2 above ``split_chi2`` over at least
+    #: ``split_min_samples`` samples holds a change the contact finder missed (a slow cushion
+    #: touch whose change-point windows were cut short): it is split where a cushion contact
+    #: has both kinds of evidence (physics.pipeline._split_hidden). 4 over >= 12 samples (>= 18
+    #: degrees of freedom) is far beyond the 99.9 % point of chi^2. Design choice.
+    split_hidden: bool = True
+    split_chi2: float = 4.0
+    split_min_samples: int = 12
 
     # -- robust fitting ----------------------------------------------------------------------
     #: scipy.optimize.least_squares loss and scale (in standard errors). Design choice: quadratic
