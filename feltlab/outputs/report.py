@@ -45,13 +45,19 @@ def ms(v_mm_s) -> str:
 
 
 def pm(value, sigma, digits: int | None = None) -> str:
-    """'0.936 ± 0.010': decimals from the sigma (:func:`feltlab.outputs.style.decimals_for`)."""
+    """'0.936 ± 0.010': decimals from the sigma (:func:`feltlab.outputs.style.decimals_for`).
+
+    >>> pm(0.0070, 0.00003, 4)
+    '0.00700 ± 0.00003'
+    """
     v, s = _f(value), _f(sigma)
     if not math.isfinite(v):
         return "n/a"
     if not (math.isfinite(s) and s > 0):
         return f"{v:.{digits or 3}f}"
     d = digits if digits is not None else decimals_for(s)
+    if round(s, d) == 0:  # never print a sigma as 0: show its first significant digit (up to 6 decimals)
+        d = min(6, max(d, -math.floor(math.log10(s))))
     return f"{v:.{d}f} ± {s:.{d}f}"
 
 
