@@ -153,14 +153,19 @@ def rest_runs(t: np.ndarray, z: np.ndarray, sig: np.ndarray, s: TrackingSettings
 
 
 def smooth_ball(frames: np.ndarray, t: np.ndarray, z: np.ndarray, sig: np.ndarray, frame_t: np.ndarray,
-                jumps: set[int], s: TrackingSettings, cov: np.ndarray | None = None):
+                jumps: set[int], s: TrackingSettings, cov: np.ndarray | None = None,
+                sys_var: np.ndarray | None = None):
     """Smoothed per-frame states of one ball from its time-sorted detections.
 
     frames: (N,) frame index of each detection; t: (N,) s; z: (N,2) mm;
     sig: (N,2) mm; frame_t: time (s) of every frame index of the clip;
     jumps: detection indices where the linker saw a velocity jump.
     cov: (N,2,2) mm^2 measurement covariances for the moving pieces
-    (default: from ``sig`` alone).
+    (default: from ``sig`` alone). sys_var: (N,2) mm^2, the part of each
+    moving detection's variance that is the same from frame to frame (the
+    smear of a circle fit, a streak's end asymmetry: the same shading and
+    shadow a frame later); it does not average down, so a moving piece's
+    track variance keeps it (from the nearest detection).
     Returns (rows: dict of arrays over frames first..last, segments
     [(t0, t1, kind)], used: (N,) bool).
     """
@@ -212,7 +217,12 @@ def smooth_ball(frames: np.ndarray, t: np.ndarray, z: np.ndarray, sig: np.ndarra
             fit = smooth_segment(tg, frames[idx] - f0 - g0, z[idx], C[idx], s.accel_sigma_mm_s2,
                                  s.birth_speed_sigma_mm_s)
             X[g0:g1 + 1] = fit.x
-            SX[g0:g1 + 1] = np.sqrt(np.stack([fit.P[:, 0, 0], fit.P[:, 1, 1]], axis=1))
+            var = np.stack([fit.P[:, 0, 0], fit.P[:, 1, 1]], axis=1)
+            if sys_var is not None:
+                gf = np.arange(g0, g1 + 1)
+                near = np.abs(gf[:, None] - (frames[idx] - f0)[None, :]).argmin(axis=1)
+                var = var + sys_var[idx][near]
+            SX[g0:g1 + 1] = np.sqrt(var)
         segments.append((float(frame_t[f0 + g0]), float(frame_t[f0 + g1]), kind))
     # Frames between pieces (missed detections at a contact): extrapolate from
     # the nearer neighbour piece with its end velocity.
@@ -439,7 +449,7 @@ def track_clip(path: str | os.PathLike, table: str | TablePreset | None = DEFAUL
     det_all = pd.concat(chunks, ignore_index=True) if chunks else pd.DataFrame(
         columns=list(chunks[0].columns) if chunks else ["frame", "t_s", "track", "row", "x_mm", "y_mm"])
     jumps = linker.jumps()
-    result = _finish(det_all, jumps, frame_t, cal, ts, warnings)
+    result = _finish(det_all, jumps, frame_t, cal, ts, warnings, ds.streak_sigma_frac)
     if auto_table and calibration is None and not cal.table.pockets and not _carom_set(result[2]):
         # No side pockets, but not a carom ball set either (more than four
         # balls, or stripes): a pool table drawn without pockets. Pool it is.
@@ -471,7 +481,7 @@ def track_clip(path: str | os.PathLike, table: str | TablePreset | None = DEFAUL
 
 
 def _finish(det_all: pd.DataFrame, jumps: dict[int, list[int]], frame_t: np.ndarray, cal: Calibration,
-            ts: TrackingSettings, warnings: list[str]):
+            ts: TrackingSettings, warnings: list[str], streak_sigma_frac: float = 0.0):
     """Detections with track ids -> (tracks, detections, balls, segments_hint)."""
     empty_tracks = pd.DataFrame(columns=TRACK_COLUMNS)
     if det_all.empty or "track" not in det_all:
@@ -519,7 +529,17 @@ def _finish(det_all: pd.DataFrame, jumps: dict[int, list[int]], frame_t: np.ndar
         sig = np.maximum(g[["sx_mm", "sy_mm"]].to_numpy(float), 0.02)
         tt = g.t_s.to_numpy(float)
         C = measurement_cov(tt, z, sig, c_s2, smear_applies(g))
-        rows, segments, used = smooth_ball(fr, tt, z, sig, frame_t, jset, ts, cov=C)
+        # per-axis variance shared by neighbouring frames (mm^2): a streak's
+        # length share of its sigma (tracking/streak.py: the two ends shade and
+        # shadow alike from frame to frame). The smear term is not: smear_scale
+        # measures it from second differences, which a shared bias cancels out of.
+        sys_var = np.zeros_like(sig)
+        if "streak_px" in g and "radius_expected_px" in g:
+            mmpp = cal.ball_radius_mm / np.maximum(g["radius_expected_px"].to_numpy(float), 1e-6)
+            sl = np.nan_to_num(streak_sigma_frac * g["streak_px"].to_numpy(float) * mmpp)
+            sys_var = sys_var + (sl ** 2)[:, None]
+        rows, segments, used = smooth_ball(fr, tt, z, sig, frame_t, jset, ts, cov=C,
+                                           sys_var=np.maximum(sys_var, 0.0))
         used_all.loc[g.index] = used
         det_all.loc[g.index, "sx_mm"] = np.sqrt(C[:, 0, 0])
         det_all.loc[g.index, "sy_mm"] = np.sqrt(C[:, 1, 1])
