@@ -20,8 +20,8 @@ from feltlab.standards import DEFAULT_TABLE, table_preset
 @click.command(name="calibrate")
 @click.argument("clip", type=click.Path(path_type=Path, dir_okay=True))
 @click.option("--table", default=None, metavar="PRESET",
-              help=f"Table preset: pool-9ft, pool-8ft, pool-7ft, snooker, carom (default {DEFAULT_TABLE}, "
-                   "or the --calib file's).")
+              help=f"Table preset: pool-9ft, pool-8ft, pool-7ft, snooker, carom (default {DEFAULT_TABLE}, or "
+                   "carom when the long cushions have no side pockets, or the --calib file's).")
 @click.option("--fps", type=float, default=None, metavar="N",
               help="Capture frame rate, frames/s (only checked here; high-speed cameras store a playback rate).")
 @click.option("--calib", type=click.Path(path_type=Path), default=None, metavar="FILE",
@@ -59,8 +59,14 @@ def command(clip: Path, table: str | None, fps: float | None, calib: Path | None
         if tuple(cal.camera.image_size) != (src.width, src.height):
             raise FeltlabError(f"{calib.name} is for {cal.camera.image_size[0]}x{cal.camera.image_size[1]} px "
                                f"images but {clip.name} is {src.width}x{src.height}")
+    elif preset is None:
+        from tracking.table_choice import calibrate_choosing_table
+
+        cal, notes = calibrate_choosing_table(samples, table_preset(DEFAULT_TABLE))
+        for note in notes:
+            click.echo(f"feltlab: {note}", err=True)
     else:
-        cal = calibrate_auto(samples, preset or table_preset(DEFAULT_TABLE))
+        cal = calibrate_auto(samples, preset)
     frame = np.median(np.stack(samples), axis=0).astype(np.uint8) if len(samples) > 1 else samples[0]
     picture = draw_calibration(frame, cal)
     dest.mkdir(parents=True, exist_ok=True)

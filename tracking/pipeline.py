@@ -40,7 +40,6 @@ from feltlab.errors import FeltlabError
 from feltlab.standards import DEFAULT_TABLE, TablePreset, table_preset
 from tracking.assign import Linker, colour_signature, view_test
 from tracking.ball_size import size_ratio, size_warning, suggest_preset
-from tracking.calibrate import nose_height_mm
 from tracking.calibration import Calibration
 from tracking.detect import build_background, detect_frame
 from tracking.exposure import ExposureMatcher
@@ -48,8 +47,8 @@ from tracking.faint import add_faint, faint_background
 from tracking.kalman import as_cov, smear_cov, smear_scale, smooth_segment, split_segments
 from tracking.labels import label_tracks
 from tracking.overlap import separate_overlaps
-from tracking.pockets import has_side_pockets, side_pocket_contrast
 from tracking.settings import TrackClipSettings, TrackingSettings
+from tracking.table_choice import calibrate_choosing_table
 
 log = logging.getLogger("feltlab.tracking")
 
@@ -384,19 +383,13 @@ def track_clip(path: str | os.PathLike, table: str | TablePreset | None = DEFAUL
         from tracking.calibrate import calibrate_auto
 
         step = max(1, len(imgs) // settings.calibration_frames)
-        cal = calibrate_auto(imgs[::step][: settings.calibration_frames], tp or table_preset(DEFAULT_TABLE))
-        if auto_table and cal.table.pockets:
-            # A carom table is 2:1 like pool and its balls are nearly pool sized:
-            # only the missing side pockets tell (tracking/pockets.py).
-            contrast = np.nanmedian([side_pocket_contrast(im, cal.camera, cal.table,
-                                                          nose_height_mm(cal.table, cal.ball_diameter_mm))
-                                     for im in imgs[::step][:5]], axis=0)
-            if has_side_pockets(list(contrast)) is False:
-                carom = table_preset("carom")
-                log.info("no side pockets (mid-cushion brightness %.2f, %.2f of the cushion's): carom", *contrast)
-                cal = calibrate_auto(imgs[::step][: settings.calibration_frames], carom)
-                warnings.append("table taken as carom: the long cushions have no side pockets; "
-                                "pass --table to set it")
+        calib_imgs = imgs[::step][: settings.calibration_frames]
+        if auto_table:
+            # a carom table is 2:1 like pool: only the missing side pockets tell
+            cal, notes = calibrate_choosing_table(calib_imgs, tp or table_preset(DEFAULT_TABLE))
+            warnings.extend(notes)
+        else:
+            cal = calibrate_auto(calib_imgs, tp or table_preset(DEFAULT_TABLE))
     elif isinstance(calibration, Calibration):
         cal = calibration
     else:
