@@ -8,6 +8,10 @@ changes by the velocity change (u' = u + v' - v); while sliding the ball deceler
 along -u and u shrinks at (7/2) mu_s g, then it rolls (REFERENCES.md, "Closed forms usable as
 oracles"; tests/test_contacts.py: _motion). Values inside the published ranges (Physics of Pool FAQ,
 Colorado State University): e 0.72 (apparent cushion restitution 0.6-0.9), mu_s 0.17, mu_r 0.009.
+
+Where the ball touches: the cushion nose sits above the ball's centre, so the centre is
+D = sqrt(R^2 - (h - R)^2) from the nose line at first touch (h the nose height; 63.5 % of the
+ball's diameter, WPA range 62.5-64.5 %, from memory; physics/cushion_geometry.py), not R.
 """
 from __future__ import annotations
 
@@ -16,7 +20,10 @@ import pytest
 
 from feltlab.standards import G_MM_S2
 from physics.pipeline import analyze_tracks, tables_from_positions
+from physics.cushion_geometry import contact_distance_mm
 from test_contacts import M, R, TABLE, _motion
+
+D = contact_distance_mm(R, TABLE.cushion_nose_height_mm)  # centre to nose line at touch, mm
 
 G = G_MM_S2
 
@@ -40,11 +47,11 @@ def corner_shot(gap_frames=2.6, fps=240.0, e=0.72, mu_s=0.17, mu_r=0.009, v_in=(
     va = np.array(v_in)
     v1 = np.array([va[0], -e * va[1]])
     u1 = v1 - va  # rolling in: slip 0, so u' = v' - v
-    # place the first touch so that the ball reaches x = R after gap_frames frame periods
+    # place the first touch so that the ball reaches x = D after gap_frames frame periods
     t_gap = gap_frames * dt
     d, _ = _motion(np.zeros(2), v1, u1, mu_s, mu_r, [t_gap])[0], None
-    x1 = R - d[0]
-    p1 = np.array([x1, R])
+    x1 = D - d[0]
+    p1 = np.array([x1, D])
     t1 = t_pre + rng.uniform(0, dt)
     t2 = t1 + t_gap
     v2m, u2m = _slide_state(v1, u1, mu_s, t_gap)
@@ -62,7 +69,7 @@ def corner_shot(gap_frames=2.6, fps=240.0, e=0.72, mu_s=0.17, mu_r=0.009, v_in=(
     p[mid] = _motion(p1, v1, u1, mu_s, mu_r, t[mid] - t1)
     post = t >= t2
     p[post] = _motion(p2, v2, u2, mu_s, mu_r, t[post] - t2)
-    assert abs(p2[0] - R) < 1e-6
+    assert abs(p2[0] - D) < 1e-6
     tracks, det = tables_from_positions(t, {"cue": p}, sigma, rng, fps)
     return tracks, det, (t1, t2), (va, v1, v2m, v2)
 

@@ -8,6 +8,10 @@ and keeps the tangential part; the ball's spin is unchanged through the contact,
 sliding with slip u' = v' - v (rolling in, u = 0), decelerates at mu_s g along -u' and rolls from
 2 |u'| / (7 mu_s g) on at (5 v' + 2 R omega x z) / 7 (REFERENCES.md, "Closed forms usable as
 oracles"; tests/test_contacts.py: _motion).
+
+Where the ball touches: the cushion nose sits above the ball's centre, so the centre is
+D = sqrt(R^2 - (h - R)^2) from the nose line at first touch (h the nose height; 63.5 % of the
+ball's diameter, WPA range 62.5-64.5 %, from memory; physics/cushion_geometry.py), not R.
 """
 from __future__ import annotations
 
@@ -17,7 +21,10 @@ import pytest
 from feltlab.standards import G_MM_S2
 from physics.events import gap_step
 from physics.pipeline import analyze_tracks, tables_from_positions
+from physics.cushion_geometry import contact_distance_mm
 from test_contacts import M, R, TABLE, _motion
+
+D = contact_distance_mm(R, TABLE.cushion_nose_height_mm)  # centre to nose line at touch, mm
 
 
 def cushion_bounce(v_in=(100.0, -1800.0), e=0.8, fps=60.0, phase=0.5, sigma=0.25, seed=0,
@@ -32,7 +39,7 @@ def cushion_bounce(v_in=(100.0, -1800.0), e=0.8, fps=60.0, phase=0.5, sigma=0.25
     va = np.array(v_in, float)
     sp = float(np.hypot(*va))
     d = va / sp
-    pc = np.array([1200.0, R])  # centre at the touch: R from the nose line y = 0
+    pc = np.array([1200.0, D])  # centre at the touch: D from the nose line y = 0
     pre = t < tc
     tau = tc - t[pre]
     p = np.zeros((len(t), 2))

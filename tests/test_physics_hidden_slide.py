@@ -9,6 +9,10 @@ choice here); then the slide-then-roll closed form of REFERENCES.md ("Closed for
 oracles": deceleration mu_s g along -u, slip shrinking at 7/2 mu_s g; tests/test_contacts.py:
 _motion). Friction and rolling values inside the published ranges (Physics of Pool FAQ, Colorado
 State University): mu_s 0.25, mu_r 0.0086; apparent cushion restitution 0.81 (0.6-0.9).
+
+Where the ball touches: the cushion nose sits above the ball's centre, so the centre is
+D = sqrt(R^2 - (h - R)^2) from the nose line at first touch (h the nose height; 63.5 % of the
+ball's diameter, WPA range 62.5-64.5 %, from memory; physics/cushion_geometry.py), not R.
 """
 from __future__ import annotations
 
@@ -18,7 +22,10 @@ import pytest
 from feltlab.standards import G_MM_S2
 from physics.contacts import hidden_slide_dv
 from physics.pipeline import analyze_tracks, tables_from_positions
+from physics.cushion_geometry import contact_distance_mm
 from test_contacts import M, R, TABLE, _motion
+
+D = contact_distance_mm(R, TABLE.cushion_nose_height_mm)  # centre to nose line at touch, mm
 
 
 def slow_bounce(k=0.3, v_in=(10.0, -270.0), e=0.81, fps=60.0, sigma=0.29, seed=0, mu_s=0.25,
@@ -31,7 +38,7 @@ def slow_bounce(k=0.3, v_in=(10.0, -270.0), e=0.81, fps=60.0, sigma=0.29, seed=0
     va = np.array(v_in)
     sp = float(np.hypot(*va))
     d = va / sp
-    pc = np.array([1300.0, R])
+    pc = np.array([1300.0, D])
     pre = t < tc
     tau = tc - t[pre]
     p = np.zeros((len(t), 2))
