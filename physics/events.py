@@ -485,12 +485,14 @@ def find_contacts(
     for a in names:
         for c, n in CUSHION_NORMALS.items():
             g = cushion_distance(P[a], c, length_mm, width_mm) - radius_mm
-            # travel in one frame: the local speed, or the sampled gap's own step to a neighbour,
-            # whichever is larger (a centred speed fit across a bounce sees the reversal, not the
-            # speed: a ball meeting the cushion at 1.8 m/s at 60 fps leaves samples up to 30 mm
-            # from the nose while its centred speed is ~100 mm/s)
-            margin = (s.gap_margin_mm + s.gap_margin_sigma * np.nan_to_num(S[a], nan=1.0)
-                      + s.gap_margin_frames * np.maximum(np.nan_to_num(V[a], nan=0.0) * dt, gap_step(g)))
+            # travel in one frame: the local speed, or the sampled gap's own step to a neighbour
+            # beyond its noise allowance, whichever is larger (a centred speed fit across a bounce
+            # sees the reversal, not the speed: a ball meeting the cushion at 1.8 m/s at 60 fps
+            # leaves samples up to 30 mm from the nose while its centred speed is ~100 mm/s; a
+            # slow ball's step is mostly noise and must not widen the margin)
+            noise = s.gap_margin_sigma * np.nan_to_num(S[a], nan=1.0)
+            margin = (s.gap_margin_mm + noise + s.gap_margin_frames
+                      * np.maximum(np.nan_to_num(V[a], nan=0.0) * dt, gap_step(g) - noise))
             for k in _local_minima(g):
                 if g[k] < margin[k] and V[a][k] > s.rest_speed_mm_s:
                     geo.append(("ball-cushion", a, "", c, k, float(g[k]), n))
