@@ -96,3 +96,30 @@ def test_smear_scale_leaves_streak_fits_out():
     # ignoring the mask (every detection smeared) underestimates c by ~ (2/3 of 6) / 6 weights
     c_all = smear_scale([(t, z, R)], 1e-3)
     assert c_all < 0.85 * c_true
+
+
+def test_ball_beside_a_streak_does_not_count():
+    """A resting ball beside a streak (outside its stadium, not touching) leaves it a streak.
+
+    The asymmetry is taken only within the blob's stadium; over the whole
+    patch the neighbour's disc would have no mirror image and read as the
+    one-sided excess of a contact (closed form above: up to 1/2).
+    """
+    r, L = 11.0, 36.0
+    cloth = (0.05, 0.25, 0.04)
+    light = (0.3, -0.2, 1.0)
+    c = np.array([62.4, 40.3])
+    u = np.array([1.0, 0.0])
+    img = swept_ball(c, u, L, r, (0.8, 0.82, 0.85), cloth, light, 0.35)
+    p = c + np.array([-8.0, 2.9 * r])  # beside the streak, 0.9 r clear of its side
+    rest = lambert_ball(p[0], p[1], r, (0.75, 0.7, 0.2), cloth, light, 0.35, size=SIZE, ss=4)
+    ys, xs = np.mgrid[0:SIZE[1], 0:SIZE[0]]
+    in_rest = (xs - p[0]) ** 2 + (ys - p[1]) ** 2 < r * r
+    frame, bg = encode_frame(np.where(in_rest[..., None], rest, img), cloth, blur_px=0.8, noise_dn=1.0, seed=6)
+    d = delta_e76(to_lab(frame), to_lab(bg))
+    thr = threshold(d)
+    ax = streak_axis(d, c[0], c[1], r, thr, S)
+    assert ax is not None and ax["ok"]
+    st = refine_streak(d, ax, r, S, thr)
+    assert st is not None and st["asym"] < S.streak_max_asym, st
+    assert np.hypot(st["x"] - c[0], st["y"] - c[1]) < 0.1 * L

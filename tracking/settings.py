@@ -447,10 +447,11 @@ class DetectionSettings:
     #: of its foreground strength a half turn about the fitted centre does not
     #: map onto itself). A swept disc is symmetric under that half turn; a
     #: streak that ran into a resting ball at a contact frame is not (the rest
-    #: ball's full-coverage disc sits at one end). Measured on our 30 and
-    #: 60 fps fast renders: single streaks 0.01-0.15, streak + resting ball
-    #: 0.26-0.35; our choice between the two groups. Such a blob falls back
-    #: to circle fits.
+    #: ball's full-coverage disc sits at one end). Taken within the blob's
+    #: stadium only (a ball beside the streak is not part of it). Measured on
+    #: our 30 and 60 fps fast renders: single streaks 0.01-0.2, streak +
+    #: resting ball 0.25-0.51; our choice between the two groups. Such a blob
+    #: falls back to circle fits.
     streak_max_asym: float = 0.2
     #: Pixels whose HSV saturation < this and value > white_value count as white
     #: (stripe/cue summary); 0..1 scale, common practice for "white" in HSV.

@@ -298,11 +298,13 @@ def fit_point_symmetric(pts: np.ndarray, w0: np.ndarray, centre0: np.ndarray, ha
     return {"centre": c, "coef": coef, "residuals": res, "weights": w, "scale": sig, "cov": cov}
 
 
-def point_asymmetry(dsm: np.ndarray, c: np.ndarray, threshold: float) -> float:
+def point_asymmetry(dsm: np.ndarray, c: np.ndarray, threshold: float, region: np.ndarray | None = None) -> float:
     """Share of the foreground strength that a half turn about c (px) does not map onto itself.
 
     sum |d(p) - d(2c - p)| / sum (d(p) + d(2c - p)) over the pixels where
-    either is above ``threshold``. A uniformly swept disc is symmetric under
+    either is above ``threshold`` (and, if given, inside ``region``, a bool
+    mask of the patch that should itself be point-symmetric about c, so
+    that another ball beside the streak does not count). A uniformly swept disc is symmetric under
     that half turn (module docstring): 0 up to shading, shadow and noise. A
     streak that has run into a resting ball (a contact frame) carries that
     ball's full-coverage disc at one end only: its share is about the rest
@@ -314,6 +316,8 @@ def point_asymmetry(dsm: np.ndarray, c: np.ndarray, threshold: float) -> float:
     a = np.maximum(dsm, 0.0)
     b = np.maximum(rot, 0.0)
     m = np.isfinite(rot) & ((dsm > threshold) | (rot > threshold))
+    if region is not None:
+        m &= region
     den = float(np.sum(a[m] + b[m]))
     return float(np.sum(np.abs(a[m] - b[m]))) / den if den > 0 else 1.0
 
@@ -367,7 +371,14 @@ def refine_streak(d: np.ndarray, axis: dict, r_exp: float, settings: DetectionSe
         return None
     if support < settings.min_support or np.hypot(c[0] + xa - x0, c[1] + ya - y0) > 0.5 * r_exp + a:
         return None
-    asym = point_asymmetry(dsm, c, threshold_dn if threshold_dn is not None else 0.0)
+    # only within the blob's stadium about the fitted centre (its moments'
+    # radius, which already reaches past the limb, + 1 px): a ball beside
+    # the streak is not part of it, one it ran into is (the blob held both)
+    yy, xx = np.mgrid[0:dsm.shape[0], 0:dsm.shape[1]]
+    rel_x, rel_y = xx - c[0], yy - c[1]
+    inside = np.hypot(rel_x, rel_y) <= stadium_reach(np.arctan2(rel_y, rel_x), axis["angle"], a,
+                                                     max(axis["radius"], r_exp) + 1.0)
+    asym = point_asymmetry(dsm, c, threshold_dn if threshold_dn is not None else 0.0, inside)
     if asym > settings.streak_max_asym:
         return None
     n_in = float(np.sum(fit["weights"] > 0.05))
