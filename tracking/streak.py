@@ -28,6 +28,13 @@ Steps (:func:`refine_streak`):
    symmetric under a half turn about its centre; a one-sided shadow cannot
    be absorbed by the shape and is down-weighted as outlying rays.
    Rays are re-cast from the new centre until it settles.
+4. Checks that it is one ball's sweep: ramped ends (short smears), and
+   :func:`point_asymmetry` of the foreground strength within the blob's
+   stadium about the fitted centre (a streak that ran into a resting ball
+   at a contact frame carries that ball's disc at one end only). A blob
+   that fails falls back to circle fits; the detection's sigma adds
+   ``streak_sigma_frac`` x L for the ends' different shading, an error the
+   tracker treats as shared by neighbouring frames (tracking/pipeline.py).
 """
 from __future__ import annotations
 
