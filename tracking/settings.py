@@ -280,9 +280,15 @@ class DetectionSettings:
     #: 0.40 -> 0.24, 0.43 -> 0.30), within 0.01 on 2, lower on 3 (8201 0.73
     #: -> 0.62, 8203 3.36 -> 1.34, 8302 3.21 -> 2.91); D2's resting yellow-
     #: stripe ball on blue cloth gets worse (detection median 0.39 -> 0.49
-    #: mm). Renders 8101-8104 were the diagnosis set (the shade_min_light
-    #: floor came from a black ball in 8103). Closed-form shadowed balls:
-    #: tests/test_limb_shade.py.
+    #: mm). MuJoCo renders (scripts/make_mujoco_clips.py, seeds 8401-8403,
+    #: 1280x720 60 fps, chosen before looking), truth-camera rmse_move /
+    #: rmse_rest: 4.50/2.19 -> 0.80/1.99, 3.79/0.98 -> 3.83/0.98, 1.40/2.68
+    #: -> 0.44/0.21 (the 8402 tail: a ball smeared 0.5-1 radius, where both
+    #: maps miss by 2-3 mm and this one by 3-5). The recovered diameter
+    #: shrinks on two of them (diam_mm 54.4 -> 53.0, 57.8 -> 53.9): dark
+    #: limbs lose contrast. Renders 8101-8104 were the diagnosis set (the
+    #: shade_min_light floor came from a black ball in 8103). Closed-form
+    #: shadowed balls: tests/test_limb_shade.py.
     edge_shade_free: bool = False
     #: A ball that differs from the cloth mostly by being darker along the
     #: cloth's own colour (a black ball; a dark ball of the cloth's hue) loses
