@@ -265,7 +265,11 @@ class DetectionSettings:
     #: edge moves: on the side away from the lamp the limb is dark and runs
     #: into the ball's own shadow, so with Delta-E the cloth just outside
     #: still reads as foreground and the steepest drop sits inside the limb.
-    #: Off by default: better on D1 and most renders, not on D2. Measured
+    #: On by default since 2026-12-02 (integrator's call on the figures below:
+    #: large gains on the outside engine's renders - D1 and two of three
+    #: MuJoCo renders of our own - and on 3 of 4 fresh renders of ours, D2
+    #: neutral; the cost is a tail of 2-5 mm misses on balls smeared 0.5-1
+    #: radius, the same class that Delta-E misses by 2-3 mm). Measured
     #: (2026-12-02): outside-footage score (auto calibration) D1 0.77 ->
     #: 0.43 mm, D2 0.64 -> 0.64 (median 0.64 -> 0.62), recall/precision 1.00
     #: both ways, e error median 0.0042 both, max 0.0068 -> 0.0095; truth-
@@ -289,7 +293,7 @@ class DetectionSettings:
     #: limbs lose contrast. Renders 8101-8104 were the diagnosis set (the
     #: shade_min_light floor came from a black ball in 8103). Closed-form
     #: shadowed balls: tests/test_limb_shade.py.
-    edge_shade_free: bool = False
+    edge_shade_free: bool = True
     #: A ball that differs from the cloth mostly by being darker along the
     #: cloth's own colour (a black ball; a dark ball of the cloth's hue) loses
     #: most of its contrast in the shade-free difference and is located on
@@ -660,11 +664,13 @@ class TrackingSettings:
     #: [ball_size_low, ball_size_high]: a wrong --table preset or ball set.
     #: The detector finds the silhouette slightly inside the true limb: the
     #: ratio is 0.95-0.99 with the right preset (outside footage D1/D2 0.953,
-    #: renders 0.98); a preset mistake multiplies it by 1.087 or 1/1.087 (8-ft
-    #: vs 9-ft pool, 100/92 in, WPA), 0.919 (snooker 52.5 mm balls, WPBSA, on
-    #: a pool preset) or 1.076 (carom 61.5 mm, UMB); the band keeps >= 2 %
-    #: clear of both (a carom set on a pool preset can go unnoticed).
-    ball_size_low: float = 0.925
+    #: renders 0.98), down to 0.93 with the shade-free edge map on some
+    #: renders (DetectionSettings.edge_shade_free); a preset mistake multiplies
+    #: it by 1.087 or 1/1.087 (8-ft vs 9-ft pool, 100/92 in, WPA), 0.654
+    #: (snooker table and balls on a 9-ft pool preset, WPBSA) or 0.9625 (carom,
+    #: UMB: goes unnoticed). The low edge leaves the measured bias room; the
+    #: high edge stays >= 2 % clear of an 8-ft table read as 9-ft.
+    ball_size_low: float = 0.90
     ball_size_high: float = 1.03
 
 
