@@ -465,3 +465,18 @@ def test_low_res_varied_tables_refuse_or_fit(seed):
     for z in (0.0, table.ball.radius_mm, nose_height_mm(table, table.ball.diameter_mm)):
         err = np.linalg.norm(cal.camera.project(_corners(table, z)) - truth.project(_corners(table, z)), axis=1)
         assert err.max() < 1.0, f"z = {z} mm corners off by {err.round(2)} px"
+
+
+def test_implausible_lens_distortion_is_flagged():
+    """A fitted |k1| beyond video lenses (0.4, settings note) means a cushion line was taken on the wrong
+    edge: the calibration says so. Ordinary lenses (k1 -0.02..-0.15 on the outside footage and our renders)
+    are not flagged."""
+    from tracking.calibrate import lens_note
+    from tracking.settings import CalibrationSettings
+
+    lim = CalibrationSettings().k1_warn
+    for k1 in (-0.02, -0.06, -0.15, 0.05, -lim):
+        assert lens_note(k1, lim) is None
+    for k1 in (-0.66, lim + 0.01, -1.0):
+        msg = lens_note(k1, lim)
+        assert msg is not None and f"{k1:.2f}" in msg and "calibrate from a file" in msg

@@ -300,10 +300,27 @@ def calibrate_auto(frames: list[np.ndarray], table: TablePreset, ball_diameter_m
             f"the table's length/width looks {chk.length_scale * L / W:.3f}, not {L / W:.3f} as for "
             f"{table.name}: is this the right table preset?")
     cam_fit = fit.camera
+    lens = lens_note(float(cam_fit.dist[0]), settings.k1_warn)
+    if lens:
+        notes.append(lens)
     cam_fit.meta = {"layout": layout, "nose_height_mm": z_nose, "n_edge_points": int(n_nose),
                     "height_from": height_from}
     return Calibration(camera=cam_fit, table=table, ball_diameter_mm=ball_d, residual_px=res_px,
                        residual_mm=res_mm, method="auto", notes=notes)
+
+
+def lens_note(k1: float, limit: float) -> str | None:
+    """Warning for a fitted radial distortion beyond what video lenses show (None when plausible).
+
+    >>> lens_note(-0.05, 0.4) is None
+    True
+    >>> lens_note(-0.66, 0.4)[:40]
+    'fitted lens distortion k1 = -0.66 is lar'
+    """
+    if abs(k1) <= limit:
+        return None
+    return (f"fitted lens distortion k1 = {k1:.2f} is larger than video lenses show (|k1| <= {limit}): a cushion "
+            "line was probably found on the wrong edge; check calibration.png or calibrate from a file")
 
 
 def _fit_robust(cam, groups, L, W, settings, prior):

@@ -137,6 +137,12 @@ class CalibrationSettings:
     #: more than this fraction (a different table size; WPA tolerance is
     #: 3.2 mm on 1270 mm, 0.25%).
     aspect_warn_frac: float = 0.03
+    #: Warn when the fitted radial distortion |k1| exceeds this: common video
+    #: lenses stay within ~0.3 in OpenCV's normalised model, wide action
+    #: cameras reach it (from memory); a larger fitted k1 usually means an
+    #: edge was found on the wrong line and the fit bent the lens to reach it
+    #: (our MuJoCo render mj9104: k1 -0.66, corners 41 px off).
+    k1_warn: float = 0.4
     #: Refuse a fitted camera higher than this above the cloth (mm): a table
     #: room's ceiling is ~2.5-4 m (common practice); 10 m leaves room for halls.
     #: Edge points on the wrong line (a rail instead of the nose) give fits
