@@ -22,6 +22,16 @@ from tracking.streak import point_asymmetry, refine_streak, streak_axis
 S = DetectionSettings()
 
 
+def _with_resting_ball(img, p, r, colour, cloth, light, seed):
+    """Delta-E map and threshold of ``img`` with a resting Lambertian ball of ``colour`` at p (px) on top."""
+    rest = lambert_ball(p[0], p[1], r, colour, cloth, light, 0.35, size=SIZE, ss=4)
+    ys, xs = np.mgrid[0:SIZE[1], 0:SIZE[0]]
+    in_rest = (xs - p[0]) ** 2 + (ys - p[1]) ** 2 < r * r
+    frame, bg = encode_frame(np.where(in_rest[..., None], rest, img), cloth, blur_px=0.8, noise_dn=1.0, seed=seed)
+    d = delta_e76(to_lab(frame), to_lab(bg))
+    return d, threshold(d)
+
+
 @pytest.mark.parametrize("length,ang", [(10.0, 15.0), (24.0, -40.0), (40.0, 95.0)])
 def test_swept_disc_is_point_symmetric(length, ang):
     """Closed-form swept coverage: asymmetry ~0 about the true centre, clearly not about a shifted one."""
@@ -64,12 +74,7 @@ def test_rendered_streak_passes_and_streak_into_resting_ball_falls_back():
     assert np.hypot(st["x"] - c[0], st["y"] - c[1]) < 0.1 * L  # streak_sigma_frac scale, module docstring
     # the moving ball touches a resting one at its leading end (a contact frame)
     p = c + (L / 2 + 2 * r) * u
-    rest = lambert_ball(p[0], p[1], r, (0.1, 0.1, 0.6), cloth, light, 0.35, size=SIZE, ss=4)
-    ys, xs = np.mgrid[0:SIZE[1], 0:SIZE[0]]
-    in_rest = (xs - p[0]) ** 2 + (ys - p[1]) ** 2 < r * r
-    frame, bg = encode_frame(np.where(in_rest[..., None], rest, img), cloth, blur_px=0.8, noise_dn=1.0, seed=4)
-    d = delta_e76(to_lab(frame), to_lab(bg))
-    thr = threshold(d)
+    d, thr = _with_resting_ball(img, p, r, (0.1, 0.1, 0.6), cloth, light, seed=4)
     ax = streak_axis(d, c[0], c[1], r, thr, S)
     st = refine_streak(d, ax, r, S, thr) if ax is not None and ax["ok"] else None
     assert st is None, st
@@ -112,12 +117,7 @@ def test_ball_beside_a_streak_does_not_count():
     u = np.array([1.0, 0.0])
     img = swept_ball(c, u, L, r, (0.8, 0.82, 0.85), cloth, light, 0.35)
     p = c + np.array([-8.0, 2.9 * r])  # beside the streak, 0.9 r clear of its side
-    rest = lambert_ball(p[0], p[1], r, (0.75, 0.7, 0.2), cloth, light, 0.35, size=SIZE, ss=4)
-    ys, xs = np.mgrid[0:SIZE[1], 0:SIZE[0]]
-    in_rest = (xs - p[0]) ** 2 + (ys - p[1]) ** 2 < r * r
-    frame, bg = encode_frame(np.where(in_rest[..., None], rest, img), cloth, blur_px=0.8, noise_dn=1.0, seed=6)
-    d = delta_e76(to_lab(frame), to_lab(bg))
-    thr = threshold(d)
+    d, thr = _with_resting_ball(img, p, r, (0.75, 0.7, 0.2), cloth, light, seed=6)
     ax = streak_axis(d, c[0], c[1], r, thr, S)
     assert ax is not None and ax["ok"]
     st = refine_streak(d, ax, r, S, thr)
