@@ -2,7 +2,8 @@
 """Render overhead pool clips with exact truth using MuJoCo (an independent second renderer).
 
 usage: MUJOCO_GL=egl PY make_mujoco_clips.py OUT_DIR --seeds 9101 9102 [--duration S] [--fps N]
-       [--size WxH] [--max-subframes S]
+       [--size WxH] [--max-subframes S] [--cloth green|blue|red|grey] [--ball-set pool|snooker|carom]
+       [--k1 K] [--lamps N] [--light F] [--cushion-shade F] [--suffix S]
 
 PY is a Python with ``mujoco``, ``numpy`` and ``opencv-python-headless`` (optional extra
 ``feltlab[mujoco]``; not a project dependency). Per seed: a cut shot on a pool-9ft table simulated
@@ -12,6 +13,8 @@ K), optical blur, vignette, brightness gradient, white balance, lamp flicker and
 written as MPEG-4 Part 2 (cv2.VideoWriter 'mp4v'). Beside each ``mjSEED.mp4`` goes
 ``mjSEED.truth.json`` in the same layout as ../shared/footage/*.truth.json, so
 ``../shared/score_footage.py --clips OUT_DIR`` and ``scripts/bench_tracking.py`` read it.
+The sweep options override one drawn condition each (mujoco_scene.apply_overrides), after the
+draw, so a seed keeps the rest of its scene; ``--suffix`` keeps such variants apart (mjSEED_SUFFIX).
 Finished clips are never overwritten (the seed is skipped); files are written under a temporary
 name and renamed when complete.
 """
@@ -108,6 +111,8 @@ def choose_shot(seed: int, args) -> tuple[ms.Scene, object, mt.SimRun, np.ndarra
             sc.camera.size = (w, h)
         if args.max_subframes:
             sc.subframes = min(sc.subframes, args.max_subframes)
+        ms.apply_overrides(sc, cloth=args.cloth, ball_set=args.ball_set, k1=args.k1, lamps=args.lamps,
+                           light=args.light, cushion_shade=args.cushion_shade)
         n = int(round(sc.duration_s * sc.fps))
         sc.duration_s = n / sc.fps
         canvas, mx, my = canvas_and_maps(sc.camera)
@@ -152,7 +157,8 @@ def truth_json(sc: ms.Scene, run: mt.SimRun, contacts: list[dict], name: str, re
     ang = math.degrees(math.asin((ms.NOSE_MM - ms.R_MM) / ms.R_MM))
     return dict(
         clip=name, description=f"independent MuJoCo render, seed {sc.seed}: {sc.extra['cut_deg']:.0f} deg cut, "
-                               f"{sc.fps} fps, {cam.size[0]}x{cam.size[1]}, {sc.cloth} cloth, {len(sc.lamps)} lamp(s)",
+                               f"{sc.fps} fps, {cam.size[0]}x{cam.size[1]}, {sc.cloth} cloth, {len(sc.lamps)} lamp(s), "
+                               f"k1 {cam.k1:.3f}, cushion shade {sc.extra.get('cushion_shade', ms.CUSHION_SHADE):.2f}",
         video=f"{name}.mp4", fps=sc.fps, n_frames=n, resolution=list(cam.size), duration_s=sc.duration_s,
         time_convention="frame k (0-based) is centred on t_s = k/fps (mid-exposure); exposure_s long; "
                         "contact t_s = first-touch time on the same clock",
@@ -202,7 +208,7 @@ def render_clip(seed: int, out_dir: Path, args) -> Path:
     import cv2
     import mujoco
 
-    name = f"mj{seed}"
+    name = f"mj{seed}{'_' + args.suffix if args.suffix else ''}"
     video, tpath = out_dir / f"{name}.mp4", out_dir / f"{name}.truth.json"
     if not args.truth_only and (video.exists() or tpath.exists()):
         print(f"{video} exists: kept (delete it to re-render)")
@@ -263,10 +269,18 @@ def main(argv=None) -> int:
     ap.add_argument("out", type=Path)
     ap.add_argument("--seeds", type=int, nargs="+", required=True)
     ap.add_argument("--duration", type=float, default=None, help="clip length s (default: drawn in 1.5-2.5)")
-    ap.add_argument("--fps", type=int, default=None, help="override the drawn frame rate (60, 120, 240)")
+    ap.add_argument("--fps", type=int, default=None, help="override the drawn frame rate (30-240)")
     ap.add_argument("--size", default=None, help="override the drawn resolution, e.g. 1280x720")
     ap.add_argument("--max-subframes", type=int, default=None, help="cap the drawn subframes (3-5) to save time")
     ap.add_argument("--truth-only", action="store_true", help="simulate and write mjSEED.sim.json only (no video)")
+    ap.add_argument("--cloth", default=None, help="cloth colour: " + ", ".join({**ms.CLOTHS, **ms.SWEEP_CLOTHS}))
+    ap.add_argument("--ball-set", choices=("pool", "snooker", "carom"), default=None, help="recolour the balls")
+    ap.add_argument("--k1", type=float, default=None, help="lens radial distortion k1")
+    ap.add_argument("--lamps", type=int, default=None, help="number of lamps (spread along the table)")
+    ap.add_argument("--light", type=float, default=None, help="scale lamp intensities (e.g. 0.5 = dim)")
+    ap.add_argument("--cushion-shade", type=float, default=None,
+                    help="cushion-top colour = this factor x cloth colour (drawn default 0.8)")
+    ap.add_argument("--suffix", default="", help="clip name mjSEED_SUFFIX (keeps sweep variants apart)")
     ap.add_argument("--png-frame", type=int, default=None, help="also save this frame as PNG (for a look)")
     args = ap.parse_args(argv)
     try:
@@ -276,8 +290,10 @@ def main(argv=None) -> int:
         _fail(f"{exc.name} is not importable; use a Python with mujoco and opencv (pip install 'feltlab[mujoco]')")
     if args.duration is not None and not 0.3 <= args.duration <= 10:
         _fail(f"--duration {args.duration} s is out of range; use 0.3-10 s")
-    if args.fps is not None and args.fps not in (60, 120, 240):
-        _fail(f"--fps {args.fps} is not one of 60, 120, 240")
+    if args.fps is not None and not 30 <= args.fps <= 240:
+        _fail(f"--fps {args.fps} is out of range; use 30-240")
+    if args.cloth is not None and args.cloth not in {**ms.CLOTHS, **ms.SWEEP_CLOTHS}:
+        _fail(f"--cloth {args.cloth!r} is not one of {', '.join({**ms.CLOTHS, **ms.SWEEP_CLOTHS})}")
     args.out.mkdir(parents=True, exist_ok=True)
     with tempfile.TemporaryDirectory(prefix="mjtex_") as tex:
         args.tex_dir = tex

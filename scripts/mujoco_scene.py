@@ -50,6 +50,15 @@ MU_CUSHION = (0.2, 0.0, 0.0)
 TIMESTEP_S = 2.5e-5
 
 CLOTHS = {"green": (30, 110, 55), "blue": (35, 80, 150), "red": (140, 40, 45)}
+#: Extra cloth colours that only the sweep options pick (drawn scenes keep the three above, so seeds
+#: render as before).
+SWEEP_CLOTHS = {"grey": (95, 95, 100)}
+#: Cushion-top colour = this factor x cloth colour (our look; the sweep varies it).
+CUSHION_SHADE = 0.8
+#: Snooker colours (sRGB, our own palette) and a carom set, for --ball-set.
+SNOOKER = [("red", (200, 25, 25)), ("yellow", (240, 190, 20)), ("green", (15, 115, 55)), ("brown", (110, 60, 30)),
+           ("blue", (25, 55, 175)), ("pink", (235, 120, 150)), ("black", (18, 18, 20))]
+CAROM = [("red", (200, 25, 25)), ("white", (236, 234, 222))]
 SOLIDS = {"1": ("yellow", (245, 200, 25)), "2": ("blue", (30, 60, 170)), "3": ("red", (200, 30, 30)),
           "4": ("purple", (90, 40, 140)), "5": ("orange", (245, 120, 20)), "6": ("green", (20, 120, 60)),
           "7": ("maroon", (120, 30, 35)), "8": ("black", (20, 20, 22))}
@@ -213,6 +222,41 @@ def draw_scene(seed: int, attempt: int = 0, duration_s: float | None = None) -> 
                  extra=dict(cut_deg=cut, attempt=attempt))
 
 
+def apply_overrides(sc: Scene, *, cloth: str | None = None, ball_set: str | None = None, k1: float | None = None,
+                    lamps: int | None = None, light: float | None = None,
+                    cushion_shade: float | None = None) -> Scene:
+    """Override single drawn conditions in place for a robustness sweep (None = keep the draw).
+
+    ball_set: "pool" keeps the draw; "snooker" recolours the object balls as reds and colours (all
+    solid); "carom" keeps the cue and two more balls, recoloured red and white (a third white-ish ball).
+    light scales every lamp's intensity; cushion_shade sets the cushion-top colour factor.
+    """
+    if cloth is not None:
+        rgb = {**CLOTHS, **SWEEP_CLOTHS}[cloth]
+        sc.cloth, sc.cloth_rgb = cloth, rgb
+    if ball_set == "snooker":
+        for k, b in enumerate(sc.balls[1:]):
+            b.colour, b.rgb = SNOOKER[k % len(SNOOKER)]
+            b.pattern = "solid"
+    elif ball_set == "carom":
+        sc.balls = sc.balls[:3]
+        for b, (col, rgb) in zip(sc.balls[1:], CAROM):
+            b.colour, b.rgb, b.pattern = col, rgb, "solid"
+    if k1 is not None:
+        sc.camera.k1 = float(k1)
+    if lamps is not None and lamps > 0:
+        first = sc.lamps[0]
+        tot = sum(lp["intensity"] ** 2 for lp in sc.lamps) ** 0.5
+        sc.lamps = [dict(pos_mm=(L_MM * (i + 0.5) / lamps, W_MM / 2, first["pos_mm"][2]),
+                         intensity=tot / math.sqrt(lamps)) for i in range(lamps)]
+    if light is not None:
+        for lp in sc.lamps:
+            lp["intensity"] *= float(light)
+    if cushion_shade is not None:
+        sc.extra["cushion_shade"] = float(cushion_shade)
+    return sc
+
+
 # ---------------------------------------------------------------- geometry shared with the truth
 def pockets_mm() -> list[tuple[float, float, float]]:
     """Pocket hole centres and radius (x, y, r) mm in the table frame (visual only)."""
@@ -355,6 +399,7 @@ def build_mjcf(sc: Scene, tex_dir: Path, canvas: tuple[int, int]) -> str:
                f'size="{r / 1000:.5f} 0.0005" rgba="0.03 0.03 0.03 1" contype="0" conaffinity="0"/>'
                for i, (x, y, r) in enumerate(pockets_mm())]
     pairs = _contact_pairs(sc)
+    shade = sc.extra.get("cushion_shade", CUSHION_SHADE)
     return f"""<mujoco model="feltlab_mj_table">
   <compiler angle="radian"/>
   <option timestep="{TIMESTEP_S}" integrator="Euler" cone="elliptic" gravity="0 0 -9.80665"/>
@@ -366,7 +411,7 @@ def build_mjcf(sc: Scene, tex_dir: Path, canvas: tuple[int, int]) -> str:
   </visual>
   <asset>
     <material name="cloth" rgba="{_rgba(sc.cloth_rgb)}" specular="0.0" shininess="0.0"/>
-    <material name="cushion" rgba="{_rgba(tuple(int(v * 0.8) for v in sc.cloth_rgb))}" specular="0.05"/>
+    <material name="cushion" rgba="{_rgba(tuple(min(255, int(v * shade)) for v in sc.cloth_rgb))}" specular="0.05"/>
     <material name="rail" rgba="0.36 0.2 0.1 1" specular="0.3" shininess="0.4"/>
     <material name="floor" rgba="0.25 0.24 0.23 1"/>
     {"".join(assets)}
