@@ -23,12 +23,15 @@ def test_stray_fix_does_not_take_a_ball_that_starts_moving():
     A black ball rests until frame 16 and then leaves at 1.8 m/s, off its old (resting) gate.
     The stray fix's track never saw a velocity, so its gate has grown over the table by then
     (birth speed sigma 3 m/s x 0.5 s); it must be gone, and the black ball keeps one identity.
-    With tentative tracks kept for max_missed_s the stray track takes the moving ball."""
+    Kept alive (confirm_hits=1), the stray track is stale by then (no re-start allowed), so its
+    gated cost keeps the whole log-determinant of its grown covariance (tracking/assign.py) and
+    the black ball's own re-start still wins: either guard alone keeps the identity (before the
+    stale tracks kept that term, the kept-alive stray track took the moving ball)."""
     fps = 30.0
     black, dark = (25, 25, 28), (40, 45, 40)
     p0, v = np.array([1400.0, 300.0]), np.array([1300.0, -1250.0])  # |v| ~ 1.8 m/s
     for settings, expect_one in ((TrackingSettings(), True),
-                                 (TrackingSettings(confirm_hits=1), False)):
+                                 (TrackingSettings(confirm_hits=1), True)):
         lk = Linker(28.575, settings)
         ids = set()
         row = 0

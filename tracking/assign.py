@@ -11,8 +11,10 @@ to track i is
   gone unseen for a while - whose predicted covariance S has grown - does not
   win a detection that a freshly seen track explains (Blackman & Popoli,
   *Design and Analysis of Modern Tracking Systems*, Artech House 1999, ch. 6);
-* ``gate + 10 + colour_weight * |...| + distance / radius`` (the log-determinant
-  term above is capped at 10, so a gated continuation always costs less) when it fails the
+* ``gate + 10 + colour_weight * |...| + distance / radius`` (for a track that may
+  re-start, the log-determinant term above is capped at 10, so its gated
+  continuation always costs less; a track unseen for longer than a re-start gap
+  keeps the whole term) when it fails the
   gate but lies within the travel at the largest credible speed since the
   track's last fix, and that fix is at most ``jump_max_gap_s`` old (a contact
   changed the velocity: the track is re-started from there and the jump is
@@ -26,8 +28,10 @@ and the global nearest-neighbour assignment is solved with
 ``scipy.optimize.linear_sum_assignment`` (Hungarian method, Kuhn 1955 /
 Munkres 1957). The colour term keeps identities apart when a contact sends
 one ball to where the other was predicted to be. Unmatched detections start
-tracks; tracks unseen for longer than ``max_missed_s`` end (pocketed, left the
-view, covered by a hand).
+tracks, except on the exposure sweep of a confirmed track fixed in the same
+frame (a piece of an unfitted streak: :meth:`Linker._on_sweep`); tracks
+unseen for longer than ``max_missed_s`` end (pocketed, left the view, covered
+by a hand).
 
 Each detection's noise is its sigma plus the smear of the track's
 predicted motion during the exposure (tracking/kalman.py :func:`smear_cov`;
@@ -188,8 +192,14 @@ class Linker:
                 cd = float(np.linalg.norm(col[j] - tr.colour))
                 if d2 <= s.gate_chi2:
                     # capped below the jump penalty, so a gated continuation
-                    # always costs less than a re-start of the same track
-                    logdet = min(float(np.log(np.linalg.det(S) / np.linalg.det(Rm))), JUMP_PENALTY)
+                    # always costs less than a re-start of the same track; a
+                    # track that may no longer re-start (unseen too long) has no
+                    # re-start to undercut and keeps the whole term, so its
+                    # grown covariance does not win a detection that a freshly
+                    # seen track's re-start explains (the likelihood ratio)
+                    logdet = float(np.log(np.linalg.det(S) / np.linalg.det(Rm)))
+                    if can_jump:
+                        logdet = min(logdet, JUMP_PENALTY)
                     cost[i, j] = d2 + logdet + s.colour_weight * cd
                 elif can_jump:
                     dist = float(np.linalg.norm(z[j] - last_pos))
@@ -248,11 +258,37 @@ class Linker:
             # (a second detection on a ball already followed: compare with the
             # predictions of tracks in view, not with stale last fixes)
             near = any(np.linalg.norm(z[j] - p_xy) < 1.2 * self.R for p_xy in near_xy)
-            if near:
+            if near or self._on_sweep(z[j], t, exp_s):
                 continue
             tr = self._birth(int(row_ids[j]), z[j], sig[j], col[j], t)
             out[j] = tr.id
         return out
+
+    def _on_sweep(self, p: np.ndarray, t: float, exp_s: float) -> bool:
+        """True if table point p (mm) lies on the exposure sweep of a confirmed track fixed at t.
+
+        A ball moving at v during an exposure e covers the segment of length
+        |v| e about its mid-exposure centre, widened by its radius (swept
+        disc, tracking/streak.py); a streak that was not fitted as one comes
+        out as circle fits along it. A detection within one radius of that
+        segment is a piece of the moving ball, not a ball of its own: a
+        real ball there would overlap it. Pure geometry (segment-point
+        distance, clamped projection).
+        """
+        if exp_s <= 0:
+            return False
+        for tr in self.live:
+            if tr.t != t or tr.hits < self.s.confirm_hits:
+                continue
+            half = 0.5 * float(np.hypot(tr.x[2], tr.x[3])) * exp_s
+            if half < 0.5 * self.R:
+                continue
+            u = tr.x[2:] / max(float(np.hypot(tr.x[2], tr.x[3])), 1e-9)
+            v = np.asarray(p, float) - tr.x[:2]
+            a = float(np.clip(v @ u, -half, half))
+            if float(np.linalg.norm(v - a * u)) < self.R:
+                return True
+        return False
 
     def _forbid_pass_through(self, cost: np.ndarray, z: np.ndarray, t: float, dt_frame: float) -> None:
         """Forbid (in ``cost``) track -> detection links whose path crosses a resting ball.
