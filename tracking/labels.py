@@ -18,9 +18,22 @@ Names (hue in degrees on the HSV circle, 0 = red; sat/val 0..1):
 ``blue``      hue 170-255
 ``purple``    hue 255-310
 ``pink``      hue 310-345, or a red hue with saturation < 0.45
-``white``     a second mostly-white ball (carom sets)
+``white``     a second mostly-white ball in a carom set (see below)
 ``ball``      no usable colour (never seen well)
 ============  =======================================================
+
+A second mostly-white ball: pool and snooker sets hold one white ball, the
+cue (common practice), while a carom set holds two (one of them spotted).
+So outside carom a second white-looking ball is a stripe ball whose white
+cap faces the camera (its band lies outside the inner 0.75-radius disc the
+colour is sampled from: a band of half-height 0.55 R shows only beyond
+0.83 R from the centre when seen from above). It is named a stripe
+(``COLOUR-stripe`` from the frames where its band showed, else ``stripe``)
+when the table is not carom and either (a) the set shows other stripes,
+(b) the ball itself showed its band (10th percentile of its white fraction
+below ``BAND_SEEN_WHITE_P10``: in a tenth of the frames over half the disc
+was not white), or (c) the table is known to be a pocketed one.
+With the table unknown and no stripe in sight it stays ``white``.
 
 A non-cue ball whose median white fraction is >= ``STRIPE_WHITE_FRAC`` (or
 whose 90th percentile is >= ``STRIPE_WHITE_P90``) gets the ``-stripe`` suffix (a stripe ball shows its white caps; a solid shows only
@@ -46,6 +59,10 @@ STRIPE_WHITE_FRAC = 0.3
 #: of the inner disc: circle half the ball's diameter, common practice).
 STRIPE_WHITE_P90 = 0.55
 BLACK_DARK_FRAC = 0.45
+#: A white ball shows at least ~0.9 white inside 0.75 R whichever way it turns
+#: (a carom spot is small); a stripe whose band turns towards the camera drops
+#: under half. 10th percentile of the white fraction below this: the band was seen.
+BAND_SEEN_WHITE_P10 = 0.45
 #: When no track reaches CUE_WHITE_FRAC: a track with at least this median
 #: white fraction and a median saturation under CUE_FALLBACK_SAT (the HSV
 #: saturation below which detection counts a pixel white,
@@ -91,8 +108,23 @@ def _circ_median_hue(h: np.ndarray) -> float:
     return float(np.degrees(np.arctan2(np.median(np.sin(a)), np.median(np.cos(a)))) % 360)
 
 
-def label_tracks(det: pd.DataFrame, track_col: str = "track") -> tuple[dict[int, str], pd.DataFrame]:
+def _whiteish(r: pd.Series) -> bool:
+    """A mostly white, unsaturated disc (a cue-like ball)."""
+    return bool(r["white_frac"] >= CUE_WHITE_FRAC and (not np.isfinite(r["hue_deg"]) or r["sat"] < 0.25))
+
+
+def _is_stripe(r: pd.Series) -> bool:
+    """Enough white on a coloured ball to be a stripe (module docstring)."""
+    return bool(r["white_frac"] >= STRIPE_WHITE_FRAC or r["white_p90"] >= STRIPE_WHITE_P90)
+
+
+def label_tracks(det: pd.DataFrame, track_col: str = "track",
+                 table: str | None = None) -> tuple[dict[int, str], pd.DataFrame]:
     """Name every track from its detections' colours.
+
+    table: the table preset name when known ("carom..." allows a second white
+    ball; any other name means a pool/snooker set with one white ball); None:
+    decide from the balls seen (module docstring).
 
     Returns ({track id: name}, balls DataFrame with columns ball, r, g, b,
     pattern, hue_deg, white_frac, n_detections).
@@ -106,6 +138,10 @@ def label_tracks(det: pd.DataFrame, track_col: str = "track") -> tuple[dict[int,
             "sat": float(g["sat"].median()), "val": float(g["val"].median()),
             "white_frac": float(g["white_frac"].median()), "dark_frac": float(g["dark_frac"].median()),
             "white_p90": float(g["white_frac"].quantile(0.9)),
+            "white_p10": float(g["white_frac"].quantile(0.1)),
+            # saturation / value of the frames where coloured pixels were seen (the band of a stripe)
+            "sat_col": float(g.loc[np.isfinite(g["hue_deg"].to_numpy(float)), "sat"].median()),
+            "val_col": float(g.loc[np.isfinite(g["hue_deg"].to_numpy(float)), "val"].median()),
             "n_detections": int(len(g)),
         })
     info = pd.DataFrame(rows)
@@ -138,17 +174,32 @@ def label_tracks(det: pd.DataFrame, track_col: str = "track") -> tuple[dict[int,
                 cue_idx = int(info.index[k])
     base = []
     pattern = []
+    carom = table is not None and str(table).lower().startswith("carom")
+    whiteish = [k for k, r in info.iterrows() if k != cue_idx and _whiteish(r)]
     for k, r in info.iterrows():
         if k == cue_idx:
             base.append("cue")
             pattern.append("solid")
             continue
-        if r["white_frac"] >= CUE_WHITE_FRAC and (not np.isfinite(r["hue_deg"]) or r["sat"] < 0.25):
-            base.append("white")
-            pattern.append("solid")
+        if k in whiteish:
+            if carom:
+                base.append("white")
+                pattern.append("solid")
+                continue
+            others_striped = any(_is_stripe(q) for j, q in info.iterrows() if j != k and j != cue_idx and j not in whiteish)
+            band_seen = bool(np.isfinite(r["white_p10"]) and r["white_p10"] < BAND_SEEN_WHITE_P10
+                             and np.isfinite(r["hue_deg"]))
+            if table is None and not (others_striped or band_seen):
+                base.append("white")
+                pattern.append("solid")
+                continue
+            # a stripe seen cap-up: name it by the colour of the frames where its band showed
+            name = colour_name(r["hue_deg"], r["sat_col"], r["val_col"], 0.0) if band_seen else "ball"
+            base.append("stripe" if name in ("ball", "black") else name + "-stripe")
+            pattern.append("stripe")
             continue
         name = colour_name(r["hue_deg"], r["sat"], r["val"], r["dark_frac"])
-        stripe = (r["white_frac"] >= STRIPE_WHITE_FRAC or r["white_p90"] >= STRIPE_WHITE_P90) and name != "ball"
+        stripe = _is_stripe(r) and name != "ball"
         base.append(name + ("-stripe" if stripe else ""))
         pattern.append("stripe" if stripe else "solid")
     # Duplicates: order by number of detections (the longest-seen keeps the plain name).

@@ -495,7 +495,7 @@ def _finish(det_all: pd.DataFrame, jumps: dict[int, list[int]], frame_t: np.ndar
     if dropped:
         warnings.append(f"{dropped} short track(s) (< {ts.min_track_s} s) dropped as clutter")
     det_all = det_all[det_all.track.isin(keep_ids)].copy()
-    names, balls = label_tracks(det_all)
+    names, balls = label_tracks(det_all, table=cal.table.name)
     det_all["ball"] = det_all.track.map(names)
     track_rows = []
     segs: dict[str, list] = {}
