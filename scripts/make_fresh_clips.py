@@ -5,6 +5,7 @@ usage: make_fresh_clips.py OUT_DIR --seeds 5101 5102 [--kind varied|rack] [--siz
                            [--balls 12] [--duration 1.2] [--table T] [--ball-set pool|snooker|carom]
                            [--cloth green|blue|red|grey] [--lamps N] [--light F] [--uneven]
                            [--whole] [--k1 K] [--tilt DEG] [--noise F] [--name-suffix S]
+                           [--footage-dir DIR]
 
 ``varied``: :func:`feltlab.render.variety.varied_scenario` (a cut shot with
 bystanders); ``rack``: :func:`feltlab.render.variety.rack_scenario` (a tight
@@ -15,12 +16,16 @@ table preset, ball colours (pool solids/stripes, snooker reds and colours, a
 three-ball carom set), cloth colour, number and brightness of lamps (``--light``
 scales lamps and ambient; ``--uneven`` puts one bright lamp near one end),
 lens k1, camera pitch (tilt) and sensor noise. Then e.g.
-``scripts/bench_tracking.py OUT_DIR/*.mp4``. Existing clips are kept (not
-re-rendered), so a run can be resumed.
+``scripts/bench_tracking.py OUT_DIR/*.mp4``. ``--footage-dir DIR`` also puts a copy of
+each clip in DIR with its truth in the outside footage layout
+(:func:`feltlab.render.truth.footage_truth`), for ``../shared/score_footage.py --clips DIR``.
+Existing clips are kept (not re-rendered), so a run can be resumed.
 """
 from __future__ import annotations
 
 import argparse
+import json
+import shutil
 import sys
 from pathlib import Path
 
@@ -28,7 +33,7 @@ ROOT = Path(__file__).resolve().parents[1]
 sys.path.insert(0, str(ROOT))
 
 from feltlab.render import render_scenario  # noqa: E402
-from feltlab.render.truth import read_truth, truth_path_for  # noqa: E402
+from feltlab.render.truth import footage_truth, read_truth, truth_path_for  # noqa: E402
 from feltlab.render.variety import apply_overrides, rack_scenario, varied_scenario  # noqa: E402
 
 
@@ -52,6 +57,8 @@ def main() -> None:
     ap.add_argument("--k1", type=float, default=None, help="lens radial distortion k1 (k2 set to 0)")
     ap.add_argument("--tilt", type=float, default=None, help="camera pitch (deg)")
     ap.add_argument("--noise", type=float, default=None, help="scale read and shot noise")
+    ap.add_argument("--footage-dir", type=Path, default=None,
+                    help="also copy each clip here with a truth file the outside scorer reads")
     ap.add_argument("--name-suffix", default="", help="appended to the clip name (keeps variants apart)")
     a = ap.parse_args()
     w, h = (int(v) for v in a.size.lower().split("x"))
@@ -71,7 +78,23 @@ def main() -> None:
                             k1=a.k1, tilt_deg=a.tilt, noise=a.noise)
             render_scenario(sc, path)
             _warn_if_table_cut(path, (w, h))
+        if a.footage_dir is not None:
+            _to_footage(path, a.footage_dir)
         print(path)
+
+
+def _to_footage(path: Path, folder: Path) -> None:
+    """Copy a clip into ``folder`` with its truth in the outside footage layout (kept if present)."""
+    folder.mkdir(parents=True, exist_ok=True)
+    name = path.stem
+    dst, tdst = folder / path.name, folder / f"{name}.truth.json"
+    if dst.exists() and tdst.exists():
+        return
+    shutil.copyfile(path, folder / f".{path.name}.partial")
+    (folder / f".{path.name}.partial").replace(dst)
+    tmp = folder / f".{name}.truth.partial"
+    tmp.write_text(json.dumps(footage_truth(read_truth(truth_path_for(path)), name)))
+    tmp.replace(tdst)
 
 
 def _warn_if_table_cut(path: Path, size: tuple[int, int]) -> None:

@@ -108,3 +108,54 @@ def truth_path_for(clip_path: str | Path) -> Path:
     """``clip.mp4`` -> ``clip.truth.json`` (a PNG folder ``frames`` -> ``frames.truth.json``)."""
     p = Path(clip_path)
     return p.with_name(p.stem + ".truth.json") if p.suffix else p.with_name(p.name + ".truth.json")
+
+
+#: A true contact the outside scorer requires is "significant": normal velocity change of at least
+#: this much (the shared scorer's definition, ../shared/score_footage.py docstring).
+SIGNIFICANT_DVN_MM_S = 30.0
+
+
+def footage_truth(truth: dict, name: str) -> dict:
+    """Our truth (:data:`KIND`) in the layout of the outside footage truth files (../shared/footage).
+
+    So ``score_footage.py --clips DIR`` can score our renders. Kept: clip/video names, fps, frames,
+    table size, balls (``id`` = our label, ``moves`` = leaves its start by > 1 mm), per-frame
+    positions and velocities, contacts. A contact's ``e`` is the simulator's measured e;
+    ``required`` = normal velocity change >= :data:`SIGNIFICANT_DVN_MM_S`, not a micro contact and
+    not a repeat of the same pair within one frame period; ``e_valid`` = required and no other
+    contact of either ball within one frame period (its e is not separable in video).
+    """
+    fps = float(truth["fps"])
+    pos, vel, balls = {}, {}, []
+    for b in truth["balls"]:
+        tr = truth["tracks"][b["label"]]
+        P = np.column_stack([tr["x_mm"], tr["y_mm"]]).astype(float)
+        pos[b["label"]] = np.round(P, 3).tolist()
+        vel[b["label"]] = np.round(np.column_stack([tr["vx_mm_s"], tr["vy_mm_s"]]).astype(float), 2).tolist()
+        moves = bool(np.nanmax(np.linalg.norm(P - P[0], axis=1)) > 1.0)
+        balls.append(dict(id=b["label"], colour=b["label"].split("-")[0], rgb=b["rgb"], pattern=b["pattern"],
+                          moves=moves))
+    cs = []
+    for i, c in enumerate(truth["contacts"]):
+        n = np.asarray(c["normal"], float)
+        dvn = abs(float((np.asarray(c["va_post"], float)[:2] - np.asarray(c["va_pre"], float)[:2]) @ n))
+        cs.append(dict(id=i, kind=c["kind"], t_s=c["t_s"], ball_a=c["ball_a"], ball_b=c["ball_b"] or "",
+                       cushion=c.get("cushion"), e=c.get("e_measured"), dvn_mm_s=round(dvn, 2),
+                       micro=bool(c.get("micro", False))))
+    per = 1.0 / fps
+    for i, c in enumerate(cs):
+        pair = {c["ball_a"], c["ball_b"]}
+        repeat = any(d["kind"] == c["kind"] and {d["ball_a"], d["ball_b"]} == pair and 0 < c["t_s"] - d["t_s"] < per
+                     for d in cs[:i])
+        c["required"] = bool(c["dvn_mm_s"] >= SIGNIFICANT_DVN_MM_S and not c["micro"] and not repeat)
+        crowded = any(j != i and abs(d["t_s"] - c["t_s"]) < per and ({d["ball_a"], d["ball_b"]} & (pair - {""}))
+                      for j, d in enumerate(cs))
+        c["e_valid"] = bool(c["required"] and c["e"] is not None and not crowded)
+    return dict(clip=name, video=f"{name}.mp4", fps=int(fps) if fps.is_integer() else fps,
+                n_frames=int(truth["n_frames"]), resolution=truth["resolution"],
+                table=dict(name=truth["table"]["name"], length_mm=truth["table"]["length_mm"],
+                           width_mm=truth["table"]["width_mm"]),
+                ball=truth["ball"], balls=balls,
+                frames=dict(t_s=truth["frames_t_s"], positions_mm=pos, velocities_mm_s=vel), contacts=cs,
+                corners_px=truth.get("corners_px"), camera=truth.get("camera"),
+                source=f"feltlab renderer ({KIND} v{truth.get('version')}), converted by footage_truth")
