@@ -48,11 +48,14 @@ def _corners(table, z):
 
 # --------------------------------------------------------------------------- synthetic tables
 def render_table(cam: CameraModel, table, cloth_bgr, face="vertical", ss=2, seed=0, gradient=(0.15, -0.1),
-                 vignette=0.25, noise=2.0, blur=0.7, balls=(), cushion_mm=50.0, rail_mm=130.0, tone="none"):
+                 vignette=0.25, noise=2.0, blur=0.7, balls=(), cushion_mm=50.0, rail_mm=130.0, tone="none",
+                 cushion_shade=0.78):
     """Ray-cast a plain table: cloth (z = 0), cushion tops and rails at nose height h.
 
     face: 'vertical' (the cushion face between cloth and nose is seen, shaded),
     'shadow' (a lighter shade there), 'none' (cloth right up to the nose).
+    cushion_shade: the cushion top's colour as a factor of the cloth's (the
+    same cloth, less lit).
     Pixel rays come from OpenCV's undistortPoints (its inverse of its own lens
     model); ``ss`` x ``ss`` rays per pixel, averaged.
 
@@ -85,7 +88,7 @@ def render_table(cam: CameraModel, table, cloth_bgr, face="vertical", ss=2, seed
     x0, y0 = at(0.0)
     out_h = np.maximum.reduce([-xh, xh - L, -yh, yh - W])
     top = out_h > 0
-    img[top & (out_h <= cushion_mm)] = cloth * 0.78
+    img[top & (out_h <= cushion_mm)] = cloth * cushion_shade
     img[top & (out_h > cushion_mm) & (out_h <= cushion_mm + rail_mm)] = lin((30, 70, 120))
     in0 = (x0 >= 0) & (x0 <= L) & (y0 >= 0) & (y0 <= W)
     img[~top & in0] = cloth

@@ -80,6 +80,27 @@ def median_image(frames: list[np.ndarray], max_frames: int) -> np.ndarray:
     return out
 
 
+def cloth_projection(image: np.ndarray, mask: np.ndarray) -> np.ndarray:
+    """The image projected on the cloth's colour direction (float32, DN): the nose-step detector.
+
+    A cushion covered with the table's cloth differs from the cloth beside
+    it by how it is lit: in linear light every channel scales by the same
+    factor, and through a power-law tone curve still by one common factor,
+    so the step lies along the cloth's colour vector c. Projecting on c/|c|
+    is the matched linear detector for it; by Cauchy-Schwarz its contrast
+    over sensor noise is never below the grey mean's and up to sqrt(3) (3 for
+    noise common to the channels) above it for a saturated cloth. Grey
+    frames, or a black cloth, give the grey axis.
+    """
+    a = np.asarray(image, np.float32)
+    if a.ndim == 2:
+        return a * np.float32(np.sqrt(3.0))
+    c = np.median(a[mask], axis=0) if mask.any() else np.ones(3, np.float32)
+    nrm = float(np.linalg.norm(c))
+    u = c / nrm if nrm >= 1.0 else np.full(3, 1 / np.sqrt(3.0), np.float32)
+    return (a @ u.astype(np.float32)).astype(np.float32)
+
+
 def linear_gray(image: np.ndarray, tone_curve: str = "srgb") -> np.ndarray:
     """Grey image in linear light, 0..255 (float32), from an 8-bit tone-encoded BGR or grey image.
 
@@ -400,13 +421,16 @@ def _relocate_peaks(prof: np.ndarray, offs: np.ndarray, pos: np.ndarray, setting
 def edge_points_along(gray: np.ndarray, p0: np.ndarray, p1: np.ndarray, outward: np.ndarray,
                       s_ranges: list[tuple[float, float]], inner_px: float, outer_px: float,
                       plateau_px: float, settings: CalibrationSettings,
-                      curve=None, n_profiles: int | None = None, gray_lin: np.ndarray | None = None
+                      curve=None, n_profiles: int | None = None, gray_lin: np.ndarray | None = None,
+                      detect: np.ndarray | None = None
                       ) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
     """Nose points along the segment p0->p1 (px), profiles taken along ``outward``.
 
     ``gray`` (tone-encoded DN) is used to detect the edges; ``gray_lin`` (the
     same image in linear light, :func:`linear_gray`), when given, to locate
-    them to sub-pixel (module docstring).
+    them to sub-pixel (module docstring). ``detect`` (e.g.
+    :func:`cloth_projection`), when given, replaces ``gray`` for detecting;
+    single edges are then located on ``gray_lin`` or ``gray`` within 1.5 px.
 
     Returns (nose points (N,2), edge contrast (N,), band inner-edge points
     (N,2), NaN where the profile shows no band).
@@ -439,11 +463,12 @@ def edge_points_along(gray: np.ndarray, p0: np.ndarray, p1: np.ndarray, outward:
     prof = _sample(gray, pts).mean(axis=2)
     prof_l = prof if gray_lin is None else _sample(gray_lin, pts).mean(axis=2)
     inner_n = max(int(0.35 * inner_px / step), 4)
+    det = prof if detect is None else _sample(detect, pts).mean(axis=2)
     plateau_n = max(int(plateau_px / step), 4)
     band_max_n = max(int(plateau_px * settings.band_max_mm / settings.plateau_mm / step), 4)
     rows, nose, strength, inner, wend = [], [], [], [], []
     for i in range(len(s)):
-        r = nose_offset(prof[i], step, plateau_n, settings, inner_n, band_max_n)
+        r = nose_offset(det[i], step, plateau_n, settings, inner_n, band_max_n)
         if r is None:
             continue
         rows.append(i)
@@ -454,7 +479,7 @@ def edge_points_along(gray: np.ndarray, p0: np.ndarray, p1: np.ndarray, outward:
     if rows:
         rows_a, nose_a, inner_a = np.array(rows), np.array(nose), np.array(inner)
         band = np.isfinite(inner_a)
-        if gray_lin is not None and (~band).any():
+        if (gray_lin is not None or detect is not None) and (~band).any():
             nose_a[~band] = _relocate_peaks(prof_l[rows_a[~band]], offs, nose_a[~band], settings)
         if band.any():
             # the fit sees the band and a margin either side of it: shading

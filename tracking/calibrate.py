@@ -11,7 +11,12 @@ Automatic (:func:`calibrate_auto`)
    lies at nose height h above the cloth). Stretches at pockets are skipped.
    Where a face or shadow band lies between cloth and nose, both its edges
    are located by a model fit over the band and a few px either side only
-   (shading further out is no edge and would pull them).
+   (shading further out is no edge and would pull them). Edges are
+   detected on the image projected on the cloth's colour
+   (``CalibrationSettings.edge_signal``: a cushion top of the cloth's own
+   colour differs from it along that direction, a faint step in grey) and
+   located on grey. In the first pass only each side's innermost
+   well-supported line is kept (:func:`main_line`).
    ``CalibrationSettings.tone_curve`` optionally locates edges in linear light.
 4. Camera fit (scipy ``least_squares``, soft-L1 loss): focal, pose, radial k1
    (k2 optional) so that the four nose lines x = 0, x = L, y = 0, y = W at
@@ -27,6 +32,9 @@ Automatic (:func:`calibrate_auto`)
    Otherwise a weak prior on the field of view sets the focal length
    (``meta['height_from']`` says which); the nose and ball-centre planes are
    then still right to a fraction of a pixel, the cloth plane less so.
+6. Checks, each a one-line refusal: residual, camera height, and a clear
+   edge on the cloth inward of a fitted line (:func:`inner_step_ratio`: the
+   nose was missed and the rail taken).
 
 Table frame (see DEVELOPERS.md): origin at the playing-surface corner nearest
 the image's bottom-left, x along the long side, y along the short side, z up.
@@ -69,11 +77,20 @@ from pathlib import Path
 
 import cv2
 import numpy as np
+from scipy.ndimage import gaussian_filter1d
 
 from feltlab.errors import FeltlabError
 from feltlab.standards import TablePreset, table_preset
 from tracking._camera_fit import SIDE_ORDER, fit_edges, fit_points, initial_camera
-from tracking._table_edges import cloth_mask, edge_points_along, linear_gray, median_image, rough_quad
+from tracking._table_edges import (
+    _sample,
+    cloth_mask,
+    cloth_projection,
+    edge_points_along,
+    linear_gray,
+    median_image,
+    rough_quad,
+)
 from tracking.calibration import Calibration
 from tracking.camera import CameraModel
 from tracking.settings import CalibrationSettings
@@ -201,6 +218,7 @@ def calibrate_auto(frames: list[np.ndarray], table: TablePreset, ball_diameter_m
     except ValueError as exc:
         raise FeltlabError(f"CalibrationSettings.tone_curve: {exc}") from None
     mask = cloth_mask(img, settings)
+    det = cloth_projection(img, mask) if settings.edge_signal == "cloth" else None
     frac = mask.mean()
     if frac < 0.05 or frac > 0.97:
         raise FeltlabError(
@@ -234,13 +252,15 @@ def calibrate_auto(frames: list[np.ndarray], table: TablePreset, ball_diameter_m
                     nrm = -nrm
                 found, _, band = edge_points_along(gray, p0, p1, nrm, ranges, settings.search_in_frac * w_px,
                                                    settings.search_out_frac * w_px, plateau_px, settings,
-                                                   gray_lin=gray_lin)
+                                                   gray_lin=gray_lin, detect=det)
+                keep = main_line(found, p0, p1, nrm, settings.line_tol_px)
+                found, band = found[keep], band[keep]
             else:
                 win = settings.refine_window_px
                 found, _, band = edge_points_along(
                     gray, None, None, None, ranges, 1.5 * win + plateau_px / 2, win + plateau_px * 1.5,
                     plateau_px, settings, curve=_curve(fit.camera, side, L, W, z_nose),
-                    n_profiles=_n_profiles(fit.camera, side, L, W, z_nose, settings), gray_lin=gray_lin)
+                    n_profiles=_n_profiles(fit.camera, side, L, W, z_nose, settings), gray_lin=gray_lin, detect=det)
                 if len(found):
                     r = np.abs(_point_resid_px(fit.camera, side, found, L, W, z_nose))
                     ok = r < max(settings.outlier_px, 4 * settings.loss_scale_px) + (win if it == 1 else 0)
@@ -299,6 +319,20 @@ def calibrate_auto(frames: list[np.ndarray], table: TablePreset, ball_diameter_m
         notes.append(
             f"the table's length/width looks {chk.length_scale * L / W:.3f}, not {L / W:.3f} as for "
             f"{table.name}: is this the right table preset?")
+    det_img = gray if det is None else det
+    steps = {side: inner_step_ratio(det_img, fit.camera, side, L, W, z_nose, _side_ranges(table, side, settings),
+                                    _band_width_px(pts[side], inner.get(side)), settings) for side in SIDE_ORDER}
+    missed = [side for side in SIDE_ORDER if steps[side] > settings.inner_step_max]
+    if missed:
+        raise FeltlabError(
+            f"side(s) {', '.join(missed)} show a clear edge on the cloth inward of the fitted cushion line, so the "
+            "cushion nose was probably missed (faint or cloth-coloured cushion tops): calibrate from a file")
+    spread = cushion_colour_spread(img, fit.camera, table, z_nose, settings)
+    if spread > settings.cushion_chroma_max:
+        raise FeltlabError(
+            f"the colour just outside the fitted cushion lines differs between the sides (chromaticity spread "
+            f"{spread:.2f}), so a cushion nose was probably missed on some side and a rail taken (faint or "
+            "cloth-coloured cushion tops): calibrate from a file")
     cam_fit = fit.camera
     lens = lens_note(float(cam_fit.dist[0]), settings.k1_warn)
     if lens:
@@ -307,6 +341,140 @@ def calibrate_auto(frames: list[np.ndarray], table: TablePreset, ball_diameter_m
                     "height_from": height_from}
     return Calibration(camera=cam_fit, table=table, ball_diameter_mm=ball_d, residual_px=res_px,
                        residual_mm=res_mm, method="auto", notes=notes)
+
+
+def cushion_colour_spread(img: np.ndarray, cam: CameraModel, table: TablePreset, z: float,
+                          settings: CalibrationSettings) -> float:
+    """How much the colour just outside the fitted nose lines differs between the four sides.
+
+    Outside the nose lies the cushion top, covered alike on all four
+    cushions (common practice); a side fitted to the rail or another line
+    further out shows the rail's colour there instead. Per side, the median
+    BGR of a strip from 3 px to 3 px + ``cushion_strip_mm`` outward of the
+    fitted line (pockets excluded; balls are too few to move a median) is
+    turned into chromaticity (b, g, r) / (b + g + r), which does not change
+    with the amount of light. Returns the largest distance between two
+    sides' chromaticities (grey frames: 0).
+    """
+    L, W = table.length_mm, table.width_mm
+    px_mm = 1.0 / cam.mm_per_px([L / 2, W / 2, z])
+    offs = np.arange(3.0, 3.0 + settings.cushion_strip_mm * px_mm, 0.5)
+    a = np.asarray(img, np.float32)
+    if a.ndim == 2:
+        return 0.0
+    chroma = {}
+    for side in SIDE_ORDER:
+        sfr = np.linspace(0.0, 1.0, 240)
+        sfr = sfr[np.any([(sfr >= lo) & (sfr <= hi) for lo, hi in _side_ranges(table, side, settings)], axis=0)]
+        p, n = _curve(cam, side, L, W, z)(sfr)
+        pts = p[:, None, :] + offs[None, :, None] * n[:, None, :]
+        col = np.median(np.stack([_sample(np.ascontiguousarray(a[..., c]), pts) for c in range(3)], -1)
+                        .reshape(-1, 3), axis=0)
+        chroma[side] = col / max(float(col.sum()), 1e-6)
+    ch = np.array([chroma[s] for s in SIDE_ORDER])
+    return max(float(np.linalg.norm(ch[i] - ch[j])) for i in range(4) for j in range(i + 1, 4))
+
+
+def _band_width_px(pts: np.ndarray, band: np.ndarray | None) -> float:
+    """Median width (px) of the face/shadow band seen inward of a side's nose points (0 if none seen)."""
+    if band is None or len(band) == 0 or len(band) != len(pts):
+        return 0.0
+    ok = np.isfinite(band[:, 0])
+    if ok.sum() < max(8, 0.1 * len(band)):
+        return 0.0
+    return float(np.median(np.linalg.norm(pts[ok] - band[ok], axis=1)))
+
+
+def inner_step_ratio(img: np.ndarray, cam: CameraModel, side: str, L: float, W: float, z: float,
+                     ranges: list[tuple[float, float]], band_px: float, settings: CalibrationSettings) -> float:
+    """Strongest edge on the cloth inward of a fitted nose line, as a fraction of the nose edge's own.
+
+    Profiles across the side along the fitted line are averaged (noise
+    down by the square root of their number; balls and pockets are rare
+    enough for a median to ignore). The nose is the cushion's innermost
+    edge, so the cloth inward of it has slow shading only; a clear step
+    there means the fit took a line further out (cushion top / rail).
+    The search starts 4 px inward of the band seen between cloth and
+    nose (``band_px`` wide, px; its foot is an edge of the cushion), at most
+    ``face_band_max_mm`` wide: a wider "band" is the cushion top between a
+    missed nose and the rail. ``ranges``: fractions of the side used (pockets
+    excluded), as for the edge points; edges are compared on the
+    derivative of Gaussian at 1.5 px, out to 120 mm inward.
+    """
+
+    sfr = np.linspace(0.0, 1.0, 240)
+    sfr = sfr[np.any([(sfr >= lo) & (sfr <= hi) for lo, hi in ranges], axis=0)]
+    if sfr.size < 8:
+        return 0.0
+    p, n = _curve(cam, side, L, W, z)(sfr)
+    px_mm = 1.0 / cam.mm_per_px([L / 2, W / 2, z])
+    step = 0.25
+    reach = 120.0 * px_mm
+    offs = np.arange(-reach, 6.0 * settings.edge_sigma_px + 4.0, step)
+    prof = _sample(img, p[:, None, :] + offs[None, :, None] * n[:, None, :])
+    g = np.median(prof, axis=0)
+    dg = np.abs(gaussian_filter1d(g, 1.5 / step, order=1))
+    nose = dg[np.abs(offs) <= 2.0].max()
+    start = min(band_px, settings.face_band_max_mm * px_mm) + 4.0
+    inner = dg[offs <= -start]
+    if nose <= 0 or inner.size == 0:
+        return 0.0
+    return float(inner.max() / nose)
+
+
+def main_line(px: np.ndarray, p0: np.ndarray, p1: np.ndarray, nrm: np.ndarray, tol_px: float,
+              trials: int = 300, min_share: float = 0.5) -> np.ndarray:
+    """Mask of the edge points (N, 2) px on the side's nose line.
+
+    Along one side the profiles may stop at different edges: the nose on
+    most, where it is faint the cushion/rail line ~20 px further out on
+    some, balls or marks on a few. Seen through a lens with radial
+    distortion a straight cushion line is close to a parabola in the side's
+    own frame (offset along the outward normal ``nrm`` against the position
+    along p0 -> p1, px), so lines are found one after another as the
+    parabola through three points with the most points within ``tol_px``
+    (RANSAC: Fischler & Bolles, Comm. ACM 24(6), 1981; seeded, so
+    repeatable). Of the lines holding at least ``min_share`` of the
+    best-supported one's points, the innermost is the nose: it is the
+    cushion's innermost line (a face band inward of it is already folded
+    into the nose by the profile search). A camera fitted through two
+    parallel lines at once bends its lens and focal to absurd values.
+    """
+    n = len(px)
+    if n < 8:
+        return np.ones(n, bool)
+    t = (p1 - p0) / np.linalg.norm(p1 - p0)
+    u = (px - p0) @ t / np.linalg.norm(p1 - p0) - 0.5
+    d = (px - p0) @ (nrm / np.linalg.norm(nrm))
+    V = np.column_stack([np.ones(n), u, u * u])
+    rng = np.random.default_rng(0)
+    lines = []  # (support, median offset px, mask)
+    free = np.ones(n, bool)
+    for _ in range(3):
+        idx_free = np.nonzero(free)[0]
+        if len(idx_free) < 8:
+            break
+        best, best_n = None, 0
+        for _ in range(trials):
+            idx = rng.choice(idx_free, 3, replace=False)
+            try:
+                c = np.linalg.solve(V[idx], d[idx])
+            except np.linalg.LinAlgError:
+                continue
+            ok = free & (np.abs(V @ c - d) < tol_px)
+            if ok.sum() > best_n:
+                best, best_n = ok, int(ok.sum())
+        if best is None or best_n < 8:
+            break
+        # refit on the inliers (least squares); the final set from that curve
+        c, *_ = np.linalg.lstsq(V[best], d[best], rcond=None)
+        ok = free & (np.abs(V @ c - d) < tol_px)
+        lines.append((int(ok.sum()), float(np.median(d[ok])), ok))
+        free &= ~ok
+    if not lines:
+        return np.ones(n, bool)
+    top = max(ln[0] for ln in lines)
+    return min((ln for ln in lines if ln[0] >= min_share * top), key=lambda ln: ln[1])[2]
 
 
 def lens_note(k1: float, limit: float) -> str | None:

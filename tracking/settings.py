@@ -65,6 +65,39 @@ class CalibrationSettings:
     #: (blur on the stored values) 0.09/0.23 vs 0.13/0.35 with the camera
     #: height 3-4% vs 9% low. Stored values are the safer default.
     tone_curve: str | None = None
+    #: Image on which profile edges are *detected* (they are located to
+    #: sub-pixel on the grey image as before): "cloth", the projection on
+    #: the cloth's colour direction (_table_edges.cloth_projection: a cushion
+    #: top of the cloth's own colour, less lit, differs along that direction),
+    #: or "gray" (channel mean). On our MuJoCo renders with cushion tops at 0.8
+    #: of the cloth's shade (nose step ~6 DN grey) "gray" missed the nose on
+    #: the short sides (corners 41 px off, or refused); D1/D2 unchanged.
+    edge_signal: str = "cloth"
+    #: Refuse a fit where the cloth inward of a fitted nose line shows an
+    #: edge stronger than this fraction of the nose edge (side-averaged
+    #: profiles, calibrate.inner_step_ratio): the nose was missed and a line
+    #: further out taken. Measured: 0.07-0.24 on D1/D2 and synthetic tables,
+    #: 0.12-0.36 on correct fits of our MuJoCo renders (cloth shade near the
+    #: cushions). It flagged none of our wrong fits (a band of the cushion
+    #: top is skipped with the face band); those were caught by the colour
+    #: check below. Kept as a guard for a rail taken with the nose visible
+    #: inward of it; 0.7 is a guess with 2x margin over correct fits.
+    inner_step_max: float = 0.7
+    #: Widest face band (mm on the cloth) skipped by that check: a vertical
+    #: face of nose height h = 36.5 mm at the table's edge seen from >= 2 m
+    #: over the centre shows <= ~20 mm (h * d / H); a cushion top is ~50 mm
+    #: from nose to rail (common practice).
+    face_band_max_mm: float = 25.0
+    #: Refuse a fit whose four sides show colours outside the fitted nose
+    #: lines (a strip cushion_strip_mm wide, on the cushion tops) whose
+    #: chromaticities differ by more than cushion_chroma_max
+    #: (calibrate.cushion_colour_spread): all cushions are covered alike, so
+    #: a differing side was fitted to another line. Measured: 0.001-0.030 on
+    #: correct fits (D1/D2, our renders, MuJoCo renders, synthetic tables),
+    #: 0.16 and 0.53 where rail lines were taken (MuJoCo renders mj9613,
+    #: mj9611). A strip of 12 mm stays on a cushion top (~50 mm wide).
+    cushion_chroma_max: float = 0.08
+    cushion_strip_mm: float = 12.0
     #: Gaussian derivative scale (px) for locating edges along a profile
     #: (~ the optical blur of a sharp camera; small so a narrow shadow band
     #: between cloth and cushion does not bias the nose edge).
@@ -99,6 +132,12 @@ class CalibrationSettings:
     #: Stretch excluded at the corners of a table without pockets (mm): the
     #: cushion noses meet in a rounded or mitred joint (common practice).
     corner_plain_mm: float = 40.0
+    #: First pass: only the edge points on each side's innermost
+    #: well-supported line (calibrate.main_line) are fitted; points farther
+    #: than this (px) from it lie on another line (rail) or a ball. Edge points
+    #: scatter by a few tenths of a px, a lens bends the line by a few px
+    #: over a side (absorbed by the parabola).
+    line_tol_px: float = 1.5
     #: Robust fitting: residual scale (px) of the soft-L1 loss, and the
     #: outlier cut (px) applied between passes.
     loss_scale_px: float = 0.5
@@ -124,7 +163,9 @@ class CalibrationSettings:
     #: to band_resid_px RMS.
     band_min_frac: float = 0.5
     band_min_mm: float = 1.5
-    band_ratio_tol: float = 0.25
+    #: (0.25 -> 0.30: a synthetic carom table with vertical faces, 2-3 px
+    #: bands, sat at 0.26 once edges were detected on the cloth projection.)
+    band_ratio_tol: float = 0.30
     band_resid_px: float = 0.6
     #: ... or to band_resid_rel x the RMS of the nose-line fit, whichever is
     #: larger: the foot edge (face foot or shadow against the cloth) has less
