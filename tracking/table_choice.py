@@ -12,7 +12,8 @@ import logging
 
 import numpy as np
 
-from feltlab.standards import TablePreset, table_preset
+from feltlab.errors import FeltlabError
+from feltlab.standards import TABLES, TablePreset, table_preset
 from tracking.calibrate import calibrate_auto, nose_height_mm
 from tracking.calibration import Calibration
 from tracking.pockets import has_side_pockets, side_pocket_contrast
@@ -28,8 +29,28 @@ def calibrate_choosing_table(frames: list[np.ndarray], table: TablePreset) -> tu
 
     frames: BGR images of one clip (the calibration sample). Returns the
     calibration and warnings for the user (empty when ``table`` was kept).
+    When ``table`` cannot be fitted at all, every other preset is tried in
+    turn (their cushion heights and pocket stretches differ) and the first
+    that fits is used, with a warning; the first error is raised when none
+    fits.
     """
-    cal = calibrate_auto(frames, table)
+    try:
+        cal = calibrate_auto(frames, table)
+    except FeltlabError as first:
+        cal = None
+        for name, other in TABLES.items():
+            if name == table.name:
+                continue
+            try:
+                cal = calibrate_auto(frames, other)
+            except FeltlabError:
+                continue
+            log.info("calibration as %s failed (%s); it fits as %s", table.name, first, name)
+            break
+        if cal is None:
+            raise first
+        notes = [f"the cushions did not fit as {table.name} but fit as {cal.table.name}; pass --table to set it"]
+        return cal, notes
     if not cal.table.pockets:
         return cal, []
     z = nose_height_mm(cal.table, cal.ball_diameter_mm)
