@@ -95,3 +95,30 @@ def test_invisible_nose_refuses_or_fits(shade):
     zn = nose_height_mm(POOL9, POOL9.ball.diameter_mm)
     err = np.linalg.norm(cal.camera.project(_corners(POOL9, zn)) - cam.project(_corners(POOL9, zn)), axis=1)
     assert err.max() < 1.0, f"corners off by {err.round(2)} px"
+
+
+def test_main_line_takes_the_innermost_supported_line():
+    """Points on two parallel parabolas 20 px apart (nose inward, rail outward) plus scattered ones:
+    the innermost line is kept when it holds at least ``min_share`` of the best line's points.
+    Reference: the parabolas the points were drawn from."""
+    from tracking.calibrate import main_line
+
+    rng = np.random.default_rng(4)
+    p0, p1, nrm = np.array([100.0, 500.0]), np.array([1100.0, 520.0]), np.array([0.02, 1.0])
+    t = (p1 - p0) / np.linalg.norm(p1 - p0)
+    n = nrm / np.linalg.norm(nrm)
+
+    def line(k, off):
+        u = rng.uniform(0, 1, k)
+        d = off + 3.0 * (u - 0.5) ** 2 + rng.normal(0, 0.25, k)  # a lens bends the line by ~1 px
+        return p0 + np.outer(u * np.linalg.norm(p1 - p0), t) + np.outer(d, n)
+
+    nose, rail = line(60, 0.0), line(180, 20.0)
+    stray = p0 + np.outer(rng.uniform(0, 1000, 15), t) + np.outer(rng.uniform(-40, 40, 15), n)
+    px = np.vstack([nose, rail, stray])
+    is_nose = np.r_[np.ones(60, bool), np.zeros(195, bool)]
+    is_rail = np.r_[np.zeros(60, bool), np.ones(180, bool), np.zeros(15, bool)]
+    keep = main_line(px, p0, p1, nrm, 1.5, min_share=0.5)  # nose has 1/3 of the rail's support
+    assert keep[is_rail].mean() > 0.95 and not keep[is_nose].any()
+    keep = main_line(px, p0, p1, nrm, 1.5, min_share=0.15)
+    assert keep[is_nose].mean() > 0.95 and not keep[is_rail].any()

@@ -32,9 +32,12 @@ Automatic (:func:`calibrate_auto`)
    Otherwise a weak prior on the field of view sets the focal length
    (``meta['height_from']`` says which); the nose and ball-centre planes are
    then still right to a fraction of a pixel, the cloth plane less so.
-6. Checks, each a one-line refusal: residual, camera height, and a clear
-   edge on the cloth inward of a fitted line (:func:`inner_step_ratio`: the
-   nose was missed and the rail taken).
+6. Checks, each a one-line refusal: residual, camera height, a clear edge
+   on the cloth inward of a fitted line (:func:`inner_step_ratio`), and the
+   colour just outside the four fitted lines (:func:`cushion_colour_spread`:
+   all cushion tops look alike, a rail does not). A fit that fails them is
+   tried once more with weaker-supported inner lines accepted
+   (``CalibrationSettings.line_share_retry``).
 
 Table frame (see DEVELOPERS.md): origin at the playing-surface corner nearest
 the image's bottom-left, x along the long side, y along the short side, z up.
@@ -203,7 +206,33 @@ def calibrate_auto(frames: list[np.ndarray], table: TablePreset, ball_diameter_m
     surface (between cushion noses) is in view. Returns a Calibration
     (method 'auto') with the fitted camera in the table frame (mm), RMS
     edge residuals in px and mm, and notes (warnings) for the user.
+
+    Where the fit fails its checks, it is tried once more with each side's
+    innermost line taken on weaker support (``CalibrationSettings.
+    line_share_retry``: a faint nose found on only part of a side); every
+    check applies again, and if that fails too the first refusal is raised.
     """
+    try:
+        return _calibrate_once(frames, table, ball_diameter_mm, settings, settings.line_share)
+    except FeltlabError as first:
+        if not getattr(first, "retry", False):
+            raise
+        try:
+            return _calibrate_once(frames, table, ball_diameter_mm, settings, settings.line_share_retry)
+        except FeltlabError:
+            raise first from None
+
+
+def _refusal(msg: str) -> FeltlabError:
+    """A refusal of the fitted camera (not of the input): calibrate_auto may retry."""
+    exc = FeltlabError(msg)
+    exc.retry = True
+    return exc
+
+
+def _calibrate_once(frames: list[np.ndarray], table: TablePreset, ball_diameter_mm: float | None,
+                    settings: CalibrationSettings, line_share: float) -> Calibration:
+    """calibrate_auto with one support share for the first pass's lines (:func:`main_line`)."""
     imgs = _check_frames(frames)
     ball_d = float(ball_diameter_mm or table.ball.diameter_mm)
     if not (0 < ball_d < 200):
@@ -253,7 +282,7 @@ def calibrate_auto(frames: list[np.ndarray], table: TablePreset, ball_diameter_m
                 found, _, band = edge_points_along(gray, p0, p1, nrm, ranges, settings.search_in_frac * w_px,
                                                    settings.search_out_frac * w_px, plateau_px, settings,
                                                    gray_lin=gray_lin, detect=det)
-                keep = main_line(found, p0, p1, nrm, settings.line_tol_px)
+                keep = main_line(found, p0, p1, nrm, settings.line_tol_px, min_share=line_share)
                 found, band = found[keep], band[keep]
             else:
                 win = settings.refine_window_px
@@ -269,7 +298,7 @@ def calibrate_auto(frames: list[np.ndarray], table: TablePreset, ball_diameter_m
             inner[side] = band
         few = [s for s in SIDE_ORDER if len(pts[s]) < 8]
         if few:
-            raise FeltlabError(
+            raise _refusal(
                 f"found too few cushion-nose points on side(s) {', '.join(few)}; is the whole table in view "
                 "and not covered? otherwise calibrate from a file")
         groups = [(side, z_nose, pts[side]) for side in SIDE_ORDER]
@@ -300,7 +329,7 @@ def calibrate_auto(frames: list[np.ndarray], table: TablePreset, ball_diameter_m
     res_px = float(np.sqrt(np.mean(fit.resid_px[:n_nose] ** 2)))
     res_mm = float(np.sqrt(np.mean(fit.resid_mm[:n_nose] ** 2)))
     if not math.isfinite(res_px) or res_px > settings.max_residual_px:
-        raise FeltlabError(
+        raise _refusal(
             f"table edges do not fit a camera model (RMS {res_px:.2f} px); check the table preset or "
             "calibrate from a file")
     # aspect check: refit with a free length factor
@@ -311,7 +340,7 @@ def calibrate_auto(frames: list[np.ndarray], table: TablePreset, ball_diameter_m
     # absurd perspective: a camera tens of metres up (a few degrees of view).
     height = float(fit.camera.centre_mm[2])
     if not (0 < height <= settings.max_camera_height_mm):
-        raise FeltlabError(
+        raise _refusal(
             f"the table edges fit only a camera {height / 1000:.0f} m above the cloth (outline "
             f"{chk.length_scale * L / W:.2f}:1 vs {L / W:.2f}:1 for {table.name}); an edge was probably taken at the "
             "wrong line (dim or cloth-coloured cushions): check the table preset or calibrate from a file")
@@ -324,12 +353,12 @@ def calibrate_auto(frames: list[np.ndarray], table: TablePreset, ball_diameter_m
                                     _band_width_px(pts[side], inner.get(side)), settings) for side in SIDE_ORDER}
     missed = [side for side in SIDE_ORDER if steps[side] > settings.inner_step_max]
     if missed:
-        raise FeltlabError(
+        raise _refusal(
             f"side(s) {', '.join(missed)} show a clear edge on the cloth inward of the fitted cushion line, so the "
             "cushion nose was probably missed (faint or cloth-coloured cushion tops): calibrate from a file")
     spread = cushion_colour_spread(img, fit.camera, table, z_nose, settings)
     if spread > settings.cushion_chroma_max:
-        raise FeltlabError(
+        raise _refusal(
             f"the colour just outside the fitted cushion lines differs between the sides (chromaticity spread "
             f"{spread:.2f}), so a cushion nose was probably missed on some side and a rail taken (faint or "
             "cloth-coloured cushion tops): calibrate from a file")

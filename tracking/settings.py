@@ -138,6 +138,13 @@ class CalibrationSettings:
     #: scatter by a few tenths of a px, a lens bends the line by a few px
     #: over a side (absorbed by the parabola).
     line_tol_px: float = 1.5
+    #: ... of the lines holding at least line_share of the best-supported
+    #: line's points, the innermost is taken; when the fit then fails its
+    #: checks it is tried again with line_share_retry (a faint nose found on
+    #: only part of a side, the rail on the rest). MuJoCo render mj9621:
+    #: nose on ~25% of the x0 profiles, rail on 75%.
+    line_share: float = 0.5
+    line_share_retry: float = 0.15
     #: Robust fitting: residual scale (px) of the soft-L1 loss, and the
     #: outlier cut (px) applied between passes.
     loss_scale_px: float = 0.5
