@@ -476,8 +476,15 @@ def find_contacts(
     radius_mm: float,
     dt: float,
     s: PhysicsSettings,
+    onsets: dict[str, Onset] | None = None,
 ) -> list[ContactCandidate]:
-    """Accepted ball-ball and ball-cushion contacts, sorted by time."""
+    """Accepted ball-ball and ball-cushion contacts, sorted by time.
+
+    ``onsets`` (ball -> :class:`Onset`): a resting ball that starts to move was hit; where no
+    contact found from the samples explains its start (samples near the hit missing or wrong,
+    e.g. two touching balls seen as one blob), the striking ball's path before the onset gives
+    the geometric candidate (:func:`onset_candidates`). Every candidate still needs the
+    kinematic evidence."""
     times, P, S, V = _grid(samples, dt)
     names = sorted(samples)
     geo: list[tuple] = []  # (kind, a, b, cushion, k, gap, normal)
@@ -662,6 +669,30 @@ def find_contacts(
 
     first = [(cand, gi) for gi, item in enumerate(geo) if (cand := evaluate(item, {})) is not None]
     tested = settle(first, [])
+    if onsets and s.onset_candidates:
+        # a resting ball's start that no contact found from the samples explains: the striker's
+        # path gives the geometric candidate, judged like any other
+        w_on = max(s.speed_window_s, 3 * dt)
+        for a, b, k, gap, n in onset_candidates(samples, onsets, times, radius_mm, dt, s):
+            t_k = float(times[k])
+            if any(b in (c.ball_a, c.ball_b) and abs(c.t_init_s - t_k) < w_on + 2 * dt for c, _ in tested):
+                continue
+            item = ("ball-ball", a, b, "", k, gap, n)
+            key = ("ball-ball", frozenset((a, b)), "")
+            geo.append(item)
+            run[("ball-ball", a, b, "", k)] = k
+            same[(key, t_k)] = k
+            deepest[(key, k)] = min(deepest.get((key, k), np.inf), gap)
+            cand_t[a].append((t_k, key))
+            cand_t[b].append((t_k, key))
+            lim: dict[str, list[float]] = {}
+            for o, _ in tested:
+                if 2.5 * dt < abs(o.t_init_s - t_k) < reach:
+                    for ball in {a, b} & {o.ball_a, o.ball_b} - {""}:
+                        lim.setdefault(ball, []).append(o.t_init_s)
+            cand = evaluate(item, lim)
+            if cand is not None:
+                tested.append((cand, len(geo) - 1))
     gi_of = {id(c): gi for c, gi in tested}
     out = _dedupe([c for c, _ in tested], dt)
     # compound events: links inside a group touching within one frame replace the pairwise view
@@ -675,6 +706,71 @@ def find_contacts(
         out = _dedupe([c for c, _ in settle([(c, gi_of[id(c)]) for c in out], grouped)], dt)
     out = merge_groups(out, grouped, dt, covered)
     return sorted(out, key=lambda c: c.t_init_s)
+
+
+def onset_candidates(samples: dict[str, BallSamples], onsets: dict[str, Onset], times: np.ndarray,
+                     radius_mm: float, dt: float, s: PhysicsSettings) -> list[tuple]:
+    """Geometric ball-ball candidates from motion onsets: (striker, struck, frame k on ``times``,
+    gap mm, unit normal striker -> struck).
+
+    A resting ball only starts to move when something pushes it. For each ball resting at its
+    first samples with an onset at ``t_on`` (s), every other ball moving just before is followed
+    along its path: a quadratic per coordinate fitted to its samples within ``side_window_s``
+    before ``t_on - speed_window_s`` (the onset estimate is uncertain by about the speed window
+    it is measured over), extrapolated over ``t_on`` +- ``speed_window_s``. If that path comes
+    within 2R + ``gap_margin_mm`` + ``gap_margin_sigma`` sigma of the resting centre while
+    approaching it, the first time it does is a candidate. Only geometry: the candidate is then
+    judged by the same kinematic test as any other (velocity jumps along the line of centres).
+    """
+    out = []
+    w = max(s.speed_window_s, 3 * dt)
+    wf = max(s.side_window_s, s.side_window_frames * dt)
+    for b, on in onsets.items():
+        if not (on.rest_first and on.t_onset is not None and on.rest_xy is not None) or b not in samples:
+            continue
+        t_on = float(on.t_onset)
+        sig_b = float(np.median(samples[b].sig))
+        for a, sa in samples.items():
+            if a == b:
+                continue
+            oa = onsets.get(a)
+            if oa is not None and oa.rest_first and (oa.t_onset is None or oa.t_onset > t_on - w):
+                continue  # the other ball is not moving before this onset
+            m = (sa.t < t_on - w) & (sa.t >= t_on - w - wf)
+            if m.sum() < s.min_side_points + 1:
+                continue
+            tt = sa.t[m] - t_on
+            coef = [np.polyfit(tt, sa.xy[m, i], 2, w=1.0 / sa.sig[m, i]) for i in range(2)]
+            tg = np.arange(-w, w + 1e-9, dt / 4.0)
+            path = np.column_stack([np.polyval(c, tg) for c in coef])
+            vel = np.column_stack([np.polyval(np.polyder(c), tg) for c in coef])
+            d = on.rest_xy[None, :] - path
+            dist = np.hypot(d[:, 0], d[:, 1])
+            gap = dist - 2 * radius_mm
+            margin = s.gap_margin_mm + s.gap_margin_sigma * float(np.hypot(np.median(sa.sig), sig_b))
+            approach = np.einsum("ij,ij->i", vel, d) / np.maximum(dist, 1e-9) > s.rest_speed_mm_s
+            hit = (gap < margin) & approach
+            if not hit.any():
+                continue
+            i = int(np.argmax(hit))
+            # the path must reach this ball first: a ball resting in the way is hit before it
+            # (a chain or cluster passes the push on within a frame: physics.compound judges those)
+            blocked = False
+            for c, oc in onsets.items():
+                if c in (a, b) or oc.rest_xy is None or not oc.rest_first:
+                    continue
+                if oc.t_onset is not None and oc.t_onset < t_on - w:
+                    continue  # moving already
+                dc = np.hypot(*(oc.rest_xy[None, :] - path[: i + 1]).T) - 2 * radius_mm
+                if (dc < margin).any():
+                    blocked = True
+                    break
+            if blocked:
+                continue
+            t_hit = t_on + tg[i]
+            k = int(np.clip(np.round((t_hit - times[0]) / dt), 0, len(times) - 1))
+            out.append((a, b, k, float(gap[i]), d[i] / max(dist[i], 1e-9)))
+    return out
 
 
 def _dedupe(cands: list[ContactCandidate], dt: float) -> list[ContactCandidate]:

@@ -195,7 +195,7 @@ def _analyze(tracks, detections, table, ball_radius_mm, ball_mass_kg, fps, setti
         raise FeltlabError("no ball has 3 or more samples; check the tracking output")
     R, m = float(ball_radius_mm), float(ball_mass_kg)
     onsets = {k: motion_onset(b, dt, s) for k, b in samples.items()}
-    cands = find_contacts(samples, table.length_mm, table.width_mm, R, dt, s)
+    cands = find_contacts(samples, table.length_mm, table.width_mm, R, dt, s, onsets)
     layouts, maps = _layouts(samples, cands, onsets, dt, s)
     fits: dict[str, ChainFit] = {}
     for name, b in samples.items():

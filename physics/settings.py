@@ -66,6 +66,13 @@ class PhysicsSettings:
     #: plus the time a slow ball needs to leave the touching distance).
     same_contact_s: float = 0.05
 
+    #: A resting ball that starts to move was hit: the path of each ball moving just before the
+    #: onset is extrapolated to it, and one that reaches the touching distance then is a candidate
+    #: even where the sampled gap never shows the touch (samples missing or wrong while the two
+    #: balls touch, e.g. seen as one blob). Physics (no contact, no start), not tuned; the
+    #: kinematic test below still decides (physics.events.onset_candidates).
+    onset_candidates: bool = True
+
     # -- kinematic evidence -----------------------------------------------------------------
     #: Two cushion candidates of one ball at most this many frame periods apart (a corner) are
     #: also judged by one fit with both changes (physics.events.kink_fit_double), since each
