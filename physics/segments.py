@@ -571,9 +571,48 @@ def fit_chain(
     d[d == 0] = 1.0
     Js = Jf / d
     cov[np.ix_(free, free)] = np.linalg.pinv(Js.T @ Js, rcond=1e-12) / np.outer(d, d) * chi2
-    P, _, _ = chain_eval(x_fit, lay, tu)
+    P, _, seg_u = chain_eval(x_fit, lay, tu)
+    if s.residual_corr_inflation and len(tu):
+        # detection errors of a moving ball are correlated from frame to frame (shading and
+        # blur change slowly along its path): the covariance of white errors is too small by
+        # the residuals' integrated autocorrelation time
+        r = np.clip((P - xyu) / sgu, -s.f_scale, s.f_scale)
+        series = [r[seg_u == k, i] for k in np.unique(seg_u) for i in range(2)]
+        cov *= max(integrated_autocorr_time(series, s.corr_max_lag), 1.0)
     rms = float(np.sqrt(np.mean(np.sum((P - xyu) ** 2, axis=1)))) if len(tu) else float("nan")
     return ChainFit(lay, x_fit, cov, rms, int(len(tu)), float(chi2), t, xy, used, float(res.cost))
+
+
+def integrated_autocorr_time(series: list[np.ndarray], max_lag: int = 50) -> float:
+    """Integrated autocorrelation time tau (in samples) of zero-mean residual series pooled
+    (autocorrelations from pairs within each series only): the variance of a mean, and of a
+    least-squares slope over a long series, is tau times the white-noise value.
+
+    tau = 1 + 2 sum_k rho_k, summed by Geyer's initial positive sequence (Geyer, Statistical
+    Science 7:473, 1992): pairs rho_2m + rho_2m+1 are added while positive. 1 for white noise;
+    (1 + phi) / (1 - phi) for an AR(1) series with coefficient phi (standard result).
+
+    >>> import numpy as np
+    >>> round(integrated_autocorr_time([np.array([1.0, -1.0] * 50)]), 2)
+    1.0
+    """
+    series = [np.asarray(r, float) for r in series if len(r) > 2]
+    den = sum(float(r @ r) for r in series)
+    if den <= 0:
+        return 1.0
+    n_max = max(len(r) for r in series)
+    lags = min(max_lag, n_max // 2)
+
+    def rho(k: int) -> float:
+        return sum(float(r[:-k] @ r[k:]) for r in series if len(r) > k) / den
+
+    tau, prev = -1.0, 1.0  # rho_0 = 1
+    for m in range(0, lags // 2):
+        g = (prev if m == 0 else rho(2 * m)) + rho(2 * m + 1)
+        if g <= 0:
+            break
+        tau += 2.0 * g
+    return max(tau, 1.0)
 
 
 def _seg_residuals(q, p0, t0, t, xy, sig, s, prior):

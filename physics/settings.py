@@ -267,6 +267,15 @@ class PhysicsSettings:
     #: Floor on the reduced chi^2 that scales the covariance (design choice: input sigmas may be
     #: overstated, but never trust them to be more than 2x too large).
     chi2_floor: float = 0.5
+    #: The fit covariance is multiplied by the residuals' integrated autocorrelation time
+    #: (physics.segments.integrated_autocorr_time; Geyer's initial positive sequence, Statistical
+    #: Science 7:473, 1992), at lags up to ``corr_max_lag`` samples: detection errors of a moving
+    #: ball are correlated over several frames on real and rendered footage (shading, blur and
+    #: compression change slowly along its path), and white-noise sigmas then understate the
+    #: velocity errors. 1 for white residuals. Standard statistics, not tuned; the lag cap only
+    #: bounds run time.
+    residual_corr_inflation: bool = True
+    corr_max_lag: int = 60
 
     # -- leaving the table -----------------------------------------------------------------
     #: A ball whose samples stop this many frame periods before the clip end left the table.
