@@ -183,7 +183,8 @@ class Linker:
             R_smear = smear_cov(xp[2:], exp_s, s.smear_var_per_len2)[0]
             last_pos = tr.x[:2]
             reach = s.max_speed_mm_s * max(t - tr.t, dt_frame, 1e-6) + 2 * self.R
-            can_jump = (t - tr.t) <= max(s.jump_max_gap_s, 1.5 * dt_frame)
+            # one whole missed frame (a contact's merged blob) at any frame rate
+            can_jump = (t - tr.t) <= max(s.jump_max_gap_s, 2.5 * dt_frame)
             for j in range(n_det):
                 v = z[j] - xp[:2]
                 Rm = np.diag(sig[j] ** 2) + smeared[j] * R_smear
@@ -330,3 +331,103 @@ class Linker:
     def jumps(self) -> dict[int, list[int]]:
         """Track id -> detection row ids where the linker re-started the motion."""
         return {tr.id: list(tr.jumps) for tr in self.live + self.ended}
+
+
+# --------------------------------------------------------------------------- stitching after linking
+def _slow_rows(g: pd.DataFrame, radius_mm: float, dt: float) -> np.ndarray:
+    """(N,) bool: detections of one track (time-sorted) that moved less than one radius a frame and
+    were not streak-fitted, so their colour is not diluted by a smear over the cloth."""
+    z = g[["x_mm", "y_mm"]].to_numpy(float)
+    step = np.zeros(len(g))
+    if len(g) > 1:
+        d = np.hypot(*np.diff(z, axis=0).T) / np.maximum(np.diff(g["t_s"].to_numpy(float)) / dt, 1.0)
+        step = np.maximum(np.r_[d, d[-1]], np.r_[d[0], d])
+    st = g["streak_px"].to_numpy(float) > 0 if "streak_px" in g else np.zeros(len(g), bool)
+    return (step < radius_mm) & ~st
+
+
+def _stitch_colour_distance(all_a: np.ndarray, slow_a: np.ndarray | None, peak_a: np.ndarray,
+                            all_b: np.ndarray, slow_b: np.ndarray | None, peak_b: np.ndarray) -> float:
+    """Colour signature distance of two tracks, allowing for a smear's dilution.
+
+    all_*: mean signatures; slow_*: mean over unsmeared detections (None if
+    none); peak_*: the largest white and dark fractions seen. Both tracks with
+    unsmeared detections: those signatures. Otherwise the chromaticity only
+    (a smear mixes in cloth: the white and dark fractions fall to ~0, the hue
+    stays), except that a track that ever showed white pixels and one that
+    ever showed dark pixels are never the same ball (a smear only lowers
+    both fractions, so each track's least smeared frame shows its kind):
+    infinite distance (``peak_frac`` 0.3 for either).
+    """
+    if slow_a is not None and slow_b is not None:
+        return float(np.linalg.norm(slow_a - slow_b))
+    if (peak_a[0] > 0.3 and peak_b[1] > 0.3) or (peak_a[1] > 0.3 and peak_b[0] > 0.3):
+        return float("inf")
+    return float(np.linalg.norm(all_a[:3] - all_b[:3]))
+
+
+def stitch_tracks(det: pd.DataFrame, s: TrackingSettings, radius_mm: float) -> pd.DataFrame:
+    """Join a track that ends to one that starts nearby later (or in its last frame) with the same colour.
+
+    det: linked detections (columns track, t_s, x_mm, y_mm and the colour
+    summary). A pair (a, b) is joined when b starts after a's last fix, or
+    in that same frame (a contact frame at a low frame rate: the blobs of the two touching balls break up, the
+    struck ball's old track keeps a piece at its resting place and a new
+    track starts on its streak), b's start lies within half the largest
+    credible travel since (``max_speed_mm_s``) plus a diameter, and the
+    colours agree (signature distance < 0.35). A smear dilutes a ball's
+    colour with the cloth's (white and dark pixel fractions fall to ~0, the
+    chromaticity keeps its hue), so unless both tracks have unsmeared
+    detections (moving under one radius a frame, no streak fit) the
+    chromaticity is compared, and white against dark pixels
+    (:func:`_stitch_colour_distance`).
+    Where the two overlap by a frame, both fixes of that frame
+    are dropped: at least one is a piece of a broken-up blob, and the
+    smoother bridges one missing frame better than a confidently wrong fix.
+    Among candidates the shortest gap wins, then the closer colour. Pure.
+    """
+    if det.empty:
+        return det
+    det = det.copy()
+    ts = np.sort(det["t_s"].unique())
+    dt = float(np.median(np.diff(ts))) if len(ts) > 1 else 1.0
+    changed = True
+    while changed:
+        changed = False
+        info = det.groupby("track").agg(t0=("t_s", "min"), t1=("t_s", "max"))
+        sig_all, sig_slow, peak = {}, {}, {}
+        for tid, g in det.groupby("track"):
+            g = g.sort_values("t_s")
+            cs = colour_signature(g)
+            sig_all[tid] = cs.mean(axis=0)
+            slow = _slow_rows(g, radius_mm, dt)
+            sig_slow[tid] = cs[slow].mean(axis=0) if slow.any() else None
+            peak[tid] = cs[:, 3:].max(axis=0)
+        best = None
+        for a in info.index:
+            ga = det[det.track == a]
+            end = ga[ga.t_s == info.at[a, "t1"]].iloc[0]
+            for b in info.index:
+                if b == a or info.at[b, "t0"] <= info.at[a, "t0"]:
+                    continue
+                gap = info.at[b, "t0"] - info.at[a, "t1"]
+                if gap < -0.5 * dt:
+                    continue
+                start = det[(det.track == b) & (det.t_s == info.at[b, "t0"])].iloc[0]
+                dist = np.hypot(start.x_mm - end.x_mm, start.y_mm - end.y_mm)
+                if dist > s.max_speed_mm_s * max(gap, dt) * 0.5 + 2 * radius_mm:
+                    continue
+                cd = _stitch_colour_distance(sig_all[a], sig_slow[a], peak[a], sig_all[b], sig_slow[b], peak[b])
+                if cd >= 0.35:
+                    continue
+                key = (round(gap / dt), cd)
+                if best is None or key < best[0]:
+                    best = (key, a, b)
+        if best is not None:
+            _, a, b = best
+            t_over = info.at[b, "t0"]
+            if info.at[a, "t1"] >= t_over - 0.5 * dt:  # one shared frame: drop both fixes
+                det = det[~(det.track.isin([a, b]) & (np.abs(det.t_s - t_over) < 0.5 * dt))]
+            det.loc[det.track == b, "track"] = a
+            changed = True
+    return det

@@ -38,13 +38,13 @@ import pandas as pd
 
 from feltlab.errors import FeltlabError
 from feltlab.standards import DEFAULT_TABLE, TablePreset, table_preset
-from tracking.assign import Linker, colour_signature, view_test
+from tracking.assign import Linker, stitch_tracks, view_test
 from tracking.ball_size import size_ratio, size_warning, suggest_preset
 from tracking.calibration import Calibration
 from tracking.detect import build_background, detect_frame
 from tracking.exposure import ExposureMatcher
 from tracking.faint import add_faint, faint_background
-from tracking.kalman import as_cov, smear_cov, smear_scale, smooth_segment, split_segments
+from tracking.kalman import as_cov, bridge_gap, smear_cov, smear_scale, smooth_segment, split_segments
 from tracking.labels import label_tracks
 from tracking.overlap import separate_overlaps
 from tracking.settings import TrackClipSettings, TrackingSettings
@@ -223,8 +223,9 @@ def smooth_ball(frames: np.ndarray, t: np.ndarray, z: np.ndarray, sig: np.ndarra
                 var = var + sys_var[idx][near]
             SX[g0:g1 + 1] = np.sqrt(var)
         segments.append((float(frame_t[f0 + g0]), float(frame_t[f0 + g1]), kind))
-    # Frames between pieces (missed detections at a contact): extrapolate from
-    # the nearer neighbour piece with its end velocity.
+    # Frames between pieces (missed detections at a contact): each piece's
+    # line up to where the two come closest (tracking/kalman.py bridge_gap);
+    # from the nearer piece with its end velocity where only one side exists.
     have = np.isfinite(X[:, 0])
     if not have.all():
         idx_have = np.nonzero(have)[0]
@@ -234,6 +235,13 @@ def smooth_ball(frames: np.ndarray, t: np.ndarray, z: np.ndarray, sig: np.ndarra
             v = np.nan_to_num(X[k, 2:])
             X[g] = [X[k, 0] + v[0] * dt, X[k, 1] + v[1] * dt, v[0], v[1]]
             SX[g] = SX[k] + np.abs(dt) * 50.0  # a growing, honest-looking guess: 50 mm/s per s
+            kp, kn = idx_have[idx_have < g], idx_have[idx_have > g]
+            if len(kp) and len(kn):
+                a, b = kp[-1], kn[0]
+                p, vv, miss = bridge_gap(X[a, :2], np.nan_to_num(X[a, 2:]), frame_t[f0 + a], X[b, :2],
+                                         np.nan_to_num(X[b, 2:]), frame_t[f0 + b], np.array([frame_t[f0 + g]]))
+                X[g] = [p[0, 0], p[0, 1], vv[0, 0], vv[0, 1]]
+                SX[g] = np.hypot(SX[g], miss / 2.0)
     rows = {"frame": grid_f, "t_s": frame_t[grid_f], "x_mm": X[:, 0], "y_mm": X[:, 1],
             "vx_mm_s": X[:, 2], "vy_mm_s": X[:, 3], "sx_mm": SX[:, 0], "sy_mm": SX[:, 1], "visible": vis}
     return rows, segments, used
@@ -308,36 +316,6 @@ def separate_detections(det: pd.DataFrame, radius_mm: float) -> pd.DataFrame:
     out = det.copy()
     out["x_mm"], out["y_mm"] = p[:, 0], p[:, 1]
     return out
-
-
-# --------------------------------------------------------------------------- stitching
-def _stitch(det: pd.DataFrame, s: TrackingSettings, radius_mm: float) -> pd.DataFrame:
-    """Join a track that ends to one that starts later nearby with the same colour."""
-    if det.empty:
-        return det
-    changed = True
-    while changed:
-        changed = False
-        info = det.groupby("track").agg(t0=("t_s", "min"), t1=("t_s", "max"))
-        for a in info.index:
-            end = det[(det.track == a) & (det.t_s == info.at[a, "t1"])].iloc[0]
-            ca = colour_signature(det[det.track == a]).mean(axis=0)
-            best = None
-            for b in info.index:
-                if b == a or info.at[b, "t0"] <= info.at[a, "t1"]:
-                    continue
-                start = det[(det.track == b) & (det.t_s == info.at[b, "t0"])].iloc[0]
-                gap = info.at[b, "t0"] - info.at[a, "t1"]
-                dist = np.hypot(start.x_mm - end.x_mm, start.y_mm - end.y_mm)
-                cb = colour_signature(det[det.track == b]).mean(axis=0)
-                if dist <= s.max_speed_mm_s * gap * 0.5 + 2 * radius_mm and np.linalg.norm(ca - cb) < 0.35:
-                    if best is None or gap < best[0]:
-                        best = (gap, b)
-            if best is not None:
-                det.loc[det.track == best[1], "track"] = a
-                changed = True
-                break
-    return det
 
 
 # --------------------------------------------------------------------------- clip
@@ -482,7 +460,7 @@ def _finish(det_all: pd.DataFrame, jumps: dict[int, list[int]], frame_t: np.ndar
         return empty_tracks, pd.DataFrame(columns=DETECTION_OUT_COLUMNS), pd.DataFrame(
             columns=["ball", "r", "g", "b", "pattern"]), {}
     det_all = det_all[det_all.track >= 0].copy()
-    det_all = _stitch(det_all, ts, cal.ball_radius_mm)
+    det_all = stitch_tracks(det_all, ts, cal.ball_radius_mm)
     # Drop short clutter tracks that never rest.
     keep_ids = []
     dropped = 0
