@@ -131,23 +131,29 @@ def cloth_mask(image: np.ndarray, settings: CalibrationSettings) -> np.ndarray:
     central box closest to that box's median colour (any cloth colour). Smooth
     lighting changes (vignetting, gradients) are no barrier; cushion, pocket and
     rail edges are. Holes (balls, marks) are filled.
+
+    The gradient is taken relative to the local brightness (DN/px over DN, the
+    gradient of log intensity): light falls on cloth and cushion alike, so a
+    cushion edge in a dim corner is as strong as one under the lamp, and a
+    lamp's fall-off is as weak in the dark as in the bright.
     """
     h, w = image.shape[:2]
     sm = cv2.GaussianBlur(image, (0, 0), settings.region_smooth_px)
     gx = cv2.Sobel(sm, cv2.CV_32F, 1, 0, ksize=3) / 8.0
     gy = cv2.Sobel(sm, cv2.CV_32F, 0, 1, ksize=3) / 8.0
     grad = np.sqrt(gx * gx + gy * gy).max(axis=2)  # DN per px, strongest channel
+    rel = grad / (sm.astype(np.float32).max(axis=2) + settings.region_level_floor_dn)  # per px
     bx, by = int(w * settings.seed_box_frac / 2), int(h * settings.seed_box_frac / 2)
     sl = (slice(h // 2 - by, h // 2 + by), slice(w // 2 - bx, w // 2 + bx))
     box = sm[sl].reshape(-1, 3)
     med = np.median(box, axis=0)
     k = int(np.argmin(np.abs(box - med).sum(axis=1) + 10 * grad[sl].reshape(-1)))
     seed = (w // 2 - bx + k % (2 * bx), h // 2 - by + k // (2 * bx))
-    gb = grad[sl]
+    gb = rel[sl]
     gmed = np.median(gb)
     barrier = max(gmed + settings.region_grad_sigmas * 1.4826 * np.median(np.abs(gb - gmed)),
-                  settings.region_step_dn)
-    free = (grad < barrier).astype(np.uint8)
+                  settings.region_step_rel)
+    free = (rel < barrier).astype(np.uint8)
     n, lab = cv2.connectedComponents(free, connectivity=4)
     region = lab == lab[seed[1], seed[0]]
     # keep one solid region: fill holes via the outer contour

@@ -30,12 +30,20 @@ class CalibrationSettings:
     seed_box_frac: float = 0.3
     #: Gaussian smoothing (px) of the image used to grow the cloth region.
     region_smooth_px: float = 1.0
-    #: The cloth region stops at colour gradients above median + this many
-    #: robust sigmas of the gradient over the seed box, and at least
-    #: region_step_dn DN/px. Vignetting and lighting gradients change the cloth
-    #: by well under 1 DN/px; a cushion, pocket or rail edge by > 5 DN/px.
+    #: The cloth region stops at relative colour gradients (DN/px over the
+    #: pixel's brightness in DN, strongest channel) above median + this many
+    #: robust sigmas of that gradient over the seed box, and at least
+    #: region_step_rel per px (2 DN/px on a cloth at 128 DN). Vignetting and
+    #: lamp fall-off change the cloth by well under 1 % per px; a cushion,
+    #: pocket or rail edge by several % per px, dim or bright (light falls on
+    #: both sides of an edge alike). On a dim cloth (46 DN) a fixed 2 DN/px
+    #: let the region leak over 2-3 DN/px cushion edges (our sweep render
+    #: f06, a carom table at 0.35 exposure).
     region_grad_sigmas: float = 8.0
-    region_step_dn: float = 2.0
+    region_step_rel: float = 2.0 / 128.0
+    #: Added to the brightness (DN) before dividing, so near-black pixels
+    #: (pockets, a dark room) do not turn sensor noise into steep gradients.
+    region_level_floor_dn: float = 4.0
     #: Spacing (px) of the profiles taken across each side.
     profile_spacing_px: float = 2.0
     #: Profile sampling step (px) and half-width of the averaging strip
