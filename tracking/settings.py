@@ -147,11 +147,14 @@ class CalibrationSettings:
     #: over a side (absorbed by the parabola).
     line_tol_px: float = 1.5
     #: ... of the lines holding at least line_share of the best-supported
-    #: line's points, the innermost is taken; when the fit then fails its
-    #: checks it is tried again with line_share_retry (a faint nose found on
-    #: only part of a side, the rail on the rest). MuJoCo render mj9621:
-    #: nose on ~25% of the x0 profiles, rail on 75%.
-    line_share: float = 0.5
+    #: line's points, the innermost is taken (1.0: the best-supported line);
+    #: when the fit then fails its checks it is tried again with
+    #: line_share_retry (a faint nose found on only part of a side, the rail
+    #: on the rest). MuJoCo render mj9621: nose on ~25% of the x0 profiles,
+    #: rail on 75%. A first share of 0.5 took a shadow line on the cloth of
+    #: mj8403 (x0, 30 points 22 px inward of the nose) once the cloth region
+    #: changed (e5db95e).
+    line_share: float = 1.0
     line_share_retry: float = 0.15
     #: Robust fitting: residual scale (px) of the soft-L1 loss, and the
     #: outlier cut (px) applied between passes.
