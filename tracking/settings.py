@@ -510,6 +510,15 @@ class DetectionSettings:
     #: must reach this: a swept disc's support is 2r wide all along its middle
     #: (1.0), two touching balls pinch to the edge blur between them (~0.2).
     streak_min_waist: float = 0.75
+    #: The same for the foreground strength summed across the axis, its least
+    #: value within +-streak_waist_span radii of the centroid over its largest
+    #: (a faint shadow can fill the thresholded gap between two balls, as on
+    #: MuJoCo render mj9104 at its contact, waist 0.89). Closed form: a
+    #: uniformly swept disc's profile is a chord convolved with a box, largest
+    #: in the middle (1.0); two touching discs' falls to 2 sqrt(2 r x - x^2)
+    #: over 2r at x = 0.25 r from the tangent point (0.66) and to ~0 at it.
+    streak_min_waist_strength: float = 0.6
+    streak_waist_span: float = 0.25
     #: The blob's stadium radius (from its moments) over the expected ball
     #: radius, lower and upper bound (+-1 px). The blob is every pixel above
     #: the foreground threshold, so its edge lies outside the limb by the

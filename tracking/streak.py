@@ -167,11 +167,25 @@ def _streak_axis(d: np.ndarray, x: float, y: float, r_exp: float, threshold: flo
     counts = np.bincount(bins - bins.min())
     mid = counts[max(0, -bins.min() - 1):-bins.min() + 2]
     waist = float(mid.mean()) / max(float(counts.max()), 1.0) if len(mid) else 0.0
+    # the same along the axis, but of the strength summed across it (a
+    # shadow filling the gap between two balls is faint, so it adds little):
+    # a uniformly swept disc's profile is its chord 2 sqrt(r^2 - u^2)
+    # convolved with a box L long, largest in the middle; two discs'
+    # is the sum of two chords, near 0 at their tangent point.
+    # (3-px running mean: 1-px bins of a line at 45 deg to the grid take
+    # one or two pixel rows in turn)
+    prof = np.convolve(np.bincount(bins - bins.min(), weights=d[ya:yb, xa:xb][ys, xs].astype(float)),
+                       np.ones(3) / 3.0, mode="same")
+    q = max(1, int(round(settings.streak_waist_span * r_exp)))
+    c0 = -bins.min()
+    mid_s = prof[max(0, c0 - q):c0 + q + 1]
+    waist_s = float(mid_s.min()) / max(float(prof.max()), 1e-12) if len(mid_s) else 0.0
     return {"x": float(cx + xa), "y": float(cy + ya), "angle": float(np.arctan2(evec[1, 1], evec[0, 1])),
             "length": L, "radius": r, "area_ratio": float(len(xs) / area),
-            "waist": waist,
+            "waist": waist, "waist_strength": waist_s,
             "ok": bool(settings.streak_blob_radius[0] * r_exp - 1.0 <= r <= settings.streak_blob_radius[1] * r_exp + 1.0
-                       and len(xs) <= 1.3 * area and waist >= settings.streak_min_waist)}
+                       and len(xs) <= 1.3 * area and waist >= settings.streak_min_waist
+                       and waist_s >= settings.streak_min_waist_strength)}
 
 
 # --------------------------------------------------------------------------- edge points
