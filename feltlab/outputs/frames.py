@@ -345,7 +345,9 @@ def draw_overlay(image: np.ndarray, ov: Overlay, frame: int, t_s: float | None =
     names: list[tuple[str, np.ndarray, tuple[int, int, int]]] = []
     for b, p in ov.px.items():
         col = ov.colours[b]
-        _line(img, T(p[: k + 1]), col, 1 if view is None else 2)
+        # the trail is thinner than the velocity arrow, so an arrow running along
+        # the ball's own path still reads as an arrow, not as more path
+        _line(img, T(p[: k + 1]), col, 1)
         if k >= ov.n_frames or not np.isfinite(p[k]).all():
             continue
         q = T(p[k])
@@ -356,7 +358,7 @@ def draw_overlay(image: np.ndarray, ov: Overlay, frame: int, t_s: float | None =
         cv2.circle(img, _pt(q), r + 1, (0, 0, 0), 3, cv2.LINE_AA)
         cv2.circle(img, _pt(q), r + 1, bgr(col), 1 if view is None else 2, cv2.LINE_AA)
         if ov.speed[b][k] >= MIN_ARROW_SPEED_MM_S:
-            _arrow(img, q, T(ov.tip[b][k]), col, th)
+            _arrow(img, q, T(ov.tip[b][k]), col, th + 1)
         names.append((b, q, col))
     # Every drawn ball is a keep-out disc, so labels sit beside balls, not on them.
     keep_out = np.array([[q[0], q[1], r + 2.0] for _, q, _ in names], float).reshape(-1, 3)
