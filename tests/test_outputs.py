@@ -554,3 +554,32 @@ def test_diagram_labels_a_compound_event_once_and_never_prints_nan(tmp_path, mon
     plot_out.table_diagram(tracks, allc, TABLE, R, tmp_path / "table.png")
     assert not any("nan" in t.lower() for t in texts), texts
     assert sum("3 touches within one frame" in t for t in texts) == 1, texts
+
+
+def test_closeup_arrows_fit_their_crop():
+    """A close-up's velocity arrows are shortened (one common factor, legend included) so every head stays
+    inside the crop (inset by CLOSEUP_ARROW_MARGIN); arrows that already fit are left alone. Geometry only:
+    the crop box comes from closeup_box, the expected factor from the line-box intersection by hand."""
+    n = 3
+    p = np.tile(np.array([[640.0, 360.0]]), (n, 1))
+    ov = fr_out.Overlay(n_frames=n, fps=60.0, image_size=(1280, 720), px={"cue": p},
+                        tip={"cue": p + np.array([600.0, 0.0])}, speed={"cue": np.full(n, 2000.0)},
+                        colours={"cue": (255, 255, 255)}, radius_px=10.0, arrow_s=0.45,
+                        legend_mm_s=1000.0, legend_px=450.0)
+    contact = {"contact": 1, "cp_px": np.array([640.0, 360.0])}
+    x0, y0, x1, y1 = fr_out.closeup_box(ov, contact)
+    m = fr_out.CLOSEUP_ARROW_MARGIN * min(x1 - x0, y1 - y0)
+    f = fr_out.closeup_arrow_factor(ov, contact, [0, 1, 2])
+    assert f > fr_out.CLOSEUP_ARROW_MIN_FACTOR
+    assert 640.0 + 600.0 * f == pytest.approx(x1 - m)
+    # a steep arrow down-left: the bottom edge binds first
+    ov.tip["cue"] = p + np.array([-50.0, 400.0])
+    f = fr_out.closeup_arrow_factor(ov, contact, [0, 1, 2])
+    assert 360.0 + 400.0 * f == pytest.approx(y1 - m)
+    assert x0 + m <= 640.0 - 50.0 * f
+    ov.tip["cue"] = p + np.array([30.0, 0.0])
+    assert fr_out.closeup_arrow_factor(ov, contact, [0, 1, 2]) == 1.0
+    # a ball outside the crop does not shrink the others' arrows
+    far = np.tile(np.array([[20.0, 20.0]]), (n, 1))
+    ov.px["far"], ov.tip["far"], ov.speed["far"] = far, far + 2000.0, np.full(n, 3000.0)
+    assert fr_out.closeup_arrow_factor(ov, contact, [0, 1, 2]) == 1.0

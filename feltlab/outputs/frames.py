@@ -304,13 +304,15 @@ def _text_width(s: str, size: int) -> float:
 
 def draw_overlay(image: np.ndarray, ov: Overlay, frame: int, t_s: float | None = None,
                  focus_contact: dict | None = None, caption: str | None = None,
-                 view: tuple[float, float, float] | None = None) -> np.ndarray:
+                 view: tuple[float, ...] | None = None) -> np.ndarray:
     """A copy of ``image`` (BGR) with the overlay for ``frame``; pure apart from the copy.
 
-    ``view = (x0, y0, scale)``: ``image`` is a crop of the frame starting at
-    pixel (x0, y0), enlarged by ``scale`` (close-ups); geometry is mapped
-    accordingly and the legend panel and contact text are left out (the
-    close-up's caption bar carries them).
+    ``view = (x0, y0, scale[, arrow_factor])``: ``image`` is a crop of the
+    frame starting at pixel (x0, y0), enlarged by ``scale`` (close-ups);
+    geometry is mapped accordingly, velocity arrows are shortened by
+    ``arrow_factor`` (default 1; a close-up's arrows must fit its crop) and
+    the legend panel and contact text are left out (the close-up's caption
+    bar carries them).
     """
     img = image.copy()
     k = int(frame)
@@ -318,9 +320,10 @@ def draw_overlay(image: np.ndarray, ov: Overlay, frame: int, t_s: float | None =
     fs = ov.font_px
     texts: list = []
     if view is None:
-        off, sc = np.zeros(2), 1.0
+        off, sc, af = np.zeros(2), 1.0, 1.0
     else:
         off, sc = np.array(view[:2], float), float(view[2])
+        af = float(view[3]) if len(view) > 3 else 1.0
 
     def T(p):
         return (np.asarray(p, float) - off) * sc
@@ -358,7 +361,7 @@ def draw_overlay(image: np.ndarray, ov: Overlay, frame: int, t_s: float | None =
         cv2.circle(img, _pt(q), r + 1, (0, 0, 0), 3, cv2.LINE_AA)
         cv2.circle(img, _pt(q), r + 1, bgr(col), 1 if view is None else 2, cv2.LINE_AA)
         if ov.speed[b][k] >= MIN_ARROW_SPEED_MM_S:
-            _arrow(img, q, T(ov.tip[b][k]), col, th + 1)
+            _arrow(img, q, q + af * (T(ov.tip[b][k]) - q), col, th + 1)
         names.append((b, q, col))
     # Every drawn ball is a keep-out disc, so labels sit beside balls, not on them.
     keep_out = np.array([[q[0], q[1], r + 2.0] for _, q, _ in names], float).reshape(-1, 3)
@@ -569,6 +572,41 @@ def closeup_box(ov: Overlay, contact: dict) -> tuple[int, int, int, int]:
     return x0, y0, x0 + 2 * hw, y0 + 2 * hh
 
 
+#: In a contact close-up every velocity arrow's head stays this fraction of
+#: the crop's shorter side inside the crop; arrows are shortened (all by one
+#: factor) to make it so, but never below CLOSEUP_ARROW_MIN_FACTOR of their
+#: full-frame length (a ball at the crop's edge moving out of it).
+CLOSEUP_ARROW_MARGIN = 0.06
+CLOSEUP_ARROW_MIN_FACTOR = 0.15
+
+
+def closeup_arrow_factor(ov: Overlay, contact: dict, frames: list[int]) -> float:
+    """Factor (<= 1) shortening a close-up's velocity arrows so every head lies inside the crop.
+
+    Considers every ball drawn with an arrow in ``frames`` whose centre lies in
+    the crop (inset by the margin); returns 1 where the full-frame arrows
+    already fit. The close-up's legend arrow is scaled by the same factor, so
+    lengths stay comparable.
+    """
+    x0, y0, x1, y1 = closeup_box(ov, contact)
+    m = CLOSEUP_ARROW_MARGIN * min(x1 - x0, y1 - y0)
+    lo, hi = np.array([x0 + m, y0 + m]), np.array([x1 - m, y1 - m])
+    f = 1.0
+    for b, p in ov.px.items():
+        for k in frames:
+            if k >= ov.n_frames or not np.isfinite(p[k]).all() or ov.speed[b][k] < MIN_ARROW_SPEED_MM_S:
+                continue
+            q, d = p[k], ov.tip[b][k] - p[k]
+            if not ((lo <= q) & (q <= hi)).all() or not np.isfinite(d).all():
+                continue
+            for i in range(2):  # largest f with q + f d inside [lo, hi] on this axis
+                if d[i] > 0:
+                    f = min(f, (hi[i] - q[i]) / d[i])
+                elif d[i] < 0:
+                    f = min(f, (lo[i] - q[i]) / d[i])
+    return float(max(f, CLOSEUP_ARROW_MIN_FACTOR))
+
+
 def contact_closeup(ov: Overlay, contact: dict, crops: list[tuple[str, int, float, np.ndarray]], out_path: Path,
                     height_px: int = 300) -> Path:
     """Close-up of one contact: (tag, frame, t_s, raw BGR crop) panels side by side, overlay redrawn at the zoom.
@@ -579,13 +617,14 @@ def contact_closeup(ov: Overlay, contact: dict, crops: list[tuple[str, int, floa
     if not crops:
         raise ValueError("no frames for the contact close-up")
     x0, y0, _, _ = closeup_box(ov, contact)
+    af = closeup_arrow_factor(ov, contact, [k for _, k, _, _ in crops])
     panels = []
     fs = max(14, int(height_px * 0.06))
     scale = 1.0
     for tag, k, t, crop in crops:
         scale = height_px / crop.shape[0]
         big = cv2.resize(crop, (int(round(crop.shape[1] * scale)), height_px), interpolation=cv2.INTER_CUBIC)
-        big = draw_overlay(big, ov, k, t, focus_contact=contact, view=(x0, y0, scale))
+        big = draw_overlay(big, ov, k, t, focus_contact=contact, view=(x0, y0, scale, af))
         bar = np.full((int(1.8 * fs), big.shape[1], 3), 255, np.uint8)
         panel = np.vstack([big, bar])
         dt_ms = (t - contact["t_s"]) * 1000.0
@@ -597,7 +636,7 @@ def contact_closeup(ov: Overlay, contact: dict, crops: list[tuple[str, int, floa
     foot = np.full((int(2.0 * fs), strip.shape[1], 3), 255, np.uint8)
     label = f"{contact['label']}   {contact['e_text']}   arrow"
     wl = _text_width(label, fs)
-    L = ov.legend_px * scale
+    L = ov.legend_px * scale * af
     ay = int(foot.shape[0] * 0.5)
     ax0 = int(8 + wl + 10)
     cv2.arrowedLine(foot, (ax0, ay), (int(ax0 + L), ay), (0, 0, 0), 2, cv2.LINE_AA, tipLength=min(0.35, 12.0 / max(L, 1)))
