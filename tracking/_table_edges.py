@@ -182,6 +182,43 @@ def rough_quad(mask: np.ndarray) -> np.ndarray | None:
     return None
 
 
+def region_reach_px(mask: np.ndarray, corners: np.ndarray) -> np.ndarray:
+    """How far (px) the region's rim reaches outward of each side of its rough outline, (4,).
+
+    corners: (4, 2) px in cyclic order; side i runs from corner i to i + 1.
+    The outline comes from the region's hull, and where the region's rim is
+    ragged or rounded (dim cloth: noise crosses the barrier, so the rim stops
+    short and frays) the four-cornered outline cuts inside it; the cloth's
+    true edge lies outward of every rim point (the region does not cross
+    edges). Per side: the outermost decile of the rim points nearest that side
+    (middle 80 % of it; pocket mouths bulge in less than a tenth), as a
+    distance outward of the side (0 when none lies outward).
+    """
+    cnts, _ = cv2.findContours(mask.astype(np.uint8), cv2.RETR_EXTERNAL, cv2.CHAIN_APPROX_NONE)
+    out = np.zeros(4)
+    if not cnts:
+        return out
+    rim = max(cnts, key=cv2.contourArea).reshape(-1, 2).astype(float)
+    c = corners.mean(axis=0)
+    sides = []
+    for i in range(4):
+        p0, p1 = corners[i], corners[(i + 1) % 4]
+        L = float(np.linalg.norm(p1 - p0))
+        u = (p1 - p0) / max(L, 1e-9)
+        n = np.array([-u[1], u[0]])
+        if np.dot(n, (p0 + p1) / 2 - c) < 0:
+            n = -n
+        sides.append((p0, u, n, L))
+    d_out = np.column_stack([(rim - p0) @ n for p0, _, n, _ in sides])  # outward distance from each side
+    near = np.abs(d_out).argmin(axis=1)
+    for i, (p0, u, n, L) in enumerate(sides):
+        sf = (rim[near == i] - p0) @ u / max(L, 1e-9)
+        d = d_out[near == i][(sf > 0.1) & (sf < 0.9)]
+        if d.size >= 10:
+            out[i] = max(float(np.percentile(d, 90)), 0.0)
+    return out
+
+
 def _corner_refine(hull: np.ndarray, quad: np.ndarray) -> np.ndarray:
     """Intersect lines fitted to the hull points nearest each quad side (cuts corner bevels)."""
     lines = []
@@ -424,11 +461,45 @@ def _relocate_peaks(prof: np.ndarray, offs: np.ndarray, pos: np.ndarray, setting
     return out
 
 
+def noise_strip_px(det: np.ndarray, cols: slice, step: float, settings: CalibrationSettings) -> float:
+    """Half-length (px) of the strip along the edge over which profiles are averaged, from their noise.
+
+    det: (P, N) profiles (DN) whose samples ``cols`` are cloth (the cloth
+    nearest the edge: it is the dimmest where light falls off towards the
+    cushions); step: their sample spacing (px). Sensor noise is fixed in DN, so on dim
+    cloth a cushion step of a given *relative* contrast sinks into it. A
+    blurred step of height A has a Gaussian-derivative peak of
+    A / (sqrt(2 pi) sqrt(blur^2 + edge_sigma^2)) (blur ~1 px); to pass the
+    detector's edge_min_snr for the faintest nose it is meant to find
+    (``CalibrationSettings.nose_contrast_min`` of the cloth level) the
+    derivative noise must stay below that peak / edge_min_snr. Averaging n
+    independent pixels along the edge divides the noise by sqrt(n), so the
+    strip grows by (noise / allowed)^2 (median over the side's profiles),
+    from ``profile_strip_px`` up to ``profile_strip_max_px`` (the edge must
+    stay straight and in line with the profile over the strip).
+    """
+    base = settings.profile_strip_px
+    cloth = det[:, cols].astype(float)
+    if cloth.shape[0] < 4 or cloth.shape[1] < 8:
+        return base
+    level = np.median(cloth, axis=1)
+    dc = gaussian_filter1d(cloth, settings.edge_sigma_px / step, axis=1, order=1) / step
+    dnoise = 1.4826 * np.median(np.abs(dc - np.median(dc, axis=1, keepdims=True)), axis=1)
+    ok = level > 1.0
+    if ok.sum() < 4:
+        return base
+    peak = settings.nose_contrast_min * level[ok] / (np.sqrt(2 * np.pi) * np.hypot(1.0, settings.edge_sigma_px))
+    ratio = float(np.median(dnoise[ok] * settings.edge_min_snr / peak))
+    if ratio <= 1.0:
+        return base
+    return float(min(base * ratio ** 2, settings.profile_strip_max_px))
+
+
 def edge_points_along(gray: np.ndarray, p0: np.ndarray, p1: np.ndarray, outward: np.ndarray,
                       s_ranges: list[tuple[float, float]], inner_px: float, outer_px: float,
                       plateau_px: float, settings: CalibrationSettings,
                       curve=None, n_profiles: int | None = None, gray_lin: np.ndarray | None = None,
-                      detect: np.ndarray | None = None
+                      detect: np.ndarray | None = None, rough_line: bool = False
                       ) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
     """Nose points along the segment p0->p1 (px), profiles taken along ``outward``.
 
@@ -437,6 +508,9 @@ def edge_points_along(gray: np.ndarray, p0: np.ndarray, p1: np.ndarray, outward:
     them to sub-pixel (module docstring). ``detect`` (e.g.
     :func:`cloth_projection`), when given, replaces ``gray`` for detecting;
     single edges are then located on ``gray_lin`` or ``gray`` within 1.5 px.
+    Profiles are averaged over a strip along the edge that grows on noisy
+    (dim) cloth (:func:`noise_strip_px`); ``rough_line``: p0->p1 is a rough
+    outline, whose noise is judged on the cloth just inward of it.
 
     Returns (nose points (N,2), edge contrast (N,), band inner-edge points
     (N,2), NaN where the profile shows no band).
@@ -463,13 +537,26 @@ def edge_points_along(gray: np.ndarray, p0: np.ndarray, p1: np.ndarray, outward:
     tang = np.column_stack([-nrm[:, 1], nrm[:, 0]])
     step = settings.profile_step_px
     offs = np.arange(-inner_px, outer_px + step / 2, step)
-    strip = np.arange(-settings.profile_strip_px, settings.profile_strip_px + 1e-9, 0.5)
-    pts = (base[:, None, None, :] + offs[None, :, None, None] * nrm[:, None, None, :]
-           + strip[None, None, :, None] * tang[:, None, None, :])
-    prof = _sample(gray, pts).mean(axis=2)
-    prof_l = prof if gray_lin is None else _sample(gray_lin, pts).mean(axis=2)
     inner_n = max(int(0.35 * inner_px / step), 4)
-    det = prof if detect is None else _sample(detect, pts).mean(axis=2)
+
+    def profiles(half: float):
+        strip = np.arange(-half, half + 1e-9, max(0.5, half / 8))
+        pts = (base[:, None, None, :] + offs[None, :, None, None] * nrm[:, None, None, :]
+               + strip[None, None, :, None] * tang[:, None, None, :])
+        prof = _sample(gray, pts).mean(axis=2)
+        prof_l = prof if gray_lin is None else _sample(gray_lin, pts).mean(axis=2)
+        det = prof if detect is None else _sample(detect, pts).mean(axis=2)
+        return prof, prof_l, det
+
+    prof, prof_l, det = profiles(settings.profile_strip_px)
+    # noise and level of the cloth nearest the line: the leading samples once
+    # the line is a fitted nose (a face band lies just inward of it), else
+    # those just inward of a rough outline (a region cut short on dim cloth)
+    near = max(int(np.searchsorted(offs, 0.0)), inner_n)
+    cols = slice(near - inner_n, near) if rough_line else slice(0, inner_n)
+    half = noise_strip_px(det, cols, step, settings)
+    if half > settings.profile_strip_px:
+        prof, prof_l, det = profiles(half)
     plateau_n = max(int(plateau_px / step), 4)
     band_max_n = max(int(plateau_px * settings.band_max_mm / settings.plateau_mm / step), 4)
     rows, nose, strength, inner, wend = [], [], [], [], []

@@ -92,6 +92,7 @@ from tracking._table_edges import (
     edge_points_along,
     linear_gray,
     median_image,
+    region_reach_px,
     rough_quad,
 )
 from tracking.calibration import Calibration
@@ -264,8 +265,16 @@ def _calibrate_once(frames: list[np.ndarray], table: TablePreset, ball_diameter_
     except ValueError as exc:
         raise FeltlabError(f"could not place a camera over the table outline ({exc}); check the table preset")
     w_px = float(np.mean([np.linalg.norm(corners[3] - corners[0]), np.linalg.norm(corners[2] - corners[1])]))
+    # where the rim of the region frays (dim cloth) the outline cuts inside it:
+    # the first pass searches out to the rim plus the usual margin
+    reach = region_reach_px(mask, corners)
     px_mm0 = w_px / W
     plateau_px = settings.plateau_mm * px_mm0
+    # the refinement passes' profiles start inward of the face band seen in the
+    # previous pass, so their leading samples (taken as cloth) do not hold the
+    # band's foot edge (a wide lens shows the faces at the ends ~25 mm wide):
+    # the leading 35 % (edge_points_along) end >= 4 px inward of the band
+    band_seen = {side: 0.0 for side in SIDE_ORDER}
     prior = (settings.hfov_prior_deg, settings.hfov_prior_sigma_deg)
     fit = None
     inner: dict[str, np.ndarray] = {}
@@ -279,15 +288,30 @@ def _calibrate_once(frames: list[np.ndarray], table: TablePreset, ball_diameter_
                 nrm = np.array([-t[1], t[0]])
                 if np.dot(nrm, (p0 + p1) / 2 - corners.mean(axis=0)) < 0:
                     nrm = -nrm
-                found, _, band = edge_points_along(gray, p0, p1, nrm, ranges, settings.search_in_frac * w_px,
-                                                   settings.search_out_frac * w_px, plateau_px, settings,
-                                                   gray_lin=gray_lin, detect=det)
-                keep = main_line(found, p0, p1, nrm, settings.line_tol_px, min_share=line_share)
+                # coarse to fine: a side whose nose shows on too few profiles
+                # may lie beyond the window (a region cut short on dim cloth):
+                # search again further out; the first edge beyond the cloth
+                # is still taken, so a wider window cannot skip the nose
+                n_want = settings.search_min_share * np.linalg.norm(p1 - p0) / settings.profile_spacing_px * sum(
+                    b - a for a, b in ranges)
+                best = None
+                for grow in settings.search_out_grow:
+                    found, _, band = edge_points_along(
+                        gray, p0, p1, nrm, ranges, settings.search_in_frac * w_px,
+                        grow * (settings.search_out_frac * w_px + reach[i]), plateau_px, settings,
+                        gray_lin=gray_lin, detect=det, rough_line=True)
+                    keep = main_line(found, p0, p1, nrm, settings.line_tol_px, min_share=line_share)
+                    if best is None or keep.sum() > best[0].sum():
+                        best = (keep, found, band)
+                    if keep.sum() >= max(n_want, 8):
+                        break
+                keep, found, band = best
                 found, band = found[keep], band[keep]
             else:
                 win = settings.refine_window_px
                 found, _, band = edge_points_along(
-                    gray, None, None, None, ranges, 1.5 * win + plateau_px / 2, win + plateau_px * 1.5,
+                    gray, None, None, None, ranges, max(1.5 * win + plateau_px / 2, (band_seen[side] + 4.0) / 0.65),
+                    win + plateau_px * 1.5,
                     plateau_px, settings, curve=_curve(fit.camera, side, L, W, z_nose),
                     n_profiles=_n_profiles(fit.camera, side, L, W, z_nose, settings), gray_lin=gray_lin, detect=det)
                 if len(found):
@@ -296,6 +320,7 @@ def _calibrate_once(frames: list[np.ndarray], table: TablePreset, ball_diameter_
                     found, band = found[ok], band[ok]
             pts[side] = found
             inner[side] = band
+            band_seen[side] = min(_band_width_px(found, band), settings.band_max_mm * px_mm0)
         few = [s for s in SIDE_ORDER if len(pts[s]) < 8]
         if few:
             raise _refusal(

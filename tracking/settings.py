@@ -50,6 +50,18 @@ class CalibrationSettings:
     #: along the edge (px).
     profile_step_px: float = 0.25
     profile_strip_px: float = 1.5
+    #: On dim cloth the strip grows with the profiles' noise
+    #: (_table_edges.noise_strip_px) so that a nose step of
+    #: nose_contrast_min of the cloth level still clears edge_min_snr, up to
+    #: profile_strip_max_px (half-length, px; the edge must stay in line with
+    #: the profile over it: a provisional line 2 deg off blurs a 2 x 8 px
+    #: strip by 0.6 px). 0.2: cushion tops of the cloth's own colour at 0.8 of
+    #: its shade (our MuJoCo renders, see edge_signal) must still be found.
+    #: Sweep render f10 (one lamp, vignetting, cloth ~35 DN at the short
+    #: cushions), profiles along the true line: nose points on a dim short
+    #: side 85 -> 263 of ~400 with a 1.5 vs 8 px strip.
+    nose_contrast_min: float = 0.2
+    profile_strip_max_px: float = 8.0
     #: Fit band edges with linear shading slopes beside the band
     #: (_table_edges.refine_band_edges). Light falling off towards a cushion
     #: or a highlight on a rounded nose pulls an edge fitted without them by
@@ -128,6 +140,15 @@ class CalibrationSettings:
     #: outline, as a fraction of the table width in px.
     search_in_frac: float = 0.10
     search_out_frac: float = 0.10
+    #: ... plus how far the region's rim reaches beyond the outline
+    #: (_table_edges.region_reach_px); a side whose main line holds fewer than
+    #: search_min_share of its profiles is searched again with the outward
+    #: window times each factor of search_out_grow in turn (a region stopped
+    #: short of a dim cushion: sweep render f06, dim carom table, needed x2 on
+    #: its short sides, then 0.31 px; f07, one low lamp, 84 px short on a
+    #: 72 px window, then fits but 3.9 px off (yW line) - not yet right).
+    search_min_share: float = 0.15
+    search_out_grow: tuple[float, ...] = (1.0, 2.0, 3.0)
     #: Half-width (px) of the search window of the refinement passes around
     #: the nose line predicted by the previous camera fit.
     refine_window_px: float = 10.0
