@@ -549,11 +549,29 @@ def find_faint(image: np.ndarray, calibration: Calibration, background: Backgrou
 
 def add_faint(det: pd.DataFrame, image: np.ndarray, calibration: Calibration, background: Background,
               settings: DetectionSettings = DetectionSettings()) -> pd.DataFrame:
-    """``det`` (one frame's detections) plus the faint balls :func:`find_faint` finds away from them."""
-    if not settings.faint_search:
-        return det
-    known = det[["x_px", "y_px"]].to_numpy(float) if len(det) else np.zeros((0, 2))
-    extra = find_faint(image, calibration, background, known, settings)
+    """``det`` (one frame's detections) plus the balls of the cloth's own colour that
+    :func:`tracking.dark_ring.find_dark_ring` finds away from them, then the faint balls :func:`find_faint`
+    finds away from all of those."""
+    if settings.ring_search:
+        # first: its centre comes from the ball's own outline, where the
+        # colour filter's is pulled by the ball's shadow
+        from tracking.dark_ring import find_dark_ring
+
+        det = _append(det, find_dark_ring(image, calibration, background, _known(det), settings), calibration,
+                      settings)
+    if settings.faint_search:
+        det = _append(det, find_faint(image, calibration, background, _known(det), settings), calibration, settings)
+    return det
+
+
+def _known(det: pd.DataFrame) -> np.ndarray:
+    """(N,2) image centres of the detections so far."""
+    return det[["x_px", "y_px"]].to_numpy(float) if len(det) else np.zeros((0, 2))
+
+
+def _append(det: pd.DataFrame, extra: pd.DataFrame, calibration: Calibration,
+            settings: DetectionSettings) -> pd.DataFrame:
+    """det plus the extra finds that clear the corner pockets' mouths."""
     if not extra.empty:
         # A faint disc overlapping a corner pocket's mouth is the pocket's
         # shaded rim far more often than a ball (a faint find has no clear

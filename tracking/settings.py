@@ -675,6 +675,67 @@ class DetectionSettings:
     #: (both less the ring's median): a ball changes most of its disc, a
     #: small bright mark (a table spot ~1/20 of a ball's area) only its mean.
     faint_min_extent: float = 0.5
+    #: Dark-ring search (tracking/dark_ring.py): balls of the cloth's own colour found
+    #: by the dark ring a lit sphere shows at its silhouette (Lambert limb
+    #: darkening inside, the contact shadow outside). Off: not searched.
+    ring_search: bool = True
+    #: Annuli of the ring template, x radius: inner (the ball's lit top
+    #: beyond its centre marks' usual reach), rim (the last 15 % of the
+    #: limb, where n.l of an overhead lamp falls below ~0.5, plus the first
+    #: tenth of a radius of contact shadow and the rim blur), outer (open
+    #: cloth past the contact shadow). Geometry, not fitted.
+    ring_inner: tuple[float, float] = (0.5, 0.75)
+    ring_rim: tuple[float, float] = (0.85, 1.12)
+    ring_outer: tuple[float, float] = (1.28, 1.55)
+    #: Pixels within this many radii of a ball already found carry no weight
+    #: (its silhouette and rim blur; its contact shadow is left in, a real
+    #: neighbour's shadow darkens only the sectors facing it).
+    ring_known_pad: float = 1.05
+    #: A limb ball's centre lies at least this many radii from every ball
+    #: already found (as explain_min_sep: rigid balls touch at 2 radii; less
+    #: two centre errors).
+    ring_min_sep: float = 1.7
+    #: The statistic's noise and tail level are measured on positions at
+    #: least this many radii from balls already found (open cloth: a ball's
+    #: shadow reaches ~2 radii past its centre, plus the ring's 1.12 radii).
+    ring_clutter_sep: float = 3.2
+    #: Least usable share of the inner, rim and outer annulus (on the cloth,
+    #: not under a ball): a ball at the edge of a rack has 3-4 touching
+    #: neighbours covering ~2/3 of its outer annulus.
+    ring_min_cover: tuple[float, float, float] = (0.5, 0.5, 0.2)
+    #: Probability of one false seed per frame over the frame's independent
+    #: disc positions (Bonferroni; our choice, as faint_false_alarm).
+    ring_false_alarm: float = 1e-4
+    #: Seeds refined per frame, out of at most ring_max_tested peaks.
+    ring_max_seeds: int = 4
+    ring_max_tested: int = 24
+    #: Closed-ring test in 8 sectors of 45 deg (dark_ring._closed_ring): at
+    #: least ring_min_sectors seen and at most ring_max_open of them (or
+    #: ring_max_open_frac of those seen, a 90 deg arc of 8) open: a lamp to
+    #: one side lights the limb on its side; a line, a crescent or a
+    #: pocket's shade is open over half the ring or more.
+    ring_min_sectors: int = 4
+    ring_max_open: int = 1
+    ring_max_open_frac: float = 0.25
+    #: A sector is closed when its rim lies below its inner (and visible
+    #: outer) annulus by ring_sector_frac of the ring's contrast and by
+    #: ring_sector_z sigmas of the medians' difference.
+    ring_sector_frac: float = 0.1
+    ring_sector_z: float = 3.0
+    #: Search at half resolution when the ball radius is at least this (px):
+    #: the rim annulus is then still >= 1.6 px wide.
+    ring_half_res_px: float = 12.0
+    #: Model error of the ring centre, x radius: on closed-form Lambert
+    #: spheres of the cloth's colour with a sky and a cast shadow
+    #: (tests/test_detect_dark_ring.py) the centre is within 0.01 r with
+    #: the lamp overhead and 0.15-0.16 r off, away from the lamp, with it
+    #: 25 deg to the side (the cast shadow widens the ring there); at 40 deg
+    #: the shadow falls past the rim annulus (0.01-0.05 r). 0.1 r puts that
+    #: worst case at 1.6 sigma.
+    ring_model_frac: float = 0.1
+    #: Highest confidence of a limb ball (below faint balls' 0.5 and any
+    #: clear detection, so merges keep those).
+    ring_max_conf: float = 0.4
 
 
 @dataclass(frozen=True)

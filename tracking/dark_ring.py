@@ -1,0 +1,314 @@
+"""Balls of the cloth's own colour, found by their shading: the dark limb of a lit sphere.
+
+A ball whose colour equals the cloth's (maroon on red, green on green)
+differs from the cloth in colour by nearly nothing, so neither the
+per-pixel test of :mod:`tracking.detect` nor the centre-surround colour
+filter of :mod:`tracking.faint` sees it, least of all among other balls
+(a rack), where no surround of empty cloth exists. What stays is geometry
+and shading:
+
+* Lambert's law: the ball's brightness goes as ambient + (1 - ambient)
+  n.l, and the surface normal n turns horizontal at the silhouette, so a
+  lamp above the table leaves the limb darker than the top of the ball
+  (whose normal is the cloth's own); averaged over the annulus 0.85-1.12
+  radii it is the darkest part of the ball's image.
+* The cloth right at the ball's foot sees less of the room (the ball
+  hides half the sky there): a dark contact ring just outside the
+  silhouette, fading within a few tenths of a radius (ambient occlusion,
+  view-factor of a sphere on a plane).
+
+Both put a thin dark ring at the silhouette, brighter inside (the top)
+and outside (open cloth). The image radius of a ball is known at every
+point from the calibration, so the ring is matched with fixed radii:
+
+``T(x) = mean_L(inner annulus) + mean_L(outer annulus) - 2 mean_L(rim annulus)``
+
+on CIELAB L* of the frame itself (no background model: a ball that never
+moved is found like a moving one), with normalised convolution (Knutsson &
+Westin, CVPR 1993) so that pixels of balls already found and pixels off
+the playing surface carry no weight. Annuli (x radius):
+``ring_inner``, ``ring_rim``, ``ring_outer`` in DetectionSettings.
+
+Detection: T is standardised by its robust mean and sigma over the frame's
+own positions on open cloth (``ring_clutter_sep`` radii from balls already found) (Croux & Haesbroeck reweighting, :func:`tracking.faint.robust_cov`);
+``q = max(z, 0)^2`` is chi-square with one degree of freedom for Gaussian
+noise, and a seed must exceed the larger of the Bonferroni level for the
+frame's independent disc positions and the level read off the frame's
+own tail (:func:`tracking.faint.tail_level`). Guards: the ring must be
+closed (darker than both its inside and its outside in all but
+``ring_max_open`` of the 8 sectors that can be seen: a line, a shadow
+crescent or a pocket's shade is open), the centre on the playing surface
+and ``ring_min_sep`` radii from every ball already found (rigid balls).
+
+Centre: the sub-pixel peak of T at full resolution (parabola through the
+maximum). Sigma: the Cramer-Rao bound of the template (noise / contrast,
+:func:`tracking.faint.template_sigma_px`) plus a model error
+``ring_model_frac`` x r (the ring is not exactly symmetric when the lamp is
+to one side; see the setting).
+"""
+from __future__ import annotations
+
+import cv2
+import numpy as np
+import pandas as pd
+
+from tracking.calibration import Calibration
+from tracking.detect import DETECTION_COLUMNS, Background, colour_summary, to_lab
+from tracking.faint import (_convolve_same, _on_cloth, _peaks, detection_level, disc_kernel, robust_cov,
+                            surface_masks, tail_level, template_sigma_px)
+from tracking.settings import DetectionSettings
+
+#: Extra columns of :func:`find_dark_ring`: the seed's statistic q and its level,
+#: and the ring's contrast (L* units) at the peak.
+RING_COLUMNS = ["ring_q", "ring_level", "ring_contrast"]
+
+
+def ring_kernels(r: float, settings: DetectionSettings = DetectionSettings()) -> tuple[np.ndarray, ...]:
+    """(inner, rim, outer) annulus kernels for a ball of image radius r px, each summing to 1."""
+    a, b = settings.ring_inner
+    c, d = settings.ring_rim
+    e, f = settings.ring_outer
+    return disc_kernel(b * r, a * r), disc_kernel(d * r, c * r), disc_kernel(f * r, e * r)
+
+
+def ring_statistic(lum: np.ndarray, weight: np.ndarray, r: float,
+                   settings: DetectionSettings = DetectionSettings()) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """Dark-ring contrast T (H,W; L* units) of a luminance image, its noise scale and the annuli's usable shares.
+
+    T = inner + outer - 2 rim (weighted means; ``weight`` 0..1 per pixel).
+    Returns (T, g, cover (H,W,3)): g is the variance of T relative to fully
+    covered annuli (each weighted mean of independent pixels has variance
+    sum(k^2) / cover), so T / sqrt(g) has the same noise everywhere.
+    """
+    w = weight.astype(np.float32)
+    ks = ring_kernels(r, settings)
+    out = _convolve_same(np.dstack([lum.astype(np.float32) * w, w]), ks)
+    m = [o[..., 0] / np.maximum(o[..., 1], 1e-3) for o in out]
+    cover = np.dstack([o[..., 1] for o in out])
+    s2 = [float((k ** 2).sum()) * f for k, f in zip(ks, (1.0, 4.0, 1.0))]
+    g = sum(v / np.maximum(cover[..., i], 1e-3) for i, v in enumerate(s2)) / sum(s2)
+    return (m[0] + m[2] - 2.0 * m[1]).astype(np.float32), g.astype(np.float32), cover
+
+
+def _closed_ring(lum: np.ndarray, wgt: np.ndarray, x: float, y: float, r: float, contrast: float,
+                 noise_px: float, settings: DetectionSettings) -> tuple[int, int]:
+    """(sectors seen, sectors open) of the dark ring about (x, y) px.
+
+    Per 45 deg sector the rim annulus (median) must lie below the inner one
+    (the limb darkening, inside the ball) or below the mean of the inner and
+    the outer one (on the lamp's side the limb is lit and the contact shadow
+    outside makes the ring) by a step of ``ring_sector_frac`` of the whole
+    ring's contrast and of ``ring_sector_z`` sigmas of the difference of two
+    medians (a median of n pixels of noise s has sigma 1.2533 s / sqrt(n));
+    the outer annulus, where seen, must not lie below the rim by as much (in
+    a rack the neighbours' shadows darken it, so it need not be brighter). A
+    sector is seen when its inner and rim parts are (>= 30 % usable pixels).
+    """
+    n = int(np.ceil(settings.ring_outer[1] * r)) + 1
+    h, w = lum.shape
+    xi, yi = int(round(x)), int(round(y))
+    xa, ya, xb, yb = max(0, xi - n), max(0, yi - n), min(w, xi + n + 1), min(h, yi + n + 1)
+    yy, xx = np.mgrid[ya:yb, xa:xb]
+    dx, dy = xx - x, yy - y
+    rho = np.hypot(dx, dy) / r
+    ok = wgt[ya:yb, xa:xb] > 0
+    L = lum[ya:yb, xa:xb]
+    sec = np.floor((np.arctan2(dy, dx) % (2 * np.pi)) * (8 / (2 * np.pi))).astype(int) % 8
+    bands = [(rho >= lo) & (rho <= hi) for lo, hi in (settings.ring_inner, settings.ring_rim, settings.ring_outer)]
+    seen = n_open = 0
+    for k in range(8):
+        s = sec == k
+        vals, cnt = [], []
+        for band in bands:
+            m = band & s & ok
+            good = m.sum() >= max(2, 0.3 * (band & s).sum())
+            vals.append(float(np.median(L[m])) if good else None)
+            cnt.append(int(m.sum()))
+        if vals[0] is None or vals[1] is None:
+            continue  # off the cloth or under a ball already found: says nothing
+        seen += 1
+        need = [max(settings.ring_sector_frac * contrast,
+                    settings.ring_sector_z * 1.2533 * noise_px * np.sqrt(1.0 / max(cnt[i], 1) + 1.0 / cnt[1]))
+                for i in (0, 2)]
+        step = vals[0] - vals[1]
+        if vals[2] is not None:
+            # on the lamp's side the limb is lit and the ring is mostly the
+            # contact shadow outside: the mean of both sides counts there; a
+            # neighbour's shadow may darken the outside, but not below the rim
+            step = max(step, 0.5 * (vals[0] + vals[2]) - vals[1])
+            if vals[2] - vals[1] < -need[1]:
+                step = -np.inf
+        n_open += bool(step < need[0])
+    return seen, n_open
+
+
+def ring_is_closed(lum: np.ndarray, wgt: np.ndarray, x: float, y: float, r: float, contrast: float,
+                   noise_px: float, settings: DetectionSettings) -> bool:
+    """The closed-ring test of :func:`_closed_ring`: >= ring_min_sectors seen, at most ring_max_open
+    (or ring_max_open_frac of those seen) open."""
+    seen, n_open = _closed_ring(lum, wgt, x, y, r, contrast, noise_px, settings)
+    return seen >= settings.ring_min_sectors and n_open <= max(settings.ring_max_open,
+                                                                int(settings.ring_max_open_frac * seen))
+
+
+def ring_search(lum: np.ndarray, valid: np.ndarray, r: float, known: np.ndarray, known_r: np.ndarray,
+                settings: DetectionSettings = DetectionSettings(),
+                centre_ok: np.ndarray | None = None, closure: bool = True) -> tuple[list[dict], dict]:
+    """Seeds of balls by their dark limb ring in one luminance image (L*, H,W).
+
+    valid: bool (H,W) pixels of the playing surface; r: ball radius px at
+    this resolution; known: (N,2) centres of balls already found and
+    known_r (N,) their radii (same px frame); centre_ok: optional bool
+    (H,W) where a centre may lie; closure: apply the closed-ring test here
+    (False: the caller applies it at full resolution). Returns (seeds [dict(x, y, q, level,
+    contrast)], info dict(level, mu, sd, n_positions)).
+    """
+    h, w = lum.shape
+    wgt = valid.astype(np.float32)
+    known = np.asarray(known, float).reshape(-1, 2)
+    for (x, y), rk in zip(known, np.asarray(known_r, float).reshape(-1)):
+        cv2.circle(wgt, (int(round(x * 16)), int(round(y * 16))), int(round(settings.ring_known_pad * rk * 16)),
+                   0, -1, lineType=cv2.LINE_8, shift=4)
+    T, g, cover = ring_statistic(lum, wgt, r, settings)
+    T = T / np.sqrt(g)  # same noise at every position
+    yy, xx = np.mgrid[0:h, 0:w]
+    far = np.ones((h, w), bool)
+    open_cloth = np.ones((h, w), bool)
+    for x, y in known:
+        d2 = (xx - x) ** 2 + (yy - y) ** 2
+        far &= d2 >= (settings.ring_min_sep * r) ** 2
+        open_cloth &= d2 >= (settings.ring_clutter_sep * r) ** 2
+    ri = int(np.ceil(settings.ring_outer[1] * r))
+    inside = np.zeros((h, w), bool)
+    inside[ri:h - ri, ri:w - ri] = True
+    usable = valid & np.all(cover >= np.float32(settings.ring_min_cover), axis=2) & inside
+    info = {"level": np.inf, "mu": np.nan, "sd": np.nan, "n_positions": 0.0, "T": T}
+    st = max(1, int(r // 2))
+    # noise and clutter level from open cloth: round a ball already found
+    # its own shadows make rings that are open (the closed-ring test's
+    # work), and in a rack they would set the level for everyone
+    quiet = usable & open_cloth
+    if quiet.sum() < 0.2 * usable.sum():
+        quiet = usable
+    samp = T[::st, ::st][quiet[::st, ::st]]
+    if len(samp) < 50:
+        return [], info
+    mu, cov = robust_cov(samp[:, None])
+    sd = float(np.sqrt(cov[0, 0]))
+    z = (T - float(mu[0])) / max(sd, 1e-6)
+    q = np.where(z > 0, z * z, 0.0).astype(np.float32)
+    n_pos = float(usable.sum()) / (np.pi * r * r)
+    qs = q[quiet]  # every position: the tail needs the most samples
+    level = max(detection_level(n_pos, settings.ring_false_alarm, dof=1),
+                tail_level(qs, n_pos, settings.ring_false_alarm, settings.faint_tail_p))
+    ki, km, ko = ring_kernels(r, settings)
+    noise_px = sd / float(np.sqrt((ki ** 2).sum() + (ko ** 2).sum() + 4.0 * (km ** 2).sum()))
+    info.update(level=level, mu=float(mu[0]), sd=sd, n_positions=n_pos, noise_px=noise_px)
+    ok = usable & far if centre_ok is None else usable & far & centre_ok
+    seeds = []
+    # the pockets' shade and the cushions' foot give open rings that can outrank a ball: test
+    # several peaks, keep at most ring_max_seeds
+    for x, y, qv in _peaks(q, level, settings.nms_radius * r, usable, settings.ring_max_tested, ok):
+        if len(seeds) >= settings.ring_max_seeds:
+            break
+        contrast = float(T[y, x] * np.sqrt(g[y, x]))  # L* units
+        if closure and not ring_is_closed(lum, wgt, x, y, r, contrast, noise_px, settings):
+            continue
+        seeds.append({"x": float(x), "y": float(y), "q": qv, "level": level, "contrast": contrast})
+    return seeds, info
+
+
+def _subpixel_peak(T: np.ndarray, x0: float, y0: float, rad: int) -> tuple[float, float]:
+    """Sub-pixel maximum (x, y) of T within rad px of (x0, y0) (parabola through the maximum, per axis)."""
+    h, w = T.shape
+    xa, ya = max(1, int(round(x0)) - rad), max(1, int(round(y0)) - rad)
+    xb, yb = min(w - 1, int(round(x0)) + rad + 1), min(h - 1, int(round(y0)) + rad + 1)
+    if xb <= xa or yb <= ya:
+        return x0, y0
+    sub = T[ya:yb, xa:xb]
+    j, i = np.unravel_index(int(np.argmax(sub)), sub.shape)
+    yi, xi = ya + j, xa + i
+
+    def par(a, b, c):
+        den = a - 2 * b + c
+        return float(np.clip(0.5 * (a - c) / den, -0.5, 0.5)) if abs(den) > 1e-12 else 0.0
+    return xi + par(T[yi, xi - 1], T[yi, xi], T[yi, xi + 1]), yi + par(T[yi - 1, xi], T[yi, xi], T[yi + 1, xi])
+
+
+def ring_centre(lum: np.ndarray, wgt: np.ndarray, x0: float, y0: float, r: float,
+                settings: DetectionSettings = DetectionSettings()) -> tuple[float, float, float]:
+    """Sub-pixel centre (x, y px) and contrast (L*) of the dark ring within r/2 of (x0, y0) in a luminance patch."""
+    T = ring_statistic(lum, wgt, r, settings)[0]
+    x, y = _subpixel_peak(T, x0, y0, max(2, int(round(0.5 * r))))
+    return x, y, float(T[int(round(y)), int(round(x))])
+
+
+def find_dark_ring(image: np.ndarray, calibration: Calibration, background: Background, known_px: np.ndarray,
+              settings: DetectionSettings = DetectionSettings()) -> pd.DataFrame:
+    """Balls of the cloth's colour in one BGR uint8 frame, away from the balls already found (known_px (N,2)).
+
+    Returns a DataFrame with :data:`tracking.detect.DETECTION_COLUMNS` plus
+    :data:`RING_COLUMNS`; empty when nothing passes.
+    """
+    cal = calibration
+    x0, y0, x1, y1 = background.roi
+    r0 = background.radius_px
+    sc = 2 if r0 >= settings.ring_half_res_px else 1
+    cloth, centre_ok, msc = surface_masks(background, cal, settings)
+    size = ((x1 - x0) // sc, (y1 - y0) // sc)
+    if msc != sc:
+        cloth = cv2.resize(cloth.astype(np.uint8), size, interpolation=cv2.INTER_NEAREST) > 0
+        centre_ok = cv2.resize(centre_ok.astype(np.uint8), size, interpolation=cv2.INTER_NEAREST) > 0
+    roi = image[y0:y1, x0:x1]
+    small = cv2.resize(roi, size, interpolation=cv2.INTER_AREA) if sc > 1 else roi
+    lum = to_lab(small)[..., 0]
+    known = np.asarray(known_px, float).reshape(-1, 2)
+    kr = np.array([background.lookup(x, y)[0] for x, y in known]).reshape(-1)
+    kp = (known - [x0, y0] - 0.5 * (sc - 1)) / sc
+    seeds, info = ring_search(lum, cloth, r0 / sc, kp, kr / sc, settings, centre_ok, closure=sc == 1)
+    rows = []
+    accepted = [tuple(p) for p in known]
+    acc_r = list(kr)
+    H, W = image.shape[:2]
+    for sd in seeds:
+        gx, gy = sd["x"] * sc + 0.5 * (sc - 1) + x0, sd["y"] * sc + 0.5 * (sc - 1) + y0
+        r_exp, _, _ = background.lookup(gx, gy)
+        # full resolution: the ring statistic in a patch, its sub-pixel peak
+        pad = int(np.ceil(2.0 * settings.ring_outer[1] * r_exp)) + 4
+        xa, ya, xb, yb = max(0, int(gx) - pad), max(0, int(gy) - pad), min(W, int(gx) + pad + 2), min(H, int(gy) + pad + 2)
+        lp = to_lab(image[ya:yb, xa:xb])[..., 0]
+        wp = np.zeros(lp.shape, np.float32)
+        cy0, cx0 = max(ya, y0), max(xa, x0)
+        cy1, cx1 = min(yb, y1), min(xb, x1)
+        full_cloth = cv2.resize(cloth.astype(np.uint8), (x1 - x0, y1 - y0), interpolation=cv2.INTER_NEAREST) \
+            if sc > 1 else cloth.astype(np.uint8)
+        wp[cy0 - ya:cy1 - ya, cx0 - xa:cx1 - xa] = full_cloth[cy0 - y0:cy1 - y0, cx0 - x0:cx1 - x0]
+        for (kx, ky), rk in zip(accepted, acc_r):
+            cv2.circle(wp, (int(round((kx - xa) * 16)), int(round((ky - ya) * 16))),
+                       int(round(settings.ring_known_pad * rk * 16)), 0, -1, lineType=cv2.LINE_8, shift=4)
+        tx, ty, contrast = ring_centre(lp, wp, gx - xa, gy - ya, r_exp, settings)
+        cx, cy = tx + xa, ty + ya
+        # per-pixel L* noise at full resolution: area averaging over sc x sc pixels divided it by sc
+        noise_px = info["noise_px"] * sc
+        if sc > 1 and not ring_is_closed(lp, wp, tx, ty, r_exp, contrast, noise_px, settings):
+            continue
+        if any(np.hypot(cx - a, cy - b) < settings.ring_min_sep * rb for (a, b), rb in zip(accepted, acc_r)):
+            continue
+        if not _on_cloth(cal, np.array([[cx, cy]]), settings.faint_margin * cal.ball_radius_mm)[0]:
+            continue
+        r_exp, ox, oy = background.lookup(cx, cy)
+        sig_t = template_sigma_px(contrast, noise_px, r_exp, settings.faint_blur_px, 1.0)
+        sig = float(np.hypot(min(sig_t, r_exp), settings.ring_model_frac * r_exp))
+        p = np.array([[cx - ox, cy - oy]])
+        xy = cal.px_to_table(p)[0]
+        mmpp = cal.ball_radius_mm / r_exp
+        col = colour_summary(image, cx, cy, r_exp, settings)
+        conf = float(settings.ring_max_conf * np.clip(1.0 - sd["level"] / sd["q"], 0.0, 1.0))
+        rows.append({"x_px": p[0, 0], "y_px": p[0, 1], "x_mm": xy[0], "y_mm": xy[1],
+                     "sx_mm": sig * mmpp, "sy_mm": sig * mmpp, "sigma_px": sig, "confidence": conf,
+                     "radius_px": r_exp, "radius_expected_px": r_exp, "support": 0.0, "contrast_dn": 0.0,
+                     **col, "streak_px": 0.0, "streak_deg": np.nan,
+                     "ring_q": sd["q"], "ring_level": sd["level"], "ring_contrast": contrast})
+        accepted.append((cx, cy))
+        acc_r.append(r_exp)
+    return pd.DataFrame(rows, columns=DETECTION_COLUMNS + RING_COLUMNS)
