@@ -453,7 +453,11 @@ def inner_step_ratio(img: np.ndarray, cam: CameraModel, side: str, L: float, W: 
     ``face_band_max_mm`` wide: a wider "band" is the cushion top between a
     missed nose and the rail. ``ranges``: fractions of the side used (pockets
     excluded), as for the edge points; edges are compared on the
-    derivative of Gaussian at 1.5 px, out to 120 mm inward.
+    derivative of Gaussian at 1.5 px, out to 120 mm inward. Only profiles
+    wholly inside the picture count: where the nose runs off the frame the
+    samples beyond it repeat the border row, the nose step vanishes from the
+    median and the cloth's shading inward of it looked like a missed nose
+    (sweep render f09, ratio 2.57 on a correct fit; 0 when no profile fits).
     """
 
     sfr = np.linspace(0.0, 1.0, 240)
@@ -465,7 +469,13 @@ def inner_step_ratio(img: np.ndarray, cam: CameraModel, side: str, L: float, W: 
     step = 0.25
     reach = 120.0 * px_mm
     offs = np.arange(-reach, 6.0 * settings.edge_sigma_px + 4.0, step)
-    prof = _sample(img, p[:, None, :] + offs[None, :, None] * n[:, None, :])
+    q = p[:, None, :] + offs[None, :, None] * n[:, None, :]
+    # profiles running off the picture see its border (replicated samples), not the table
+    h, w = img.shape[:2]
+    inside = ((q[..., 0] >= 0) & (q[..., 0] <= w - 1) & (q[..., 1] >= 0) & (q[..., 1] <= h - 1)).all(axis=1)
+    if inside.sum() < 8:
+        return 0.0
+    prof = _sample(img, q[inside])
     g = np.median(prof, axis=0)
     dg = np.abs(gaussian_filter1d(g, 1.5 / step, order=1))
     nose = dg[np.abs(offs) <= 2.0].max()
