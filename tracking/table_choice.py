@@ -17,6 +17,7 @@ from feltlab.standards import TABLES, TablePreset, table_preset
 from tracking.calibrate import calibrate_auto, nose_height_mm
 from tracking.calibration import Calibration
 from tracking.pockets import has_side_pockets, side_pocket_contrast
+from tracking.settings import CalibrationSettings
 
 log = logging.getLogger("feltlab.tracking")
 
@@ -38,13 +39,22 @@ def calibrate_choosing_table(frames: list[np.ndarray], table: TablePreset) -> tu
         cal = calibrate_auto(frames, table)
     except FeltlabError as first:
         cal = None
+        k1_max = CalibrationSettings().k1_warn
         for name, other in TABLES.items():
             if name == table.name:
                 continue
             try:
-                cal = calibrate_auto(frames, other)
+                cand = calibrate_auto(frames, other)
             except FeltlabError:
                 continue
+            k1 = float(cand.camera.dist[0])
+            if abs(k1) > k1_max:
+                # a stand-in preset reached only by bending the lens beyond any video lens is a wrong
+                # fit, not a different table (sweep render f09: pool-9ft refused, pool-7ft "fitted"
+                # with k1 = -1.07 and put every ball 200-380 mm off)
+                log.info("calibration as %s needs k1 = %.2f (> %.2f): not taken", name, k1, k1_max)
+                continue
+            cal = cand
             log.info("calibration as %s failed (%s); it fits as %s", table.name, first, name)
             break
         if cal is None:
