@@ -22,7 +22,7 @@ import numpy as np
 import pytest
 
 from lambert_ball import srgb_encode
-from tracking.dark_ring import ring_centre, ring_search
+from tracking.dark_ring import ring_centre, ring_refine, ring_search
 from tracking.detect import to_lab
 from tracking.settings import DetectionSettings
 
@@ -81,7 +81,8 @@ def _find(frame, known=np.zeros((0, 2)), known_r=np.zeros(0)):
             cv2.circle(wgt, (int(round(x * 16)), int(round(y * 16))), int(round(S.ring_known_pad * rk * 16)), 0, -1,
                        lineType=cv2.LINE_8, shift=4)
         x, y, _ = ring_centre(lum, wgt, sd["x"], sd["y"], R, S)
-        out.append((x, y))
+        ref = ring_refine(lum, wgt, x, y, R, S)  # as find_dark_ring: the rays' circle when it holds
+        out.append((x, y) if ref is None else ref)
     return out
 
 

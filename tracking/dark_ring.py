@@ -35,16 +35,19 @@ own positions on open cloth (``ring_clutter_sep`` radii from balls already found
 noise, and a seed must exceed the larger of the Bonferroni level for the
 frame's independent disc positions and the level read off the frame's
 own tail (:func:`tracking.faint.tail_level`). Guards: the ring must be
-closed (darker than both its inside and its outside in all but
-``ring_max_open`` of the 8 sectors that can be seen: a line, a shadow
-crescent or a pocket's shade is open), the centre on the playing surface
-and ``ring_min_sep`` radii from every ball already found (rigid balls).
+closed (:func:`_closed_ring`: darker than its inside, or than the mean of
+its inside and outside, in all but a quarter of the 8 sectors that can be
+seen; a line, a shadow crescent or a pocket's shade is open), the centre
+on the playing surface and ``ring_min_sep`` radii from every ball already
+found (rigid balls).
 
 Centre: the sub-pixel peak of T at full resolution (parabola through the
-maximum). Sigma: the Cramer-Rao bound of the template (noise / contrast,
+maximum), then :func:`ring_refine`: the circle through the darkest point of
+each free ray (Tukey weights down-weight the rays that run into the ball's
+cast shadow, which widens the ring away from the lamp), kept when it
+agrees. Sigma: the Cramer-Rao bound of the template (noise / contrast,
 :func:`tracking.faint.template_sigma_px`) plus a model error
-``ring_model_frac`` x r (the ring is not exactly symmetric when the lamp is
-to one side; see the setting).
+``ring_model_frac`` x r (see the setting for the closed-form figures).
 """
 from __future__ import annotations
 
@@ -243,6 +246,55 @@ def ring_centre(lum: np.ndarray, wgt: np.ndarray, x0: float, y0: float, r: float
     return x, y, float(T[int(round(y)), int(round(x))])
 
 
+def ring_refine(lum: np.ndarray, wgt: np.ndarray, x0: float, y0: float, r: float,
+                settings: DetectionSettings = DetectionSettings()) -> tuple[float, float] | None:
+    """Centre (x, y px) of the circle through the darkest point of each ray from (x0, y0), or None.
+
+    Rays (``ring_rays`` of them) run from ring_ray_span[0] to [1] radii and
+    are smoothed along their length; a ray crossing pixels of weight 0 (a
+    ball already found, off the cloth) is left out. The darkest point is
+    the limb / contact-shadow ring, except where the ball's cast shadow
+    lies beyond it; a Tukey-weighted circle fit with free radius
+    (:func:`tracking.detect.fit_circle_robust`) takes the majority and
+    down-weights the shadow's rays. None when fewer than ring_min_rays rays
+    are left, or the fit moves more than ring_refine_max_shift radii or
+    finds a radius outside ring_refine_radius.
+    """
+    from tracking.detect import fit_circle_robust
+
+    n = settings.ring_rays
+    ang = np.arange(n) * (2 * np.pi / n)
+    step = 0.25
+    rad = np.arange(settings.ring_ray_span[0] * r, settings.ring_ray_span[1] * r, step)
+    X = (x0 + np.cos(ang)[:, None] * rad[None, :]).astype(np.float32)
+    Y = (y0 + np.sin(ang)[:, None] * rad[None, :]).astype(np.float32)
+    prof = cv2.remap(lum.astype(np.float32), X, Y, cv2.INTER_LINEAR, borderMode=cv2.BORDER_REPLICATE)
+    wv = cv2.remap(wgt.astype(np.float32), X, Y, cv2.INTER_NEAREST, borderMode=cv2.BORDER_CONSTANT, borderValue=0)
+    # smooth along each ray only (sigma 0.5 px): pixel noise, not the ring
+    prof = cv2.GaussianBlur(prof, (0, 0), sigmaX=0.5 / step, sigmaY=1e-3)
+    pts = []
+    for k in range(n):
+        if wv[k].min() <= 0:
+            continue
+        j = int(np.argmin(prof[k]))
+        if not 0 < j < len(rad) - 1:
+            continue
+        a, b, c = prof[k, j - 1:j + 2]
+        den = a - 2 * b + c
+        rr = rad[j] + (step * float(np.clip(0.5 * (a - c) / den, -0.5, 0.5)) if den > 1e-9 else 0.0)
+        pts.append((x0 + np.cos(ang[k]) * rr, y0 + np.sin(ang[k]) * rr))
+    if len(pts) < settings.ring_min_rays:
+        return None
+    pts = np.array(pts)
+    fit = fit_circle_robust(pts, np.ones(len(pts)), np.array([x0, y0]), None, settings.tukey_c)
+    cx, cy = float(fit["centre"][0]), float(fit["centre"][1])
+    lo, hi = settings.ring_refine_radius
+    if not (np.isfinite(cx) and np.isfinite(cy) and lo * r <= fit["radius"] <= hi * r
+            and np.hypot(cx - x0, cy - y0) <= settings.ring_refine_max_shift * r):
+        return None
+    return cx, cy
+
+
 def find_dark_ring(image: np.ndarray, calibration: Calibration, background: Background, known_px: np.ndarray,
               settings: DetectionSettings = DetectionSettings()) -> pd.DataFrame:
     """Balls of the cloth's colour in one BGR uint8 frame, away from the balls already found (known_px (N,2)).
@@ -287,12 +339,21 @@ def find_dark_ring(image: np.ndarray, calibration: Calibration, background: Back
             cv2.circle(wp, (int(round((kx - xa) * 16)), int(round((ky - ya) * 16))),
                        int(round(settings.ring_known_pad * rk * 16)), 0, -1, lineType=cv2.LINE_8, shift=4)
         tx, ty, contrast = ring_centre(lp, wp, gx - xa, gy - ya, r_exp, settings)
-        cx, cy = tx + xa, ty + ya
+        # the refined centre first, the ring's peak if that comes too close to a ball already found
+        options = [(tx, ty)]
+        if settings.ring_refine:
+            ref = ring_refine(lp, wp, tx, ty, r_exp, settings)
+            if ref is not None:
+                options.insert(0, ref)
+        options = [(ox_ + xa, oy_ + ya) for ox_, oy_ in options
+                   if all(np.hypot(ox_ + xa - a, oy_ + ya - b) >= settings.ring_min_sep * rb
+                          for (a, b), rb in zip(accepted, acc_r))]
+        if not options:
+            continue
+        cx, cy = options[0]
         # per-pixel L* noise at full resolution: area averaging over sc x sc pixels divided it by sc
         noise_px = info["noise_px"] * sc
         if sc > 1 and not ring_is_closed(lp, wp, tx, ty, r_exp, contrast, noise_px, settings):
-            continue
-        if any(np.hypot(cx - a, cy - b) < settings.ring_min_sep * rb for (a, b), rb in zip(accepted, acc_r)):
             continue
         if not _on_cloth(cal, np.array([[cx, cy]]), settings.faint_margin * cal.ball_radius_mm)[0]:
             continue

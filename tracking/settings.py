@@ -725,13 +725,24 @@ class DetectionSettings:
     #: Search at half resolution when the ball radius is at least this (px):
     #: the rim annulus is then still >= 1.6 px wide.
     ring_half_res_px: float = 12.0
+    #: Second centre stage (dark_ring.ring_refine): a circle through the
+    #: darkest point of each of ring_rays rays (ring_ray_span radii), free
+    #: radius, Tukey weights; kept when >= ring_min_rays rays are free of
+    #: other balls, the radius is within ring_refine_radius and the centre
+    #: moves <= ring_refine_max_shift radii.
+    ring_refine: bool = True
+    ring_rays: int = 48
+    ring_ray_span: tuple[float, float] = (0.75, 1.45)
+    ring_min_rays: int = 16
+    ring_refine_radius: tuple[float, float] = (0.8, 1.3)
+    ring_refine_max_shift: float = 0.3
     #: Model error of the ring centre, x radius: on closed-form Lambert
     #: spheres of the cloth's colour with a sky and a cast shadow
-    #: (tests/test_detect_dark_ring.py) the centre is within 0.01 r with
-    #: the lamp overhead and 0.15-0.16 r off, away from the lamp, with it
-    #: 25 deg to the side (the cast shadow widens the ring there); at 40 deg
-    #: the shadow falls past the rim annulus (0.01-0.05 r). 0.1 r puts that
-    #: worst case at 1.6 sigma.
+    #: (tests/test_detect_dark_ring.py, after ring_refine) the centre is
+    #: within 0.01 r with the lamp overhead and 0.04-0.13 r off, away from
+    #: the lamp, with it 15-35 deg to the side (the cast shadow widens the
+    #: ring there; the ring's peak alone: up to 0.25 r). 0.1 r puts the
+    #: worst case at 1.3 sigma.
     ring_model_frac: float = 0.1
     #: Highest confidence of a limb ball (below faint balls' 0.5 and any
     #: clear detection, so merges keep those).
