@@ -499,8 +499,8 @@ def edge_points_along(gray: np.ndarray, p0: np.ndarray, p1: np.ndarray, outward:
                       s_ranges: list[tuple[float, float]], inner_px: float, outer_px: float,
                       plateau_px: float, settings: CalibrationSettings,
                       curve=None, n_profiles: int | None = None, gray_lin: np.ndarray | None = None,
-                      detect: np.ndarray | None = None, rough_line: bool = False
-                      ) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+                      detect: np.ndarray | None = None, rough_line: bool = False,
+                      stats: dict | None = None) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
     """Nose points along the segment p0->p1 (px), profiles taken along ``outward``.
 
     ``gray`` (tone-encoded DN) is used to detect the edges; ``gray_lin`` (the
@@ -511,6 +511,8 @@ def edge_points_along(gray: np.ndarray, p0: np.ndarray, p1: np.ndarray, outward:
     Profiles are averaged over a strip along the edge that grows on noisy
     (dim) cloth (:func:`noise_strip_px`); ``rough_line``: p0->p1 is a rough
     outline, whose noise is judged on the cloth just inward of it.
+    ``stats``, when given, receives "off_frame": how many profiles showed a
+    nose but ran off the picture before the cushion top's plateau ended.
 
     Returns (nose points (N,2), edge contrast (N,), band inner-edge points
     (N,2), NaN where the profile shows no band).
@@ -560,15 +562,31 @@ def edge_points_along(gray: np.ndarray, p0: np.ndarray, p1: np.ndarray, outward:
     plateau_n = max(int(plateau_px / step), 4)
     band_max_n = max(int(plateau_px * settings.band_max_mm / settings.plateau_mm / step), 4)
     rows, nose, strength, inner, wend = [], [], [], [], []
+    # past the picture's edge a profile repeats the border row: an edge or a
+    # flat "cushion top" there is the frame's, so a nose counts only when the
+    # profile up to the end of its cushion-top plateau lies inside the picture
+    hgt, wid = gray.shape[:2]
+    mg = settings.border_margin_px
+
+    def in_frame(q):
+        return mg <= q[0] <= wid - 1 - mg and mg <= q[1] <= hgt - 1 - mg
+
+    off_frame = 0
     for i in range(len(s)):
         r = nose_offset(det[i], step, plateau_n, settings, inner_n, band_max_n)
         if r is None:
+            continue
+        if not (in_frame(base[i] + offs[0] * nrm[i])
+                and in_frame(base[i] + offs[min(r[3], len(offs) - 1)] * nrm[i])):
+            off_frame += 1
             continue
         rows.append(i)
         nose.append(offs[0] + r[0] * step)
         strength.append(r[1])
         inner.append(offs[0] + r[2] * step if r[2] is not None else np.nan)
         wend.append(offs[0] + min(r[3], len(offs) - 1) * step)
+    if stats is not None:
+        stats["off_frame"] = off_frame
     if rows:
         rows_a, nose_a, inner_a = np.array(rows), np.array(nose), np.array(inner)
         band = np.isfinite(inner_a)

@@ -224,10 +224,23 @@ def calibrate_auto(frames: list[np.ndarray], table: TablePreset, ball_diameter_m
             raise first from None
 
 
-def _refusal(msg: str) -> FeltlabError:
-    """A refusal of the fitted camera (not of the input): calibrate_auto may retry."""
+def _refusal(msg: str, kind: str = "fit") -> FeltlabError:
+    """A refusal of the fitted camera (not of the input): calibrate_auto may retry.
+
+    kind "scale": the fit implies an absurd scale (camera height), which a
+    preset of another size may mend; "fit": lines missed or mixed, which a
+    preset of the same pocket layout (only its size differs) cannot mend.
+    """
     exc = FeltlabError(msg)
     exc.retry = True
+    exc.kind = kind
+    return exc
+
+
+def _region_error(msg: str) -> FeltlabError:
+    """The table itself was not found in the picture: no preset changes that (kind "region")."""
+    exc = FeltlabError(msg)
+    exc.kind = "region"
     return exc
 
 
@@ -251,13 +264,13 @@ def _calibrate_once(frames: list[np.ndarray], table: TablePreset, ball_diameter_
     det = cloth_projection(img, mask) if settings.edge_signal == "cloth" else None
     frac = mask.mean()
     if frac < 0.05 or frac > 0.97:
-        raise FeltlabError(
+        raise _region_error(
             "could not find the cloth in the middle of the image; film the whole table from above "
             "or calibrate from a file (feltlab calibrate --help)")
     quad = rough_quad(mask)
     if quad is None:
-        raise FeltlabError("the cloth region is not a quadrilateral; is the whole playing surface in view? "
-                           "otherwise calibrate from a file")
+        raise _region_error("the cloth region is not a quadrilateral; is the whole playing surface in view? "
+                            "otherwise calibrate from a file")
     corners, layout = order_corners(quad)
     notes: list[str] = []
     try:
@@ -275,6 +288,7 @@ def _calibrate_once(frames: list[np.ndarray], table: TablePreset, ball_diameter_
     # band's foot edge (a wide lens shows the faces at the ends ~25 mm wide):
     # the leading 35 % (edge_points_along) end >= 4 px inward of the band
     band_seen = {side: 0.0 for side in SIDE_ORDER}
+    cut_off = {side: False for side in SIDE_ORDER}
     prior = (settings.hfov_prior_deg, settings.hfov_prior_sigma_deg)
     fit = None
     inner: dict[str, np.ndarray] = {}
@@ -282,6 +296,7 @@ def _calibrate_once(frames: list[np.ndarray], table: TablePreset, ball_diameter_
         pts: dict[str, np.ndarray] = {}
         for i, side in enumerate(SIDE_ORDER):
             ranges = _side_ranges(table, side, settings)
+            stats: dict = {}
             if it == 0:
                 p0, p1 = corners[i], corners[(i + 1) % 4]
                 t = (p1 - p0) / np.linalg.norm(p1 - p0)
@@ -299,7 +314,7 @@ def _calibrate_once(frames: list[np.ndarray], table: TablePreset, ball_diameter_
                     found, _, band = edge_points_along(
                         gray, p0, p1, nrm, ranges, settings.search_in_frac * w_px,
                         grow * (settings.search_out_frac * w_px + reach[i]), plateau_px, settings,
-                        gray_lin=gray_lin, detect=det, rough_line=True)
+                        gray_lin=gray_lin, detect=det, rough_line=True, stats=stats)
                     keep = main_line(found, p0, p1, nrm, settings.line_tol_px, min_share=line_share)
                     if best is None or keep.sum() > best[0].sum():
                         best = (keep, found, band)
@@ -313,7 +328,8 @@ def _calibrate_once(frames: list[np.ndarray], table: TablePreset, ball_diameter_
                     gray, None, None, None, ranges, max(1.5 * win + plateau_px / 2, (band_seen[side] + 4.0) / 0.65),
                     win + plateau_px * 1.5,
                     plateau_px, settings, curve=_curve(fit.camera, side, L, W, z_nose),
-                    n_profiles=_n_profiles(fit.camera, side, L, W, z_nose, settings), gray_lin=gray_lin, detect=det)
+                    n_profiles=_n_profiles(fit.camera, side, L, W, z_nose, settings), gray_lin=gray_lin, detect=det,
+                    stats=stats)
                 if len(found):
                     r = np.abs(_point_resid_px(fit.camera, side, found, L, W, z_nose))
                     ok = r < max(settings.outlier_px, 4 * settings.loss_scale_px) + (win if it == 1 else 0)
@@ -321,7 +337,14 @@ def _calibrate_once(frames: list[np.ndarray], table: TablePreset, ball_diameter_
             pts[side] = found
             inner[side] = band
             band_seen[side] = min(_band_width_px(found, band), settings.band_max_mm * px_mm0)
+            # more noses lost at the picture's edge than kept: the frame cuts the cushion
+            cut_off[side] = stats.get("off_frame", 0) >= max(8, len(found))
         few = [s for s in SIDE_ORDER if len(pts[s]) < 8]
+        if few and any(cut_off[s] for s in few):
+            raise _region_error(
+                f"the cushion of side(s) {', '.join(s for s in few if cut_off[s])} runs along or off the edge of "
+                "the picture, so its nose cannot be measured; film with the whole table and its cushions inside "
+                "the frame, or calibrate from a file")
         if few:
             raise _refusal(
                 f"found too few cushion-nose points on side(s) {', '.join(few)}; is the whole table in view "
@@ -368,7 +391,12 @@ def _calibrate_once(frames: list[np.ndarray], table: TablePreset, ball_diameter_
         raise _refusal(
             f"the table edges fit only a camera {height / 1000:.0f} m above the cloth (outline "
             f"{chk.length_scale * L / W:.2f}:1 vs {L / W:.2f}:1 for {table.name}); an edge was probably taken at the "
-            "wrong line (dim or cloth-coloured cushions): check the table preset or calibrate from a file")
+            "wrong line (dim or cloth-coloured cushions): check the table preset or calibrate from a file",
+            kind="scale")
+    if abs(chk.length_scale - 1) > settings.aspect_max_frac:
+        raise _refusal(
+            f"the fitted table outline is {chk.length_scale * L / W:.2f}:1, not {L / W:.2f}:1 as every standard table; "
+            "an edge was probably taken at the wrong line: calibrate from a file")
     if abs(chk.length_scale - 1) > settings.aspect_warn_frac:
         notes.append(
             f"the table's length/width looks {chk.length_scale * L / W:.3f}, not {L / W:.3f} as for "
@@ -387,6 +415,12 @@ def _calibrate_once(frames: list[np.ndarray], table: TablePreset, ball_diameter_
             f"the colour just outside the fitted cushion lines differs between the sides (chromaticity spread "
             f"{spread:.2f}), so a cushion nose was probably missed on some side and a rail taken (faint or "
             "cloth-coloured cushion tops): calibrate from a file")
+    off = {side: off_frame_share(fit.camera, side, L, W, z_nose, (w, h), _side_ranges(table, side, settings),
+                                 settings.border_margin_px) for side in SIDE_ORDER}
+    cut = [f"{side} ({100 * off[side]:.0f}%)" for side in SIDE_ORDER if off[side] > settings.off_frame_note]
+    if cut:
+        notes.append(f"the cushion line of side(s) {', '.join(cut)} runs off the picture, so the fit extrapolates "
+                     "there and positions near it are less certain; film with the whole table inside the frame")
     cam_fit = fit.camera
     lens = lens_note(float(cam_fit.dist[0]), settings.k1_warn)
     if lens:
@@ -427,6 +461,24 @@ def cushion_colour_spread(img: np.ndarray, cam: CameraModel, table: TablePreset,
         chroma[side] = col / max(float(col.sum()), 1e-6)
     ch = np.array([chroma[s] for s in SIDE_ORDER])
     return max(float(np.linalg.norm(ch[i] - ch[j])) for i in range(4) for j in range(i + 1, 4))
+
+
+def off_frame_share(cam: CameraModel, side: str, L: float, W: float, z: float, size: tuple[int, int],
+                    ranges: list[tuple[float, float]], margin_px: float) -> float:
+    """Fraction of a side's fitted nose line (pockets excluded) outside the picture or within ``margin_px`` of its edge.
+
+    No nose point can be measured there (tracking._table_edges.edge_points_along
+    drops them), so the fit extrapolates. size: (width, height) px.
+    """
+    sfr = np.linspace(0.0, 1.0, 240)
+    sfr = sfr[np.any([(sfr >= lo) & (sfr <= hi) for lo, hi in ranges], axis=0)]
+    if sfr.size == 0:
+        return 0.0
+    p, _ = _curve(cam, side, L, W, z)(sfr)
+    w, h = size
+    inside = ((p[:, 0] >= margin_px) & (p[:, 0] <= w - 1 - margin_px)
+              & (p[:, 1] >= margin_px) & (p[:, 1] <= h - 1 - margin_px))
+    return float(1.0 - inside.mean())
 
 
 def _band_width_px(pts: np.ndarray, band: np.ndarray | None) -> float:

@@ -217,6 +217,11 @@ class CalibrationSettings:
     #: more than this fraction (a different table size; WPA tolerance is
     #: 3.2 mm on 1270 mm, 0.25%).
     aspect_warn_frac: float = 0.03
+    #: ... and refuse beyond this: pool, snooker and carom playing surfaces
+    #: are all 2:1 (WPA, WPBSA, UMB; feltlab.standards), so an outline 15 %
+    #: off is no table of ours but a line taken at the wrong edge (our sweep
+    #: render f09m: 1.20:1 with k1 -1.44, 17 px off, accepted with warnings).
+    aspect_max_frac: float = 0.15
     #: Warn when the fitted radial distortion |k1| exceeds this: common video
     #: lenses stay within ~0.3 in OpenCV's normalised model, wide action
     #: cameras reach it (from memory); a larger fitted k1 usually means an
@@ -228,6 +233,22 @@ class CalibrationSettings:
     #: Edge points on the wrong line (a rail instead of the nose) give fits
     #: with the camera 15-30 m up on our dim renders.
     max_camera_height_mm: float = 10000.0
+    #: A nose point counts only if its profile, out to the end of the
+    #: cushion-top plateau beyond it, stays this many px inside the picture
+    #: (_table_edges.edge_points_along): past the frame the samples repeat
+    #: the border row, so an edge there is the frame's and a flat "cushion
+    #: top" the repeated row. Our sweep render f09m (MPEG-4 part 2 at 300
+    #: kbit/s, the near nose running off a 540 px frame) calibrated along the
+    #: frame's bottom edge: focal 1470 vs 752 px, 7 px at the corners, 18 mm
+    #: per ball, no warning.
+    border_margin_px: float = 1.0
+    #: Warn when more than this fraction of a side's fitted nose line lies
+    #: within border_margin_px of the picture's edge or off it
+    #: (calibrate.off_frame_share): no point was measured there, the fit
+    #: extrapolates (a synthetic table, tests/test_calib_frame_edge.py, with
+    #: its near nose 2-10 px inside a 540 px frame: 21 % of y0, corners within
+    #: 0.2 px; nearer the edge it is refused as cut off by the frame).
+    off_frame_note: float = 0.05
     #: Refuse a fit whose RMS edge residual exceeds this (px).
     max_residual_px: float = 3.0
 

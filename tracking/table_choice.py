@@ -33,16 +33,24 @@ def calibrate_choosing_table(frames: list[np.ndarray], table: TablePreset) -> tu
     When ``table`` cannot be fitted at all, every other preset is tried in
     turn (their cushion heights and pocket stretches differ) and the first
     that fits is used, with a warning; the first error is raised when none
-    fits.
+    fits. Presets that cannot mend the failure are skipped: none is tried
+    when the table was not found in the picture (error kind "region"), and
+    those of the same pocket layout are not when lines were missed rather
+    than the scale absurd (kind "fit"; see tracking.calibrate._refusal).
     """
     try:
         cal = calibrate_auto(frames, table)
     except FeltlabError as first:
+        kind = getattr(first, "kind", None)
+        if kind == "region":  # the table was not found in the picture: no preset mends that
+            raise
         cal = None
         k1_max = CalibrationSettings().k1_warn
         for name, other in TABLES.items():
             if name == table.name:
                 continue
+            if kind == "fit" and bool(other.pockets) == bool(table.pockets):
+                continue  # same pocket layout, only the size differs: the same lines would be found
             try:
                 cand = calibrate_auto(frames, other)
             except FeltlabError:
