@@ -578,6 +578,15 @@ def find_contacts(
                     ok, z = cushion_ok(f)
                     if ok:
                         return ContactCandidate(kind, a, "", c, f.t_b, n, gap, float(z), f.v_post - f.v_pre)
+            # two cushions met within about a frame (a corner at speed): neither a one-change fit
+            # here (its window mixes both changes) nor a two-change fit (the changes are closer
+            # than one sample apart) separates them, but one change at the other cushion's time
+            # holds both; this cushion's normal velocity reversing there is the evidence
+            if s.corner_shared_fit:
+                for f in _shared_corner_fits(a, t_c, key, n, limits, own):
+                    ok, z = cushion_ok(f)
+                    if ok:
+                        return ContactCandidate(kind, a, "", c, f.t_b, n, gap, float(z), f.v_post - f.v_pre)
             return None
         zs, dvs, tbs, J, sJ = {}, {}, {}, {}, {}
         ok_any, bad, z2 = False, False, 0.0
@@ -647,6 +656,27 @@ def find_contacts(
         if pair is None:
             return None
         return pair[0] if t_c == t1c else pair[1]
+
+    def _shared_corner_fits(a: str, t_c: float, key: tuple, n: np.ndarray, limits: dict[str, list[float]],
+                            own: bool) -> list[KinkFit]:
+        """One-change fits of ball ``a`` at each other cushion candidate of it within 2.5 frame
+        periods of ``t_c`` (nearest first), judged along this cushion's normal ``n``."""
+        near = sorted(((abs(x - t_c), x, kx) for x, kx in cand_t[a]
+                       if kx[0] == "ball-cushion" and kx[2] != key[2] and 0 < abs(x - t_c) <= 2.5 * dt),
+                      key=lambda q: q[0])
+        out = []
+        for _, t_o, k_o in near:
+            # noise minima of the same two contacts do not cut the windows (as in judge)
+            others = [x for x, kx in cand_t[a] if min(abs(x - t_c), abs(x - t_o)) > 2.5 * dt
+                      and not (kx in (key, k_o) and min(abs(x - t_c), abs(x - t_o)) < s.same_contact_s)]
+            others += limits.get(a, [])
+            lo = max([x for x in others if x < min(t_c, t_o)], default=-np.inf)
+            hi = min([x for x in others if x > max(t_c, t_o)], default=np.inf)
+            fit = kink_fit_own if own else kink_fit_windows
+            f = fit(samples[a], t_o, lo, hi, s.guard_cushion_s, dt, s, n, escalate=True)
+            if f is not None:
+                out.append(f)
+        return out
 
     def settle(tested: list[tuple[ContactCandidate, int]], fixed: list[ContactCandidate]):
         """One velocity jump belongs to one contact: candidates are taken in order of significance,

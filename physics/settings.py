@@ -80,6 +80,11 @@ class PhysicsSettings:
     #: within ~2 ball radii of travel after the first, at 0.5-4.5 m/s (Physics of Pool FAQ
     #: shot speeds) and 60-240 fps, is 1-6 frames later. Design choice.
     corner_frames: float = 6.0
+    #: Two cushions of one ball met within about a frame period (geometric candidates within 2.5
+    #: frame periods): a cushion candidate that neither a one-change fit at its own time nor the
+    #: two-change fit confirms is judged on the one-change fit at the other cushion's time,
+    #: which holds both changes (physics.events.find_contacts). Geometry, not tuned.
+    corner_shared_fit: bool = True
     side_window_s: float = 0.08
     #: ... but at least this many frame periods on each side (low frame rates). Design choice.
     side_window_frames: float = 8.0
