@@ -47,7 +47,9 @@ from tracking.faint import add_faint, faint_background
 from tracking.kalman import as_cov, bridge_gap, smear_cov, smear_scale, smooth_segment, split_segments
 from tracking.labels import label_tracks
 from tracking.overlap import separate_overlaps
+from tracking.phantoms import StillCloth, off_surface_tracks
 from tracking.settings import TrackClipSettings, TrackingSettings
+from tracking.settings_phantoms import PhantomSettings
 from tracking.table_choice import calibrate_choosing_table
 
 log = logging.getLogger("feltlab.tracking")
@@ -332,7 +334,8 @@ def track_clip(path: str | os.PathLike, table: str | TablePreset | None = DEFAUL
                calibration: Calibration | str | os.PathLike | None = None, fps: float | None = None,
                frame_range: tuple[int, int | None] | None = None,
                settings: TrackClipSettings = TrackClipSettings(),
-               progress: Callable[[int, int], None] | None = None, auto_table: bool = False) -> TrackResult:
+               progress: Callable[[int, int], None] | None = None, auto_table: bool = False,
+               phantoms: PhantomSettings = PhantomSettings()) -> TrackResult:
     """Track every ball in a clip; see :class:`TrackResult` for the output.
 
     table: preset name (or TablePreset; None: the calibration file's, else
@@ -347,7 +350,8 @@ def track_clip(path: str | os.PathLike, table: str | TablePreset | None = DEFAUL
     size chooses (tracking/ball_size.py,
     :func:`~tracking.ball_size.suggest_preset`) and the clip is tracked again
     with the preset it points to. A warning says what was chosen. For
-    callers whose user named no preset.
+    callers whose user named no preset. phantoms: the compressed-footage
+    background update and the off-surface test (tracking/phantoms.py).
     """
     from tracking.video import open_video
 
@@ -388,13 +392,17 @@ def track_clip(path: str | os.PathLike, table: str | TablePreset | None = DEFAUL
     # a part of itself; beyond that it has left the view.
     linker = Linker(cal.ball_radius_mm, ts, in_view=view_test(cal.table_to_px, (w, h), bg.radius_px,
                                                                         cal.px_to_table))
+    # compressed footage: the background follows the codec's still cloth
+    still = StillCloth(bg, cal, phantoms, ts.confirm_hits)
     chunks = []
     frame_times: dict[int, float] = {}
     row0 = 0
     total = src.n_frames
     done = 0
     for idx, t, img in src:
+        raw = img
         img = exposure.correct(img)  # lamp flicker / auto exposure out
+        bg = still.update(raw, img, t)
         det = merge_overlapping(add_faint(detect_frame(img, cal, ds, bg), img, cal, bg, ds), cal.ball_radius_mm,
                                 ts.merge_below_frac)
         if ts.separate_overlaps:
@@ -402,6 +410,7 @@ def track_clip(path: str | os.PathLike, table: str | TablePreset | None = DEFAUL
         frame_times[idx] = t
         ids = np.arange(row0, row0 + len(det))
         tid = linker.step(t, det, ids)
+        still.note_tracks(linker.live)
         if len(det):
             det = det.assign(frame=idx, t_s=t, track=tid, row=ids)
             chunks.append(det)
@@ -420,13 +429,13 @@ def track_clip(path: str | os.PathLike, table: str | TablePreset | None = DEFAUL
     det_all = pd.concat(chunks, ignore_index=True) if chunks else pd.DataFrame(
         columns=list(chunks[0].columns) if chunks else ["frame", "t_s", "track", "row", "x_mm", "y_mm"])
     jumps = linker.jumps()
-    result = _finish(det_all, jumps, frame_t, cal, ts, warnings, ds.streak_sigma_frac)
+    result = _finish(det_all, jumps, frame_t, cal, ts, warnings, ds.streak_sigma_frac, phantoms)
     if auto_table and calibration is None and not cal.table.pockets and not _carom_set(result[2]):
         # No side pockets, but not a carom ball set either (more than four
         # balls, or stripes): a pool table drawn without pockets. Pool it is.
         log.info("no side pockets but %d balls / stripes: tracking again as %s", len(result[2]), DEFAULT_TABLE)
         again = track_clip(path, table=DEFAULT_TABLE, calibration=None, fps=fps, frame_range=frame_range,
-                           settings=settings, progress=progress, auto_table=False)
+                           settings=settings, progress=progress, auto_table=False, phantoms=phantoms)
         again.warnings.insert(0, f"no side pockets seen, but the balls are not a carom set: table taken as "
                                  f"{again.calibration.table.name}; pass --table to set it")
         return again
@@ -436,7 +445,7 @@ def track_clip(path: str | os.PathLike, table: str | TablePreset | None = DEFAUL
         if alt is not None:
             log.info("ball size %.3f x the %s prediction: tracking again as %s", ratio, cal.table.name, alt.name)
             again = track_clip(path, table=alt, calibration=None, fps=fps, frame_range=frame_range,
-                               settings=settings, progress=progress, auto_table=False)
+                               settings=settings, progress=progress, auto_table=False, phantoms=phantoms)
             note = (f"table taken as {alt.name} from the balls' image size ({ratio:.3f} x what "
                     f"{cal.table.name} predicts); pass --table to set it")
             again.warnings.insert(0, note)
@@ -447,12 +456,14 @@ def track_clip(path: str | os.PathLike, table: str | TablePreset | None = DEFAUL
                        stats={"background_noise_dn": bg.noise_dn, "threshold_dn": bg.threshold_dn,
                               "radius_px": bg.radius_px, "static_balls_painted": int(len(bg.static_px)),
                               "time_source": src.time_source,
+                              "still_cloth_px": still.pixels_updated, "still_cloth_frames": still.frames_updated,
                               "smear_scale_s2": float(result[1].attrs.get("smear_scale_s2", float("nan"))),
                               "ball_size_ratio": float(result[1].attrs.get("ball_size_ratio", float("nan")))})
 
 
 def _finish(det_all: pd.DataFrame, jumps: dict[int, list[int]], frame_t: np.ndarray, cal: Calibration,
-            ts: TrackingSettings, warnings: list[str], streak_sigma_frac: float = 0.0):
+            ts: TrackingSettings, warnings: list[str], streak_sigma_frac: float = 0.0,
+            phantoms: PhantomSettings = PhantomSettings()):
     """Detections with track ids -> (tracks, detections, balls, segments_hint)."""
     empty_tracks = pd.DataFrame(columns=TRACK_COLUMNS)
     if det_all.empty or "track" not in det_all:
@@ -461,12 +472,24 @@ def _finish(det_all: pd.DataFrame, jumps: dict[int, list[int]], frame_t: np.ndar
             columns=["ball", "r", "g", "b", "pattern"]), {}
     det_all = det_all[det_all.track >= 0].copy()
     det_all = stitch_tracks(det_all, ts, cal.ball_radius_mm)
-    # Drop short clutter tracks that never rest.
+    # No ball centre lies beyond the cushion nose (pockets aside): such a
+    # "track" is compression blocks along a rail (tracking/phantoms.py).
+    off = off_surface_tracks(det_all, cal.table, cal.ball_radius_mm, phantoms)
+    if off:
+        warnings.append(f"{len(off)} track(s) off the playing surface (centre beyond the cushion nose) "
+                        f"dropped as image artefacts")
+        det_all = det_all[~det_all.track.isin(off)].copy()
+    # Drop short clutter tracks that never rest, and tracks that never had
+    # the linker's confirmation (confirm_hits fixes, none further apart than a
+    # tentative track may go unseen): single fixes linked or stitched over
+    # gaps (compression blocks at keyframes).
+    dt_frame = np.nanmedian(np.diff(frame_t)) if np.isfinite(frame_t).sum() > 1 else 0.0
+    gap_s = max(ts.jump_max_gap_s, 1.5 * float(dt_frame))
     keep_ids = []
     dropped = 0
     for tid, g in det_all.groupby("track"):
         dur = g.t_s.max() - g.t_s.min()
-        if dur >= ts.min_track_s:
+        if dur >= ts.min_track_s and longest_run(g.t_s.to_numpy(float), gap_s) >= ts.confirm_hits:
             keep_ids.append(tid)
         else:
             dropped += 1
@@ -535,6 +558,22 @@ def _finish(det_all: pd.DataFrame, jumps: dict[int, list[int]], frame_t: np.ndar
     if msg:
         warnings.append(msg)
     return tracks, dets, balls, segs
+
+
+def longest_run(t_s: np.ndarray, max_gap_s: float) -> int:
+    """Most fixes in a row with no gap longer than ``max_gap_s`` between neighbours (times in s, any order).
+
+    >>> longest_run(np.array([0, 1, 2, 7, 9, 10]) / 60.0, 0.025)
+    3
+    >>> longest_run(np.array([0, 2, 4, 6, 20]) / 60.0, 0.05)
+    4
+    """
+    t = np.unique(np.asarray(t_s, float))
+    if len(t) == 0:
+        return 0
+    breaks = np.nonzero(np.diff(t) > max_gap_s + 1e-9)[0]
+    edges = np.r_[-1, breaks, len(t) - 1]
+    return int(np.max(np.diff(edges)))
 
 
 def _carom_set(balls: pd.DataFrame) -> bool:
