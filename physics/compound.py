@@ -60,17 +60,26 @@ NOTE_SEQUENCE = ("sub-frame sequence: the balls of this group touched within one
 
 @dataclass
 class LinkSolve:
-    """Link impulses J (L,) mm/s (impulse / ball mass), sigmas (L,), reduced chi^2 and dof."""
+    """Link impulses J (L,) mm/s (impulse / ball mass), sigmas (L,), reduced chi^2 and dof;
+    ball_chi2 (N,): each ball's misfit (2 dof, NaN for a ball not measured); open_balls: balls
+    touched by an unseen ball in :func:`solve_links_open`."""
 
     J: np.ndarray
     J_sigma: np.ndarray
     chi2_red: float
     dof: int
+    ball_chi2: np.ndarray | None = None
+    open_balls: tuple = ()
+    #: the solve's whitened objective (data chi^2 plus throw prior)
+    objective: float = np.nan
 
 
 def solve_links(dv: np.ndarray, cov: np.ndarray, links: list[tuple[int, int]],
-                normals: np.ndarray, mu_bb: float = MU_BB_MAX) -> LinkSolve:
+                normals: np.ndarray, mu_bb: float = MU_BB_MAX, throw_sd: np.ndarray | None = None) -> LinkSolve:
     """Non-negative link impulses from velocity changes.
+
+    throw_sd (L,) mm/s: fixed prior sigmas of the links' throw impulses (one solve, a fixed
+    convex problem); None: mu_bb times the link's own impulse, iterated with the solution.
 
     dv (N,2) mm/s velocity change of each ball; cov (N,2,2) its covariance (NaN rows: ball not
     measured, left out); links: (a, b) ball indices; normals (L,2) unit a -> b.
@@ -96,21 +105,23 @@ def solve_links(dv: np.ndarray, cov: np.ndarray, links: list[tuple[int, int]],
     for l, (a, b) in enumerate(links):
         At[2 * b : 2 * b + 2, l] += tang[l]
         At[2 * a : 2 * a + 2, l] -= tang[l]
-    rows, y = [], []
+    rows, y, used = [], [], []
     for i in range(N):
         if not np.all(np.isfinite(dv[i])) or not np.all(np.isfinite(cov[i])):
             continue
         Wi = np.linalg.cholesky(np.linalg.inv(cov[i])).T  # Wi^T Wi = cov^-1
         rows.append(Wi @ np.hstack([A[2 * i : 2 * i + 2], At[2 * i : 2 * i + 2], -At[2 * i : 2 * i + 2]]))
         y.append(Wi @ dv[i])
+        used.append(i)
     if not rows:
-        return LinkSolve(np.zeros(L), np.full(L, np.inf), np.nan, 0)
+        return LinkSolve(np.zeros(L), np.full(L, np.inf), np.nan, 0, np.full(N, np.nan))
     Ad, yd = np.vstack(rows), np.concatenate(y)
     n_data = len(yd)
     J, rnorm = nnls(Ad[:, :L], yd)
     Aw, yw, x = Ad[:, :L], yd, J
-    for _ in range(3 if mu_bb > 0 else 0):
-        sd_t = np.maximum(mu_bb * J, 1.0)  # mm/s; floor keeps the prior rows finite
+    for _ in range(3 if mu_bb > 0 or throw_sd is not None else 0):
+        # mm/s; floor keeps the prior rows finite
+        sd_t = np.maximum(mu_bb * J if throw_sd is None else np.asarray(throw_sd, float), 1.0)
         prior = np.zeros((L, 3 * L))
         prior[np.arange(L), L + np.arange(L)] = 1.0 / sd_t
         prior[np.arange(L), 2 * L + np.arange(L)] = -1.0 / sd_t
@@ -119,10 +130,16 @@ def solve_links(dv: np.ndarray, cov: np.ndarray, links: list[tuple[int, int]],
         J_new = x[:L]
         done = np.allclose(J_new, J, rtol=0.02, atol=1.0)
         J = J_new
-        if done:
+        if done or throw_sd is not None:
             break
     dof = max(n_data - int((J > 0).sum()), 1)
     red = max(float(rnorm**2) / dof, 1.0)
+    # each ball's own misfit (whitened residual, 2 dof)
+    xa = x if len(x) == 3 * L else np.concatenate([x, np.zeros(2 * L)])
+    res = Ad @ xa - yd
+    ball_chi2 = np.full(N, np.nan)
+    for j, i in enumerate(used):
+        ball_chi2[i] = float(res[2 * j] ** 2 + res[2 * j + 1] ** 2)
     sig = np.full(L, np.inf)
     act = np.flatnonzero(x > 0)
     if len(act):
@@ -136,7 +153,92 @@ def solve_links(dv: np.ndarray, cov: np.ndarray, links: list[tuple[int, int]],
         col = Aw[:, l]
         nrm = float(col @ col)
         sig[l] = np.sqrt(red / nrm) if nrm > 0 else np.inf
-    return LinkSolve(J, sig, red, dof)
+    return LinkSolve(J, sig, red, dof, ball_chi2, objective=float(rnorm**2))
+
+
+def unseen_places(pos: np.ndarray, radius_mm: float, tol_mm: float, step_deg: float = 5.0) -> list[tuple]:
+    """Where an untracked ball could rest among balls at ``pos`` (N,2) mm (NaN rows ignored):
+    centres 2R from some ball, on a ``step_deg`` grid around it, overlapping no ball by more than
+    ``tol_mm``. Returns (centre (2,), touched ball indices (k,), unit normals (k,2) from the
+    place to each touched ball, within 2R + tol_mm), one per distinct set of touched balls."""
+    ok_b = np.all(np.isfinite(pos), axis=1)
+    th = np.radians(np.arange(0.0, 360.0, step_deg))
+    u = np.column_stack([np.cos(th), np.sin(th)])
+    seen, out = set(), []
+    for i in np.flatnonzero(ok_b):
+        for c in pos[i][None, :] + 2 * radius_mm * u:
+            d = np.hypot(*(pos[ok_b] - c[None, :]).T)
+            if np.any(d < 2 * radius_mm - tol_mm):
+                continue
+            idx = np.flatnonzero(ok_b)[d < 2 * radius_mm + tol_mm]
+            key = tuple(idx.tolist())
+            if key in seen:
+                continue
+            seen.add(key)
+            nrm = (pos[idx] - c[None, :]) / np.hypot(*(pos[idx] - c[None, :]).T)[:, None]
+            out.append((c, idx, nrm))
+    return out
+
+
+def solve_links_open(dv: np.ndarray, cov: np.ndarray, links: list[tuple[int, int]],
+                     normals: np.ndarray, z: float, pos: np.ndarray, radius_mm: float,
+                     tol_mm: float = 3.0, mu_bb: float = MU_BB_MAX) -> LinkSolve:
+    """:func:`solve_links` for a group that may hold a ball the tracker lost.
+
+    A ball's velocity change is the sum of the impulses of ALL its touching neighbours; when one
+    of them is not tracked (a ball the colour of the cloth, hidden, merged with another), the
+    known links cannot balance the balls it touched, and the misfit spreads over the solve (the
+    links near it take wrong impulses, and the reduced chi^2 scales every sigma up). An untracked
+    ball must sit where a ball fits: 2R from some ball, overlapping none
+    (:func:`unseen_places`, ``pos`` (N,2) mm at the event, ``tol_mm`` for the place grid and
+    position noise); it pushes every ball it touches along their line of centres with a
+    non-negative impulse, and its own velocity is unknown. Such a ball is added where it lowers
+    the group's objective by more than z^2 (a likelihood-ratio test at the same z as every other
+    test here), the best place first, at most one per four tracked balls. The comparison holds
+    each link's throw prior fixed at the current solve's (mu_bb J), a fixed convex problem in
+    which more unknowns can only lower the objective. Returns the real links' solve (with throw);
+    ``open_balls``: the tracked balls touched by an added unseen ball."""
+    dv = np.asarray(dv, dtype=float)
+    N, L = len(dv), len(links)
+    links = list(links)
+    normals = np.asarray(normals, dtype=float).reshape(L, 2)
+    extra_l: list[tuple[int, int]] = []
+    extra_n: list[np.ndarray] = []
+
+    def solve(el, en, mu, tsd=None, n_unseen=0):
+        d2 = np.vstack([dv, np.full((n_unseen, 2), np.nan)])
+        c2 = np.concatenate([cov, np.full((n_unseen, 2, 2), np.nan)]) if n_unseen else cov
+        nn = np.vstack([normals] + [e[None, :] for e in en]) if el else normals
+        return solve_links(d2, c2, links + el, nn, mu, tsd)
+
+    n_ok = int(np.sum(np.all(np.isfinite(dv), axis=1)))
+    places = unseen_places(pos, radius_mm, tol_mm)
+    opened: set[int] = set()
+    n_un = 0
+    sol = solve([], [], mu_bb)
+    while sol.ball_chi2 is not None and n_un < max(n_ok // 4, 1) and places:
+        tsd = mu_bb * sol.J
+        chi0 = solve(extra_l, extra_n, 0.0, tsd, n_un).objective
+        if chi0 <= z * z:
+            break
+        best = None
+        for pi, (_, idx, nrm) in enumerate(places):
+            el = extra_l + [(N + n_un, int(j)) for j in idx]
+            en = extra_n + list(nrm)
+            trial = solve(el, en, 0.0, np.append(tsd, np.zeros(len(idx))), n_un + 1)
+            drop = chi0 - trial.objective
+            if best is None or drop > best[0]:
+                best = (drop, pi)
+        if best is None or best[0] <= z * z:
+            break
+        _, idx, nrm = places.pop(best[1])
+        extra_l += [(N + n_un, int(j)) for j in idx]
+        extra_n += list(nrm)
+        n_un += 1
+        opened |= set(int(j) for j in idx)
+        sol = solve(extra_l, extra_n, mu_bb, None, n_un)
+    return LinkSolve(sol.J[:L], sol.J_sigma[:L], sol.chi2_red, sol.dof,
+                     None if sol.ball_chi2 is None else sol.ball_chi2[:N], tuple(sorted(opened)))
 
 
 def find_groups(samples: dict[str, BallSamples], times: np.ndarray, P, S, V, seeds, cand_t,
@@ -245,7 +347,11 @@ def find_groups(samples: dict[str, BallSamples], times: np.ndarray, P, S, V, see
         fit_ok = np.all(np.isfinite(dv), axis=1) & np.all(np.isfinite(vpre), axis=1)
         if fit_ok.any() and energy_gain_z(vpre[fit_ok], dv[fit_ok], cov[fit_ok], s) > s.dv_z:
             continue
-        sol = solve_links(dv, cov, li, nrm)
+        pos_k = np.array([P[bl][k] for bl in balls], dtype=float)
+        pos_k = np.where(np.isfinite(pb), pb, pos_k)
+        sol = (solve_links_open(dv, cov, li, nrm, s.dv_z, pos_k, radius_mm, s.compound_unseen_tol_mm)
+               if s.compound_open_balls
+               else solve_links(dv, cov, li, nrm))
         ok = [l for l in range(len(links))
               if sol.J[l] > max(s.link_dv_floor_mm_s, s.dv_z * sol.J_sigma[l])]
         # compound: accepted links that share balls (connected pieces of >= 2 links)
@@ -256,8 +362,16 @@ def find_groups(samples: dict[str, BallSamples], times: np.ndarray, P, S, V, see
         hops = _hops(int(np.argmax(sp_in)), [li[l] for l in ok], len(balls))
         if covered is not None and any(len(p) >= 2 for p in comp):
             covered.extend((frozenset(l), t_grp) for l in links)
+        # the same sub-frame event found again from another seed (its time a frame or so off):
+        # a pair cannot take part in two compound events within 2 frame periods
+        if any(frozenset((c.ball_a, c.ball_b)) == frozenset(links[l]) and abs(c.t_init_s - t_grp) < 2 * dt
+               for c in out for l in ok):
+            continue
+        multi = any(len(p) >= 2 for p in comp)
         for piece in comp:
-            if len(piece) < 2:
+            # a lone link counts inside a compound event (its pair test cannot judge a ball that
+            # also passed a push on), else it is left to the pairwise test
+            if len(piece) < 2 and not (multi and s.compound_lone_links):
                 continue
             gid += 1
             for lp in piece:

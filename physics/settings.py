@@ -234,6 +234,18 @@ class PhysicsSettings:
     #: sliding friction mu_s g (~2000 mm/s^2, Physics of Pool FAQ) changes a velocity by ~2 mm/s
     #: within a ms, so a softer touch cannot be told from cloth effects. Design choice.
     link_dv_floor_mm_s: float = 5.0
+    #: Compound events: balls whose velocity changes their tracked touching neighbours cannot
+    #: balance (objective drop beyond dv_z^2) were touched by a ball the tracker lost; one unseen
+    #: ball is placed where a ball fits, pushing every ball it touches (physics.compound.
+    #: solve_links_open; at most one per four tracked balls). Physics, not tuned.
+    compound_open_balls: bool = True
+    #: Place grid and position tolerance (mm) for such an unseen ball: a 5-degree step around a
+    #: ball of radius R misses a place by up to 2R sin(2.5 deg) ~ 2.5 mm. Geometry.
+    compound_unseen_tol_mm: float = 3.0
+    #: Compound events: a significant link not connected to the event's other links (a push
+    #: passed along a side row of a rack) is reported with the event, not left to the pairwise
+    #: test, which refuses a ball that passed the push on within the frame.
+    compound_lone_links: bool = True
     #: A pairwise contact's two balls must change their normal velocities alike (one impulse,
     #: equal masses): the smaller change must reach this fraction of the larger, within dv_z
     #: standard errors. Half: allows a cue ball up to twice an object ball's mass (the equal-mass
