@@ -512,7 +512,8 @@ def edge_points_along(gray: np.ndarray, p0: np.ndarray, p1: np.ndarray, outward:
     (dim) cloth (:func:`noise_strip_px`); ``rough_line``: p0->p1 is a rough
     outline, whose noise is judged on the cloth just inward of it.
     ``stats``, when given, receives "off_frame": how many profiles showed a
-    nose but ran off the picture before the cushion top's plateau ended.
+    nose but ran off the picture before the cushion top's plateau ended, and
+    "strip_px": the strip half-length used (px).
 
     Returns (nose points (N,2), edge contrast (N,), band inner-edge points
     (N,2), NaN where the profile shows no band).
@@ -587,6 +588,7 @@ def edge_points_along(gray: np.ndarray, p0: np.ndarray, p1: np.ndarray, outward:
         wend.append(offs[0] + min(r[3], len(offs) - 1) * step)
     if stats is not None:
         stats["off_frame"] = off_frame
+        stats["strip_px"] = max(half, settings.profile_strip_px)
     if rows:
         rows_a, nose_a, inner_a = np.array(rows), np.array(nose), np.array(inner)
         band = np.isfinite(inner_a)

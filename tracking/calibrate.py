@@ -305,8 +305,12 @@ def _calibrate_once(frames: list[np.ndarray], table: TablePreset, ball_diameter_
                     nrm = -nrm
                 # coarse to fine: a side whose nose shows on too few profiles
                 # may lie beyond the window (a region cut short on dim cloth):
-                # search again further out; the first edge beyond the cloth
-                # is still taken, so a wider window cannot skip the nose
+                # search again further out, but only where the cloth is dim
+                # enough for its noise to have stopped the region (the strip
+                # grew): on bright cloth a missed nose is smeared or faint,
+                # and further out lies the rail (sweep render f04h32, H.264
+                # crf 32: a grown window took it, and the pool-8ft fallback
+                # then fitted 33-76 px off without a warning)
                 n_want = settings.search_min_share * np.linalg.norm(p1 - p0) / settings.profile_spacing_px * sum(
                     b - a for a, b in ranges)
                 best = None
@@ -318,7 +322,7 @@ def _calibrate_once(frames: list[np.ndarray], table: TablePreset, ball_diameter_
                     keep = main_line(found, p0, p1, nrm, settings.line_tol_px, min_share=line_share)
                     if best is None or keep.sum() > best[0].sum():
                         best = (keep, found, band)
-                    if keep.sum() >= max(n_want, 8):
+                    if keep.sum() >= max(n_want, 8) or stats.get("strip_px", 0.0) <= settings.profile_strip_px:
                         break
                 keep, found, band = best
                 found, band = found[keep], band[keep]

@@ -143,10 +143,13 @@ class CalibrationSettings:
     #: ... plus how far the region's rim reaches beyond the outline
     #: (_table_edges.region_reach_px); a side whose main line holds fewer than
     #: search_min_share of its profiles is searched again with the outward
-    #: window times each factor of search_out_grow in turn (a region stopped
-    #: short of a dim cushion: sweep render f06, dim carom table, needed x2 on
-    #: its short sides, then 0.31 px; f07, one low lamp, 84 px short on a
-    #: 72 px window, then fits but 3.9 px off (yW line) - not yet right).
+    #: window times each factor of search_out_grow in turn, where the cloth
+    #: is dim enough for the profile strip to have grown (noise_strip_px; a
+    #: region stopped short of a dim cushion: sweep render f06, dim carom
+    #: table, needed x2 on its short sides, then 0.31 px; f07, one low lamp,
+    #: 84 px short on a 72 px window, then fits from its first 12 frames but
+    #: 3.9 px off - not yet right). On bright cloth a grown window took the
+    #: rail (f04h32, H.264 crf 32, 33-76 px off as pool-8ft, no warning).
     search_min_share: float = 0.15
     search_out_grow: tuple[float, ...] = (1.0, 2.0, 3.0)
     #: Half-width (px) of the search window of the refinement passes around
