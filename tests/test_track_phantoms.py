@@ -20,7 +20,7 @@ import pytest
 
 from feltlab.standards import table_preset
 from tracking.phantoms import centre_inset_mm, in_pocket_mouth, off_surface
-from tracking.settings_phantoms import PhantomSettings
+from tracking.settings import PhantomSettings
 
 R = 28.575  # pool ball radius (mm), 2 1/4 in (WPA)
 

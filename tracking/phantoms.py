@@ -52,7 +52,7 @@ import numpy as np
 from feltlab.standards import TablePreset
 from tracking.calibration import Calibration
 from tracking.detect import Background, _half_res_background, delta_e76, to_lab
-from tracking.settings_phantoms import PhantomSettings
+from tracking.settings import PhantomSettings
 
 
 # --------------------------------------------------------------------------- where a ball centre can be

@@ -48,8 +48,7 @@ from tracking.kalman import as_cov, bridge_gap, smear_cov, smear_scale, smooth_s
 from tracking.labels import label_tracks
 from tracking.overlap import separate_overlaps
 from tracking.phantoms import StillCloth, off_surface_tracks
-from tracking.settings import TrackClipSettings, TrackingSettings
-from tracking.settings_phantoms import PhantomSettings
+from tracking.settings import PhantomSettings, TrackClipSettings, TrackingSettings
 from tracking.table_choice import calibrate_choosing_table
 
 log = logging.getLogger("feltlab.tracking")
