@@ -58,7 +58,7 @@ import pandas as pd
 from tracking.calibration import Calibration
 from tracking.detect import DETECTION_COLUMNS, Background, colour_summary, to_lab
 from tracking.faint import (_convolve_same, _on_cloth, _peaks, detection_level, disc_kernel, robust_cov,
-                            surface_masks, tail_level, template_sigma_px)
+                            subpixel_peak, surface_masks, tail_level, template_sigma_px)
 from tracking.settings import DetectionSettings
 
 #: Extra columns of :func:`find_dark_ring`: the seed's statistic q and its level,
@@ -221,28 +221,11 @@ def ring_search(lum: np.ndarray, valid: np.ndarray, r: float, known: np.ndarray,
     return seeds, info
 
 
-def _subpixel_peak(T: np.ndarray, x0: float, y0: float, rad: int) -> tuple[float, float]:
-    """Sub-pixel maximum (x, y) of T within rad px of (x0, y0) (parabola through the maximum, per axis)."""
-    h, w = T.shape
-    xa, ya = max(1, int(round(x0)) - rad), max(1, int(round(y0)) - rad)
-    xb, yb = min(w - 1, int(round(x0)) + rad + 1), min(h - 1, int(round(y0)) + rad + 1)
-    if xb <= xa or yb <= ya:
-        return x0, y0
-    sub = T[ya:yb, xa:xb]
-    j, i = np.unravel_index(int(np.argmax(sub)), sub.shape)
-    yi, xi = ya + j, xa + i
-
-    def par(a, b, c):
-        den = a - 2 * b + c
-        return float(np.clip(0.5 * (a - c) / den, -0.5, 0.5)) if abs(den) > 1e-12 else 0.0
-    return xi + par(T[yi, xi - 1], T[yi, xi], T[yi, xi + 1]), yi + par(T[yi - 1, xi], T[yi, xi], T[yi + 1, xi])
-
-
 def ring_centre(lum: np.ndarray, wgt: np.ndarray, x0: float, y0: float, r: float,
                 settings: DetectionSettings = DetectionSettings()) -> tuple[float, float, float]:
     """Sub-pixel centre (x, y px) and contrast (L*) of the dark ring within r/2 of (x0, y0) in a luminance patch."""
     T = ring_statistic(lum, wgt, r, settings)[0]
-    x, y = _subpixel_peak(T, x0, y0, max(2, int(round(0.5 * r))))
+    x, y = subpixel_peak(T, x0, y0, max(2, int(round(0.5 * r))))
     return x, y, float(T[int(round(y)), int(round(x))])
 
 

@@ -435,22 +435,24 @@ def _template_peak(s: np.ndarray, x0: float, y0: float, r: float, settings: Dete
     kr = disc_kernel(settings.faint_ring_out * r, settings.faint_ring_in * r)
     fi, fo = _convolve_same(np.dstack([s * w, w]).astype(np.float32), (kd, kr))
     c = fi[..., 0] / np.maximum(fi[..., 1], 1e-3) - fo[..., 0] / np.maximum(fo[..., 1], 1e-3)
-    h, w = c.shape
-    rad = max(2, int(round(0.5 * r)))
+    return subpixel_peak(c, x0, y0, max(2, int(round(0.5 * r))))
+
+
+def subpixel_peak(T: np.ndarray, x0: float, y0: float, rad: int) -> tuple[float, float]:
+    """Sub-pixel maximum (x, y) of T within rad px of (x0, y0) (parabola through the maximum, per axis)."""
+    h, w = T.shape
     xa, ya = max(1, int(round(x0)) - rad), max(1, int(round(y0)) - rad)
     xb, yb = min(w - 1, int(round(x0)) + rad + 1), min(h - 1, int(round(y0)) + rad + 1)
     if xb <= xa or yb <= ya:
         return x0, y0
-    sub = c[ya:yb, xa:xb]
+    sub = T[ya:yb, xa:xb]
     j, i = np.unravel_index(int(np.argmax(sub)), sub.shape)
     yi, xi = ya + j, xa + i
-    if not (1 <= xi < w - 1 and 1 <= yi < h - 1):
-        return float(xi), float(yi)
 
-    def par(a, b, cc):
-        den = a - 2 * b + cc
-        return float(np.clip(0.5 * (a - cc) / den, -0.5, 0.5)) if abs(den) > 1e-12 else 0.0
-    return xi + par(c[yi, xi - 1], c[yi, xi], c[yi, xi + 1]), yi + par(c[yi - 1, xi], c[yi, xi], c[yi + 1, xi])
+    def par(a, b, c):
+        den = a - 2 * b + c
+        return float(np.clip(0.5 * (a - c) / den, -0.5, 0.5)) if abs(den) > 1e-12 else 0.0
+    return xi + par(T[yi, xi - 1], T[yi, xi], T[yi, xi + 1]), yi + par(T[yi - 1, xi], T[yi, xi], T[yi + 1, xi])
 
 
 def find_faint(image: np.ndarray, calibration: Calibration, background: Background, known_px: np.ndarray,
