@@ -583,3 +583,11 @@ def test_closeup_arrows_fit_their_crop():
     far = np.tile(np.array([[20.0, 20.0]]), (n, 1))
     ov.px["far"], ov.tip["far"], ov.speed["far"] = far, far + 2000.0, np.full(n, 3000.0)
     assert fr_out.closeup_arrow_factor(ov, contact, [0, 1, 2]) == 1.0
+
+
+def test_compound_event_labels_name_their_contacts():
+    """A compound event's label on the table diagram lists its own contact numbers as runs (a group of one
+    inside another group's range had read 'C2-C2  1 touches'); plain counting, no outside reference needed."""
+    assert plot_out.contact_ranges([0, 1, 3, 4, 5, 6, 7, 8, 9]) == "C0-C1, C3-C9"
+    assert plot_out.contact_ranges([2]) == "C2"
+    assert plot_out.contact_ranges([np.int64(11), 14, 12, 13]) == "C11-C14"

@@ -39,6 +39,26 @@ DPI = 110
 MAX_SPEED_PANELS = 6
 
 
+
+def contact_ranges(ids) -> str:
+    """Contact numbers as short runs: ``C0-C9``, ``C2``, ``C0-C1, C3-C9``.
+
+    >>> contact_ranges([0, 1, 2, 3])
+    'C0-C3'
+    >>> contact_ranges([2])
+    'C2'
+    >>> contact_ranges([5, 0, 1, 3])
+    'C0-C1, C3, C5'
+    """
+    v = sorted({int(i) for i in ids})
+    runs: list[list[int]] = []
+    for i in v:
+        if runs and i == runs[-1][1] + 1:
+            runs[-1][1] = i
+        else:
+            runs.append([i, i])
+    return ", ".join(f"C{a}" if a == b else f"C{a}-C{b}" for a, b in runs)
+
 def _group_id(c: dict) -> int:
     """Compound-event id of a contact row (> 0), or -1 (missing, NaN or not part of a group)."""
     try:
@@ -235,7 +255,7 @@ def table_diagram(tracks: pd.DataFrame, contacts: pd.DataFrame | None, table, ba
                     continue
                 labelled_groups.add(grp)
                 ids = contacts.loc[contacts["group"] == c["group"], "contact"].astype(int)
-                txt = (f"C{ids.min()}-C{ids.max()}  {len(ids)} touches within one frame"
+                txt = (f"{contact_ranges(ids)}  {len(ids)} touch{'es' if len(ids) != 1 else ''} within one frame"
                        + (f"\n({c['group_balls']})" if str(c.get("group_balls", "") or "") else ""))
             elif c.get("kind") == "ball-ball":
                 ang = departure_angles(c)
