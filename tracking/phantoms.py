@@ -52,6 +52,7 @@ import numpy as np
 from feltlab.standards import TablePreset
 from tracking.calibration import Calibration
 from tracking.detect import Background, _half_res_background, delta_e76, to_lab
+from tracking.pockets import inside_corner_mouth
 from tracking.settings import PhantomSettings
 
 
@@ -82,11 +83,9 @@ def in_pocket_mouth(xy_mm: np.ndarray, table: TablePreset, radius_mm: float, s: 
     xy = np.asarray(xy_mm, float).reshape(-1, 2)
     if not table.pockets or len(xy) == 0:
         return np.zeros(len(xy), bool)
-    L, W = table.length_mm, table.width_mm
-    u = np.minimum(xy[:, 0], L - xy[:, 0])
-    v = np.minimum(xy[:, 1], W - xy[:, 1])
-    corner = (u + v) < s.corner_mouth_max_mm / np.sqrt(2.0) + 2.0 * radius_mm
-    side = np.abs(xy[:, 0] - 0.5 * L) < 0.5 * s.side_mouth_max_mm + radius_mm
+    # corner: the mouth chord moved out by one diameter along u + v (pockets.inside_corner_mouth)
+    corner = inside_corner_mouth(xy, table, s.corner_mouth_max_mm + 2.0 * np.sqrt(2.0) * radius_mm)
+    side = np.abs(xy[:, 0] - 0.5 * table.length_mm) < 0.5 * s.side_mouth_max_mm + radius_mm
     return corner | side
 
 
