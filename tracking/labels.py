@@ -75,14 +75,38 @@ CUE_FALLBACK_SAT = 0.28
 #: that ball's dark channel; pale pastel sets may not separate and stay unnamed).
 CUE_DIM_MARGIN = 1.25
 
+#: A white-looking ball whose rim (0.80-0.95 R) is coloured over at least this
+#: median fraction shows a stripe's band: a stripe ball resting cap-up (the
+#: band of half-height 0.55 R lies beyond 0.83 R seen from above; a white ball's
+#: rim is white or cloth-coloured). Our choice, half a band seen edge-on.
+RIM_BAND_FRAC = 0.25
+#: A white-looking ball whose rim shows colour in at most this fraction even in
+#: its most coloured tenth of sharp frames never showed a band: a white ball.
+RIM_NO_BAND_FRAC = 0.08
+#: Detections smeared by more than this fraction of the radius do not count
+#: for the rim colour (tracking/appearance.py).
+RIM_MAX_STREAK_FRAC = 0.3
+
+#: Value (HSV, 0..1) under which a red or orange hue is maroon, on the
+#: detector's raw colours (ours, from rendered sets under ordinary light).
+MAROON_VAL = 0.45
+#: The same on light-free colours (tracking/appearance.py), where a white
+#: ball's lit top reads 0.94: a ball then reads about its own sRGB value -
+#: red (200, 25, 25) 0.78, maroon (120, 25, 35) 0.47 (common ball colours,
+#: from memory) - and the split lies between them.
+MAROON_VAL_LIGHT_FREE = 0.6
+
 HUE_BANDS = [  # (name, hue from, hue to) degrees
     ("red", 345.0, 360.0), ("red", 0.0, 12.0), ("orange", 12.0, 40.0), ("yellow", 40.0, 70.0),
     ("green", 70.0, 170.0), ("blue", 170.0, 255.0), ("purple", 255.0, 310.0), ("pink", 310.0, 345.0),
 ]
 
 
-def colour_name(hue_deg: float, sat: float, val: float, dark_frac: float) -> str:
+def colour_name(hue_deg: float, sat: float, val: float, dark_frac: float, maroon_val: float = MAROON_VAL) -> str:
     """Colour word for a solid colour (no cue/stripe logic).
+
+    maroon_val: value below which a red/orange hue is maroon (MAROON_VAL for
+    the detector's raw colours, MAROON_VAL_LIGHT_FREE for light-free ones).
 
     >>> colour_name(274.0, 0.75, 0.55, 0.1), colour_name(47.0, 0.9, 0.95, 0.0)
     ('purple', 'yellow')
@@ -93,7 +117,7 @@ def colour_name(hue_deg: float, sat: float, val: float, dark_frac: float) -> str
         return "black" if dark_frac > 0.2 or not np.isfinite(hue_deg) else "ball"
     h = float(hue_deg) % 360.0
     name = next(n for n, a, b in HUE_BANDS if a <= h < b)
-    if name in ("red", "orange") and np.isfinite(val) and val < 0.45:
+    if name in ("red", "orange") and np.isfinite(val) and val < maroon_val:
         return "maroon"
     if name == "red" and np.isfinite(sat) and sat < 0.45:
         return "pink"
@@ -106,6 +130,38 @@ def _circ_median_hue(h: np.ndarray) -> float:
         return float("nan")
     a = np.radians(h)
     return float(np.degrees(np.arctan2(np.median(np.sin(a)), np.median(np.cos(a)))) % 360)
+
+
+#: Colour summary columns; a detection table that also holds the light-free
+#: ones (tracking/appearance.py, suffix ``_n``) is named from those.
+_COLOUR = ("r", "g", "b", "hue_deg", "sat", "val", "white_frac", "dark_frac")
+
+
+def _colour_columns(g: pd.DataFrame) -> dict[str, str]:
+    """Column to read for each colour quantity: the light-free one where the detections carry it."""
+    light_free = "light_gain" in g and np.isfinite(g["light_gain"].to_numpy(float)).any()
+    return {k: (k + "_n" if light_free and k + "_n" in g else k) for k in _COLOUR}
+
+
+def _rim(g: pd.DataFrame) -> tuple[float, float, float]:
+    """(median and 90th percentile of the rim's coloured fraction, circular median rim hue deg)
+    over a track's sharp detections.
+
+    Smeared detections (streak longer than RIM_MAX_STREAK_FRAC of the
+    radius) are left out: their rim mixes the ball with the cloth. NaN when
+    the detections carry no rim colour.
+    """
+    if "rim_col_frac" not in g:
+        return float("nan"), float("nan"), float("nan")
+    frac = g["rim_col_frac"].to_numpy(float)
+    keep = np.isfinite(frac)
+    if "streak_px" in g and "radius_expected_px" in g:
+        st = np.nan_to_num(g["streak_px"].to_numpy(float), nan=0.0)
+        keep &= st <= RIM_MAX_STREAK_FRAC * g["radius_expected_px"].to_numpy(float)
+    if not keep.any():
+        return float("nan"), float("nan"), float("nan")
+    hue = g["rim_hue_deg"].to_numpy(float)[keep & (frac >= RIM_BAND_FRAC)]
+    return float(np.median(frac[keep])), float(np.percentile(frac[keep], 90)), _circ_median_hue(hue)
 
 
 def _whiteish(r: pd.Series) -> bool:
@@ -131,17 +187,22 @@ def label_tracks(det: pd.DataFrame, track_col: str = "track",
     """
     rows = []
     for tid, g in det.groupby(track_col):
+        c = _colour_columns(g)
+        hue = g[c["hue_deg"]].to_numpy(float)
+        rim_frac, rim_p90, rim_hue = _rim(g)
         rows.append({
             "track": int(tid),
-            "r": float(g["r"].median()), "g": float(g["g"].median()), "b": float(g["b"].median()),
-            "hue_deg": _circ_median_hue(g["hue_deg"].to_numpy(float)),
-            "sat": float(g["sat"].median()), "val": float(g["val"].median()),
-            "white_frac": float(g["white_frac"].median()), "dark_frac": float(g["dark_frac"].median()),
-            "white_p90": float(g["white_frac"].quantile(0.9)),
-            "white_p10": float(g["white_frac"].quantile(0.1)),
+            "r": float(g[c["r"]].median()), "g": float(g[c["g"]].median()), "b": float(g[c["b"]].median()),
+            "hue_deg": _circ_median_hue(hue),
+            "sat": float(g[c["sat"]].median()), "val": float(g[c["val"]].median()),
+            "white_frac": float(g[c["white_frac"]].median()), "dark_frac": float(g[c["dark_frac"]].median()),
+            "white_p90": float(g[c["white_frac"]].quantile(0.9)),
+            "white_p10": float(g[c["white_frac"]].quantile(0.1)),
             # saturation / value of the frames where coloured pixels were seen (the band of a stripe)
-            "sat_col": float(g.loc[np.isfinite(g["hue_deg"].to_numpy(float)), "sat"].median()),
-            "val_col": float(g.loc[np.isfinite(g["hue_deg"].to_numpy(float)), "val"].median()),
+            "sat_col": float(g.loc[np.isfinite(hue), c["sat"]].median()),
+            "val_col": float(g.loc[np.isfinite(hue), c["val"]].median()),
+            "rim_col": rim_frac, "rim_p90": rim_p90, "rim_hue": rim_hue,
+            "maroon_val": MAROON_VAL_LIGHT_FREE if c["val"].endswith("_n") else MAROON_VAL,
             "n_detections": int(len(g)),
         })
     info = pd.DataFrame(rows)
@@ -150,9 +211,15 @@ def label_tracks(det: pd.DataFrame, track_col: str = "track",
         return names, pd.DataFrame(columns=["ball", "r", "g", "b", "pattern", "hue_deg", "white_frac", "n_detections"])
     # Whiteness: white fraction minus colourfulness of the rest.
     whiteness = info["white_frac"] - 0.2 * info["sat"].fillna(0)
+    # A band at the rim marks a stripe seen cap-up, never the cue (carom sets have no stripes).
+    carom = table is not None and str(table).lower().startswith("carom")
+    banded = (info["rim_col"].fillna(0.0) >= RIM_BAND_FRAC) & (not carom)
+    white_enough = info["white_frac"] >= CUE_WHITE_FRAC
+    if (white_enough & ~banded).any():
+        white_enough &= ~banded
     cue_idx = None
-    if (info["white_frac"] >= CUE_WHITE_FRAC).any():
-        cue_idx = int(whiteness.idxmax())
+    if white_enough.any():
+        cue_idx = int(whiteness[white_enough].idxmax())
     else:
         # No track is white enough: a fast cue ball smeared over the cloth at a
         # low frame rate, or dim / warm light. A shot has a cue ball (common
@@ -174,7 +241,6 @@ def label_tracks(det: pd.DataFrame, track_col: str = "track",
                 cue_idx = int(info.index[k])
     base = []
     pattern = []
-    carom = table is not None and str(table).lower().startswith("carom")
     whiteish = [k for k, r in info.iterrows() if k != cue_idx and _whiteish(r)]
     for k, r in info.iterrows():
         if k == cue_idx:
@@ -189,16 +255,27 @@ def label_tracks(det: pd.DataFrame, track_col: str = "track",
             others_striped = any(_is_stripe(q) for j, q in info.iterrows() if j != k and j != cue_idx and j not in whiteish)
             band_seen = bool(np.isfinite(r["white_p10"]) and r["white_p10"] < BAND_SEEN_WHITE_P10
                              and np.isfinite(r["hue_deg"]))
-            if table is None and not (others_striped or band_seen):
+            # A stripe's band covers 55 % of its surface (a zone of height 1.1 R): whichever way
+            # it turns, the band shows across the disc or at the rim. A white ball whose rim
+            # never shows colour in its sharp frames is a second white ball (a carom or training
+            # ball on a pocketed table), not a stripe.
+            never_banded = bool(np.isfinite(r["rim_p90"]) and r["rim_p90"] < RIM_NO_BAND_FRAC and not band_seen)
+            if never_banded or (table is None and not (others_striped or band_seen or banded[k])):
                 base.append("white")
                 pattern.append("solid")
                 continue
-            # a stripe seen cap-up: name it by the colour of the frames where its band showed
-            name = colour_name(r["hue_deg"], r["sat_col"], r["val_col"], 0.0) if band_seen else "ball"
+            # a stripe seen cap-up: name it by the colour of the frames where its band showed,
+            # else by its rim, where the band of a cap-up stripe shows
+            if band_seen:
+                name = colour_name(r["hue_deg"], r["sat_col"], r["val_col"], 0.0, r["maroon_val"])
+            elif banded[k] and np.isfinite(r["rim_hue"]):
+                name = colour_name(r["rim_hue"], 1.0, 1.0, 0.0)
+            else:
+                name = "ball"
             base.append("stripe" if name in ("ball", "black") else name + "-stripe")
             pattern.append("stripe")
             continue
-        name = colour_name(r["hue_deg"], r["sat"], r["val"], r["dark_frac"])
+        name = colour_name(r["hue_deg"], r["sat"], r["val"], r["dark_frac"], r["maroon_val"])
         stripe = _is_stripe(r) and name != "ball"
         base.append(name + ("-stripe" if stripe else ""))
         pattern.append("stripe" if stripe else "solid")

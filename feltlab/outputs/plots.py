@@ -25,7 +25,7 @@ import pandas as pd  # noqa: E402
 from matplotlib.patches import Circle, Rectangle  # noqa: E402
 
 from feltlab.outputs.label_layout import LabelSpec, place_labels  # noqa: E402
-from feltlab.outputs.style import ROLL_RGB, SLIDE_RGB, ball_colours, ball_order, mpl  # noqa: E402
+from feltlab.outputs.style import ROLL_RGB, SLIDE_RGB, ball_colours, ball_dashes, ball_order, mpl  # noqa: E402
 
 #: A ball whose track spans less than this (mm) is drawn as "did not move".
 MOVED_MM = 5.0
@@ -92,6 +92,7 @@ def speed_plot(tracks: pd.DataFrame, segments: pd.DataFrame | None, contacts: pd
         balls = [b for b in balls if b in names] or balls
     balls = balls[:MAX_SPEED_PANELS] or ball_order(tracks["ball"].unique())[:1]
     cols = ball_colours(tracks["ball"].unique(), on_paper=True)
+    dashes = ball_dashes(tracks["ball"].unique())
     n = max(1, len(balls))
     fig, axes = plt.subplots(n, 1, figsize=(9, 1.2 + 2.1 * n), sharex=True, squeeze=False)
     axes = axes[:, 0]
@@ -111,7 +112,7 @@ def speed_plot(tracks: pd.DataFrame, segments: pd.DataFrame | None, contacts: pd
                     ax.axvspan(s["t0_s"], s["t1_s"], color=mpl(SLIDE_RGB if ph == "slide" else ROLL_RGB),
                                alpha=0.22 if ph == "slide" else 0.16, lw=0)
         vis = g["visible"].to_numpy(float) if "visible" in g else np.ones(len(g))
-        ax.plot(g["t_s"], sp, color=mpl(cols[b]), lw=1.6, label="speed (smoothed track)")
+        ax.plot(g["t_s"], sp, color=mpl(cols[b]), lw=1.6, ls=dashes[b], label="speed (smoothed track)")
         if model is not None and len(g):
             try:
                 tt = np.linspace(float(g["t_s"].min()), float(g["t_s"].max()), 600)
@@ -218,6 +219,7 @@ def table_diagram(tracks: pd.DataFrame, contacts: pd.DataFrame | None, table, ba
     """Write the to-scale top-down diagram (PNG) and return its path."""
     L, W = table.length_mm, table.width_mm
     cols = ball_colours(tracks["ball"].unique(), on_paper=True)
+    dashes = ball_dashes(tracks["ball"].unique())
     fig_w = 10.0
     fig, ax = plt.subplots(figsize=(fig_w, fig_w * (W + 2 * CUSHION_DRAW_MM + 260) / (L + 2 * CUSHION_DRAW_MM + 80)))
     _draw_table(ax, table)
@@ -232,7 +234,7 @@ def table_diagram(tracks: pd.DataFrame, contacts: pd.DataFrame | None, table, ba
         if not len(xy):
             continue
         c = mpl(cols[b])
-        ax.plot(xy[:, 0], xy[:, 1], color=c, lw=1.6, zorder=5, label=b)
+        ax.plot(xy[:, 0], xy[:, 1], color=c, lw=1.6, ls=dashes[b], zorder=5, label=b)
         ax.add_patch(Circle(xy[0], R, facecolor="none", edgecolor=c, lw=1.4, zorder=6))
         ax.add_patch(Circle(xy[-1], R, facecolor=c, edgecolor="0.1", lw=0.8, alpha=0.55, zorder=6))
         name_specs.append(LabelSpec(tuple(xy[0]), str(b), prefer=(1.0, 1.0), radii_pt=(5.0, 10.0, 18.0, 30.0),
@@ -291,7 +293,7 @@ def table_diagram(tracks: pd.DataFrame, contacts: pd.DataFrame | None, table, ba
     ax.set_xlabel("x (mm)")
     ax.set_ylabel("y (mm)")
     ax.legend(loc="upper left", bbox_to_anchor=(0.0, -0.08), ncol=8, fontsize=8, frameon=False,
-              title="paths (open circle: start, filled: end, dashed: balls at contact, x: contact point)",
+              title="paths (open circle: start, filled: end, dashed circle: ball at contact, x: contact point)",
               title_fontsize=8)
     ax.set_title(title or f"Top view, to scale ({table.name}, {L:.0f} x {W:.0f} mm)", loc="left", fontsize=11)
     fig.tight_layout()

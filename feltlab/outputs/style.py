@@ -47,6 +47,7 @@ NAME_TO_RGB: dict[str, tuple[int, int, int]] = {
     "purple": (204, 121, 167),
     "pink": (204, 121, 167),
     "violet": (204, 121, 167),
+    "black": (100, 100, 100),
 }
 #: On white paper the Okabe-Ito yellow is too faint; plots use this darker yellow.
 PAPER_YELLOW = (190, 170, 0)
@@ -54,13 +55,14 @@ PAPER_YELLOW = (190, 170, 0)
 
 def ball_colours(balls, on_paper: bool = False) -> dict[str, tuple[int, int, int]]:
     """Label -> RGB (0-255): ``cue`` white on video (black on paper); a colour-named ball its
-    Okabe-Ito colour (first ball of that colour), the rest the unused Okabe-Ito colours in turn.
+    Okabe-Ito colour (every ball of that colour family: a full rack shares colours, and
+    :func:`ball_dashes` tells them apart), the rest the unused Okabe-Ito colours in turn.
 
     >>> ball_colours(["red", "cue", "yellow"])["cue"]
     (255, 255, 255)
     >>> ball_colours(["red", "cue"], on_paper=True)["cue"]
     (0, 0, 0)
-    >>> ball_colours(["blue", "blue-stripe"])["blue"]
+    >>> ball_colours(["blue", "blue-stripe"])["blue-stripe"]
     (0, 114, 178)
     """
     out: dict[str, tuple[int, int, int]] = {}
@@ -71,7 +73,7 @@ def ball_colours(balls, on_paper: bool = False) -> dict[str, tuple[int, int, int
             out[b] = OUTLINE_RGB if on_paper else CUE_RGB
             continue
         rgb = NAME_TO_RGB.get(b.split("-")[0].lower())
-        if rgb is not None and rgb not in used:
+        if rgb is not None:  # its colour family, even when shared (line styles tell them apart)
             out[b] = rgb
             used.add(rgb)
     i = 0
@@ -85,6 +87,28 @@ def ball_colours(balls, on_paper: bool = False) -> dict[str, tuple[int, int, int
         used.add(rgb)
     if on_paper:
         out = {b: (PAPER_YELLOW if c == (240, 228, 66) else c) for b, c in out.items()}
+    return out
+
+
+#: Line styles (matplotlib) for balls that share a drawing colour, in turn.
+DASHES: tuple[str, ...] = ("-", "--", ":", "-.")
+
+
+def ball_dashes(balls, on_paper: bool = True) -> dict[str, str]:
+    """Label -> matplotlib line style: the first ball of a drawing colour solid, the next
+    ones sharing it (a stripe, a second red, a maroon beside a red) dashed, dotted, dash-dot.
+
+    >>> d = ball_dashes(["cue", "red", "red-stripe", "maroon", "yellow"])
+    >>> d["cue"], d["maroon"], d["red"], d["red-stripe"], d["yellow"]
+    ('-', '-', '--', ':', '-')
+    """
+    cols = ball_colours(balls, on_paper=on_paper)
+    seen: dict[tuple[int, int, int], int] = {}
+    out: dict[str, str] = {}
+    for b in ball_order(balls):
+        k = seen.get(cols[b], 0)
+        seen[cols[b]] = k + 1
+        out[b] = DASHES[k % len(DASHES)]
     return out
 
 
