@@ -154,17 +154,37 @@ def ring_is_closed(lum: np.ndarray, wgt: np.ndarray, x: float, y: float, r: floa
                                                                 int(settings.ring_max_open_frac * seen))
 
 
+def _outside_discs(shape: tuple[int, int], centres: np.ndarray, rad: float) -> np.ndarray:
+    """bool (H,W): pixels at least ``rad`` px from every centre (N,2), exactly (d^2 >= rad^2), box by box."""
+    h, w = shape
+    out = np.ones((h, w), bool)
+    n = int(np.ceil(rad)) + 1
+    for x, y in np.asarray(centres, float).reshape(-1, 2):
+        xa, ya = max(0, int(np.floor(x)) - n), max(0, int(np.floor(y)) - n)
+        xb, yb = min(w, int(np.floor(x)) + n + 2), min(h, int(np.floor(y)) + n + 2)
+        if xb <= xa or yb <= ya:
+            continue
+        dx = np.arange(xa, xb) - x
+        dy = np.arange(ya, yb) - y
+        out[ya:yb, xa:xb] &= dy[:, None] ** 2 + dx[None, :] ** 2 >= rad * rad
+    return out
+
+
 def ring_search(lum: np.ndarray, valid: np.ndarray, r: float, known: np.ndarray, known_r: np.ndarray,
                 settings: DetectionSettings = DetectionSettings(),
-                centre_ok: np.ndarray | None = None, closure: bool = True) -> tuple[list[dict], dict]:
+                centre_ok: np.ndarray | None = None, closure: bool = True,
+                stats: dict | None = None) -> tuple[list[dict], dict]:
     """Seeds of balls by their dark limb ring in one luminance image (L*, H,W).
 
     valid: bool (H,W) pixels of the playing surface; r: ball radius px at
     this resolution; known: (N,2) centres of balls already found and
     known_r (N,) their radii (same px frame); centre_ok: optional bool
     (H,W) where a centre may lie; closure: apply the closed-ring test here
-    (False: the caller applies it at full resolution). Returns (seeds [dict(x, y, q, level,
-    contrast)], info dict(level, mu, sd, n_positions)).
+    (False: the caller applies it at full resolution); stats: the level,
+    mu, sd and noise_px of an earlier search of the whole surface (the
+    image is then a window of it and its own open cloth is not measured).
+    Returns (seeds [dict(x, y, q, level, contrast)], info dict(level, mu,
+    sd, n_positions, noise_px)).
     """
     h, w = lum.shape
     wgt = valid.astype(np.float32)
@@ -174,39 +194,40 @@ def ring_search(lum: np.ndarray, valid: np.ndarray, r: float, known: np.ndarray,
                    0, -1, lineType=cv2.LINE_8, shift=4)
     T, g, cover = ring_statistic(lum, wgt, r, settings)
     T = T / np.sqrt(g)  # same noise at every position
-    yy, xx = np.mgrid[0:h, 0:w]
-    far = np.ones((h, w), bool)
-    open_cloth = np.ones((h, w), bool)
-    for x, y in known:
-        d2 = (xx - x) ** 2 + (yy - y) ** 2
-        far &= d2 >= (settings.ring_min_sep * r) ** 2
-        open_cloth &= d2 >= (settings.ring_clutter_sep * r) ** 2
+    far = _outside_discs((h, w), known, settings.ring_min_sep * r)
     ri = int(np.ceil(settings.ring_outer[1] * r))
     inside = np.zeros((h, w), bool)
     inside[ri:h - ri, ri:w - ri] = True
     usable = valid & np.all(cover >= np.float32(settings.ring_min_cover), axis=2) & inside
     info = {"level": np.inf, "mu": np.nan, "sd": np.nan, "n_positions": 0.0, "T": T}
-    st = max(1, int(r // 2))
-    # noise and clutter level from open cloth: round a ball already found
-    # its own shadows make rings that are open (the closed-ring test's
-    # work), and in a rack they would set the level for everyone
-    quiet = usable & open_cloth
-    if quiet.sum() < 0.2 * usable.sum():
-        quiet = usable
-    samp = T[::st, ::st][quiet[::st, ::st]]
-    if len(samp) < 50:
-        return [], info
-    mu, cov = robust_cov(samp[:, None])
-    sd = float(np.sqrt(cov[0, 0]))
-    z = (T - float(mu[0])) / max(sd, 1e-6)
-    q = np.where(z > 0, z * z, 0.0).astype(np.float32)
-    n_pos = float(usable.sum()) / (np.pi * r * r)
-    qs = q[quiet]  # every position: the tail needs the most samples
-    level = max(detection_level(n_pos, settings.ring_false_alarm, dof=1),
-                tail_level(qs, n_pos, settings.ring_false_alarm, settings.faint_tail_p))
-    ki, km, ko = ring_kernels(r, settings)
-    noise_px = sd / float(np.sqrt((ki ** 2).sum() + (ko ** 2).sum() + 4.0 * (km ** 2).sum()))
-    info.update(level=level, mu=float(mu[0]), sd=sd, n_positions=n_pos, noise_px=noise_px)
+    if stats is None:
+        st = max(1, int(r // 2))
+        # noise and clutter level from open cloth: round a ball already found
+        # its own shadows make rings that are open (the closed-ring test's
+        # work), and in a rack they would set the level for everyone
+        quiet = usable & _outside_discs((h, w), known, settings.ring_clutter_sep * r)
+        if quiet.sum() < 0.2 * usable.sum():
+            quiet = usable
+        samp = T[::st, ::st][quiet[::st, ::st]]
+        if len(samp) < 50:
+            return [], info
+        mu, cov = robust_cov(samp[:, None])
+        sd = float(np.sqrt(cov[0, 0]))
+        z = (T - float(mu[0])) / max(sd, 1e-6)
+        q = np.where(z > 0, z * z, 0.0).astype(np.float32)
+        n_pos = float(usable.sum()) / (np.pi * r * r)
+        qs = q[quiet]  # every position: the tail needs the most samples
+        level = max(detection_level(n_pos, settings.ring_false_alarm, dof=1),
+                    tail_level(qs, n_pos, settings.ring_false_alarm, settings.faint_tail_p))
+        ki, km, ko = ring_kernels(r, settings)
+        noise_px = sd / float(np.sqrt((ki ** 2).sum() + (ko ** 2).sum() + 4.0 * (km ** 2).sum()))
+        mu = float(mu[0])
+    else:
+        mu, sd, level, noise_px, n_pos = (stats["mu"], stats["sd"], stats["level"], stats["noise_px"],
+                                          stats["n_positions"])
+        z = (T - mu) / max(sd, 1e-6)
+        q = np.where(z > 0, z * z, 0.0).astype(np.float32)
+    info.update(level=level, mu=mu, sd=sd, n_positions=n_pos, noise_px=noise_px)
     ok = usable & far if centre_ok is None else usable & far & centre_ok
     seeds = []
     # the pockets' shade and the cushions' foot give open rings that can outrank a ball: test
@@ -278,29 +299,122 @@ def ring_refine(lum: np.ndarray, wgt: np.ndarray, x0: float, y0: float, r: float
     return cx, cy
 
 
+class RingGate:
+    """Where the dark-ring search of a clip runs, frame by frame (state carried between frames).
+
+    The search of the whole playing surface costs tens of ms per 720p frame
+    (three annulus convolutions plus the noise and tail levels); a ball of
+    the cloth's colour is rare and, once found, stays near where it was.
+    The whole surface is searched on the first ``ring_gate_warmup`` frames
+    (until the set of balls is known), every ``ring_gate_period`` frames
+    after that, and on any frame where fewer balls are found by colour than
+    on the frame before (a ball seen earlier is missing: it may have turned
+    into one the colour test cannot see). Between those frames only windows
+    ``ring_gate_reach`` radii round the ring finds of the last
+    ``ring_gate_period`` frames are searched, at the level measured on the
+    last whole-surface search (the window's T values are those of the whole
+    image there: the convolutions reach ring_outer radii, inside the
+    window's margin). No finds to follow: nothing is searched.
+    """
+
+    def __init__(self, settings: DetectionSettings = DetectionSettings()):
+        self.s = settings
+        self.n = 0
+        self.last_full = -10 ** 9
+        self.stats: dict | None = None
+        self.finds: list[tuple[int, float, float]] = []  # (frame number, x px, y px)
+        self.n_known_prev = 0
+        self.n_full = 0
+
+    def plan(self, known_px: np.ndarray) -> list[tuple[float, float]] | None:
+        """None: search the whole surface this frame; else the window centres (image px, possibly none)."""
+        n_known = len(np.asarray(known_px).reshape(-1, 2))
+        full = (self.stats is None or self.n < self.s.ring_gate_warmup
+                or self.n - self.last_full >= self.s.ring_gate_period or n_known < self.n_known_prev)
+        self.n_known_prev = n_known
+        if full:
+            return None
+        recent = {(round(x), round(y)): (x, y) for k, x, y in self.finds if self.n - k <= self.s.ring_gate_period}
+        return list(recent.values())
+
+    def record(self, found_px: np.ndarray, info: dict | None) -> None:
+        """After the search of this frame: its finds (N,2) px; info: the whole-surface search's levels, or None."""
+        if info is not None:
+            self.last_full = self.n
+            self.n_full += 1
+            if np.isfinite(info.get("level", np.inf)) and "noise_px" in info:
+                self.stats = {k: info[k] for k in ("mu", "sd", "level", "noise_px", "n_positions")}
+        self.finds = [f for f in self.finds if self.n - f[0] <= self.s.ring_gate_period]
+        self.finds += [(self.n, float(x), float(y)) for x, y in np.asarray(found_px, float).reshape(-1, 2)]
+        self.n += 1
+
+
+def _full_res_cloth(background: Background, cloth: np.ndarray, sc: int) -> np.ndarray:
+    """The search's cloth mask (ROI) at full resolution (uint8), cached on the Background."""
+    key = ("_ring_full_cloth", sc)
+    cache = getattr(background, "_ring_full_cloth", None)
+    if cache is not None and cache[0] == key:
+        return cache[1]
+    x0, y0, x1, y1 = background.roi
+    full = cv2.resize(cloth.astype(np.uint8), (x1 - x0, y1 - y0), interpolation=cv2.INTER_NEAREST) \
+        if sc > 1 else cloth.astype(np.uint8)
+    background._ring_full_cloth = (key, full)
+    return full
+
+
 def find_dark_ring(image: np.ndarray, calibration: Calibration, background: Background, known_px: np.ndarray,
-              settings: DetectionSettings = DetectionSettings()) -> pd.DataFrame:
+                   settings: DetectionSettings = DetectionSettings(), gate: RingGate | None = None) -> pd.DataFrame:
     """Balls of the cloth's colour in one BGR uint8 frame, away from the balls already found (known_px (N,2)).
 
-    Returns a DataFrame with :data:`tracking.detect.DETECTION_COLUMNS` plus
-    :data:`RING_COLUMNS`; empty when nothing passes.
+    gate: a :class:`RingGate` carried over the clip's frames (None: the
+    whole surface on every frame). Returns a DataFrame with
+    :data:`tracking.detect.DETECTION_COLUMNS` plus :data:`RING_COLUMNS`;
+    empty when nothing passes.
     """
     cal = calibration
     x0, y0, x1, y1 = background.roi
     r0 = background.radius_px
     sc = 2 if r0 >= settings.ring_half_res_px else 1
+    known = np.asarray(known_px, float).reshape(-1, 2)
+    windows = gate.plan(known) if gate is not None else None
+    if windows is not None and not windows:
+        gate.record(np.zeros((0, 2)), None)
+        return pd.DataFrame(columns=DETECTION_COLUMNS + RING_COLUMNS)
     cloth, centre_ok, msc = surface_masks(background, cal, settings)
     size = ((x1 - x0) // sc, (y1 - y0) // sc)
     if msc != sc:
         cloth = cv2.resize(cloth.astype(np.uint8), size, interpolation=cv2.INTER_NEAREST) > 0
         centre_ok = cv2.resize(centre_ok.astype(np.uint8), size, interpolation=cv2.INTER_NEAREST) > 0
-    roi = image[y0:y1, x0:x1]
-    small = cv2.resize(roi, size, interpolation=cv2.INTER_AREA) if sc > 1 else roi
-    lum = to_lab(small)[..., 0]
-    known = np.asarray(known_px, float).reshape(-1, 2)
     kr = np.array([background.lookup(x, y)[0] for x, y in known]).reshape(-1)
     kp = (known - [x0, y0] - 0.5 * (sc - 1)) / sc
-    seeds, info = ring_search(lum, cloth, r0 / sc, kp, kr / sc, settings, centre_ok, closure=sc == 1)
+    # the searched box (search resolution, ROI frame): all of it, or the windows
+    # grown by the template's reach (the statistic there is the whole image's)
+    bx0, by0, bx1, by1 = 0, 0, size[0], size[1]
+    win_ok = None
+    if windows is not None:
+        wp = (np.array(windows, float) - [x0, y0] - 0.5 * (sc - 1)) / sc
+        reach = settings.ring_gate_reach * r0 / sc
+        m = reach + 2.0 * settings.ring_outer[1] * r0 / sc + 2
+        bx0, by0 = max(0, int(wp[:, 0].min() - m)), max(0, int(wp[:, 1].min() - m))
+        bx1, by1 = min(size[0], int(np.ceil(wp[:, 0].max() + m)) + 1), min(size[1], int(np.ceil(wp[:, 1].max() + m)) + 1)
+        win_ok = ~_outside_discs((by1 - by0, bx1 - bx0), wp - [bx0, by0], reach)
+    if bx1 - bx0 < 4 or by1 - by0 < 4:
+        gate.record(np.zeros((0, 2)), None)
+        return pd.DataFrame(columns=DETECTION_COLUMNS + RING_COLUMNS)
+    if windows is None:
+        roi = image[y0:y1, x0:x1]
+        small = cv2.resize(roi, size, interpolation=cv2.INTER_AREA) if sc > 1 else roi
+    else:
+        # the box in full-resolution pixels (INTER_AREA at scale sc averages sc x sc blocks)
+        roi = image[y0 + by0 * sc:y0 + by1 * sc, x0 + bx0 * sc:x0 + bx1 * sc]
+        small = cv2.resize(roi, (bx1 - bx0, by1 - by0), interpolation=cv2.INTER_AREA) if sc > 1 else roi
+    lum = to_lab(small)[..., 0]
+    c_ok = centre_ok[by0:by1, bx0:bx1] if win_ok is None else centre_ok[by0:by1, bx0:bx1] & win_ok
+    seeds, info = ring_search(lum, cloth[by0:by1, bx0:bx1], r0 / sc, kp - [bx0, by0], kr / sc, settings, c_ok,
+                              closure=sc == 1, stats=None if windows is None else gate.stats)
+    for sd in seeds:
+        sd["x"] += bx0
+        sd["y"] += by0
     rows = []
     accepted = [tuple(p) for p in known]
     acc_r = list(kr)
@@ -315,8 +429,7 @@ def find_dark_ring(image: np.ndarray, calibration: Calibration, background: Back
         wp = np.zeros(lp.shape, np.float32)
         cy0, cx0 = max(ya, y0), max(xa, x0)
         cy1, cx1 = min(yb, y1), min(xb, x1)
-        full_cloth = cv2.resize(cloth.astype(np.uint8), (x1 - x0, y1 - y0), interpolation=cv2.INTER_NEAREST) \
-            if sc > 1 else cloth.astype(np.uint8)
+        full_cloth = _full_res_cloth(background, cloth, sc)
         wp[cy0 - ya:cy1 - ya, cx0 - xa:cx1 - xa] = full_cloth[cy0 - y0:cy1 - y0, cx0 - x0:cx1 - x0]
         for (kx, ky), rk in zip(accepted, acc_r):
             cv2.circle(wp, (int(round((kx - xa) * 16)), int(round((ky - ya) * 16))),
@@ -355,4 +468,8 @@ def find_dark_ring(image: np.ndarray, calibration: Calibration, background: Back
                      "ring_q": sd["q"], "ring_level": sd["level"], "ring_contrast": contrast})
         accepted.append((cx, cy))
         acc_r.append(r_exp)
-    return pd.DataFrame(rows, columns=DETECTION_COLUMNS + RING_COLUMNS)
+    out = pd.DataFrame(rows, columns=DETECTION_COLUMNS + RING_COLUMNS)
+    if gate is not None:
+        # the windows follow the ring centres (image px, before the silhouette offset)
+        gate.record(np.array(accepted[len(known):], float).reshape(-1, 2), info if windows is None else None)
+    return out

@@ -550,16 +550,17 @@ def find_faint(image: np.ndarray, calibration: Calibration, background: Backgrou
 
 
 def add_faint(det: pd.DataFrame, image: np.ndarray, calibration: Calibration, background: Background,
-              settings: DetectionSettings = DetectionSettings()) -> pd.DataFrame:
+              settings: DetectionSettings = DetectionSettings(), ring_gate=None) -> pd.DataFrame:
     """``det`` (one frame's detections) plus the balls of the cloth's own colour that
     :func:`tracking.dark_ring.find_dark_ring` finds away from them, then the faint balls :func:`find_faint`
-    finds away from all of those."""
+    finds away from all of those. ring_gate: a :class:`tracking.dark_ring.RingGate` carried over
+    a clip's frames (where the dark-ring search runs; None: everywhere, every frame)."""
     if settings.ring_search:
         # first: its centre comes from the ball's own outline, where the
         # colour filter's is pulled by the ball's shadow
         from tracking.dark_ring import find_dark_ring
 
-        det = _append(det, find_dark_ring(image, calibration, background, _known(det), settings), calibration,
+        det = _append(det, find_dark_ring(image, calibration, background, _known(det), settings, ring_gate), calibration,
                       settings)
     if settings.faint_search:
         det = _append(det, find_faint(image, calibration, background, _known(det), settings), calibration, settings)

@@ -771,6 +771,20 @@ class DetectionSettings:
     #: Highest confidence of a limb ball (below faint balls' 0.5 and any
     #: clear detection, so merges keep those).
     ring_max_conf: float = 0.4
+    #: Where the dark-ring search runs in a clip (dark_ring.RingGate): the
+    #: whole surface on the first ring_gate_warmup frames (3: a track is
+    #: confirmed after 3 fixes, TrackingSettings.confirm_hits), then every
+    #: ring_gate_period frames and whenever the colour detector finds fewer
+    #: balls than on the frame before; in between only windows of
+    #: ring_gate_reach radii round the ring finds of the last period. A
+    #: ball of the cloth's colour that comes into view in the open is found
+    #: at most ring_gate_period - 1 frames late (0.12 s at 60 fps; a track
+    #: needs min_track_s = 0.08 s anyway). 6 radii per frame is 10 m/s at
+    #: 60 fps for a 57 mm ball, past which its ring is smeared away (a
+    #: streak has no dark ring). Our choices, not fitted.
+    ring_gate_warmup: int = 3
+    ring_gate_period: int = 8
+    ring_gate_reach: float = 6.0
 
 
 @dataclass(frozen=True)
