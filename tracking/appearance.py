@@ -61,9 +61,14 @@ RIM_INNER, RIM_OUTER = 0.80, 0.95
 #: RIM_CLOTH_DE (the rim of a moving or blurred ball mixes in the cloth).
 RIM_MIN_SAT = 0.45
 RIM_CLOTH_DE = 20.0
+#: A rim pixel is "white" (a stripe's cap) when unsaturated (the detector's
+#: white_saturation) and at least this value: Lambert shading leaves a white
+#: surface 0.48-0.70 of its top's level across the rim annulus (ambient aside).
+RIM_WHITE_MAX_SAT = 0.28
+RIM_WHITE_MIN_VAL = 0.35
 
 APPEARANCE_COLUMNS = ["r_n", "g_n", "b_n", "hue_deg_n", "sat_n", "val_n", "white_frac_n", "dark_frac_n",
-                      "rim_col_frac", "rim_hue_deg", "light_gain"]
+                      "rim_col_frac", "rim_white_frac", "rim_hue_deg", "light_gain"]
 
 
 @dataclass(frozen=True)
@@ -149,32 +154,38 @@ def gained_patch(image: np.ndarray, x: float, y: float, r: float, gain: float) -
     return np.clip(p, 0, 255).astype(np.uint8), x - xa, y - ya
 
 
-def rim_colour(patch: np.ndarray, cloth: np.ndarray, x: float, y: float, r: float) -> tuple[float, float]:
-    """(fraction of coloured rim pixels, their circular-mean hue deg) in the 0.80-0.95 r annulus.
+def rim_colour(patch: np.ndarray, cloth: np.ndarray, x: float, y: float, r: float) -> tuple[float, float, float]:
+    """(coloured fraction, white fraction, circular-mean hue deg of the coloured pixels) of the 0.80-0.95 r annulus.
 
     patch: gained BGR uint8; cloth: the gained background over the same
     pixels (BGR); (x, y) the centre in the patch's frame, r the radius px.
-    A pixel counts as coloured when saturated (>= RIM_MIN_SAT) and not cloth
-    (Delta-E*ab > RIM_CLOTH_DE). NaN hue when none is.
+    Pixels within RIM_CLOTH_DE of the cloth are neither. Coloured: saturation
+    >= RIM_MIN_SAT; white: saturation < RIM_WHITE_MAX_SAT and value >=
+    RIM_WHITE_MIN_VAL (a white surface near the limb, darkened by Lambert
+    shading). NaN hue when no pixel is coloured.
     """
+    nan = float("nan")
     hh, ww = patch.shape[:2]
     if hh == 0 or ww == 0:
-        return float("nan"), float("nan")
+        return nan, nan, nan
     yy, xx = np.mgrid[0:hh, 0:ww]
     rr = np.hypot(xx - x, yy - y)
     ring = (rr >= RIM_INNER * r) & (rr <= RIM_OUTER * r)
     if ring.sum() < 8:
-        return float("nan"), float("nan")
-    hsv = cv2.cvtColor(patch, cv2.COLOR_BGR2HSV_FULL).astype(np.float32)
-    sat = hsv[..., 1] / 255.0
-    val = hsv[..., 2] / 255.0
-    de = np.linalg.norm(to_lab(patch) - to_lab(np.clip(cloth, 0, 255)), axis=2)
-    col = ring & (sat >= RIM_MIN_SAT) & (val >= 0.22) & (de > RIM_CLOTH_DE)
-    frac = float(col.sum() / ring.sum())
+        return nan, nan, nan
+    px = patch[ring][:, None, :]  # (N, 1, 3): only the ring's pixels are converted
+    hsv = cv2.cvtColor(px, cv2.COLOR_BGR2HSV_FULL)[:, 0, :].astype(np.float32)
+    sat = hsv[:, 1] / 255.0
+    val = hsv[:, 2] / 255.0
+    cl = np.clip(np.asarray(cloth, np.float32)[ring], 0, 255)[:, None, :]
+    ball = np.linalg.norm(to_lab(px) - to_lab(cl), axis=2)[:, 0] > RIM_CLOTH_DE
+    col = ball & (sat >= RIM_MIN_SAT) & (val >= 0.22)
+    white = ball & (sat < RIM_WHITE_MAX_SAT) & (val >= RIM_WHITE_MIN_VAL)
+    n = float(ring.sum())
     if col.sum() < 3:
-        return frac, float("nan")
-    ang = np.radians(hsv[..., 0][col] * (360.0 / 256.0))
-    return frac, float(np.degrees(np.arctan2(np.sin(ang).sum(), np.cos(ang).sum())) % 360)
+        return col.sum() / n, white.sum() / n, nan
+    ang = np.radians(hsv[:, 0][col] * (360.0 / 256.0))
+    return col.sum() / n, white.sum() / n, float(np.degrees(np.arctan2(np.sin(ang).sum(), np.cos(ang).sum())) % 360)
 
 
 def white_level(patch: np.ndarray, x: float, y: float, r: float) -> tuple[float, float]:
@@ -239,7 +250,7 @@ def add_appearance(det: pd.DataFrame, image: np.ndarray, background: Background,
     """Detections with the light-free colour columns :data:`APPEARANCE_COLUMNS` added.
 
     ``r_n`` ... ``dark_frac_n``: :func:`tracking.detect.colour_summary` of the
-    gained pixels; ``rim_col_frac``, ``rim_hue_deg``: :func:`rim_colour`;
+    gained pixels; ``rim_col_frac``, ``rim_white_frac``, ``rim_hue_deg``: :func:`rim_colour`;
     ``light_gain``: the gain used. image: the BGR frame the detections came from.
     """
     if det is None or len(det) == 0:
@@ -253,13 +264,17 @@ def add_appearance(det: pd.DataFrame, image: np.ndarray, background: Background,
         p, px, py = gained_patch(image, x, y, r, g)
         cs = colour_summary(p, px, py, r, settings)
         bp, _, _ = gained_patch(background.image, x, y, r, g)
-        rim = rim_colour(p, bp.astype(np.float32), px, py, r)
+        rim = rim_colour(p, bp, px, py, r)
         rows.append({"r_n": cs["r"], "g_n": cs["g"], "b_n": cs["b"], "hue_deg_n": cs["hue_deg"],
                      "sat_n": cs["sat"], "val_n": cs["val"], "white_frac_n": cs["white_frac"],
-                     "dark_frac_n": cs["dark_frac"], "rim_col_frac": rim[0], "rim_hue_deg": rim[1],
+                     "dark_frac_n": cs["dark_frac"], "rim_col_frac": rim[0], "rim_white_frac": rim[1],
+                     "rim_hue_deg": rim[2],
                      "light_gain": g})
     finite = np.isfinite(det["x_px"].to_numpy(float)) & np.isfinite(det["y_px"].to_numpy(float))
-    extra = pd.DataFrame(np.nan, index=det.index, columns=APPEARANCE_COLUMNS)
+    vals = np.full((len(det), len(APPEARANCE_COLUMNS)), np.nan)
     if rows:
-        extra.loc[det.index[finite], APPEARANCE_COLUMNS] = pd.DataFrame(rows)[APPEARANCE_COLUMNS].to_numpy()
-    return pd.concat([det, extra], axis=1)
+        vals[finite] = np.array([[row[c] for c in APPEARANCE_COLUMNS] for row in rows], float)
+    out = det.copy()
+    for k, c in enumerate(APPEARANCE_COLUMNS):
+        out[c] = vals[:, k]
+    return out

@@ -45,6 +45,7 @@ from tracking.detect import build_background, detect_frame
 from tracking.exposure import ExposureMatcher
 from tracking.faint import add_faint, faint_background
 from tracking.kalman import as_cov, bridge_gap, smear_cov, smear_scale, smooth_segment, split_segments
+from tracking.appearance import add_appearance, light_field
 from tracking.labels import label_tracks
 from tracking.overlap import separate_overlaps
 from tracking.phantoms import StillCloth, off_surface_tracks
@@ -384,6 +385,8 @@ def track_clip(path: str | os.PathLike, table: str | TablePreset | None = DEFAUL
                            f"{imgs[0].shape[1]}x{imgs[0].shape[0]}; calibrate this clip")
     bg = build_background(imgs, cal, ds)
     bg = faint_background(bg, cal, ds)  # faint resting balls out of the background too
+    # the scene's light (lamp fall-off, exposure), taken out of the colours balls are named by
+    light = light_field(bg, [(im, detect_frame(im, cal, ds, bg)) for im in imgs[:2]])
     del imgs, sample
     exposure = ExposureMatcher(bg.image, bg.mask, settings.exposure)
 
@@ -406,6 +409,7 @@ def track_clip(path: str | os.PathLike, table: str | TablePreset | None = DEFAUL
                                 ts.merge_below_frac)
         if ts.separate_overlaps:
             det = separate_detections(det, cal.ball_radius_mm)
+        det = add_appearance(det, img, bg, light, ds)
         frame_times[idx] = t
         ids = np.arange(row0, row0 + len(det))
         tid = linker.step(t, det, ids)
