@@ -149,3 +149,35 @@ def test_without_light_columns_labels_use_the_detector_colours():
     rows = [dict(track=k, **colour_summary(frame, b[0], b[1], R_PX)) for k, b in enumerate(balls)] * 5
     names, _ = label_tracks(pd.DataFrame(rows))
     assert names == {0: "cue", 1: "yellow"}
+
+
+def test_band_facing_stripe_is_a_stripe_by_its_white_rim_and_solids_are_not():
+    # band towards the camera (axis 75-90 deg from vertical): the inner disc is mostly band, but the
+    # caps reach the rim on both sides of the axis; a solid's rim is all its colour
+    rows = []
+    for k, tilt in enumerate([75.0, 90.0, 80.0, 85.0, 90.0, 75.0]):
+        balls = [(140.0, 60.0, WHITE, RED_B, tilt), (200.0, 60.0, WHITE, None, 0.0), (260.0, 60.0, YELLOW, None, 0.0)]
+        f, bg, det = scene(balls, seed=k)
+        out = add_appearance(det, f, bg, light_field(bg, [(f, det)]))
+        rows.append(out.assign(track=[0, 1, 2], streak_px=0.0, radius_expected_px=R_PX))
+    det = pd.concat(rows, ignore_index=True)
+    assert det[det.track == 0].white_frac_n.median() < 0.3    # the inner-disc rule alone misses it
+    assert det[det.track == 0].rim_white_frac.median() > 0.4
+    assert det[det.track == 2].rim_white_frac.median() < 0.1
+    names, _ = label_tracks(det, table="pool-9ft")
+    assert names == {0: "red-stripe", 1: "cue", 2: "yellow"}
+
+
+def test_carom_whites_the_struck_ball_is_the_cue_whichever_is_whiter():
+    # common practice: the cue ball is the one struck, the first ball to move
+    frame, bg, det = scene([(100.0, 60.0, WHITE, None, 0.0), (300.0, 60.0, WHITE * 0.97, None, 0.0),
+                            (200.0, 60.0, RED_B, None, 0.0)])
+    out = add_appearance(det, frame, bg, light_field(bg, [(frame, det)]))
+    rows = []
+    for k in range(12):
+        moved = 25.0 * max(0, k - 3)      # ball 1 (the slightly greyer one) is struck at frame 4
+        for j in range(3):
+            rows.append({**out.iloc[j].to_dict(), "track": j, "t_s": k / 60.0, "x_mm": 100.0 * j + (moved if j == 1 else 0.0),
+                         "y_mm": 500.0, "streak_px": 0.0, "radius_expected_px": R_PX})
+    names, _ = label_tracks(pd.DataFrame(rows), table="carom")
+    assert names == {0: "white", 1: "cue", 2: "red"}

@@ -83,6 +83,17 @@ RIM_BAND_FRAC = 0.25
 #: A white-looking ball whose rim shows colour in at most this fraction even in
 #: its most coloured tenth of sharp frames never showed a band: a white ball.
 RIM_NO_BAND_FRAC = 0.08
+#: Two cue candidates whose whiteness differs by less than this are told apart
+#: by which moved first (the struck ball); ours.
+CUE_WHITE_TIE = 0.1
+#: Distance (mm) from its first position at which a ball counts as moving:
+#: well above tracking noise (< 1 mm), well under a ball's radius.
+MOVE_START_MM = 10.0
+#: A coloured ball whose rim (0.80-0.95 R) is white over at least this median
+#: fraction shows a stripe's white caps (measured: solids 0.00-0.14, stripes
+#: 0.31-0.64 on renders by two engines; a cap reaches the rim on both sides of
+#: the axis whenever the band is not facing the camera).
+RIM_CAP_WHITE_FRAC = 0.22
 #: Detections smeared by more than this fraction of the radius do not count
 #: for the rim colour (tracking/appearance.py).
 RIM_MAX_STREAK_FRAC = 0.3
@@ -164,14 +175,39 @@ def _rim(g: pd.DataFrame) -> tuple[float, float, float]:
     return float(np.median(frac[keep])), float(np.percentile(frac[keep], 90)), _circ_median_hue(hue)
 
 
+def _move_start(g: pd.DataFrame) -> float:
+    """Time (s) a track first lies MOVE_START_MM from where it was first seen; NaN if never (or no positions)."""
+    if not {"t_s", "x_mm", "y_mm"} <= set(g.columns) or len(g) < 2:
+        return float("nan")
+    g = g.sort_values("t_s")
+    xy = g[["x_mm", "y_mm"]].to_numpy(float)
+    x0 = np.nanmedian(xy[:3], axis=0)
+    far = np.hypot(*(xy - x0).T) > MOVE_START_MM
+    return float(g["t_s"].to_numpy(float)[np.argmax(far)]) if far.any() else float("nan")
+
+
+def _rim_white(g: pd.DataFrame) -> float:
+    """Median white fraction of the rim over a track's sharp detections (NaN without rim columns)."""
+    if "rim_white_frac" not in g:
+        return float("nan")
+    w = g["rim_white_frac"].to_numpy(float)
+    keep = np.isfinite(w)
+    if "streak_px" in g and "radius_expected_px" in g:
+        st = np.nan_to_num(g["streak_px"].to_numpy(float), nan=0.0)
+        keep &= st <= RIM_MAX_STREAK_FRAC * g["radius_expected_px"].to_numpy(float)
+    return float(np.median(w[keep])) if keep.any() else float("nan")
+
+
 def _whiteish(r: pd.Series) -> bool:
     """A mostly white, unsaturated disc (a cue-like ball)."""
     return bool(r["white_frac"] >= CUE_WHITE_FRAC and (not np.isfinite(r["hue_deg"]) or r["sat"] < 0.25))
 
 
 def _is_stripe(r: pd.Series) -> bool:
-    """Enough white on a coloured ball to be a stripe (module docstring)."""
-    return bool(r["white_frac"] >= STRIPE_WHITE_FRAC or r["white_p90"] >= STRIPE_WHITE_P90)
+    """Enough white on a coloured ball to be a stripe: inside the disc, or at its rim (module docstring)."""
+    rim_white = r.get("rim_white", float("nan"))
+    return bool(r["white_frac"] >= STRIPE_WHITE_FRAC or r["white_p90"] >= STRIPE_WHITE_P90
+                or (np.isfinite(rim_white) and rim_white >= RIM_CAP_WHITE_FRAC))
 
 
 def label_tracks(det: pd.DataFrame, track_col: str = "track",
@@ -201,8 +237,9 @@ def label_tracks(det: pd.DataFrame, track_col: str = "track",
             # saturation / value of the frames where coloured pixels were seen (the band of a stripe)
             "sat_col": float(g.loc[np.isfinite(hue), c["sat"]].median()),
             "val_col": float(g.loc[np.isfinite(hue), c["val"]].median()),
-            "rim_col": rim_frac, "rim_p90": rim_p90, "rim_hue": rim_hue,
+            "rim_col": rim_frac, "rim_p90": rim_p90, "rim_hue": rim_hue, "rim_white": _rim_white(g),
             "maroon_val": MAROON_VAL_LIGHT_FREE if c["val"].endswith("_n") else MAROON_VAL,
+            "move_start_s": _move_start(g),
             "n_detections": int(len(g)),
         })
     info = pd.DataFrame(rows)
@@ -220,6 +257,13 @@ def label_tracks(det: pd.DataFrame, track_col: str = "track",
     cue_idx = None
     if white_enough.any():
         cue_idx = int(whiteness[white_enough].idxmax())
+        # Two balls equally white (a carom set's two whites, or a stripe whose band never showed):
+        # the cue ball is the one struck, the first to move (common practice).
+        close = white_enough & (whiteness >= whiteness[white_enough].max() - CUE_WHITE_TIE)
+        if close.sum() >= 2:
+            starts = info.loc[close, "move_start_s"]
+            if starts.notna().any() and starts.min() < starts.drop(starts.idxmin()).fillna(np.inf).min():
+                cue_idx = int(starts.idxmin())
     else:
         # No track is white enough: a fast cue ball smeared over the cloth at a
         # low frame rate, or dim / warm light. A shot has a cue ball (common
