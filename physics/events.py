@@ -143,8 +143,15 @@ def motion_onset(b: BallSamples, dt: float, s: PhysicsSettings) -> Onset:
         dist = np.hypot(*(b.xy - rest_xy).T)
         thr = 4.0 * sig_med
         j0 = max(idx - k, 0)
-        far = dist[j0:] > thr
-        first = j0 + int(np.argmax(far)) if far.any() else idx
+        # the first sample from which the ball stays away from its rest position through the
+        # moving run: a lone noisy sample beyond the threshold earlier is not the start (a
+        # Rayleigh 4-sigma excursion has probability exp(-8) per sample, and detectors whose
+        # scatter exceeds their stated sigma a little make it far likelier over ~100 rest samples)
+        end = min(len(b.t), idx + k)
+        near = np.flatnonzero(dist[j0:end] <= thr)
+        first = j0 + (int(near[-1]) + 1 if len(near) else 0)
+        if first >= end:
+            first = idx
         j = slice(first, min(len(b.t), first + 6))
         if j.stop - j.start >= 2:
             tt = b.t[j]
