@@ -8,6 +8,12 @@ Reported: contacts found / missed / false, restitution errors by kind and frame 
 truths within 2 reported sigmas, contact-time error in frames, sliding-friction error.
 
 usage: python scripts/bench_physics.py [--n 36] [--fps 60,120,240] [--seed 1] [--set slip_prior=false]
+
+Physics stage alone on a clip with exact truth (is an error the physics stage's or the tracker's?):
+``--truth-clip CLIP.truth.json --noise 0.8 --n 20 --seed 1`` feeds the truth's per-frame centres
+(scorer layout ``frames.positions_mm``, or our renderer's ``.render.json`` ``tracks``) plus Gaussian
+noise of ``--noise`` mm per coordinate through the physics stage, once per seed, and prints each
+required contact's e error against the truth's e and the fraction within 2 reported sigmas.
 """
 from __future__ import annotations
 
@@ -163,6 +169,66 @@ def _details(res, out) -> None:
     print([(round(e.t_s, 4), e.kind, e.balls) for e in res.events])
 
 
+def _truth_layout(path: str):
+    """(fps, times (T,) s, centres ball -> (T,2) mm, table preset, R mm, mass kg, contacts) of a
+    truth file: the scorer's layout (``frames``) or our renderer's (``tracks``). Contacts: dicts
+    with kind, ball_a, other (ball or cushion), t_s, e; only the scored ones (required, e_valid /
+    not micro)."""
+    import json
+
+    d = json.load(open(path))
+    fps = float(d["fps"])
+    tab = d["table"].get("preset") or d["table"].get("name") or "pool-9ft"
+    if "frames" in d and isinstance(d["frames"], dict):
+        t = np.asarray(d["frames"]["t_s"], float)
+        pos = {k: np.asarray(v, float) for k, v in d["frames"]["positions_mm"].items()}
+        cons = [dict(kind=c["kind"], ball_a=c["ball_a"], other=c.get("ball_b") or c.get("cushion"),
+                     t_s=c["t_s"], e=c["e"]) for c in d["contacts"] if c.get("required") and c.get("e_valid")]
+    else:
+        t = np.asarray(d["frames_t_s"], float)
+        pos = {k: np.column_stack([v["x_mm"], v["y_mm"]]) for k, v in d["tracks"].items()}
+        cons = [dict(kind=c["kind"], ball_a=c["ball_a"], other=c.get("ball_b") or c.get("cushion"),
+                     t_s=c["t_s"], e=c["e_measured"]) for c in d["contacts"] if not c.get("micro")]
+    return fps, t, pos, table_preset(tab), d["ball"]["diameter_mm"] / 2, d["ball"]["mass_kg"], cons
+
+
+def truth_feed(path: str, noise_mm: float, seeds, settings: PhysicsSettings, verbose: bool = False) -> None:
+    """Print e errors of the physics stage on a truth file's centres + noise (one run per seed)."""
+    fps, t, pos, table, r_mm, m_kg, cons = _truth_layout(path)
+    errs: dict[str, list] = {"ball-ball": [], "ball-cushion": []}
+    z, missed = [], 0
+    for sd in seeds:
+        tracks, det = tables_from_positions(t, pos, noise_mm, np.random.default_rng(sd), fps)
+        c = analyze_tracks(tracks, det, table, r_mm, m_kg, fps, settings).contacts
+        for tc in cons:
+            if tc["kind"] == "ball-ball":
+                pair = {tc["ball_a"], tc["other"]}
+                same = np.array([{x, y} == pair for x, y in zip(c["ball_a"], c["ball_b"])], dtype=bool)
+                hit = c[(c["kind"] == "ball-ball").to_numpy() & same]
+            else:
+                hit = c[(c["kind"] == "ball-cushion") & (c["ball_a"] == tc["ball_a"]) & (c["cushion"] == tc["other"])]
+            hit = hit[(hit["t_s"] - tc["t_s"]).abs() < 2.0 / fps]
+            if not len(hit):
+                missed += 1
+                print(f"seed {sd}: MISSED {tc['kind']} {tc['ball_a']}-{tc['other']} t={tc['t_s']:.4f}")
+                continue
+            r = hit.iloc[0]
+            err = float(r["e"] - tc["e"])
+            errs[tc["kind"]].append(err)
+            z.append(abs(err) / r["e_sigma"] if r["e_sigma"] > 0 else np.inf)
+            if verbose:
+                print(f"seed {sd}: {tc['kind']} {tc['ball_a']}-{tc['other']} e {r['e']:.4f} +- {r['e_sigma']:.4f} "
+                      f"true {tc['e']:.4f} err {err:+.4f}")
+    print(f"{path}: {len(list(seeds))} noise draws of {noise_mm} mm at {fps:.0f} fps; {missed} contacts missed")
+    for k, v in errs.items():
+        if v:
+            a = np.abs(v)
+            print(f"  {k:12s} n {len(v):3d}  median |err| {np.median(a):.4f}  p90 {np.percentile(a, 90):.4f}  "
+                  f"mean err {np.mean(v):+.4f}")
+    if z:
+        print(f"  within 2 sigma: {np.mean(np.array(z) < 2):.3f} of {len(z)}")
+
+
 def main() -> None:
     ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     ap.add_argument("--n", type=int, default=36)
@@ -173,8 +239,13 @@ def main() -> None:
     ap.add_argument("--start", type=int, default=0, help="first shot index (to split a run)")
     ap.add_argument("--set", action="append", default=[], metavar="NAME=VALUE",
                     help="override a PhysicsSettings field (repeatable), e.g. slip_prior=false")
+    ap.add_argument("--truth-clip", default=None, help="truth JSON of a clip: feed its centres + noise instead")
+    ap.add_argument("--noise", type=float, default=0.5, help="with --truth-clip: noise (mm) per coordinate")
     a = ap.parse_args()
     settings = _settings(a.set)
+    if a.truth_clip:
+        truth_feed(a.truth_clip, a.noise, range(a.seed, a.seed + a.n), settings, a.verbose)
+        return
     fps_list = [float(f) for f in a.fps.split(",")]
     stats = {f: dict(bb=[], bc=[], z=[], dt=[], mu=[], missed=0, false=0, n=0, time=0.0) for f in fps_list}
     for i in range(a.start, a.n) if a.only is None else [a.only]:
