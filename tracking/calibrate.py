@@ -224,16 +224,18 @@ def calibrate_auto(frames: list[np.ndarray], table: TablePreset, ball_diameter_m
             raise first from None
 
 
-def _refusal(msg: str, kind: str = "fit") -> FeltlabError:
+def _refusal(msg: str, kind: str = "fit", height_mm: float | None = None) -> FeltlabError:
     """A refusal of the fitted camera (not of the input): calibrate_auto may retry.
 
     kind "scale": the fit implies an absurd scale (camera height), which a
     preset of another size may mend; "fit": lines missed or mixed, which a
     preset of the same pocket layout (only its size differs) cannot mend.
+    ``height_mm`` (kind "scale"): the fitted camera height above the cloth (mm).
     """
     exc = FeltlabError(msg)
     exc.retry = True
     exc.kind = kind
+    exc.height_mm = height_mm
     return exc
 
 
@@ -396,7 +398,7 @@ def _calibrate_once(frames: list[np.ndarray], table: TablePreset, ball_diameter_
             f"the table edges fit only a camera {height / 1000:.0f} m above the cloth (outline "
             f"{chk.length_scale * L / W:.2f}:1 vs {L / W:.2f}:1 for {table.name}); an edge was probably taken at the "
             "wrong line (dim or cloth-coloured cushions): check the table preset or calibrate from a file",
-            kind="scale")
+            kind="scale", height_mm=height)
     if abs(chk.length_scale - 1) > settings.aspect_max_frac:
         raise _refusal(
             f"the fitted table outline is {chk.length_scale * L / W:.2f}:1, not {L / W:.2f}:1 as every standard table; "

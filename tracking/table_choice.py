@@ -24,6 +24,39 @@ log = logging.getLogger("feltlab.tracking")
 #: Frames whose side-pocket contrast is measured (their median is used).
 POCKET_FRAMES = 5
 
+#: After a refusal for an absurd camera height H with one preset, a preset of
+#: the same family (same pocket layout, nose height and ball: pool 9/8/7 ft) is
+#: tried only if H x (its length / the refused preset's length) is below
+#: CalibrationSettings.max_camera_height_mm x this factor. Such a preset sees
+#: the same picture with every table length scaled, and a camera over a scaled
+#: table stands proportionally higher at the same focal (similar figures); the
+#: factor leaves room for the pocket stretches, fixed in mm and so different
+#: as fractions. Our choice. (Kept here while tracking/settings.py holds
+#: others' uncommitted edits; belongs in CalibrationSettings.)
+SCALE_SKIP_FACTOR = 1.5
+
+
+def same_family(a: TablePreset, b: TablePreset) -> bool:
+    """True when two presets differ only in size: same pocket layout, cushion-nose height and ball."""
+    return (bool(a.pockets) == bool(b.pockets) and a.cushion_nose_height_mm == b.cushion_nose_height_mm
+            and a.ball.diameter_mm == b.ball.diameter_mm)
+
+
+def _scaled_height_absurd(refusal: FeltlabError, table: TablePreset, other: TablePreset,
+                          settings: CalibrationSettings = CalibrationSettings()) -> bool:
+    """Whether ``other`` (same family as ``table``) must also fit a camera too high to be real.
+
+    The same picture fitted with a table scaled by s = L_other / L_table puts
+    the camera s times as high at the same focal (similar figures), so a
+    refusal at height H (mm, ``refusal.height_mm``) carries over as s H; it is
+    absurd above ``max_camera_height_mm * SCALE_SKIP_FACTOR``.
+    """
+    h = getattr(refusal, "height_mm", None)
+    if h is None or not same_family(table, other):
+        return False
+    s = other.length_mm / table.length_mm
+    return h * s > settings.max_camera_height_mm * SCALE_SKIP_FACTOR
+
 
 def calibrate_choosing_table(frames: list[np.ndarray], table: TablePreset) -> tuple[Calibration, list[str]]:
     """calibrate_auto with ``table``; if it has pockets but the picture shows none, again as carom.
@@ -36,7 +69,9 @@ def calibrate_choosing_table(frames: list[np.ndarray], table: TablePreset) -> tu
     fits. Presets that cannot mend the failure are skipped: none is tried
     when the table was not found in the picture (error kind "region"), and
     those of the same pocket layout are not when lines were missed rather
-    than the scale absurd (kind "fit"; see tracking.calibrate._refusal).
+    than the scale absurd (kind "fit"; see tracking.calibrate._refusal); after
+    an absurd camera height (kind "scale") a preset of the same family that
+    would scale it to an absurd height too (:func:`_scaled_height_absurd`).
     """
     try:
         cal = calibrate_auto(frames, table)
@@ -51,6 +86,10 @@ def calibrate_choosing_table(frames: list[np.ndarray], table: TablePreset) -> tu
                 continue
             if kind == "fit" and bool(other.pockets) == bool(table.pockets):
                 continue  # same pocket layout, only the size differs: the same lines would be found
+            if kind == "scale" and _scaled_height_absurd(first, table, other):
+                log.info("calibration as %s skipped: the camera would stand ~%.0f m up", name,
+                         getattr(first, "height_mm", 0.0) * other.length_mm / table.length_mm / 1000)
+                continue
             try:
                 cand = calibrate_auto(frames, other)
             except FeltlabError:
