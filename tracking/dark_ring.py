@@ -299,6 +299,86 @@ def ring_refine(lum: np.ndarray, wgt: np.ndarray, x0: float, y0: float, r: float
     return cx, cy
 
 
+def recentre_by_ring(det: pd.DataFrame, image: np.ndarray, calibration: Calibration, background: Background,
+                     settings: DetectionSettings = DetectionSettings()) -> pd.DataFrame:
+    """Detections whose colour evidence is weak, re-centred on their dark ring (a new DataFrame; det unchanged).
+
+    A ball close to the cloth's colour (red on red, green on green) keeps
+    a colour difference only where it is lit: its dim limb matches the
+    cloth, the colour silhouette is lost inwards on the side away from the
+    lamp, and the circle fit moves towards the lamp or locks onto the
+    highlight. Its shading still draws the limb: for a circle-fit
+    detection (not a streak: a smeared ball has no ring) whose mean colour
+    difference inside 0.6 radius is below ``ring_recentre_contrast``
+    thresholds, the ring statistic's sub-pixel peak near the colour centre
+    and then :func:`ring_refine` (as :func:`find_dark_ring` does) give the
+    centre when the ring there is closed (:func:`ring_is_closed`) and lies
+    within ``ring_recentre_max_shift`` radii; the sigma is the ring's
+    (template bound plus ``ring_model_frac`` x r) or the colour fit's if larger. Other detections'
+    discs carry no weight. Per-pixel L* noise: the background's noise
+    level (``Background.noise_dn``, per-axis CIELAB sigma).
+    """
+    if det.empty or not settings.ring_recentre:
+        return det
+    thr = background.threshold_dn
+    weak = (det["contrast_dn"].to_numpy(float) < settings.ring_recentre_contrast * thr) \
+        & (np.nan_to_num(det["streak_px"].to_numpy(float)) <= 0)
+    if not weak.any():
+        return det
+    cal = calibration
+    x0, y0, x1, y1 = background.roi
+    r0 = background.radius_px
+    sc = 2 if r0 >= settings.ring_half_res_px else 1
+    cloth, _, msc = surface_masks(background, cal, settings)
+    if msc != sc:
+        cloth = cv2.resize(cloth.astype(np.uint8), ((x1 - x0) // sc, (y1 - y0) // sc),
+                           interpolation=cv2.INTER_NEAREST) > 0
+    full_cloth = _full_res_cloth(background, cloth, sc)
+    H, W = image.shape[:2]
+    # image centres (silhouette) of every detection, their radii
+    cen, rad = [], []
+    for x, y in det[["x_px", "y_px"]].to_numpy(float):
+        r_e, ox, oy = background.lookup(x, y)
+        cen.append((x + ox, y + oy))
+        rad.append(r_e)
+    out = det.copy()
+    noise_px = float(background.noise_dn)
+    for i in np.nonzero(weak)[0]:
+        gx, gy = cen[i]
+        r_exp = rad[i]
+        pad = int(np.ceil(2.0 * settings.ring_outer[1] * r_exp)) + 4
+        xa, ya, xb, yb = max(0, int(gx) - pad), max(0, int(gy) - pad), min(W, int(gx) + pad + 2), min(H, int(gy) + pad + 2)
+        lp = to_lab(image[ya:yb, xa:xb])[..., 0]
+        wp = np.zeros(lp.shape, np.float32)
+        cy0, cx0, cy1, cx1 = max(ya, y0), max(xa, x0), min(yb, y1), min(xb, x1)
+        if cy1 <= cy0 or cx1 <= cx0:
+            continue
+        wp[cy0 - ya:cy1 - ya, cx0 - xa:cx1 - xa] = full_cloth[cy0 - y0:cy1 - y0, cx0 - x0:cx1 - x0]
+        for k, ((kx, ky), rk) in enumerate(zip(cen, rad)):
+            if k != i:
+                cv2.circle(wp, (int(round((kx - xa) * 16)), int(round((ky - ya) * 16))),
+                           int(round(settings.ring_known_pad * rk * 16)), 0, -1, lineType=cv2.LINE_8, shift=4)
+        tx, ty, contrast = ring_centre(lp, wp, gx - xa, gy - ya, r_exp, settings)
+        if not contrast > 0 or not ring_is_closed(lp, wp, tx, ty, r_exp, contrast, noise_px, settings):
+            continue
+        ref = ring_refine(lp, wp, tx, ty, r_exp, settings) if settings.ring_refine else None
+        cx, cy = (ref[0] + xa, ref[1] + ya) if ref is not None else (tx + xa, ty + ya)
+        if np.hypot(cx - gx, cy - gy) > settings.ring_recentre_max_shift * r_exp:
+            continue
+        r_new, ox, oy = background.lookup(cx, cy)
+        sig_t = template_sigma_px(contrast, noise_px, r_new, settings.faint_blur_px, 1.0)
+        sig = float(np.hypot(min(sig_t, r_new), settings.ring_model_frac * r_new))
+        p = np.array([[cx - ox, cy - oy]])
+        xy = cal.px_to_table(p)[0]
+        mmpp = cal.ball_radius_mm / r_new
+        j = out.index[i]
+        out.loc[j, ["x_px", "y_px", "x_mm", "y_mm"]] = [p[0, 0], p[0, 1], xy[0], xy[1]]
+        out.loc[j, ["sx_mm", "sy_mm", "sigma_px"]] = [max(sig * mmpp, out.at[j, "sx_mm"]),
+                                                      max(sig * mmpp, out.at[j, "sy_mm"]),
+                                                      max(sig, out.at[j, "sigma_px"])]
+    return out
+
+
 class RingGate:
     """Where the dark-ring search of a clip runs, frame by frame (state carried between frames).
 

@@ -555,6 +555,11 @@ def add_faint(det: pd.DataFrame, image: np.ndarray, calibration: Calibration, ba
     :func:`tracking.dark_ring.find_dark_ring` finds away from them, then the faint balls :func:`find_faint`
     finds away from all of those. ring_gate: a :class:`tracking.dark_ring.RingGate` carried over
     a clip's frames (where the dark-ring search runs; None: everywhere, every frame)."""
+    if settings.ring_recentre:
+        # detections close to the cloth's colour: their dark ring is the better centre
+        from tracking.dark_ring import recentre_by_ring
+
+        det = recentre_by_ring(det, image, calibration, background, settings)
     if settings.ring_search:
         # first: its centre comes from the ball's own outline, where the
         # colour filter's is pulled by the ball's shadow
