@@ -71,8 +71,9 @@ def test_presets_tried_after_scale_refusal(monkeypatch, height_m, start, skipped
 
 
 def test_limit_follows_settings():
-    """The skip limit is max_camera_height_mm x SCALE_SKIP_FACTOR (no other number)."""
-    lim = CalibrationSettings().max_camera_height_mm * tc.SCALE_SKIP_FACTOR
+    """The skip limit is max_camera_height_mm x scale_skip_factor (no other number)."""
+    cs = CalibrationSettings()
+    lim = cs.max_camera_height_mm * cs.scale_skip_factor
     nine, seven = table_preset("pool-9ft"), table_preset("pool-7ft")
     s = seven.length_mm / nine.length_mm
     assert tc._scaled_height_absurd(_err(lim / s * 1.01), nine, seven)

@@ -427,6 +427,14 @@ def _calibrate_once(frames: list[np.ndarray], table: TablePreset, ball_diameter_
     if cut:
         notes.append(f"the cushion line of side(s) {', '.join(cut)} runs off the picture, so the fit extrapolates "
                      "there and positions near it are less certain; film with the whole table inside the frame")
+    levels = side_light_levels(gray, fit.camera, table, z_nose, settings)
+    dim = min(levels, key=levels.get)
+    bright = max(levels, key=levels.get)
+    if levels[bright] > settings.light_ratio_note * max(levels[dim], 1.0):
+        notes.append(
+            f"the light on the cloth falls off {levels[bright] / max(levels[dim], 1.0):.0f}-fold from side {bright} to "
+            f"side {dim} (a low lamp at one end?): cushions lit at a grazing angle can show their edge off the nose "
+            "line, a few px here; check calibration.png or calibrate from a file")
     cam_fit = fit.camera
     lens = lens_note(float(cam_fit.dist[0]), settings.k1_warn)
     if lens:
@@ -467,6 +475,28 @@ def cushion_colour_spread(img: np.ndarray, cam: CameraModel, table: TablePreset,
         chroma[side] = col / max(float(col.sum()), 1e-6)
     ch = np.array([chroma[s] for s in SIDE_ORDER])
     return max(float(np.linalg.norm(ch[i] - ch[j])) for i in range(4) for j in range(i + 1, 4))
+
+
+def side_light_levels(gray: np.ndarray, cam: CameraModel, table: TablePreset, z: float,
+                      settings: CalibrationSettings) -> dict[str, float]:
+    """Median grey level (DN) of the cloth 5-55 mm beyond band_max_mm inward of each fitted nose line.
+
+    Beyond any face or shadow band (at most band_max_mm wide), so it is the
+    cloth's own level beside each cushion; pockets are excluded and balls are
+    too few to move a median. Compared by ``light_ratio_note``
+    (CalibrationSettings).
+    """
+    L, W = table.length_mm, table.width_mm
+    px_mm = 1.0 / cam.mm_per_px([L / 2, W / 2, z])
+    offs = (settings.band_max_mm + np.arange(5.0, 55.0, 5.0)) * px_mm
+    out = {}
+    for side in SIDE_ORDER:
+        sfr = np.linspace(0.0, 1.0, 120)
+        sfr = sfr[np.any([(sfr >= lo) & (sfr <= hi) for lo, hi in _side_ranges(table, side, settings)], axis=0)]
+        p, n = _curve(cam, side, L, W, z)(sfr)
+        q = p[:, None, :] - offs[None, :, None] * n[:, None, :]
+        out[side] = float(np.median(_sample(np.ascontiguousarray(gray, np.float32), q)))
+    return out
 
 
 def off_frame_share(cam: CameraModel, side: str, L: float, W: float, z: float, size: tuple[int, int],

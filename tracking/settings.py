@@ -236,6 +236,24 @@ class CalibrationSettings:
     #: Edge points on the wrong line (a rail instead of the nose) give fits
     #: with the camera 15-30 m up on our dim renders.
     max_camera_height_mm: float = 10000.0
+    #: After a refusal for an absurd camera height H with one preset, a preset
+    #: of the same family (same pocket layout, nose height and ball: pool
+    #: 9/8/7 ft) is tried only if H x (its length / the refused preset's
+    #: length) stays below max_camera_height_mm x this factor
+    #: (table_choice._scaled_height_absurd: similar figures). The factor
+    #: leaves room for the pocket stretches, fixed in mm and so different as
+    #: fractions of the side. Our choice.
+    scale_skip_factor: float = 1.5
+    #: Note when the cloth just inside the brightest side is more than this
+    #: many times as bright as inside the dimmest (calibrate.side_light_levels):
+    #: light that falls off that much comes from a low lamp at one end, which
+    #: meets the far cushions at a grazing angle, so a lit face or a highlight
+    #: on the rounded nose moves their brightness edge off the nose line.
+    #: Measured: sweep render f07 (one low lamp at one end, ambient 0.05)
+    #: 8.3, its far noses found 2.7-3.7 px outward, corners 3.9 px off with a
+    #: 0.47 px residual; 1.1-1.7 on 17 other clips (D1/D2, our renders with 1-4
+    #: lamps, dim, vignetted; MuJoCo renders). Between them, our choice.
+    light_ratio_note: float = 4.0
     #: A nose point counts only if its profile, out to the end of the
     #: cushion-top plateau beyond it, stays this many px inside the picture
     #: (_table_edges.edge_points_along): past the frame the samples repeat

@@ -24,17 +24,6 @@ log = logging.getLogger("feltlab.tracking")
 #: Frames whose side-pocket contrast is measured (their median is used).
 POCKET_FRAMES = 5
 
-#: After a refusal for an absurd camera height H with one preset, a preset of
-#: the same family (same pocket layout, nose height and ball: pool 9/8/7 ft) is
-#: tried only if H x (its length / the refused preset's length) is below
-#: CalibrationSettings.max_camera_height_mm x this factor. Such a preset sees
-#: the same picture with every table length scaled, and a camera over a scaled
-#: table stands proportionally higher at the same focal (similar figures); the
-#: factor leaves room for the pocket stretches, fixed in mm and so different
-#: as fractions. Our choice. (Kept here while tracking/settings.py holds
-#: others' uncommitted edits; belongs in CalibrationSettings.)
-SCALE_SKIP_FACTOR = 1.5
-
 
 def same_family(a: TablePreset, b: TablePreset) -> bool:
     """True when two presets differ only in size: same pocket layout, cushion-nose height and ball."""
@@ -49,13 +38,14 @@ def _scaled_height_absurd(refusal: FeltlabError, table: TablePreset, other: Tabl
     The same picture fitted with a table scaled by s = L_other / L_table puts
     the camera s times as high at the same focal (similar figures), so a
     refusal at height H (mm, ``refusal.height_mm``) carries over as s H; it is
-    absurd above ``max_camera_height_mm * SCALE_SKIP_FACTOR``.
+    absurd above ``max_camera_height_mm * scale_skip_factor``
+    (CalibrationSettings).
     """
     h = getattr(refusal, "height_mm", None)
     if h is None or not same_family(table, other):
         return False
     s = other.length_mm / table.length_mm
-    return h * s > settings.max_camera_height_mm * SCALE_SKIP_FACTOR
+    return h * s > settings.max_camera_height_mm * settings.scale_skip_factor
 
 
 def calibrate_choosing_table(frames: list[np.ndarray], table: TablePreset) -> tuple[Calibration, list[str]]:
