@@ -299,6 +299,22 @@ def ring_refine(lum: np.ndarray, wgt: np.ndarray, x0: float, y0: float, r: float
     return cx, cy
 
 
+def patch_noise(lum: np.ndarray, wgt: np.ndarray, x: float, y: float, r_out: float) -> float:
+    """Per-pixel noise sigma of a luminance patch: robust (MAD) spread of horizontal neighbour
+    differences / sqrt(2) over usable pixels (wgt > 0) beyond r_out px of (x, y); NaN when < 30 pairs.
+
+    Differences of neighbours cancel the smooth shading of the cloth; the
+    MAD ignores edges and marks (Hampel 1974: 1.4826 MAD = sigma for
+    Gaussian noise).
+    """
+    yy, xx = np.mgrid[0:lum.shape[0], 0:lum.shape[1] - 1]
+    ok = (wgt[:, 1:] > 0) & (wgt[:, :-1] > 0) & ((xx + 0.5 - x) ** 2 + (yy - y) ** 2 > r_out * r_out)
+    if ok.sum() < 30:
+        return float("nan")
+    dl = (lum[:, 1:] - lum[:, :-1])[ok]
+    return float(1.4826 * np.median(np.abs(dl - np.median(dl))) / np.sqrt(2.0))
+
+
 def recentre_by_ring(det: pd.DataFrame, image: np.ndarray, calibration: Calibration, background: Background,
                      settings: DetectionSettings = DetectionSettings()) -> pd.DataFrame:
     """Detections whose colour evidence is weak, re-centred on their dark ring (a new DataFrame; det unchanged).
@@ -315,8 +331,8 @@ def recentre_by_ring(det: pd.DataFrame, image: np.ndarray, calibration: Calibrat
     centre when the ring there is closed (:func:`ring_is_closed`) and lies
     within ``ring_recentre_max_shift`` radii; the sigma is the ring's
     (template bound plus ``ring_model_frac`` x r) or the colour fit's if larger. Other detections'
-    discs carry no weight. Per-pixel L* noise: the background's noise
-    level (``Background.noise_dn``, per-axis CIELAB sigma).
+    discs carry no weight. Per-pixel L* noise: measured in the patch on
+    the cloth beyond ``ring_outer`` radii (:func:`patch_noise`).
     """
     if det.empty or not settings.ring_recentre:
         return det
@@ -342,7 +358,6 @@ def recentre_by_ring(det: pd.DataFrame, image: np.ndarray, calibration: Calibrat
         cen.append((x + ox, y + oy))
         rad.append(r_e)
     out = det.copy()
-    noise_px = float(background.noise_dn)
     for i in np.nonzero(weak)[0]:
         gx, gy = cen[i]
         r_exp = rad[i]
@@ -359,7 +374,9 @@ def recentre_by_ring(det: pd.DataFrame, image: np.ndarray, calibration: Calibrat
                 cv2.circle(wp, (int(round((kx - xa) * 16)), int(round((ky - ya) * 16))),
                            int(round(settings.ring_known_pad * rk * 16)), 0, -1, lineType=cv2.LINE_8, shift=4)
         tx, ty, contrast = ring_centre(lp, wp, gx - xa, gy - ya, r_exp, settings)
-        if not contrast > 0 or not ring_is_closed(lp, wp, tx, ty, r_exp, contrast, noise_px, settings):
+        noise_px = patch_noise(lp, wp, gx - xa, gy - ya, settings.ring_outer[1] * r_exp)
+        if not contrast > 0 or not np.isfinite(noise_px) \
+                or not ring_is_closed(lp, wp, tx, ty, r_exp, contrast, noise_px, settings):
             continue
         ref = ring_refine(lp, wp, tx, ty, r_exp, settings) if settings.ring_refine else None
         cx, cy = (ref[0] + xa, ref[1] + ya) if ref is not None else (tx + xa, ty + ya)
