@@ -40,6 +40,44 @@
    with most of its fixes there is not a ball (compression blocks along the
    rails and pockets).
 
+3. Where a ball stood (:func:`clean_median`). The temporal median of the
+   sampled frames is the cloth only where a ball covers a pixel in well
+   under half of them: with a share p of ball frames the median moves to the
+   cloth's 0.5 / (1 - p) quantile (about one noise sigma at p = 0.4, per
+   channel, the same over the whole disc). A ball that stood for a good part
+   of the clip before it was struck leaves that offset as a cloth-coloured,
+   ball-sized patch of a few Delta-E*ab: the detector finds a ghost where the
+   ball stood. A ball that never moved is painted over (tracking/detect.py,
+   ``cv2.inpaint``), a guess that the real cloth shows up once it is struck.
+   Rule: per pixel, the median over only the sampled frames in which it is
+   not foreground against the first background (its Delta-E*ab, averaged
+   over ``clean_smooth`` expected radii so that single noisy pixels do not
+   count, more than ``clean_fg_frac`` foreground thresholds off it, grown by
+   ``clean_grow`` expected radii for a ball's soft rim and shadow), where at least ``clean_min_frames`` such
+   frames exist (a selective background update again, as in 1). Off by
+   default (``PhantomSettings.clean_median``: see the setting); the ghost's
+   track is dropped by 4 instead.
+
+4. Ball or codec (:func:`ring_shading`, :func:`codec_tracks`). A lit sphere
+   has a dark limb (Lambert's law: brightness falls with the cosine of the
+   angle between surface normal and lamp, and the normal turns horizontal at
+   the silhouette) and a contact shadow at its foot; a codec's error on the
+   cloth is a flat patch with neither. The ring contrast of tracking/
+   dark_ring.py, T = mean L* (inner annulus) + mean L* (outer annulus) -
+   2 mean L* (rim annulus), measured on the frame itself at each detection,
+   is that shading: 0 for a flat disc of any brightness, tens of L* for a
+   mid-tone ball, a few L* for a black one. Evidence of a ball: a fix with T
+   of at least ``shade_min_l``, or a colour difference from the cloth larger
+   than a codec ever makes (``codec_max_de``). A track none of whose fixes
+   shows either (in ``shade_share`` of them) and that is mostly predicted
+   (fixes in under ``codec_visible_max`` of its frames) or sits beyond the
+   cushion nose, or that shows it almost never (under ``shade_none_share``
+   of its fixes) wherever it is, is a codec track, not a ball; a ball of the cloth's own
+   colour is found by its dark ring (T), so it keeps its evidence. With
+   ``protect_by_evidence`` (off by default: see the setting) the same
+   evidence decides which resting tracks the still-cloth update of 1 leaves
+   alone, so that a codec patch linked into a track cannot protect itself.
+
 Lengths: px in the image, mm on the table (table frame: DEVELOPERS.md).
 """
 from __future__ import annotations
@@ -53,7 +91,7 @@ from feltlab.standards import TablePreset
 from tracking.calibration import Calibration
 from tracking.detect import Background, _half_res_background, delta_e76, to_lab
 from tracking.pockets import inside_corner_mouth
-from tracking.settings import PhantomSettings
+from tracking.settings import DetectionSettings, PhantomSettings
 
 
 # --------------------------------------------------------------------------- where a ball centre can be
@@ -115,6 +153,143 @@ def off_surface_tracks(det, table: TablePreset, radius_mm: float, s: PhantomSett
     return [int(k) for k, v in frac.items() if v > s.off_surface_share]
 
 
+# --------------------------------------------------------------------------- shading of a ball
+def ring_shading(image: np.ndarray, xy_px: np.ndarray, r_px: np.ndarray,
+                 ds: DetectionSettings = DetectionSettings()) -> np.ndarray:
+    """(N,) ring contrast T (L* units) of the frame at each point (module docstring, 4).
+
+    image: BGR uint8 frame; xy_px: (N,2) centres; r_px: (N,) expected
+    radii. Annuli ``ring_inner``, ``ring_rim``, ``ring_outer`` (x r) as
+    tracking/dark_ring.py; pixels outside the image do not count. NaN where
+    an annulus has no pixel in the image.
+
+    >>> img = np.full((60, 60, 3), 120, np.uint8)
+    >>> yy, xx = np.mgrid[0:60, 0:60]
+    >>> rho = np.hypot(xx - 30, yy - 30) / 10.0
+    >>> flat = img.copy(); flat[rho <= 1] = 200
+    >>> ball = img.copy(); ball[rho <= 1] = (40 + 160 * np.sqrt(1 - np.minimum(rho, 1) ** 2))[rho <= 1, None]
+    >>> t = ring_shading(np.stack([flat, ball]).reshape(120, 60, 3), np.array([[30, 30], [30, 90]]), np.array([10, 10]))
+    >>> bool(abs(t[0]) < 3 and t[1] > 10)
+    True
+    """
+    xy = np.asarray(xy_px, float).reshape(-1, 2)
+    rr = np.asarray(r_px, float).reshape(-1)
+    out = np.full(len(xy), np.nan)
+    h, w = image.shape[:2]
+    bands = (ds.ring_inner, ds.ring_rim, ds.ring_outer)
+    for k, ((x, y), r) in enumerate(zip(xy, rr)):
+        if not (np.isfinite(x) and np.isfinite(y) and np.isfinite(r) and r > 0):
+            continue
+        n = int(np.ceil(ds.ring_outer[1] * r)) + 1
+        xi, yi = int(round(x)), int(round(y))
+        xa, ya, xb, yb = max(0, xi - n), max(0, yi - n), min(w, xi + n + 1), min(h, yi + n + 1)
+        if xb <= xa or yb <= ya:
+            continue
+        L = to_lab(image[ya:yb, xa:xb])[..., 0]
+        yy, xx = np.mgrid[ya:yb, xa:xb]
+        rho = np.hypot(xx - x, yy - y) / r
+        means = []
+        for lo, hi in bands:
+            m = (rho >= lo) & (rho <= hi)
+            means.append(float(L[m].mean()) if m.any() else np.nan)
+        out[k] = means[0] + means[2] - 2.0 * means[1]
+    return out
+
+
+def ball_evidence(shade_l: np.ndarray, contrast: np.ndarray, s: PhantomSettings) -> np.ndarray:
+    """(N,) True where a fix shows a ball: ring shading >= ``shade_min_l`` or colour difference >= ``codec_max_de``."""
+    t = np.nan_to_num(np.asarray(shade_l, float), nan=0.0)
+    c = np.nan_to_num(np.asarray(contrast, float), nan=0.0)
+    return (t >= s.shade_min_l) | (c >= s.codec_max_de)
+
+
+def codec_tracks(det, frame_t: np.ndarray, table: TablePreset, radius_mm: float, s: PhantomSettings) -> list[int]:
+    """Track ids (column ``track``) that are codec artefacts, not balls (module docstring, 4).
+
+    det: detections with ``track``, ``frame``, ``x_mm``, ``y_mm``,
+    ``shade_l`` and ``contrast_dn``; frame_t: time (s) of each frame index
+    (NaN where not read). A track is one when under ``shade_share`` of its
+    fixes show ball evidence (:func:`ball_evidence`) and it is mostly
+    predicted (fixes in under ``codec_visible_max`` of the frames it spans)
+    or most of its fixes lie beyond the cushion nose (pocket mouths
+    included: a ball there is falling or hanging in the jaws, and shows
+    its shading); or when under ``shade_none_share`` of them do, wherever
+    it is and however often it was seen (a codec block that persists).
+    """
+    if det.empty or "shade_l" not in det or not s.drop_codec_tracks:
+        return []
+    ev = ball_evidence(det["shade_l"].to_numpy(float), det["contrast_dn"].to_numpy(float)
+                       if "contrast_dn" in det else np.zeros(len(det)), s)
+    xy = det[["x_mm", "y_mm"]].to_numpy(float)
+    L, W = table.length_mm, table.width_mm
+    inset = np.minimum.reduce([xy[:, 0], L - xy[:, 0], xy[:, 1], W - xy[:, 1]])
+    beyond = inset < centre_inset_mm(radius_mm, s)
+    d = det.assign(_ev=ev.astype(float), _beyond=beyond.astype(float))
+    read = np.isfinite(frame_t)
+    out = []
+    for tid, g in d.groupby("track"):
+        share = g["_ev"].mean()
+        if share >= s.shade_share:
+            continue
+        f0, f1 = int(g.frame.min()), int(g.frame.max())
+        span = int(read[f0:f1 + 1].sum()) if f1 < len(read) else f1 - f0 + 1
+        visible = g.frame.nunique() / max(span, 1)
+        if (share < s.shade_none_share or visible < s.codec_visible_max
+                or g["_beyond"].mean() > s.off_surface_share):
+            out.append(int(tid))
+    return out
+
+
+# --------------------------------------------------------------------------- where a ball stood
+def clean_median(bg: Background, frames: list[np.ndarray], s: PhantomSettings) -> tuple[Background, int]:
+    """The background re-taken as the per-pixel median over the frames where each pixel is cloth (docstring, 3).
+
+    frames: the sampled BGR uint8 frames the background was built from.
+    Returns (new Background, number of pixels changed); the input is
+    unchanged. A pixel keeps its value where fewer than ``clean_min_frames``
+    frames show it as cloth (a ball that never moved: the paint stays) or
+    where no frame shows a ball on it (the median already is the cloth).
+    """
+    n = len(frames)
+    if not s.clean_median or n < s.clean_min_frames:
+        return bg, 0
+    x0, y0, x1, y1 = bg.roi
+    ref = bg.lab_image()[y0:y1, x0:x1]
+    inside = bg.mask[y0:y1, x0:x1] > 0
+    kg = max(1, int(round(s.clean_grow * bg.radius_px)))
+    grow = cv2.getStructuringElement(cv2.MORPH_ELLIPSE, (2 * kg + 1, 2 * kg + 1))
+    fg = np.zeros((n, y1 - y0, x1 - x0), bool)
+    kb = max(1, int(round(s.clean_smooth * bg.radius_px))) | 1
+    for i, f in enumerate(frames):
+        de = cv2.blur(delta_e76(to_lab(f[y0:y1, x0:x1]), ref), (kb, kb))
+        fg[i] = cv2.dilate((de > s.clean_fg_frac * bg.threshold_dn).astype(np.uint8), grow) > 0
+    n_fg = fg.sum(axis=0)
+    todo = inside & (n_fg > 0) & (n - n_fg >= s.clean_min_frames)
+    if not todo.any():
+        return bg, 0
+    img = bg.image.copy()
+    rows = np.nonzero(todo.any(axis=1))[0]
+    block = 32
+    for ra in range(int(rows.min()), int(rows.max()) + 1, block):
+        rb = min(ra + block, y1 - y0)
+        t = todo[ra:rb]
+        if not t.any():
+            continue
+        ys, xs = np.nonzero(t)
+        stack = np.stack([f[y0 + ra + ys, x0 + xs].astype(np.float32) for f in frames], axis=0)  # (n, k, 3)
+        stack[fg[:, ra + ys, xs]] = np.nan
+        img[y0 + ra + ys, x0 + xs] = np.nanmedian(stack, axis=0)
+    iy, ix = np.nonzero(todo)
+    iy, ix = iy + y0, ix + x0
+    lab = bg.lab_image().copy()
+    lab[iy, ix] = to_lab(img[iy, ix][:, None, :])[:, 0, :]
+    nb = replace(bg, image=img, lab=lab)
+    for attr in ("_half", "_faint_masks"):
+        if hasattr(nb, attr):
+            delattr(nb, attr)
+    return nb, int(len(iy))
+
+
 # --------------------------------------------------------------------------- still cloth
 class StillCloth:
     """Follows the codec's rendering of the still cloth in the background (module docstring, 1).
@@ -135,16 +310,34 @@ class StillCloth:
         self.n_frames = 0
         self.births: dict[int, np.ndarray] = {}
         self.moved: dict[int, float] = {}
+        self.evidence: dict[int, bool] = {}
         self.live: list = []
+        self.ball_like_mm = np.zeros((0, 2))
         st = np.asarray(background.static_px, float).reshape(-1, 2)
         self.static_px = st
         self.static_mm = calibration.px_to_table(st) if len(st) else np.zeros((0, 2))
         self.pixels_updated = 0
         self.frames_updated = 0
 
-    def note_tracks(self, live: list) -> None:
-        """Remember the linker's live tracks (assign.LiveTrack) after a frame."""
+    def note_tracks(self, live: list, det=None, track_ids: np.ndarray | None = None) -> None:
+        """Remember the linker's live tracks (assign.LiveTrack) after a frame.
+
+        det, track_ids: the frame's detections (with ``shade_l``,
+        ``contrast_dn``) and the track id the linker gave each: which tracks
+        have shown a ball (module docstring, 4), and where ball-like fixes
+        are whatever their track.
+        """
         self.live = list(live)
+        if det is not None and len(det) and "shade_l" in det:
+            ev = ball_evidence(det["shade_l"].to_numpy(float), det["contrast_dn"].to_numpy(float)
+                               if "contrast_dn" in det else np.zeros(len(det)), self.s)
+            self.ball_like_mm = det[["x_mm", "y_mm"]].to_numpy(float)[ev]
+            if track_ids is not None:
+                for tid, e in zip(np.asarray(track_ids, int), ev):
+                    if tid >= 0 and e:
+                        self.evidence[int(tid)] = True
+        else:
+            self.ball_like_mm = np.zeros((0, 2))
         for tr in self.live:
             p = np.asarray(tr.x[:2], float)
             b = self.births.setdefault(int(tr.id), p.copy())
@@ -165,9 +358,15 @@ class StillCloth:
             if tr.hits < self.confirm_hits:
                 continue
             p = np.asarray(tr.x[:2], float)
-            near_static = len(self.static_mm) and np.min(np.hypot(*(self.static_mm - p).T)) < R
-            if not (self.moved.get(int(tr.id), 0.0) >= 2.0 * R or near_static):
-                continue
+            if self.s.protect_by_evidence:
+                # a ball shows itself (shading, colour); a codec patch linked
+                # into a track, however far that track hopped, does not
+                if not self.evidence.get(int(tr.id), False):
+                    continue
+            else:
+                near_static = len(self.static_mm) and np.min(np.hypot(*(self.static_mm - p).T)) < R
+                if not (self.moved.get(int(tr.id), 0.0) >= 2.0 * R or near_static):
+                    continue
             v = np.nan_to_num(np.asarray(tr.x[2:4], float))
             step = float(np.hypot(*v)) * dt_s
             if step < 0.25 * R:
@@ -176,6 +375,10 @@ class StillCloth:
             else:
                 pts.append(p + v * dt_s)
                 rad.append(1.3 + 0.5 * step / R)
+        if self.s.protect_by_evidence and len(self.ball_like_mm):
+            # anything ball-shaped in the last frame, confirmed or not
+            pts += list(self.ball_like_mm)
+            rad += [self.s.still_protect_radius] * len(self.ball_like_mm)
         px = [self.cal.table_to_px(np.array(pts))] if pts else []
         if self.n_frames <= self.confirm_hits and len(self.static_px):
             px.append(self.static_px)

@@ -48,7 +48,7 @@ from tracking.kalman import as_cov, bridge_gap, smear_cov, smear_scale, smooth_s
 from tracking.appearance import add_appearance, light_field
 from tracking.labels import label_tracks
 from tracking.overlap import separate_overlaps
-from tracking.phantoms import StillCloth, off_surface_tracks
+from tracking.phantoms import StillCloth, off_surface_tracks, clean_median, codec_tracks, ring_shading
 from tracking.settings import PhantomSettings, TrackClipSettings, TrackingSettings
 from tracking.table_choice import calibrate_choosing_table
 
@@ -385,6 +385,8 @@ def track_clip(path: str | os.PathLike, table: str | TablePreset | None = DEFAUL
                            f"{imgs[0].shape[1]}x{imgs[0].shape[0]}; calibrate this clip")
     bg = build_background(imgs, cal, ds)
     bg = faint_background(bg, cal, ds)  # faint resting balls out of the background too
+    # where a ball stood for part of the clip: the median of the frames that show the cloth there
+    bg, n_cleaned = clean_median(bg, imgs, phantoms)
     # the scene's light (lamp fall-off, exposure), taken out of the colours balls are named by
     light = light_field(bg, [(im, detect_frame(im, cal, ds, bg)) for im in imgs[:2]])
     del imgs, sample
@@ -410,10 +412,14 @@ def track_clip(path: str | os.PathLike, table: str | TablePreset | None = DEFAUL
         if ts.separate_overlaps:
             det = separate_detections(det, cal.ball_radius_mm)
         det = add_appearance(det, img, bg, light, ds)
+        if len(det):
+            # a ball's shading on the frame itself (tracking/phantoms.py, 4)
+            det = det.assign(shade_l=ring_shading(img, det[["x_px", "y_px"]].to_numpy(float),
+                                                  det["radius_expected_px"].to_numpy(float), ds))
         frame_times[idx] = t
         ids = np.arange(row0, row0 + len(det))
         tid = linker.step(t, det, ids)
-        still.note_tracks(linker.live)
+        still.note_tracks(linker.live, det, tid)
         if len(det):
             det = det.assign(frame=idx, t_s=t, track=tid, row=ids)
             chunks.append(det)
@@ -458,6 +464,7 @@ def track_clip(path: str | os.PathLike, table: str | TablePreset | None = DEFAUL
                        warnings=list(dict.fromkeys(list(src.warnings) + warnings)),
                        stats={"background_noise_dn": bg.noise_dn, "threshold_dn": bg.threshold_dn,
                               "radius_px": bg.radius_px, "static_balls_painted": int(len(bg.static_px)),
+                              "background_px_cleaned": n_cleaned,
                               "time_source": src.time_source,
                               "still_cloth_px": still.pixels_updated, "still_cloth_frames": still.frames_updated,
                               "smear_scale_s2": float(result[1].attrs.get("smear_scale_s2", float("nan"))),
@@ -482,6 +489,14 @@ def _finish(det_all: pd.DataFrame, jumps: dict[int, list[int]], frame_t: np.ndar
         warnings.append(f"{len(off)} track(s) off the playing surface (centre beyond the cushion nose) "
                         f"dropped as image artefacts")
         det_all = det_all[~det_all.track.isin(off)].copy()
+    # Too few fixes with a ball's shading or colour (and mostly predicted, or
+    # beyond the nose, or none at all): codec blocks the linker strung
+    # together, not balls (tracking/phantoms.py, 4).
+    codec = codec_tracks(det_all, frame_t, cal.table, cal.ball_radius_mm, phantoms)
+    if codec:
+        warnings.append(f"{len(codec)} track(s) that never showed a ball's shading or colour dropped as "
+                        f"compression artefacts")
+        det_all = det_all[~det_all.track.isin(codec)].copy()
     # Drop short clutter tracks that never rest, and tracks that never had
     # the linker's confirmation (confirm_hits fixes, none further apart than a
     # tentative track may go unseen): single fixes linked or stitched over

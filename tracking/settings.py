@@ -957,6 +957,64 @@ class PhantomSettings:
     #: (the 1.8 radii build_background paints) and ~0.7 radius of position
     #: error of a track's last fix.
     still_protect_radius: float = 2.5
+    #: Re-take the background per pixel as the median over the sampled frames
+    #: in which the pixel is cloth (tracking/phantoms.py clean_median).
+    #: False: the median of all sampled frames (and the paint) throughout.
+    #: Off by default: on its own it removed the start-spot ghost of sweep
+    #: f01c at the detector, but together with protect_by_evidence it moved
+    #: f01ch's cushion e error from 0.010/0.012 to 0.027/0.040 (median/max)
+    #: and cost 2 of 18 found contacts on f08g (auto calibration, scorer);
+    #: codec_tracks drops that ghost's track without touching the background.
+    clean_median: bool = False
+    #: Fewest cloth frames whose median replaces a pixel: the median of n
+    #: frames of Gaussian noise has sigma ~1.25 sigma / sqrt(n) (asymptotic
+    #: variance of the sample median, pi sigma^2 / 2n), so 5 already brings
+    #: it to about half a frame's noise; with fewer the pixel keeps its value.
+    clean_min_frames: int = 5
+    #: Foreground grown by this many expected radii before a frame counts
+    #: as cloth at a pixel: a ball's soft (blurred) rim and the penumbra of
+    #: its shadow stay below the threshold but are not cloth.
+    clean_grow: float = 0.5
+    #: A frame shows a ball at a pixel where its Delta-E*ab from the first
+    #: background, box-averaged over ``clean_smooth`` expected radii (sensor
+    #: and codec noise of single pixels averages out), exceeds this many
+    #: foreground thresholds. Two: the offset a ball leaves in the median (the
+    #: thing to remove) is about one threshold, so it does not count as a
+    #: ball; a ball a detector finds reliably stands well above two.
+    clean_fg_frac: float = 2.0
+    clean_smooth: float = 0.5
+    #: Ring shading (L*; tracking/phantoms.py ring_shading) from which a fix
+    #: shows a ball. Between what we measured (H.264 crf 28-35 and noisy
+    #: MPEG-4 renders of ours, the tuning clips): codec and ghost tracks'
+    #: 90th percentile <= 2.9 L* (single fixes up to 6.4), real balls'
+    #: >= 9.8 (a black ball: median 2.8, 90th percentile 15; a fast blurred
+    #: one: median 1.9).
+    shade_min_l: float = 4.0
+    #: A track with ball evidence in fewer than this share of its fixes
+    #: shows no ball: a codec patch beside a rack picks up its neighbours'
+    #: shading in some fixes (tuning clips: up to 1/3 of them), while the
+    #: real balls there showed it in >= 83 % (a ball of the cloth's colour
+    #: among them). Half: the majority of the fixes decides.
+    shade_share: float = 0.5
+    #: Below this share of fixes with ball evidence a track is not a ball
+    #: even when seen in every frame on the cloth (a codec block that
+    #: persists: MPEG-4 part 2 at OpenCV's default rate, tests/
+    #: test_track_codec_evidence.py, showed them in 25 of 25 frames with no
+    #: evidence at all). Every real ball of the tuning clips showed it in
+    #: >= 83 % of its fixes.
+    shade_none_share: float = 0.1
+    #: A track with fixes in fewer than this share of the frames it spans is
+    #: mostly predicted (the linker coasted over codec blocks that came and went).
+    codec_visible_max: float = 0.5
+    #: Drop codec tracks (no ball evidence; tracking/phantoms.py codec_tracks).
+    drop_codec_tracks: bool = True
+    #: The still-cloth update leaves alone the resting tracks that have
+    #: shown ball evidence and every ball-like fix of the last frame (True),
+    #: instead of every confirmed track that rolled or sits on a painted
+    #: ball (False, session 7's rule, under which a codec track that hopped
+    #: across the table protected the patch it came to rest on). Off by
+    #: default for the measured reason given at clean_median.
+    protect_by_evidence: bool = False
     #: Cushion nose height as a share of the ball diameter: 62.5-64.5 %
     #: (WPA equipment specifications for pool tables; from memory). The
     #: higher end gives the smaller contact inset, the safe side.
