@@ -43,6 +43,7 @@ from tracking.ball_size import size_ratio, size_warning, suggest_preset
 from tracking.calibration import Calibration
 from tracking.detect import build_background, detect_frame
 from tracking.exposure import ExposureMatcher
+from tracking.dark_ring import RingGate
 from tracking.faint import add_faint, faint_background
 from tracking.kalman import as_cov, bridge_gap, smear_cov, smear_scale, smooth_segment, split_segments
 from tracking.appearance import add_appearance, light_field
@@ -398,6 +399,7 @@ def track_clip(path: str | os.PathLike, table: str | TablePreset | None = DEFAUL
                                                                         cal.px_to_table))
     # compressed footage: the background follows the codec's still cloth
     still = StillCloth(bg, cal, phantoms, ts.confirm_hits)
+    ring_gate = RingGate(ds)  # where the dark-ring search runs, frame by frame (tracking/dark_ring.py)
     chunks = []
     frame_times: dict[int, float] = {}
     row0 = 0
@@ -407,7 +409,7 @@ def track_clip(path: str | os.PathLike, table: str | TablePreset | None = DEFAUL
         raw = img
         img = exposure.correct(img)  # lamp flicker / auto exposure out
         bg = still.update(raw, img, t)
-        det = merge_overlapping(add_faint(detect_frame(img, cal, ds, bg), img, cal, bg, ds), cal.ball_radius_mm,
+        det = merge_overlapping(add_faint(detect_frame(img, cal, ds, bg), img, cal, bg, ds, ring_gate), cal.ball_radius_mm,
                                 ts.merge_below_frac)
         if ts.separate_overlaps:
             det = separate_detections(det, cal.ball_radius_mm)
