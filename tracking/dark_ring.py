@@ -332,7 +332,9 @@ def recentre_by_ring(det: pd.DataFrame, image: np.ndarray, calibration: Calibrat
     within ``ring_recentre_max_shift`` radii; the sigma is the ring's
     (template bound plus ``ring_model_frac`` x r) or the colour fit's if larger. Other detections'
     discs carry no weight. Per-pixel L* noise: measured in the patch on
-    the cloth beyond ``ring_outer`` radii (:func:`patch_noise`).
+    the cloth beyond ``ring_outer`` radii (:func:`patch_noise`). A detection
+    with another ball's disc reaching into its outer annulus (centres closer
+    than ``ring_outer[1]`` r + the other's r: a rack) keeps its colour centre.
     """
     if det.empty or not settings.ring_recentre:
         return det
@@ -358,9 +360,17 @@ def recentre_by_ring(det: pd.DataFrame, image: np.ndarray, calibration: Calibrat
         cen.append((x + ox, y + oy))
         rad.append(r_e)
     out = det.copy()
+    cen_a = np.asarray(cen, float).reshape(-1, 2)
+    rad_a = np.asarray(rad, float)
     for i in np.nonzero(weak)[0]:
         gx, gy = cen[i]
         r_exp = rad[i]
+        # A neighbour whose disc reaches into the ring's outer annulus (a ball in a rack) hides part
+        # of the ring and adds its own contact shadow: the ring centre is not trusted there.
+        d_nb = np.hypot(cen_a[:, 0] - gx, cen_a[:, 1] - gy)
+        d_nb[i] = np.inf
+        if np.any(d_nb < settings.ring_outer[1] * r_exp + rad_a):
+            continue
         pad = int(np.ceil(2.0 * settings.ring_outer[1] * r_exp)) + 4
         xa, ya, xb, yb = max(0, int(gx) - pad), max(0, int(gy) - pad), min(W, int(gx) + pad + 2), min(H, int(gy) + pad + 2)
         lp = to_lab(image[ya:yb, xa:xb])[..., 0]
