@@ -56,3 +56,21 @@ def run_frames(space, bodies: dict, fps: float, duration: float, sub: int, histo
             if history:
                 hist.append((before, {k: np.array(b.velocity) for k, b in bodies.items()}))
     return np.array(times), {k: np.array(v) for k, v in pos.items()}, hist
+
+
+def first_contact(hist, a: str, b: str, fps: float, sub: int, radius_mm: float) -> tuple[float, float]:
+    """(time s, realised e) of pymunk's first a-b contact, from its own body states per step.
+
+    hist: run_frames(..., history=True)'s per-step (before, after) {name: (pos, vel)};
+    the touch time is placed inside the step where the centre distance reaches 2R.
+    """
+    dt = 1.0 / fps / sub
+    for i, (before, after) in enumerate(hist):
+        (pa, va), (pb, vb) = before[a], before[b]
+        if np.hypot(*(after[b] - vb)) > 1.0:
+            n = (pb - pa) / np.hypot(*(pb - pa))
+            e = float(-((after[b] - after[a]) @ n) / ((vb - va) @ n))
+            gap0 = np.hypot(*(pb - pa)) - 2 * radius_mm
+            closing = -((vb - va) @ n)
+            return i * dt + min(max(gap0 / closing, 0.0), dt), e
+    raise AssertionError("pymunk produced no collision")

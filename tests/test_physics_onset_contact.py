@@ -22,27 +22,12 @@ pymunk = pytest.importorskip("pymunk")
 from feltlab.standards import table_preset  # noqa: E402
 from physics.pipeline import analyze_tracks, tables_from_positions  # noqa: E402
 from physics.settings import PhysicsSettings  # noqa: E402
-from pymunk_scenes import build_space, run_frames  # noqa: E402
+from pymunk_scenes import build_space, first_contact, run_frames  # noqa: E402
 
 TABLE = table_preset("pool-9ft")
 R = TABLE.ball.radius_mm
 M = TABLE.ball.mass_kg
 SUB = 20  # pymunk steps per video frame
-
-
-def _contact_from_history(hist, a: str, b: str, fps: float):
-    """(time s, realised e) of pymunk's first a-b contact, from its own body states per step."""
-    dt = 1.0 / fps / SUB
-    for i, (before, after) in enumerate(hist):
-        (pa, va), (pb, vb) = before[a], before[b]
-        if np.hypot(*(after[b] - vb)) > 1.0:
-            n = (pb - pa) / np.hypot(*(pb - pa))
-            e = float(-((after[b] - after[a]) @ n) / ((vb - va) @ n))
-            # first touch inside this step: where the centre distance reaches 2R
-            gap0 = np.hypot(*(pb - pa)) - 2 * R
-            closing = -((vb - va) @ n)
-            return i * dt + min(max(gap0 / closing, 0.0), dt), e
-    raise AssertionError("pymunk produced no collision")
 
 
 def _cut_scene(fps: float, cut_deg: float, speed: float):
@@ -59,7 +44,7 @@ def _cut_scene(fps: float, cut_deg: float, speed: float):
 @pytest.mark.parametrize("fps,cut_deg", [(60.0, 20.0), (120.0, 0.0)])
 def test_contact_found_from_onset_when_touch_frames_are_lost(fps, cut_deg):
     t, pos, hist = _cut_scene(fps, cut_deg, 1300.0)
-    t_c, e_real = _contact_from_history(hist, "cue", "red", fps)
+    t_c, e_real = first_contact(hist, "cue", "red", fps, SUB, R)
     # both balls lost for the frames around the touch (a merged blob the tracker cannot split):
     # every frame whose centre distance is below 2R + 1.5 frames of closing travel
     dist = np.hypot(*(pos["cue"] - pos["red"]).T)

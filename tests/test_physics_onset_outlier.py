@@ -23,7 +23,7 @@ from feltlab.standards import table_preset  # noqa: E402
 from physics.events import ball_samples, motion_onset  # noqa: E402
 from physics.pipeline import analyze_tracks, tables_from_positions  # noqa: E402
 from physics.settings import PhysicsSettings  # noqa: E402
-from pymunk_scenes import build_space, run_frames  # noqa: E402
+from pymunk_scenes import build_space, first_contact, run_frames  # noqa: E402
 
 TABLE = table_preset("pool-9ft")
 R = TABLE.ball.radius_mm
@@ -31,20 +31,6 @@ M = TABLE.ball.mass_kg
 SUB = 20  # pymunk steps per video frame
 FPS = 240.0
 SIGMA = 0.4  # mm per coordinate, the size of our tracker's scatter on a 1080p clip
-
-
-def _first_contact(hist, a: str, b: str):
-    """(time s, realised e) of pymunk's first a-b contact, from its own body states per step."""
-    dt = 1.0 / FPS / SUB
-    for i, (before, after) in enumerate(hist):
-        (pa, va), (pb, vb) = before[a], before[b]
-        if np.hypot(*(after[b] - vb)) > 1.0:
-            n = (pb - pa) / np.hypot(*(pb - pa))
-            e = float(-((after[b] - after[a]) @ n) / ((vb - va) @ n))
-            gap0 = np.hypot(*(pb - pa)) - 2 * R
-            closing = -((vb - va) @ n)
-            return i * dt + min(max(gap0 / closing, 0.0), dt), e
-    raise AssertionError("pymunk produced no collision")
 
 
 @pytest.mark.parametrize("frames_before,seed", [(10, 1), (14, 2), (8, 3)])
@@ -57,7 +43,7 @@ def test_stray_sample_before_the_hit_is_not_a_strike(frames_before, seed):
     cue0 = obj - 2 * R * n - d * speed * 0.40  # touch after ~0.40 s
     space, bodies, _ = build_space({"cue": (cue0, speed * d), "red": (obj, (0.0, 0.0))}, np.sqrt(0.95), R, M)
     t, pos, hist = run_frames(space, bodies, FPS, 0.6, SUB, history=True)
-    t_c, e_real = _first_contact(hist, "cue", "red")
+    t_c, e_real = first_contact(hist, "cue", "red", FPS, SUB, R)
     tracks, det = tables_from_positions(t, pos, SIGMA, np.random.default_rng(seed), FPS)
     # one stray detection of the resting ball, 2.2 mm (5.5 sigma) off, some frames before the hit
     k = int(np.floor(t_c * FPS)) - frames_before

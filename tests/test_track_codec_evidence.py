@@ -188,19 +188,6 @@ def test_detector_finds_no_ghost_on_the_cleaned_background():
     assert ghosts(cb) == 0
 
 
-def _write_mp4v(path, frames, fps):
-    import cv2
-
-    h, w = frames[0].shape[:2]
-    vw = cv2.VideoWriter(str(path), cv2.VideoWriter_fourcc(*"mp4v"), fps, (w, h))
-    if not vw.isOpened():
-        return False
-    for f in frames:
-        vw.write(f)
-    vw.release()
-    return path.exists() and path.stat().st_size > 1000
-
-
 def test_mp4v_clip_every_track_is_a_ball(tmp_path):
     """A clip through OpenCV's MPEG-4 part 2 encoder (its default rate smooths the 2 DN sensor
     noise to 0.2): a red ball rests for 15 of 31 frames, then rolls away at 1.2 m/s; a yellow

@@ -315,6 +315,17 @@ def patch_noise(lum: np.ndarray, wgt: np.ndarray, x: float, y: float, r_out: flo
     return float(1.4826 * np.median(np.abs(dl - np.median(dl))) / np.sqrt(2.0))
 
 
+def _ring_fix(cal: Calibration, background: Background, cx: float, cy: float, contrast: float, noise_px: float,
+              settings: DetectionSettings) -> tuple[float, np.ndarray, np.ndarray, float, float]:
+    """A ring centre (cx, cy: silhouette, image px) as a fix: (expected radius px, (1, 2) ball-centre px,
+    table position mm, sigma px = template bound (capped at r) with ring_model_frac x r, mm per px)."""
+    r, ox, oy = background.lookup(cx, cy)
+    sig_t = template_sigma_px(contrast, noise_px, r, settings.faint_blur_px, 1.0)
+    sig = float(np.hypot(min(sig_t, r), settings.ring_model_frac * r))
+    p = np.array([[cx - ox, cy - oy]])
+    return r, p, cal.px_to_table(p)[0], sig, cal.ball_radius_mm / r
+
+
 def recentre_by_ring(det: pd.DataFrame, image: np.ndarray, calibration: Calibration, background: Background,
                      settings: DetectionSettings = DetectionSettings()) -> pd.DataFrame:
     """Detections whose colour evidence is weak, re-centred on their dark ring (a new DataFrame; det unchanged).
@@ -392,12 +403,7 @@ def recentre_by_ring(det: pd.DataFrame, image: np.ndarray, calibration: Calibrat
         cx, cy = (ref[0] + xa, ref[1] + ya) if ref is not None else (tx + xa, ty + ya)
         if np.hypot(cx - gx, cy - gy) > settings.ring_recentre_max_shift * r_exp:
             continue
-        r_new, ox, oy = background.lookup(cx, cy)
-        sig_t = template_sigma_px(contrast, noise_px, r_new, settings.faint_blur_px, 1.0)
-        sig = float(np.hypot(min(sig_t, r_new), settings.ring_model_frac * r_new))
-        p = np.array([[cx - ox, cy - oy]])
-        xy = cal.px_to_table(p)[0]
-        mmpp = cal.ball_radius_mm / r_new
+        r_new, p, xy, sig, mmpp = _ring_fix(cal, background, cx, cy, contrast, noise_px, settings)
         j = out.index[i]
         out.loc[j, ["x_px", "y_px", "x_mm", "y_mm"]] = [p[0, 0], p[0, 1], xy[0], xy[1]]
         out.loc[j, ["sx_mm", "sy_mm", "sigma_px"]] = [max(sig * mmpp, out.at[j, "sx_mm"]),
@@ -560,12 +566,7 @@ def find_dark_ring(image: np.ndarray, calibration: Calibration, background: Back
             continue
         if not _on_cloth(cal, np.array([[cx, cy]]), settings.faint_margin * cal.ball_radius_mm)[0]:
             continue
-        r_exp, ox, oy = background.lookup(cx, cy)
-        sig_t = template_sigma_px(contrast, noise_px, r_exp, settings.faint_blur_px, 1.0)
-        sig = float(np.hypot(min(sig_t, r_exp), settings.ring_model_frac * r_exp))
-        p = np.array([[cx - ox, cy - oy]])
-        xy = cal.px_to_table(p)[0]
-        mmpp = cal.ball_radius_mm / r_exp
+        r_exp, p, xy, sig, mmpp = _ring_fix(cal, background, cx, cy, contrast, noise_px, settings)
         col = colour_summary(image, cx, cy, r_exp, settings)
         conf = float(settings.ring_max_conf * np.clip(1.0 - sd["level"] / sd["q"], 0.0, 1.0))
         rows.append({"x_px": p[0, 0], "y_px": p[0, 1], "x_mm": xy[0], "y_mm": xy[1],
