@@ -154,25 +154,35 @@ def _colour_columns(g: pd.DataFrame) -> dict[str, str]:
     return {k: (k + "_n" if light_free and k + "_n" in g else k) for k in _COLOUR}
 
 
-def _rim(g: pd.DataFrame) -> tuple[float, float, float]:
-    """(median and 90th percentile of the rim's coloured fraction, circular median rim hue deg)
-    over a track's sharp detections.
-
-    Smeared detections (streak longer than RIM_MAX_STREAK_FRAC of the
-    radius) are left out: their rim mixes the ball with the cloth. NaN when
-    the detections carry no rim colour.
-    """
-    if "rim_col_frac" not in g:
-        return float("nan"), float("nan"), float("nan")
-    frac = g["rim_col_frac"].to_numpy(float)
-    keep = np.isfinite(frac)
+def _sharp(g: pd.DataFrame, col: str) -> np.ndarray:
+    """Rows of a track whose rim value ``col`` counts: finite, and not smeared by more than
+    RIM_MAX_STREAK_FRAC of the radius (a smeared rim mixes the ball with the cloth)."""
+    keep = np.isfinite(g[col].to_numpy(float))
     if "streak_px" in g and "radius_expected_px" in g:
         st = np.nan_to_num(g["streak_px"].to_numpy(float), nan=0.0)
         keep &= st <= RIM_MAX_STREAK_FRAC * g["radius_expected_px"].to_numpy(float)
-    if not keep.any():
-        return float("nan"), float("nan"), float("nan")
-    hue = g["rim_hue_deg"].to_numpy(float)[keep & (frac >= RIM_BAND_FRAC)]
-    return float(np.median(frac[keep])), float(np.percentile(frac[keep], 90)), _circ_median_hue(hue)
+    return keep
+
+
+def _rim(g: pd.DataFrame) -> tuple[float, float, float, float]:
+    """(median and 90th percentile of the rim's coloured fraction, circular median rim hue deg,
+    median white fraction of the rim) over a track's sharp detections (:func:`_sharp`); NaN
+    where the detections carry no rim colour.
+    """
+    nan = float("nan")
+    col, p90, hue = nan, nan, nan
+    if "rim_col_frac" in g:
+        keep = _sharp(g, "rim_col_frac")
+        if keep.any():
+            frac = g["rim_col_frac"].to_numpy(float)
+            col, p90 = float(np.median(frac[keep])), float(np.percentile(frac[keep], 90))
+            hue = _circ_median_hue(g["rim_hue_deg"].to_numpy(float)[keep & (frac >= RIM_BAND_FRAC)])
+    white = nan
+    if "rim_white_frac" in g:
+        keep = _sharp(g, "rim_white_frac")
+        if keep.any():
+            white = float(np.median(g["rim_white_frac"].to_numpy(float)[keep]))
+    return col, p90, hue, white
 
 
 def _move_start(g: pd.DataFrame) -> float:
@@ -184,18 +194,6 @@ def _move_start(g: pd.DataFrame) -> float:
     x0 = np.nanmedian(xy[:3], axis=0)
     far = np.hypot(*(xy - x0).T) > MOVE_START_MM
     return float(g["t_s"].to_numpy(float)[np.argmax(far)]) if far.any() else float("nan")
-
-
-def _rim_white(g: pd.DataFrame) -> float:
-    """Median white fraction of the rim over a track's sharp detections (NaN without rim columns)."""
-    if "rim_white_frac" not in g:
-        return float("nan")
-    w = g["rim_white_frac"].to_numpy(float)
-    keep = np.isfinite(w)
-    if "streak_px" in g and "radius_expected_px" in g:
-        st = np.nan_to_num(g["streak_px"].to_numpy(float), nan=0.0)
-        keep &= st <= RIM_MAX_STREAK_FRAC * g["radius_expected_px"].to_numpy(float)
-    return float(np.median(w[keep])) if keep.any() else float("nan")
 
 
 def _whiteish(r: pd.Series) -> bool:
@@ -225,7 +223,7 @@ def label_tracks(det: pd.DataFrame, track_col: str = "track",
     for tid, g in det.groupby(track_col):
         c = _colour_columns(g)
         hue = g[c["hue_deg"]].to_numpy(float)
-        rim_frac, rim_p90, rim_hue = _rim(g)
+        rim_frac, rim_p90, rim_hue, rim_white = _rim(g)
         rows.append({
             "track": int(tid),
             "r": float(g[c["r"]].median()), "g": float(g[c["g"]].median()), "b": float(g[c["b"]].median()),
@@ -237,7 +235,7 @@ def label_tracks(det: pd.DataFrame, track_col: str = "track",
             # saturation / value of the frames where coloured pixels were seen (the band of a stripe)
             "sat_col": float(g.loc[np.isfinite(hue), c["sat"]].median()),
             "val_col": float(g.loc[np.isfinite(hue), c["val"]].median()),
-            "rim_col": rim_frac, "rim_p90": rim_p90, "rim_hue": rim_hue, "rim_white": _rim_white(g),
+            "rim_col": rim_frac, "rim_p90": rim_p90, "rim_hue": rim_hue, "rim_white": rim_white,
             "maroon_val": MAROON_VAL_LIGHT_FREE if c["val"].endswith("_n") else MAROON_VAL,
             "move_start_s": _move_start(g),
             "n_detections": int(len(g)),
