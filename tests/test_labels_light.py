@@ -181,3 +181,36 @@ def test_carom_whites_the_struck_ball_is_the_cue_whichever_is_whiter():
                          "y_mm": 500.0, "streak_px": 0.0, "radius_expected_px": R_PX})
     names, _ = label_tracks(pd.DataFrame(rows), table="carom")
     assert names == {0: "white", 1: "cue", 2: "red"}
+
+
+def _lin_bgr(rgb) -> np.ndarray:
+    """Linear BGR albedo of an sRGB colour (IEC 61966-2-1 decoding)."""
+    c = np.asarray(rgb, float)[::-1] / 255.0
+    return np.where(c <= 0.04045, c / 12.92, ((c + 0.055) / 1.055) ** 2.4)
+
+
+def _pair_names(second_rgb, table: str) -> dict[int, str]:
+    # a bright red solid and a second red-hue solid (a lighter-than-usual maroon, or another red),
+    # with the cue and a yellow; several frames so the medians are taken over noise
+    balls = [(200.0, 60.0, WHITE, None, 0.0), (140.0, 60.0, _lin_bgr((235, 40, 40)), None, 0.0),
+             (260.0, 60.0, _lin_bgr(second_rgb), None, 0.0), (330.0, 60.0, YELLOW, None, 0.0)]
+    rows = []
+    for s in range(6):
+        f, bg, det = scene(balls, seed=s)
+        out = add_appearance(det, f, bg, light_field(bg, [(f, det)]))
+        rows.append(out.assign(track=[0, 1, 2, 3], streak_px=0.0, radius_expected_px=R_PX))
+    names, _ = label_tracks(pd.concat(rows, ignore_index=True), table=table)
+    return names
+
+
+def test_a_pool_sets_red_and_maroon_pair_is_split_even_when_the_maroon_reads_light():
+    # a pool set holds one red and one maroon solid (common practice). A maroon of sRGB (170, 30, 40)
+    # reads about 0.67 in value: over the absolute split (0.6), so alone it would be called red.
+    names = _pair_names((170, 30, 40), "pool-9ft")
+    assert names == {0: "cue", 1: "red", 2: "maroon", 3: "yellow"}
+
+
+def test_two_reds_of_one_colour_stay_red_and_snooker_reds_are_never_split():
+    # same colour: values within noise, no maroon; snooker has fifteen reds and no maroon (common practice)
+    assert _pair_names((235, 40, 40), "pool-9ft") == {0: "cue", 1: "red", 2: "red-2", 3: "yellow"}
+    assert _pair_names((170, 30, 40), "snooker")[2] == "red-2"

@@ -11,7 +11,8 @@ Names (hue in degrees on the HSV circle, 0 = red; sat/val 0..1):
               whitest unsaturated one with white fraction > 0.2)
 ``black``     dark pixels cover > 45% of the disc
 ``red``       hue < 12 or >= 345, value >= 0.45
-``maroon``    red or orange hue with value < 0.45 (maroon / brown balls)
+``maroon``    red or orange hue with value < 0.45 (maroon / brown balls); also the
+              darker of a pool set's two red-hue balls of one pattern (MAROON_PAIR_RATIO)
 ``orange``    hue 12-40, value >= 0.45
 ``yellow``    hue 40-70
 ``green``     hue 70-170
@@ -106,6 +107,13 @@ MAROON_VAL = 0.45
 #: red (200, 25, 25) 0.78, maroon (120, 25, 35) 0.47 (common ball colours,
 #: from memory) - and the split lies between them.
 MAROON_VAL_LIGHT_FREE = 0.6
+#: A pool set holds one red and one maroon ball of each pattern (solid 3 and 7,
+#: stripe 11 and 15; common practice). Two balls of one pattern both named red
+#: (or both maroon) whose values differ by this ratio or more are that pair: the
+#: darker is maroon. Red 0.78 vs maroon 0.47 (from memory, above) is a ratio of
+#: 0.6; two balls of one colour under the scene's light taken out read within
+#: about 10 % of each other, so the split lies between (ours).
+MAROON_PAIR_RATIO = 0.8
 
 HUE_BANDS = [  # (name, hue from, hue to) degrees
     ("red", 345.0, 360.0), ("red", 0.0, 12.0), ("orange", 12.0, 40.0), ("yellow", 40.0, 70.0),
@@ -206,6 +214,25 @@ def _is_stripe(r: pd.Series) -> bool:
     rim_white = r.get("rim_white", float("nan"))
     return bool(r["white_frac"] >= STRIPE_WHITE_FRAC or r["white_p90"] >= STRIPE_WHITE_P90
                 or (np.isfinite(rim_white) and rim_white >= RIM_CAP_WHITE_FRAC))
+
+
+def _split_red_maroon_pair(info: pd.DataFrame, base: list[str]) -> None:
+    """Rename in place the darker of exactly two same-pattern balls both named red (or both
+    maroon) to maroon (the brighter to red) when their values differ by MAROON_PAIR_RATIO:
+    a pool set's red/maroon pair, whose absolute value depends on the light
+    (MAROON_VAL_LIGHT_FREE alone misses a maroon stripe lit brighter than usual)."""
+    for suffix in ("", "-stripe"):
+        for colour in ("red", "maroon"):
+            idx = [k for k, b in enumerate(base) if b == colour + suffix]
+            if len(idx) != 2 or any(b in ("red" + suffix, "maroon" + suffix) for k, b in enumerate(base)
+                                    if k not in idx):
+                continue
+            val = info["val"].to_numpy(float)[idx]
+            if not np.isfinite(val).all() or val.max() <= 0:
+                continue
+            if val.min() <= MAROON_PAIR_RATIO * val.max():
+                dark, bright = (idx[0], idx[1]) if val[0] < val[1] else (idx[1], idx[0])
+                base[dark], base[bright] = "maroon" + suffix, "red" + suffix
 
 
 def label_tracks(det: pd.DataFrame, track_col: str = "track",
@@ -321,6 +348,8 @@ def label_tracks(det: pd.DataFrame, track_col: str = "track",
         stripe = _is_stripe(r) and name != "ball"
         base.append(name + ("-stripe" if stripe else ""))
         pattern.append("stripe" if stripe else "solid")
+    if not (table is not None and str(table).lower().startswith("snooker")):
+        _split_red_maroon_pair(info, base)
     # Duplicates: order by number of detections (the longest-seen keeps the plain name).
     order = np.argsort(-info["n_detections"].to_numpy(), kind="stable")
     seen: dict[str, int] = {}
