@@ -148,9 +148,10 @@ def speed_plot(tracks: pd.DataFrame, segments: pd.DataFrame | None, contacts: pd
     handles += [Patch(color=mpl(SLIDE_RGB), alpha=0.35, label="sliding"),
                 Patch(color=mpl(ROLL_RGB), alpha=0.3, label="rolling"),
                 Line2D([], [], color="0.3", ls=":", lw=1.3, label="contact")]
-    fig.legend(handles=handles, loc="upper right", ncol=len(handles), fontsize=9, frameon=False)
+    # title on top, key in a row along the bottom: a long clip name never runs into the key
+    fig.legend(handles=handles, loc="lower center", ncol=len(handles), fontsize=9, frameon=False)
     fig.suptitle(title or "Ball speed against time", x=0.02, ha="left", fontsize=11)
-    fig.tight_layout(rect=(0, 0, 1, 0.97 if n > 1 else 0.93))
+    fig.tight_layout(rect=(0, 0.35 / fig.get_figheight(), 1, 1))   # about 0.35 inch kept for the key
     fig.savefig(path, dpi=DPI)
     plt.close(fig)
     return Path(path)
