@@ -237,7 +237,13 @@ def table_diagram(tracks: pd.DataFrame, contacts: pd.DataFrame | None, table, ba
         c = mpl(cols[b])
         ax.plot(xy[:, 0], xy[:, 1], color=c, lw=1.6, ls=dashes[b], zorder=5, label=b)
         ax.add_patch(Circle(xy[0], R, facecolor="none", edgecolor=c, lw=1.4, zorder=6))
-        ax.add_patch(Circle(xy[-1], R, facecolor=c, edgecolor="0.1", lw=0.8, alpha=0.55, zorder=6))
+        if str(b) in ("cue", "white") or str(b).startswith("white-"):
+            # a white ball ends as a white disc with a dot (its paper colour is black, and a
+            # black-filled end would read as the black ball)
+            ax.add_patch(Circle(xy[-1], R, facecolor="white", edgecolor=c, lw=1.6, zorder=6))
+            ax.plot(*xy[-1], marker="o", ms=2.5, color=c, zorder=6)
+        else:
+            ax.add_patch(Circle(xy[-1], R, facecolor=c, edgecolor="0.1", lw=0.8, alpha=0.55, zorder=6))
         name_specs.append(LabelSpec(tuple(xy[0]), str(b), prefer=(1.0, 1.0), radii_pt=(5.0, 10.0, 18.0, 30.0),
                                     leader_from_pt=15.0, style=dict(fontsize=8, color="0.1", zorder=8)))
         path_pts.append(xy[:: max(1, len(xy) // 400)])
@@ -276,8 +282,8 @@ def table_diagram(tracks: pd.DataFrame, contacts: pd.DataFrame | None, table, ba
             else:
                 ang = departure_angles(c)
                 if np.isfinite(ang.get("incidence_deg", np.nan)) and np.isfinite(ang.get("rebound_deg", np.nan)):
-                    txt = (f"C{c['contact']}  in {ang['incidence_deg']:.1f}°, out {ang['rebound_deg']:.1f}°"
-                           "\nfrom the normal")
+                    txt = (f"C{c['contact']}  {c['ball_a']} off cushion {c.get('cushion', '')}:"
+                           f"\nin {ang['incidence_deg']:.1f}°, out {ang['rebound_deg']:.1f}° from the normal")
                 else:
                     txt = f"C{c['contact']}  {c['ball_a']} on cushion {c.get('cushion', '')}"
             # Prefer the side towards the table centre, so the label stays on the drawing.
@@ -294,7 +300,7 @@ def table_diagram(tracks: pd.DataFrame, contacts: pd.DataFrame | None, table, ba
     ax.set_xlabel("x (mm)")
     ax.set_ylabel("y (mm)")
     ax.legend(loc="upper left", bbox_to_anchor=(0.0, -0.08), ncol=8, fontsize=8, frameon=False,
-              title="paths (open circle: start, filled: end, dashed circle: ball at contact, x: contact point)",
+              title="paths (open circle: start, filled or dotted circle: end, dashed circle: ball at contact, x: contact point)",
               title_fontsize=8)
     ax.set_title(title or f"Top view, to scale ({table.name}, {L:.0f} x {W:.0f} mm)", loc="left", fontsize=11)
     fig.tight_layout()
