@@ -353,12 +353,12 @@ def write_outputs(folder: Path, *, clip: Path, sha: str, tr, ph, table: TablePre
         log.warning("%s", warnings[-1])
         return None
 
+    model = None
+    if callable(getattr(ph, "state", None)):
+        def model(ball, t):
+            return ph.state(ball, t)[1]
     if settings.plots:
         t = time.perf_counter()
-        model = None
-        if callable(getattr(ph, "state", None)):
-            def model(ball, t):
-                return ph.state(ball, t)[1]
         p = attempt("speed plot", lambda: plot_out.speed_plot(tr.tracks, ph.segments, ph.contacts,
                                                                folder / "speed.png",
                                                                title=f"Ball speed against time: {stem}",
@@ -379,7 +379,7 @@ def write_outputs(folder: Path, *, clip: Path, sha: str, tr, ph, table: TablePre
         n = max(int(tr.n_frames), int(tr.tracks["frame"].max()) + 1 if len(tr.tracks) else 0)
 
         def draw():
-            ov = fr_out.build_overlay(tr.tracks, ph.contacts, cal, float(tr.fps), n)
+            ov = fr_out.build_overlay(tr.tracks, ph.contacts, cal, float(tr.fps), n, velocity=model)
             cb = (lambda d, tot: progress("draw", d, tot)) if progress is not None else None
             res = fr_out.render_annotations(clip, ov, folder, write_video=settings.video,
                                             write_frames=settings.frames,

@@ -153,8 +153,14 @@ def reference_speed(tracks: pd.DataFrame, contacts: pd.DataFrame | None) -> floa
 
 
 def build_overlay(tracks: pd.DataFrame, contacts: pd.DataFrame, calibration, fps: float,
-                  n_frames: int | None = None) -> Overlay:
-    """Precompute pixel positions, arrows and contact markers (pure)."""
+                  n_frames: int | None = None, velocity=None) -> Overlay:
+    """Precompute pixel positions, arrows and contact markers (pure).
+
+    velocity: optional ``velocity(ball, t_s array) -> (T, 2)`` mm/s, the physics stage's
+    fitted motion; where it is finite it sets the arrows. The smoothed track's velocity is
+    the fallback: it is not smoothed across a contact, so on the first frames after one it
+    rests on few samples and can be far off (a frame just after a hit drew a quarter-length
+    arrow)."""
     w, h = calibration.camera.image_size
     if n_frames is None:
         n_frames = int(tracks["frame"].max()) + 1 if len(tracks) else 0
@@ -172,6 +178,14 @@ def build_overlay(tracks: pd.DataFrame, contacts: pd.DataFrame, calibration, fps
         g, fr = g[ok], fr[ok]
         xy = g[["x_mm", "y_mm"]].to_numpy(float)
         v = g[["vx_mm_s", "vy_mm_s"]].to_numpy(float)
+        if velocity is not None and len(g):
+            try:
+                vm = np.asarray(velocity(b, g["t_s"].to_numpy(float)), float).reshape(-1, 2)
+            except Exception:  # noqa: BLE001 - a ball without a fitted model keeps its track's velocity
+                vm = None
+            if vm is not None and len(vm) == len(v):
+                fin = np.isfinite(vm).all(axis=1)
+                v = np.where(fin[:, None], vm, v)
         p = np.full((n_frames, 2), np.nan)
         q = np.full((n_frames, 2), np.nan)
         s = np.full(n_frames, np.nan)
