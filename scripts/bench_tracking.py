@@ -17,13 +17,21 @@ Figures per clip (one row per clip and calibration):
 * ``rmse_move`` / ``rmse_rest``: RMS track error (mm) of moving / resting
   ball-frames (truth speed > / <= 5 mm/s).
 * static jitter, 1 sigma (mm per axis, sqrt of the mean of the x and y
-  variances about the ball's mean, worst resting ball): ``jit_det`` of the
+  variances about the mean of each still stretch, pooled over a ball's still
+  stretches, worst resting ball): ``jit_det`` of the
   raw per-frame detections, ``jit_trk`` of the track output (which averages
   rest runs, so it is much smaller and says little about a single frame).
-* ``id_sw``: identity switches - the number of times the track nearest a true
-  ball (within one ball radius) changes name from one covered frame to the
-  next, summed over balls; ``wrong_fr``: frames where a ball's matched
-  track lies nearer another true ball.
+* ``id_sw``: identity switches, CLEAR-MOT (scripts/id_metrics.py: a ball keeps
+  its last track while it stays within one ball radius; a new match to a
+  different track is one switch), summed over balls; ``frag``: times a
+  ball's matched run breaks and resumes; ``trk_ball``: mean distinct tracks
+  per ball (1 = no fragmentation); ``cov_mot``: share of in-view ball-frames
+  matched to some track within one radius (target >= 0.99); ``wrong_fr``:
+  frames where a ball's globally matched track lies nearer another true ball.
+* ``own``: balls touching at frame 0 (centres within D + 5 mm, chained) that
+  got a track of their own over the frames before the first of them moves
+  (>= 90 % of those frames, shared with no other ball), e.g. ``12/12``.
+  The per-ball lines below each row list switches, tracks and missed frames.
 * ``corner_px``: worst of the four playing-surface corners (cushion-nose
   plane and cloth plane) of the camera used vs the truth camera (0 for truth).
 * ``diam_mm``: ball diameter recovered from the free-radius silhouette fits of
@@ -55,6 +63,9 @@ from tracking.calibrate import nose_height_mm  # noqa: E402
 from tracking.calibration import Calibration  # noqa: E402
 from tracking.camera import CameraModel  # noqa: E402
 from tracking.pipeline import calibration_from_truth, track_clip  # noqa: E402
+
+sys.path.insert(0, str(ROOT / "scripts"))
+from id_metrics import clear_mot_identity, cluster_own_tracks, clusters_at  # noqa: E402
 
 MOVING_MM_S = 5.0  # truth speed above which a ball-frame counts as moving
 COVER_MM = 5.0     # a track point within this of the truth covers the ball-frame
@@ -116,6 +127,73 @@ def _sd1(xy: np.ndarray) -> float:
     return float(np.sqrt((np.var(xy[:, 0], ddof=1) + np.var(xy[:, 1], ddof=1)) / 2)) if len(xy) > 2 else float("nan")
 
 
+def _sd1_runs(xy: np.ndarray, run_id: np.ndarray) -> float:
+    """Like :func:`_sd1`, about each run's own mean (a ball still at two places is not jitter);
+    pooled over runs with >= 3 points."""
+    ss, dof = 0.0, 0
+    for r in np.unique(run_id):
+        p = xy[run_id == r]
+        if len(p) >= 3:
+            ss += float(np.sum((p - p.mean(axis=0)) ** 2)) / 2
+            dof += len(p) - 1
+    return float(np.sqrt(ss / dof)) if dof > 1 else float("nan")
+
+
+def _runs(frames: list[int]) -> str:
+    """'3-7,12' from sorted frame numbers."""
+    out, i = [], 0
+    while i < len(frames):
+        j = i
+        while j + 1 < len(frames) and frames[j + 1] == frames[j] + 1:
+            j += 1
+        out.append(f"{frames[i]}-{frames[j]}" if j > i else f"{frames[i]}")
+        i = j + 1
+    return ",".join(out)
+
+
+def identity_figures(truth: dict, tcal: Calibration, by_name: dict, n: int, R: float) -> dict:
+    """CLEAR-MOT identity figures (scripts/id_metrics.py), cluster ownership and per-ball detail lines."""
+    ids = sorted(truth["pos"])
+    pos = {b: truth["pos"][b][:n] for b in ids}
+    view = {b: in_view(tcal, pos[b]) for b in ids}
+    trk = {}
+    for nm, g in by_name.items():
+        a = np.full((n, 2), np.nan)
+        fr = g.index.to_numpy(int)
+        ok = fr < n
+        a[fr[ok]] = g[["x_mm", "y_mm"]].to_numpy(float)[ok]
+        trk[nm] = a
+    rep = clear_mot_identity(pos, trk, gate_mm=R, view=view)
+    spd = {b: np.r_[0, np.hypot(*np.diff(pos[b], axis=0).T)] * truth["fps"] for b in ids}
+    first = {b: int(np.argmax(np.isfinite(pos[b][:, 0]))) for b in ids}
+    P0 = {b: pos[b][first[b]] for b in ids if first[b] == 0}
+    own_txt, lines = "-", []
+    for cl in clusters_at(P0, link_mm=2 * R + 5.0):
+        mv = np.zeros(n, bool)
+        for b in cl:
+            mv |= spd[b] > MOVING_MM_S
+        k_end = int(np.argmax(mv[1:])) + 1 if mv[1:].any() else n
+        frames = np.arange(0, k_end)
+        own = cluster_own_tracks(rep, cl, frames)
+        got = sum(v is not None for v in own.values())
+        own_txt = f"{got}/{len(cl)}" if own_txt == "-" else own_txt + f"+{got}/{len(cl)}"
+        lines.append(f"cluster of {len(cl)} (frames 0-{k_end - 1} at rest): own tracks {got}/{len(cl)}"
+                     + (f"; shared or none: {','.join(b for b, v in own.items() if v is None)}" if got < len(cl) else ""))
+    for b in ids:
+        bi = rep.balls[b]
+        if bi.switches or bi.missed_frames or len(bi.tracks) > 1:
+            miss = bi.missed_frames
+            mov = sum(spd[b][k] > MOVING_MM_S for k in miss)
+            # nearest other true ball at the missed frames (mm between centres)
+            near = [min((np.hypot(*(pos[b][k] - pos[o][k])) for o in ids if o != b and np.isfinite(pos[o][k, 0])),
+                        default=np.inf) for k in miss]
+            close = sum(d < 2 * R + 5.0 for d in near)
+            lines.append(f"{b}: cov {bi.coverage:.3f} sw {bi.switches}" + (f" at {bi.switch_frames}" if bi.switches else "")
+                         + f" tracks {dict(sorted(bi.tracks.items(), key=lambda kv: -kv[1]))}"
+                         + (f" missed {len(miss)} [{_runs(miss)}] moving {mov} touching {close}" if miss else ""))
+    return {"rep": rep, "own": own_txt, "lines": lines}
+
+
 def bench(clip: Path, auto: bool) -> dict:
     truth = load_truth(truth_path(clip))
     tcal = truth["cal"]
@@ -146,7 +224,7 @@ def bench(clip: Path, auto: bool) -> dict:
     match = {names[i]: ids[j] for i, j in zip(ri, ci) if cost[i, j] < 50}
     inv = {v: k for k, v in match.items()}
     mv_err, rest_err, jit_det, jit_trk, diam = [], [], [], [], []
-    cov_hits = cov_total = wrong = switches = 0
+    cov_hits = cov_total = wrong = 0
     det_err, det_z2, det_z2m, trk_z2, trk_z2m = [], [], [], [], []
     for bid in ids:
         P = truth["pos"][bid]
@@ -155,21 +233,10 @@ def bench(clip: Path, auto: bool) -> dict:
         moving = ~(spd <= MOVING_MM_S)
         nm = inv.get(bid)
         g = by_name.get(nm)
-        prev = None
         for k in range(n):
             if not view[k]:
                 continue
             cov_total += 1
-            # nearest track (any name) within one radius: identity continuity
-            best, bd = None, R
-            for other, go in by_name.items():
-                if k in go.index:
-                    e = np.hypot(go.at[k, "x_mm"] - P[k, 0], go.at[k, "y_mm"] - P[k, 1])
-                    if e < bd:
-                        best, bd = other, e
-            if best is not None:
-                switches += prev is not None and best != prev
-                prev = best
             if g is None or k not in g.index:
                 continue
             e = np.hypot(g.at[k, "x_mm"] - P[k, 0], g.at[k, "y_mm"] - P[k, 1])
@@ -193,12 +260,13 @@ def bench(clip: Path, auto: bool) -> dict:
         rest = np.zeros(n, bool)
         rest[1:] = ~moving[1:] & view[1:]
         rk = rest[fr]
+        run_id = np.cumsum(np.r_[rest[0], rest[1:] & ~rest[:-1]])  # still-stretch number per frame
         if rk.sum() > 5:
-            jit_det.append(_sd1(dd[rk][["x_mm", "y_mm"]].to_numpy(float)))
+            jit_det.append(_sd1_runs(dd[rk][["x_mm", "y_mm"]].to_numpy(float), run_id[fr[rk]]))
             rfr = np.nonzero(rest)[0]
             rfr = rfr[np.isin(rfr, g.index)]
             if len(rfr) > 5:
-                jit_trk.append(_sd1(g.loc[rfr, ["x_mm", "y_mm"]].to_numpy(float)))
+                jit_trk.append(_sd1_runs(g.loc[rfr, ["x_mm", "y_mm"]].to_numpy(float), run_id[rfr]))
             if "radius_expected_px" in dd:
                 ratio = dd[rk].radius_px.to_numpy(float) / dd[rk].radius_expected_px.to_numpy(float)
                 diam += list(ratio[np.isfinite(ratio)] * 2 * R)
@@ -211,6 +279,7 @@ def bench(clip: Path, auto: bool) -> dict:
         z2 = ((ex / du.sx_mm.to_numpy()) ** 2 + (ey / du.sy_mm.to_numpy()) ** 2) / 2
         det_z2 += list(z2[fin])
         det_z2m += list(z2[fin & moving[fu]])
+    ident = identity_figures(truth, tcal, by_name, n, R)
     seg_hits = seg_total = 0
     for t_c, kind, a, b in truth["contacts"]:
         for bid in (a, b):
@@ -224,7 +293,9 @@ def bench(clip: Path, auto: bool) -> dict:
         "size": "x".join(str(v) for v in tcal.camera.image_size), "balls": f"{len(ids)}/{len(names)}",
         "cov_view": cov_hits / max(cov_total, 1), "n_view": cov_total, "rmse_move": _rms(mv_err),
         "rmse_rest": _rms(rest_err), "jit_det": float(np.max(jit_det)) if jit_det else float("nan"),
-        "jit_trk": float(np.max(jit_trk)) if jit_trk else float("nan"), "id_sw": int(switches),
+        "jit_trk": float(np.max(jit_trk)) if jit_trk else float("nan"), "id_sw": ident["rep"].switches,
+        "frag": ident["rep"].frag, "trk_ball": ident["rep"].tracks_per_ball, "cov_mot": ident["rep"].coverage,
+        "own": ident["own"], "ident_lines": ident["lines"],
         "wrong_fr": int(wrong), "corner_px": corner_error_px(res.calibration, tcal),
         "diam_mm": float(np.median(diam)) if diam else float("nan"), "diam_pub": float(tcal.table.ball.diameter_mm),
         "det_rmse": _rms(det_err), "det_z2": float(np.mean(det_z2)) if det_z2 else float("nan"),
@@ -240,7 +311,7 @@ def bench(clip: Path, auto: bool) -> dict:
 
 
 COLS = ["clip", "cal", "fps", "size", "balls", "cov_view", "n_view", "rmse_move", "rmse_rest", "jit_det", "jit_trk",
-        "id_sw", "wrong_fr", "corner_px", "diam_mm", "diam_pub", "det_rmse", "det_z2", "det_z2m", "trk_z2", "trk_z2m", "splits", "ms_fr"]
+        "id_sw", "frag", "trk_ball", "cov_mot", "own", "wrong_fr", "corner_px", "diam_mm", "diam_pub", "det_rmse", "det_z2", "det_z2m", "trk_z2", "trk_z2m", "splits", "ms_fr"]
 
 
 def fmt_row(r: dict) -> str:
@@ -269,6 +340,8 @@ def main() -> None:
             if "error" not in r:
                 print(f"{'':>9s} labels: {r['labels']}" + (f"  unmatched tracks: {r['unmatched']}" if r["unmatched"] else "")
                       + (f"  height from: {r['height_from']}" if auto else ""))
+                for line in r["ident_lines"]:
+                    print(f"{'':>9s} {line}")
             sys.stdout.flush()
 
 
