@@ -59,6 +59,47 @@ def size_ratio(det: pd.DataFrame, max_smear_mm: float = 1.0) -> float:
     return float(np.median(ratio))
 
 
+def model_radius_ratio(frames: dict, det: pd.DataFrame, background: np.ndarray, settings=None,
+                       max_smear_mm: float = 1.0, max_n: int = 60) -> tuple[float, int]:
+    """Median model-fitted / expected image radius of slow detections, and how many fits it rests on.
+
+    The silhouette radius (``radius_px``) is where the colour difference to
+    the cloth drops fastest; on a shaded ball that lies inside the limb (the
+    limb darkens towards the cloth) and the blur moves it further in, so
+    :func:`size_ratio` reads 1-5 % small. Here each ball's image is fitted
+    with :func:`tracking.detect.fit_ball_model` with a free radius: a disc
+    whose coverage edge is blurred by a fitted point spread, with
+    limb-darkened shading (a + b nz per sector, Lambert) and a contact
+    shadow, so the rim is the 50 % coverage contour of the sphere's
+    silhouette.
+
+    frames: frame index -> BGR uint8 image; det: detections with frame,
+    x_px, y_px, radius_px, radius_expected_px (px) and optionally smear_mm;
+    background: empty-cloth BGR image (float32 DN). At most ``max_n``
+    detections (evenly spread) are fitted. Returns (NaN, 0) when nothing fits.
+    """
+    from tracking.detect import fit_ball_model
+    from tracking.settings import DetectionSettings
+
+    ds = settings if settings is not None else DetectionSettings()
+    if det is None or len(det) == 0:
+        return float("nan"), 0
+    ok = det["frame"].isin(list(frames)) & np.isfinite(det["radius_expected_px"].to_numpy(float))
+    if "smear_mm" in det:
+        ok &= det["smear_mm"].to_numpy(float) <= max_smear_mm
+    d = det[ok]
+    if len(d) > max_n:
+        d = d.iloc[np.linspace(0, len(d) - 1, max_n).astype(int)]
+    out = []
+    for _, row in d.iterrows():
+        r0 = float(row["radius_expected_px"])
+        m = fit_ball_model(frames[int(row["frame"])], background, float(row["x_px"]), float(row["y_px"]), r0, ds,
+                           free_radius=True)
+        if m is not None:
+            out.append(m["radius"] / r0)
+    return (float(np.median(out)) if out else float("nan")), len(out)
+
+
 def size_warning(ratio: float, preset_name: str, ball_mm: float, low: float, high: float) -> str | None:
     """One-line warning when the balls' image size ratio lies outside [low, high].
 

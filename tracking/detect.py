@@ -792,28 +792,27 @@ def _ball_geometry(gx, gy, th, r, lam):
     # quadrature of the 1-D convolution (the rim is straight on the blur scale)
     t = rho[:, None] + sd[:, None] * _GH_X[None, :]
     nz = (np.sqrt(np.maximum(1.0 - (t / r) ** 2, 0.0)) @ _GH_W) / np.maximum(a, 1e-6)
+    # the normal's horizontal part rho / r (on the disc), blurred the same way
+    q = (np.where(t < r, t / r, 0.0) @ _GH_W) / np.maximum(a, 1e-6)
     e = (1.0 - a) * np.exp(-np.maximum(rho - r, 0.0) / lam)
-    return a, nz, e, ux, uy
+    return a, nz, e, ux, uy, q
 
 
-def _ball_design(B, tents, geo):
-    """Per-channel design (3, n, 2K+3) of :func:`fit_ball_model`: sector shading and shadow columns."""
-    a, nz, e, ux, uy = geo
+def _ball_design(B, tents, geo, rho_term: bool = False):
+    """Per-channel design (3, n, mK+3) of :func:`fit_ball_model`: sector shading (m = 2, or 3 with
+    ``rho_term``) and shadow columns."""
+    a, nz, e, ux, uy, q = geo
     K = tents.shape[1]
-    D = np.empty((3, len(a), 2 * K + 3))
+    m = 3 if rho_term else 2
+    D = np.empty((3, len(a), m * K + 3))
     D[:, :, :K] = (tents * a[:, None])[None]
     D[:, :, K:2 * K] = (tents * (a * nz)[:, None])[None]
+    if rho_term:
+        D[:, :, 2 * K:3 * K] = (tents * (a * q)[:, None])[None]
     sh = np.column_stack([e, e * ux, e * uy])
     for c in range(3):
-        D[c, :, 2 * K:] = -sh * B[:, c:c + 1]
+        D[c, :, m * K:] = -sh * B[:, c:c + 1]
     return D
-
-
-def _ball_predict(B, P0, P1, S, geo):
-    """Model of I - B (3, n) for fixed linear coefficients (P0, P1: sector terms per pixel (n, 3))."""
-    a, nz, e, ux, uy = geo
-    sh = S[:, 0][None, :] + ux[:, None] * S[:, 1][None, :] + uy[:, None] * S[:, 2][None, :]
-    return (a[:, None] * (P0 + nz[:, None] * P1 - B) - e[:, None] * sh * B).T
 
 
 def _solve_linear(D: np.ndarray, rhs: np.ndarray, w: np.ndarray) -> np.ndarray:
@@ -828,7 +827,7 @@ def _solve_linear(D: np.ndarray, rhs: np.ndarray, w: np.ndarray) -> np.ndarray:
 
 
 def fit_ball_model(image: np.ndarray, background: np.ndarray, x0: float, y0: float, r: float,
-                   settings: DetectionSettings = DetectionSettings()) -> dict | None:
+                   settings: DetectionSettings = DetectionSettings(), free_radius: bool = False) -> dict | None:
     """Centre (px) of a ball of known image radius ``r`` by fitting its image round the rim.
 
     Model, in linear light (the sRGB encoding is undone first, so that the
@@ -851,9 +850,15 @@ def fit_ball_model(image: np.ndarray, background: np.ndarray, x0: float, y0: flo
     Used by :func:`detect_frame` only with ``DetectionSettings.model_fit``
     (off: experimental, see the setting for what it was measured to do).
 
+    ``free_radius``: the disc's radius is fitted too (starting from ``r``;
+    used to measure the ball's size, :mod:`tracking.ball_size`): the rim is
+    placed where the coverage is one half after the blur and the limb
+    darkening are modelled, not where the colour difference drops fastest.
+
     image: BGR uint8 frame; background: float32 BGR DN (same size). Returns
-    dict(x, y, blur_px (geometric-mean edge sigma), motion_px (extra sigma
-    along the most blurred direction), scale, cov) or None when it fails.
+    dict(x, y, radius (px; ``r`` unless free_radius), blur_px (geometric-mean
+    edge sigma), motion_px (extra sigma along the most blurred direction),
+    scale, cov) or None when it fails.
     """
     h, w = image.shape[:2]
     out = settings.model_out_px
@@ -887,19 +892,23 @@ def fit_ball_model(image: np.ndarray, background: np.ndarray, x0: float, y0: flo
     T = (I - B).T  # (3, n)
     rhs0 = T.copy()
     s0 = settings.model_blur0_px ** 2
-    th = np.array([float(x0), float(y0), s0, 0.0, s0])
+    th = np.array([float(x0), float(y0), s0, 0.0, s0] + ([float(r)] if free_radius else []))
+    npar = len(th)
     vmax = (settings.model_max_motion * r) ** 2
     wts = np.ones(n)
     scale = np.inf
-    H = np.eye(5)
-    hstep = np.array([0.02, 0.02, 0.05, 0.05, 0.05])
+    H = np.eye(npar)
+    hstep = np.array([0.02, 0.02, 0.05, 0.05, 0.05, 0.02][:npar])
+
+    def rad(t):
+        return t[5] if free_radius else r
+
     for it in range(settings.model_iters):
-        geo = _ball_geometry(gx, gy, th, r, lam)
+        geo = _ball_geometry(gx, gy, th, rad(th), lam)
         a = geo[0]
-        D = _ball_design(B, tents, geo)
+        D = _ball_design(B, tents, geo, settings.model_rho_term)
         coef = _solve_linear(D, rhs0 + a[None, :] * B.T, wts)
-        P0, P1, S = tents @ coef[:, :K].T, tents @ coef[:, K:2 * K].T, coef[:, 2 * K:]
-        pred = _ball_predict(B, P0, P1, S, geo)
+        pred = np.einsum("cnk,ck->cn", D, coef) - a[None, :] * B.T  # model of I - B
         res = rhs0 - pred
         e = np.sqrt((res * res).sum(axis=0))
         scale = max(1.4826 * float(np.median(e)), 1e-5)
@@ -911,12 +920,12 @@ def fit_ball_model(image: np.ndarray, background: np.ndarray, x0: float, y0: flo
             wts = np.where(z < 1, (1 - z * z) ** 2, 0.0)
         # Jacobian of the variable-projection residual (linear coefficients
         # re-solved at each perturbed point; Golub & Pereyra 1973)
-        J = np.empty((3 * n, 5))
-        for k in range(5):
+        J = np.empty((3 * n, npar))
+        for k in range(npar):
             tk = th.copy()
             tk[k] += hstep[k]
-            gk = _ball_geometry(gx, gy, tk, r, lam)
-            Dk = _ball_design(B, tents, gk)
+            gk = _ball_geometry(gx, gy, tk, rad(tk), lam)
+            Dk = _ball_design(B, tents, gk, settings.model_rho_term)
             rk = rhs0 + gk[0][None, :] * B.T
             ck = _solve_linear(Dk, rk, wts)
             pk = np.einsum("cnk,ck->cn", Dk, ck) - gk[0][None, :] * B.T
@@ -926,15 +935,20 @@ def fit_ball_model(image: np.ndarray, background: np.ndarray, x0: float, y0: flo
         g = (J * W[:, None]).T @ res.ravel()
         try:
             if not settings.model_motion:  # isotropic blur: dA = dC, dBxy = 0
-                Tm = np.array([[1, 0, 0], [0, 1, 0], [0, 0, 1], [0, 0, 0], [0, 0, 1]], float)
+                Tm = np.zeros((npar, npar - 2))
+                Tm[0, 0] = Tm[1, 1] = Tm[2, 2] = Tm[4, 2] = 1.0
+                if free_radius:
+                    Tm[5, 3] = 1.0
                 Hs, gs = Tm.T @ H @ Tm, Tm.T @ g
-                step = Tm @ np.linalg.solve(Hs + (1e-6 * np.trace(Hs) + 1e-12) * np.eye(3), gs)
+                step = Tm @ np.linalg.solve(Hs + (1e-6 * np.trace(Hs) + 1e-12) * np.eye(npar - 2), gs)
             else:
-                step = np.linalg.solve(H + (1e-6 * np.trace(H) + 1e-12) * np.eye(5), g)
+                step = np.linalg.solve(H + (1e-6 * np.trace(H) + 1e-12) * np.eye(npar), g)
         except np.linalg.LinAlgError:
             return None
         step[:2] = np.clip(step[:2], -1.0, 1.0)
-        step[2:] = np.clip(step[2:], -0.5 * vmax, 0.5 * vmax)
+        step[2:5] = np.clip(step[2:5], -0.5 * vmax, 0.5 * vmax)
+        if free_radius:
+            step[5] = float(np.clip(step[5], -0.5, 0.5))
         th = th + step
         th[2] = float(np.clip(th[2], 0.04, vmax))
         th[4] = float(np.clip(th[4], 0.04, vmax))
@@ -949,8 +963,10 @@ def fit_ball_model(image: np.ndarray, background: np.ndarray, x0: float, y0: flo
     cx, cy = float(th[0]), float(th[1])
     if not np.all(np.isfinite([cx, cy])) or np.hypot(cx - x0, cy - y0) > settings.model_max_shift * r:
         return None
+    if free_radius and not (np.isfinite(th[5]) and abs(th[5] - r) <= settings.radius_tol * r):
+        return None
     ev = np.linalg.eigvalsh(np.array([[th[2], th[3]], [th[3], th[4]]]))
-    return {"x": cx, "y": cy, "blur_px": float(np.sqrt(np.sqrt(max(ev[0], 1e-6) * ev[1]))),
+    return {"x": cx, "y": cy, "radius": float(rad(th)), "blur_px": float(np.sqrt(np.sqrt(max(ev[0], 1e-6) * ev[1]))),
             "motion_px": float(np.sqrt(max(ev[1] - ev[0], 0.0))), "scale": scale, "cov": cov}
 
 
@@ -1123,7 +1139,10 @@ def detect_frame(image: np.ndarray, calibration: Calibration, settings: Detectio
             return None
         hw = int(np.ceil((r_exp + 0.5 * ax["length"]) * settings.streak_ray_max + 3 * settings.edge_smooth_px)) + 5
         fill(int(ax["x"]) - hw, int(ax["y"]) - hw, int(ax["x"]) + hw + 2, int(ax["y"]) + hw + 2)
-        return refine_streak(d, ax, r_exp, settings, thr)
+        # the streak's rim on the same map as the circle fit's (edge_map; see
+        # DetectionSettings.streak_shade_free)
+        em = edge_map(d, de, gx, gy, r_exp, settings) if settings.streak_shade_free else d
+        return refine_streak(em, ax, r_exp, settings, thr)
 
     def accept(gx: float, gy: float, min_contrast: float = settings.min_inner_contrast) -> bool:
         """Refine a seed at image (gx, gy) px; append it to ``found`` when ball-like.

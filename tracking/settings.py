@@ -390,7 +390,8 @@ class DetectionSettings:
     #: vector's direction; the shade-free difference is the pixel vector's
     #: part across the cloth's direction plus any brightening past the cloth
     #: or darkening deeper than a shadow (shade_min_light).
-    #: Seeds, contrast tests and streaks keep Delta-E. Only the silhouette
+    #: Seeds, contrast tests and the streak axis keep Delta-E (for the streak's
+    #: rim see streak_shade_free). Only the silhouette
     #: edge moves: on the side away from the lamp the limb is dark and runs
     #: into the ball's own shadow, so with Delta-E the cloth just outside
     #: still reads as foreground and the steepest drop sits inside the limb.
@@ -488,6 +489,14 @@ class DetectionSettings:
     #: sectors (smooth tent functions), each a + b nz in every channel, so
     #: stripes, numbers and any lamp layout are followed round the rim.
     model_sectors: int = 12
+    #: Add a third shading term per sector, c rho/r (the surface normal's
+    #: horizontal part): Lambert's n.l for a lamp off the vertical is
+    #: a + b nz + c (rho/r) cos(phi - phi_lamp), and with a + b nz alone the
+    #: lamp-side tilt of the shading is taken up by moving the rim.
+    #: EXPERIMENTAL, off: it did not help where it was meant to (sweep render
+    #: f03b's red ball on red cloth, resting, truth camera: model-fit centre
+    #: 0.53 px off across 30 frames without it, 0.51 px with it).
+    model_rho_term: bool = False
     #: Decay length of the shadow term next to the rim (x radius): a lamp
     #: 1-2 m above a 57 mm ball casts a shadow a few tenths of a radius long
     #: near the contact point (geometric, R tan(zenith angle)).
@@ -521,6 +530,18 @@ class DetectionSettings:
     #: outermost-drop search goes to 1.3 radii, a smear's ends lie at
     #: 1 + L/2r) and both fits measured alike on our fast renders.
     streak_fit: bool = True
+    #: Locate a streak's rim (tracking.streak.refine_streak) on the same edge
+    #: map as the circle fit (detect.edge_map: shade-free where the ball keeps
+    #: its contrast there), not on Delta-E; the streak's axis and length still
+    #: come from the Delta-E blob. On Delta-E the dark band of a ball of the
+    #: cloth's colour (its dim limb and its contact shadow on the cloth, which
+    #: differ from the cloth only by darkness) counted as ball: MuJoCo render
+    #: m05 (blue on blue, 30 fps, sweep tuning clip) had streak fits of radius
+    #: 1.15-1.23 r pulled 1.0-1.7 px towards the shadow side, alternating frame
+    #: by frame with circle fits 0.5-1 px towards the lamp; ball-ball / cushion
+    #: e error 0.085 / 0.147 -> 0.036 / 0.030 with this on (figures in the
+    #: commit and DET9's report).
+    streak_shade_free: bool = True
     streak_min_len: float = 1.0
     #: Longest smear searched, x radius (blob window 1 + streak_max_len/2 radii):
     #: a ball at 6 m/s (a hard break, common practice) over a 0.95 x 1/30 s
