@@ -297,6 +297,11 @@ def _calibrate_once(frames: list[np.ndarray], table: TablePreset, ball_diameter_
     # the leading 35 % (edge_points_along) end >= 4 px inward of the band
     band_seen = {side: 0.0 for side in SIDE_ORDER}
     cut_off = {side: False for side in SIDE_ORDER}
+    # whether the first pass (profiles across the cloth region's own outline,
+    # before any fit) lost noses off the picture on a side: only then can a
+    # later pass's noses lost there mean that the frame cuts the cushion;
+    # otherwise the fit itself has moved the line off the table
+    edge_met = {side: False for side in SIDE_ORDER}
     prior = (settings.hfov_prior_deg, settings.hfov_prior_sigma_deg)
     fit = None
     inner: dict[str, np.ndarray] = {}
@@ -351,7 +356,20 @@ def _calibrate_once(frames: list[np.ndarray], table: TablePreset, ball_diameter_
             band_seen[side] = min(_band_width_px(found, band), settings.band_max_mm * px_mm0)
             # more noses lost at the picture's edge than kept: the frame cuts the cushion
             cut_off[side] = stats.get("off_frame", 0) >= max(8, len(found))
+            if it == 0:
+                edge_met[side] = stats.get("off_frame", 0) > 0
         few = [s for s in SIDE_ORDER if len(pts[s]) < 8]
+        drift = [s for s in few if cut_off[s] and not edge_met[s]]
+        if drift:
+            # not retried with weaker lines: on the sweep render f04h (H.264
+            # crf 32, carom) that fitted 3.9 px off at the corners, focal -28 %,
+            # with no warning
+            exc = FeltlabError(
+                f"the fitted cushion line of side(s) {', '.join(drift)} moved off the picture although the first "
+                "look found that cushion inside it, so the fit followed a wrong line on some side (a rail, or an "
+                "edge left by video compression, taken for a faint cushion nose); calibrate from a file")
+            exc.kind = "fit"
+            raise exc
         if few and any(cut_off[s] for s in few):
             raise _region_error(
                 f"the cushion of side(s) {', '.join(s for s in few if cut_off[s])} runs along or off the edge of "
@@ -360,7 +378,8 @@ def _calibrate_once(frames: list[np.ndarray], table: TablePreset, ball_diameter_
         if few:
             raise _refusal(
                 f"found too few cushion-nose points on side(s) {', '.join(few)}; is the whole table in view "
-                "and not covered? otherwise calibrate from a file")
+                "and not covered, and are its cushion edges clear (heavy video compression or dim, cloth-coloured "
+                "cushions blur them)? otherwise calibrate from a file")
         groups = [(side, z_nose, pts[side]) for side in SIDE_ORDER]
         fit, groups = _fit_robust(fit.camera if fit else cam, groups, L, W, settings, prior)
     nose_groups = groups
