@@ -7,7 +7,7 @@ Gaussian position noise of 0.2-0.5 mm, and analysed with :func:`physics.pipeline
 Reported: contacts found / missed / false, restitution errors by kind and frame rate, fraction of
 truths within 2 reported sigmas, contact-time error in frames, sliding-friction error.
 
-usage: python scripts/bench_physics.py [--n 36] [--fps 60,120,240] [--seed 1] [--set slip_prior=false]
+usage: python scripts/bench_physics.py [--n 36] [--fps 60,120,240] [--seed 1] [--set slip_prior=false] [--refine]
 
 Physics stage alone on a clip with exact truth (is an error the physics stage's or the tracker's?):
 ``--truth-clip CLIP.truth.json --noise 0.8 --n 20 --seed 1`` feeds the truth's per-frame centres
@@ -84,7 +84,7 @@ def make_shot(rng: np.random.Generator, i: int):
     raise RuntimeError("could not place a shot")
 
 
-def run_shot(balls, params, t_end, fps, sigma, rng, rest_before_s=0.0, settings=None):
+def run_shot(balls, params, t_end, fps, sigma, rng, rest_before_s=0.0, settings=None, with_tables=False):
     res = simulate(balls, params, t_end)
     dt = 1.0 / fps
     t0 = rng.uniform(0, dt)
@@ -98,6 +98,8 @@ def run_shot(balls, params, t_end, fps, sigma, rng, rest_before_s=0.0, settings=
         pos[bid] = p
     tracks, det = tables_from_positions(times, pos, sigma, rng, fps)
     out = analyze_tracks(tracks, det, TABLE, R, MASS, fps, settings or PhysicsSettings())
+    if with_tables:
+        return res, out, (tracks, det)
     return res, out
 
 
@@ -226,7 +228,8 @@ def truth_feed(path: str, noise_mm: float, seeds, settings: PhysicsSettings, ver
             print(f"  {k:12s} n {len(v):3d}  median |err| {np.median(a):.4f}  p90 {np.percentile(a, 90):.4f}  "
                   f"mean err {np.mean(v):+.4f}")
     if z:
-        print(f"  within 2 sigma: {np.mean(np.array(z) < 2):.3f} of {len(z)}")
+        print(f"  within 2 sigma: {np.mean(np.array(z) < 2):.3f} of {len(z)}, median |err|/sigma "
+              f"{np.median(z):.2f} (Gaussian 0.67), worst {np.max(z):.2f}")
 
 
 def main() -> None:
@@ -241,13 +244,17 @@ def main() -> None:
                     help="override a PhysicsSettings field (repeatable), e.g. slip_prior=false")
     ap.add_argument("--truth-clip", default=None, help="truth JSON of a clip: feed its centres + noise instead")
     ap.add_argument("--noise", type=float, default=0.5, help="with --truth-clip: noise (mm) per coordinate")
+    ap.add_argument("--refine", action="store_true",
+                    help="also refit each matched contact with physics.refine (circular here: its model is "
+                         "the simulator; an upper bound, see scripts/bench_refine.py)")
     a = ap.parse_args()
     settings = _settings(a.set)
     if a.truth_clip:
         truth_feed(a.truth_clip, a.noise, range(a.seed, a.seed + a.n), settings, a.verbose)
         return
     fps_list = [float(f) for f in a.fps.split(",")]
-    stats = {f: dict(bb=[], bc=[], z=[], dt=[], mu=[], missed=0, false=0, n=0, time=0.0) for f in fps_list}
+    stats = {f: dict(bb=[], bc=[], z=[], zk=[], dt=[], mu=[], mur=[], ref=[], missed=0, false=0, n=0, found=0,
+                     matched=0, time=0.0) for f in fps_list}
     for i in range(a.start, a.n) if a.only is None else [a.only]:
         balls, params, t_end, kind = make_shot(np.random.default_rng([a.seed, i]), i)
         for fps in fps_list:
@@ -255,22 +262,36 @@ def main() -> None:
             sigma = rng.uniform(0.2, 0.5)
             rest = 0.1 if kind == "cut-rest" else 0.0
             t0 = time.perf_counter()
-            res, out = run_shot(balls, params, t_end, fps, sigma, rng, rest, settings)
+            res, out, tabs = run_shot(balls, params, t_end, fps, sigma, rng, rest, settings, with_tables=True)
             s = stats[fps]
             s["time"] += time.perf_counter() - t0
             pairs, missed, false = match(res, out, fps)
             s["missed"] += len(missed)
             s["false"] += len(false)
+            s["found"] += len(out.contacts)
+            s["matched"] += len(pairs)
             s["n"] += sum(significant(c) and c.t_s < t_end - 2.0 / fps for c in res.contacts)
+            ref = None
+            if a.refine and len(out.contacts):
+                from physics.refine import refine_contacts
+
+                ref = refine_contacts(out, tabs[0], tabs[1], TABLE, R, MASS, fps, settings).set_index("contact")
             for c, r in pairs:
                 if not significant(c) or abs(c.speed_in_mm_s) < 150:
                     continue
                 err = r.e - c.e_measured
                 (s["bb"] if c.kind == "ball-ball" else s["bc"]).append(err)
-                s["z"].append(abs(err) / r.e_sigma if r.e_sigma > 0 else np.inf)
+                z = abs(err) / r.e_sigma if r.e_sigma > 0 else np.inf
+                s["z"].append(z)
+                s["zk"].append((c.kind, z, i, float(c.t_s), float(err), float(r.e_sigma)))
                 s["dt"].append((r.t_s - c.t_s) * fps)
+                if ref is not None and r.contact in ref.index:
+                    q = ref.loc[r.contact]
+                    s["ref"].append((c.kind, abs(err), abs(q.e_refined - c.e_measured)))
             if np.isfinite(out.mu_s):
                 s["mu"].append(out.mu_s / params.mu_slide - 1)
+            if np.isfinite(out.mu_r):
+                s["mur"].append(out.mu_r / params.mu_roll - 1)
             if a.only is not None:
                 _details(res, out)
             if a.verbose:
@@ -295,6 +316,64 @@ def main() -> None:
         print(f"{fps:4.0f} {s['n']:6d} {s['missed']:6d} {s['false']:5d} | {len(bb):8d} {q(bb,50):8.4f} {q(bb,90):7.4f} "
               f"| {len(bc):11d} {q(bc,50):8.4f} {q(bc,90):6.4f} | {np.mean(z < 2) if len(z) else float('nan'):14.3f} "
               f"| {q(dtf,50):6.3f} / {q(dtf,90):6.3f}        | {q(mu,50):17.3f} | {s['time'] / max(a.n - a.start, 1):6.2f}")
+    _issue_figures(stats)
+
+
+def _issue_figures(stats) -> None:
+    """The physics figures the targets name, per frame rate and pooled: contact recall and
+    precision, contact-time error in frames (target |dt| <= 0.25 frame), restitution error by
+    kind, 2-sigma coverage of e (target 80-99.5 %) with |err|/sigma median and worst, mu_s and
+    mu_r recovery (target within 20 %), and the --refine comparison when run."""
+    q = lambda v, p: float(np.percentile(v, p)) if len(v) else float("nan")
+    print("\nissue figures (significant contacts; e figures for approach speed >= 150 mm/s):")
+    pooled = {k: [] for k in ("dt", "z", "mu", "mur")}
+    n_true = n_missed = n_found = n_false = 0
+    for fps, s in stats.items():
+        n_true += s["n"]; n_missed += s["missed"]; n_found += s["found"]; n_false += s["false"]
+        rec = (s["n"] - s["missed"]) / s["n"] if s["n"] else float("nan")
+        prec = (s["found"] - s["false"]) / s["found"] if s["found"] else float("nan")
+        dtf, z = np.abs(s["dt"]), np.array(s["z"])
+        mu, mur = np.abs(s["mu"]), np.abs(s["mur"])
+        for k, v in (("dt", dtf), ("z", z), ("mu", mu), ("mur", mur)):
+            pooled[k] += list(v)
+        print(f"  {fps:4.0f} fps: recall {rec:.3f} ({s['n'] - s['missed']}/{s['n']}), precision {prec:.3f} "
+              f"({s['found'] - s['false']}/{s['found']})")
+        print(f"      contact time |dt| frames: median {q(dtf, 50):.3f}, p95 {q(dtf, 95):.3f}, "
+              f"within 0.25 frame {np.mean(dtf <= 0.25) if len(dtf) else float('nan'):.3f} (n {len(dtf)})")
+        for kind, key in (("ball-ball", "bb"), ("cushion", "bc")):
+            v = np.abs(s[key])
+            print(f"      {kind:9s} e: n {len(v):3d}, median |err| {q(v, 50):.4f}, p90 {q(v, 90):.4f}, max {q(v, 100):.4f}")
+        for kind in ("ball-ball", "ball-cushion"):
+            zz = np.array([r[1] for r in s["zk"] if r[0] == kind])
+            if len(zz):
+                print(f"      {kind:12s} within 2 sigma {np.mean(zz < 2):.3f}, median |err|/sigma {np.median(zz):.2f}, "
+                      f"> 3 sigma {int(np.sum(zz > 3))}")
+        if len(z):
+            w = max(s["zk"], key=lambda r: r[1])
+            print(f"      all: within 2 sigma {np.mean(z < 2):.3f} of {len(z)}, median |err|/sigma {np.median(z):.2f} "
+                  f"(Gaussian 0.67), worst {w[1]:.2f} sigma (shot {w[2]} {w[0]} t {w[3]:.3f} s, "
+                  f"err {w[4]:+.4f} +- {w[5]:.4f})")
+        out2 = sorted((r for r in s["zk"] if r[1] >= 2), key=lambda r: -r[1])
+        if out2:
+            print("      beyond 2 sigma: " + "; ".join(f"shot {r[2]} {r[0][5:]} t {r[3]:.3f} {r[4]:+.4f} +- {r[5]:.4f}"
+                                               for r in out2))
+        print(f"      mu_s within 20 %: {np.mean(mu <= 0.2) if len(mu) else float('nan'):.3f} of {len(mu)} shots "
+              f"(median |rel err| {q(mu, 50):.3f}); mu_r within 20 %: "
+              f"{np.mean(mur <= 0.2) if len(mur) else float('nan'):.3f} of {len(mur)} (median {q(mur, 50):.3f})")
+        if s["ref"]:
+            for kind in ("ball-ball", "ball-cushion"):
+                rr = [r for r in s["ref"] if r[0] == kind]
+                if rr:
+                    an, rf = np.array([r[1] for r in rr]), np.array([r[2] for r in rr])
+                    print(f"      refine {kind:12s}: median |err| chain fit {np.median(an):.4f} -> refit "
+                          f"{np.nanmedian(rf):.4f} (n {len(rr)}; circular, upper bound)")
+    if len(stats) > 1:
+        dt, z = np.array(pooled["dt"]), np.array(pooled["z"])
+        print(f"  pooled: recall {(n_true - n_missed) / max(n_true, 1):.3f}, precision "
+              f"{(n_found - n_false) / max(n_found, 1):.3f}, |dt| median {q(dt, 50):.3f} p95 {q(dt, 95):.3f} frames, "
+              f"within 2 sigma {np.mean(z < 2) if len(z) else float('nan'):.3f}, "
+              f"mu_s within 20 % {np.mean(np.array(pooled['mu']) <= 0.2):.3f}, "
+              f"mu_r within 20 % {np.mean(np.array(pooled['mur']) <= 0.2):.3f}")
 
 
 if __name__ == "__main__":
