@@ -5,7 +5,8 @@ background (and calibration, when none is given), once to detect and link.
 Memory grows with balls x frames (detection rows), never with whole frames.
 
 Per ball (:func:`smooth_ball`): rest runs (all detections within a few sigma
-of their mean for >= ``rest_min_s``) are averaged; the moving stretches are
+of their mean for >= ``rest_min_s``, with no significant drift along a line,
+:func:`drifts`) are averaged; the moving stretches are
 cut at contacts (NIS spikes, tracking/kalman.py) and each piece is
 RTS-smoothed on its own. Units: mm, s, mm/s; table frame (DEVELOPERS.md).
 
@@ -30,11 +31,13 @@ from __future__ import annotations
 import logging
 import os
 from collections.abc import Callable
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
+from functools import lru_cache
 from pathlib import Path
 
 import numpy as np
 import pandas as pd
+from scipy.stats import f as f_dist
 
 from feltlab.errors import FeltlabError
 from feltlab.standards import DEFAULT_TABLE, TablePreset, table_preset
@@ -133,6 +136,31 @@ def smear_applies(g: pd.DataFrame) -> np.ndarray:
     return np.where(g["streak_px"].to_numpy(float) > 0, 0.0, 1.0)
 
 
+@lru_cache(maxsize=256)
+def _drift_t(p: float, dof: int) -> float:
+    """|v| / se(v) threshold of the two-slope F-test at false-alarm probability p (scipy.stats.f)."""
+    return float(np.sqrt(2.0 * f_dist.isf(p, 2, dof)))
+
+
+def drifts(t: np.ndarray, z: np.ndarray, s: TrackingSettings) -> bool:
+    """True when the points z (m,2 mm) at t (m, s) move along a line: the fitted displacement over the
+    run exceeds ``rest_drift_mm`` and the slope is significant at ``rest_drift_p`` (|v| / se(v) with
+    se from the scatter about the line, pooled over x and y: |v|^2 / se^2 / 2 ~ F(2, 2(m-2)))."""
+    m = len(t)
+    if m < 4 or s.rest_drift_p is None:
+        return False
+    tc = t - t.mean()
+    stt = float(np.sum(tc ** 2))
+    if stt <= 0:
+        return False
+    zc = z - z.mean(axis=0)
+    v = tc @ zc / stt                                   # mm/s per axis
+    res = zc - np.outer(tc, v)
+    s2 = max(float(np.sum(res ** 2)) / (2 * (m - 2)), 1e-4)  # mm^2 per axis; floor 0.01 mm
+    speed = float(np.hypot(*v))
+    return speed * (t[-1] - t[0]) > s.rest_drift_mm and speed / np.sqrt(s2 / stt) > _drift_t(s.rest_drift_p, 2 * (m - 2))
+
+
 def rest_runs(t: np.ndarray, z: np.ndarray, sig: np.ndarray, s: TrackingSettings) -> list[tuple[int, int]]:
     """Index ranges [i0, i1) where the ball sits still (see module docstring)."""
     n = len(t)
@@ -143,7 +171,7 @@ def rest_runs(t: np.ndarray, z: np.ndarray, sig: np.ndarray, s: TrackingSettings
         j = i + 1
         while j < n:
             m = z[i:j + 1].mean(axis=0)
-            if np.any(np.linalg.norm(z[i:j + 1] - m, axis=1) > tol[i:j + 1]):
+            if np.any(np.linalg.norm(z[i:j + 1] - m, axis=1) > tol[i:j + 1]) or drifts(t[i:j + 1], z[i:j + 1], s):
                 break
             j += 1
         if t[j - 1] - t[i] >= s.rest_min_s:
@@ -152,6 +180,29 @@ def rest_runs(t: np.ndarray, z: np.ndarray, sig: np.ndarray, s: TrackingSettings
         else:
             i += 1
     return runs
+
+
+def spikes(frames: np.ndarray, z: np.ndarray, sig: np.ndarray, k_sigma: float) -> np.ndarray:
+    """(N,) bool: detections a ball cannot have made - farther from both neighbours (the frames just
+    before and after) than the ball travels in one frame on either side, by more than ``k_sigma`` x
+    the two detections' sigmas (mm). A ball reaches a point between two frames only by moving there:
+    a cushion bounce or a struck ball stays within its incoming or outgoing step; an out-and-back
+    jump with still neighbours is a wrong detection (a merged blob, a neighbour's disc).
+    Judged only with two consecutive neighbours on each side."""
+    n = len(frames)
+    out = np.zeros(n, bool)
+    if n < 5:
+        return out
+    s = np.hypot(sig[:, 0], sig[:, 1])
+    f = np.asarray(frames, int)
+    for k in range(2, n - 2):
+        if not (f[k] - f[k - 2] == 2 and f[k + 2] - f[k] == 2):
+            continue
+        step = max(np.linalg.norm(z[k - 1] - z[k - 2]), np.linalg.norm(z[k + 2] - z[k + 1]))
+        dp, dn = np.linalg.norm(z[k] - z[k - 1]), np.linalg.norm(z[k] - z[k + 1])
+        tol = k_sigma * (s[k] + max(s[k - 1], s[k + 1]))
+        out[k] = min(dp, dn) > step + tol
+    return out
 
 
 def smooth_ball(frames: np.ndarray, t: np.ndarray, z: np.ndarray, sig: np.ndarray, frame_t: np.ndarray,
@@ -173,6 +224,20 @@ def smooth_ball(frames: np.ndarray, t: np.ndarray, z: np.ndarray, sig: np.ndarra
     """
     n = len(t)
     C = as_cov(sig) if cov is None else np.asarray(cov, float)
+    if s.spike_sigma is not None:
+        bad = spikes(frames, z, sig, s.spike_sigma)
+        if bad.any():
+            # spikes are interior (two neighbours each side), so the kept fixes span the same frames;
+            # the left-out frame is bridged like a missed one (visible 0)
+            keep = ~bad
+            remap = np.cumsum(keep) - 1
+            rows, segments, used_k = smooth_ball(frames[keep], t[keep], z[keep], sig[keep], frame_t,
+                                                 {int(remap[j]) for j in jumps if 0 <= j < n and keep[j]},
+                                                 replace(s, spike_sigma=None), C[keep],
+                                                 None if sys_var is None else sys_var[keep])
+            used = np.zeros(n, bool)
+            used[keep] = used_k
+            return rows, segments, used
     used = np.ones(n, bool)
     f0, f1 = int(frames[0]), int(frames[-1])
     grid_f = np.arange(f0, f1 + 1)

@@ -907,6 +907,29 @@ class TrackingSettings:
     rest_sigma: float = 3.0
     rest_tol_mm: float = 0.25
     rest_min_s: float = 0.1
+    #: ... and shows no drift: a straight line fitted to the run's detections
+    #: (least squares) must not move more than rest_drift_mm over the run with
+    #: a slope significant at false-alarm probability rest_drift_p (F-test of
+    #: the two slopes against the run's own scatter about the line, F(2, 2(m-2))
+    #: for m points; handbook linear regression). A detector sigma that is large
+    #: for a model error (a ball of the cloth's colour) would otherwise let a
+    #: creeping ball, e.g. one nudged in a rack, pass as at rest and be averaged
+    #: (measured 5-9 mm off on rack clips). The floor: a still ball's own
+    #: detections wander along a line by up to 1.0-1.5 mm over 0.1-1 s (a
+    #: neighbour's shadow, shading; measured on the rack clips f08, f08g and
+    #: rack8853 with truth speed < 1 mm/s), which is not motion; 2 mm end to
+    #: end keeps an averaged run's error within +-1 mm. 1e-3 per test keeps a
+    #: still ball's run whole although the test is repeated as the run grows.
+    #: None: no drift test.
+    rest_drift_mm: float = 2.0
+    rest_drift_p: float | None = 1e-3
+    #: A detection farther from both its neighbours (previous and next frame)
+    #: than the ball moves in one frame on either side, by more than this many
+    #: sigma, is one a ball cannot have made (tracking/pipeline.py spikes) and
+    #: is left out; a lone wrong fix next to a rest run otherwise became a
+    #: one-point piece no outlier test could reject (measured 24 mm off in the
+    #: fresh rack8853). None: keep every detection.
+    spike_sigma: float | None = 3.0
     #: Shutter open time as a fraction of the frame interval, when known.
     #: None: unknown, and a full-frame shutter (exposure = 1/fps, the longest
     #: possible, so the largest smear) is assumed.
