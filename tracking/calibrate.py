@@ -286,6 +286,9 @@ def _calibrate_once(frames: list[np.ndarray], table: TablePreset, ball_diameter_
     except ValueError as exc:
         raise FeltlabError(f"could not place a camera over the table outline ({exc}); check the table preset")
     w_px = float(np.mean([np.linalg.norm(corners[3] - corners[0]), np.linalg.norm(corners[2] - corners[1])]))
+    # gradient peak (DN/px) of the faintest cushion nose sought on this cloth (as in _table_edges.noise_strip_px)
+    nose_peak = settings.nose_contrast_min * float(np.median((gray if det is None else det)[mask])) / (
+        np.sqrt(2 * np.pi) * np.hypot(1.0, settings.edge_sigma_px))
     # where the rim of the region frays (dim cloth) the outline cuts inside it:
     # the first pass searches out to the rim plus the usual margin
     reach = region_reach_px(mask, corners)
@@ -328,11 +331,12 @@ def _calibrate_once(frames: list[np.ndarray], table: TablePreset, ball_diameter_
                     b - a for a, b in ranges)
                 best = None
                 for grow in settings.search_out_grow:
-                    found, _, band = edge_points_along(
+                    found, strength, band = edge_points_along(
                         gray, p0, p1, nrm, ranges, settings.search_in_frac * w_px,
                         grow * (settings.search_out_frac * w_px + reach[i]), plateau_px, settings,
                         gray_lin=gray_lin, detect=det, rough_line=True, stats=stats)
-                    keep = main_line(found, p0, p1, nrm, settings.line_tol_px, min_share=line_share)
+                    keep = main_line(found, p0, p1, nrm, settings.line_tol_px, min_share=line_share,
+                                     weight=_edge_weight(strength, nose_peak))
                     if best is None or keep.sum() > best[0].sum():
                         best = (keep, found, band)
                     if keep.sum() >= max(n_want, 8) or stats.get("strip_px", 0.0) <= settings.profile_strip_px:
@@ -600,7 +604,7 @@ def inner_step_ratio(img: np.ndarray, cam: CameraModel, side: str, L: float, W: 
 
 
 def main_line(px: np.ndarray, p0: np.ndarray, p1: np.ndarray, nrm: np.ndarray, tol_px: float,
-              trials: int = 300, min_share: float = 0.5) -> np.ndarray:
+              trials: int = 300, min_share: float = 0.5, weight: np.ndarray | None = None) -> np.ndarray:
     """Mask of the edge points (N, 2) px on the side's nose line.
 
     Along one side the profiles may stop at different edges: the nose on
@@ -616,6 +620,10 @@ def main_line(px: np.ndarray, p0: np.ndarray, p1: np.ndarray, nrm: np.ndarray, t
     cushion's innermost line (a face band inward of it is already folded
     into the nose by the profile search). A camera fitted through two
     parallel lines at once bends its lens and focal to absurd values.
+
+    ``weight`` (N,) in [0, 1] (default 1): how much each point counts
+    (:func:`_edge_weight`: edges fainter than the faintest cushion nose
+    sought count in proportion).
     """
     n = len(px)
     if n < 8:
@@ -624,6 +632,7 @@ def main_line(px: np.ndarray, p0: np.ndarray, p1: np.ndarray, nrm: np.ndarray, t
     u = (px - p0) @ t / np.linalg.norm(p1 - p0) - 0.5
     d = (px - p0) @ (nrm / np.linalg.norm(nrm))
     V = np.column_stack([np.ones(n), u, u * u])
+    wt = np.ones(n) if weight is None else np.asarray(weight, float)
     rng = np.random.default_rng(0)
     lines = []  # (support, median offset px, mask)
     free = np.ones(n, bool)
@@ -639,19 +648,36 @@ def main_line(px: np.ndarray, p0: np.ndarray, p1: np.ndarray, nrm: np.ndarray, t
             except np.linalg.LinAlgError:
                 continue
             ok = free & (np.abs(V @ c - d) < tol_px)
-            if ok.sum() > best_n:
-                best, best_n = ok, int(ok.sum())
-        if best is None or best_n < 8:
+            if wt[ok].sum() > best_n:
+                best, best_n = ok, float(wt[ok].sum())
+        if best is None or best.sum() < 8:
             break
         # refit on the inliers (least squares); the final set from that curve
         c, *_ = np.linalg.lstsq(V[best], d[best], rcond=None)
         ok = free & (np.abs(V @ c - d) < tol_px)
-        lines.append((int(ok.sum()), float(np.median(d[ok])), ok))
+        lines.append((float(wt[ok].sum()), float(np.median(d[ok])), ok))
         free &= ~ok
     if not lines:
         return np.ones(n, bool)
     top = max(ln[0] for ln in lines)
     return min((ln for ln in lines if ln[0] >= min_share * top), key=lambda ln: ln[1])[2]
+
+
+def _edge_weight(strength: np.ndarray, nose_peak: float) -> np.ndarray:
+    """How much each edge point counts towards a line: its contrast over the faintest nose's, at most 1.
+
+    Heavy video compression leaves long straight steps of one or two
+    quantisation levels on smooth cloth shading (our sweep render f04h32,
+    H.264 crf 32: lines of 53-67 points at ~1.6 DN/px on the short sides,
+    27-46 px inward of noses of 40-47 points at 5-6 DN/px); they are no
+    cushion edge, and counted alike with the nose they won the line vote.
+    Points at least as strong as the faintest nose sought
+    (CalibrationSettings.nose_contrast_min of the cloth level, blurred) all
+    count one, so between real edges (nose, rail) the count decides as before.
+    """
+    if not nose_peak > 0:
+        return np.ones(len(strength))
+    return np.minimum(np.asarray(strength, float) / nose_peak, 1.0)
 
 
 def lens_note(k1: float, limit: float) -> str | None:
