@@ -309,7 +309,11 @@ def test_saved_calibration_round_trip_and_picture(footage_cals, tmp_path):
     with pytest.raises(FeltlabError, match="already exists"):
         save_calibration(cal, path)
     pic = draw_calibration(frame, cal)
-    assert pic.shape == frame.shape and not np.array_equal(pic, frame)
+    h, w = frame.shape[:2]
+    # the legend is a strip under the frame, so nothing over the table is hidden
+    assert pic.shape[1:] == frame.shape[1:] and pic.shape[0] > h and not np.array_equal(pic[:h], frame)
+    # the frame's top-left corner (where a legend box used to sit) is only lightly gridded, not boxed
+    assert np.abs(pic[:40, :200].astype(int) - frame[:40, :200].astype(int)).mean() < 30
     # the outline is drawn on the nose line: a pixel on it changed, the cloth centre did not
     on = np.round(cal.camera.project([[POOL9.length_mm / 4, 0, nose_height_mm(POOL9, 57.15)]])[0]).astype(int)
     assert np.abs(pic[on[1], on[0]].astype(int) - frame[on[1], on[0]].astype(int)).sum() > 60

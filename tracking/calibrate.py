@@ -962,7 +962,9 @@ def _polyline(cam: CameraModel, pts_mm: np.ndarray) -> np.ndarray:
 
 
 def draw_calibration(image: np.ndarray, cal: Calibration, grid_mm: float = 100.0) -> np.ndarray:
-    """A copy of ``image`` with the fitted playing-surface outline, a grid and a legend.
+    """A copy of ``image`` with the fitted playing-surface outline and a grid, and a legend strip
+    added under it (the result is taller than ``image``; rows above the strip keep its pixel
+    coordinates).
 
     Outline: the cushion-nose lines (where the edges were measured). Grid:
     every ``grid_mm`` on the cloth (z = 0), drawn through the lens model so
@@ -1007,14 +1009,14 @@ def draw_calibration(image: np.ndarray, cal: Calibration, grid_mm: float = 100.0
            else " (height from an assumed lens)"),
         f"outline: cushion noses ({z:.1f} mm up)  grid: {grid_mm:.0f} mm on the cloth",
     ] + [f"note: {t}" for t in cal.notes]
+    # The legend goes in a dark strip under the picture, never over it: a box in a corner hid the
+    # table's corner and pocket, the very things a person checks. Pixel coordinates above the strip
+    # are those of the frame.
     scale = 0.42 * max(w / 1280, 0.6)
     lh = int(22 * scale / 0.42)
-    bw = int(max(cv2.getTextSize(t, cv2.FONT_HERSHEY_SIMPLEX, scale, 1)[0][0] for t in legend)) + 16
-    bh = lh * len(legend) + 10
-    y0 = 6
-    box = out[y0: y0 + bh, 6: 6 + bw]
-    out[y0: y0 + bh, 6: 6 + bw] = (box * 0.35).astype(out.dtype)
+    bh = lh * len(legend) + 12
+    strip = np.full((bh, w, 3), 24, dtype=out.dtype)
     for i, t in enumerate(legend):
-        cv2.putText(out, t, (14, y0 + lh * (i + 1) - 4), cv2.FONT_HERSHEY_SIMPLEX, scale, (255, 255, 255), 1,
+        cv2.putText(strip, t, (10, lh * (i + 1) - 2), cv2.FONT_HERSHEY_SIMPLEX, scale, (255, 255, 255), 1,
                     cv2.LINE_AA)
-    return out
+    return np.vstack([out, strip])
