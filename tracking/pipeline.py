@@ -42,7 +42,8 @@ from scipy.stats import f as f_dist
 from feltlab.errors import FeltlabError
 from feltlab.standards import DEFAULT_TABLE, TablePreset, table_preset
 from tracking.assign import Linker, stitch_tracks, view_test
-from tracking.ball_size import size_ratio, size_warning, suggest_preset
+from tracking.ball_size import (MIN_DETECTIONS, PINNED_SHARE_MISFIT, misfit_candidates, pinned_share, size_ratio,
+                                 size_warning, suggest_preset)
 from tracking.calibration import Calibration
 from tracking.detect import build_background, detect_frame
 from tracking.exposure import ExposureMatcher
@@ -526,6 +527,26 @@ def track_clip(path: str | os.PathLike, table: str | TablePreset | None = DEFAUL
                     f"{cal.table.name} predicts); pass --table to set it")
             again.warnings.insert(0, note)
             return again
+        share, n_slow = result[1].attrs.get("ball_size_pinned", (float("nan"), 0))
+        if not np.isfinite(ratio) and n_slow >= MIN_DETECTIONS and share >= PINNED_SHARE_MISFIT:
+            # Every radius fit failed its tolerance: the balls are far larger or smaller than this
+            # preset predicts (a 7-ft table fitted as 9-ft). Try the sizes that would explain it and
+            # keep the first whose balls then measure in band (tracking/ball_size.py).
+            for alt in misfit_candidates(cal.table, ds.radius_tol):
+                log.info("ball radii pinned to the %s prediction in %.0f%% of %d slow detections: trying %s", cal.table.name,
+                         100 * share, n_slow, alt.name)
+                try:
+                    again = track_clip(path, table=alt, calibration=None, fps=fps, frame_range=frame_range,
+                                       settings=settings, progress=progress, auto_table=False, phantoms=phantoms)
+                except FeltlabError:
+                    continue
+                r2 = float(again.stats.get("ball_size_ratio", float("nan")))
+                if np.isfinite(r2) and ts.ball_size_low <= r2 <= ts.ball_size_high:
+                    again.warnings.insert(0, f"table taken as {alt.name} from the balls' image size (no ball "
+                                             f"fitted the size {cal.table.name} predicts); pass --table to set it")
+                    return again
+            warnings.append(f"no ball's image size fitted the {cal.table.name} preset's {cal.ball_diameter_mm:.2f} mm "
+                            f"ball, nor any other preset's: distances may be scaled; pass the right --table")
     return TrackResult(tracks=result[0], detections=result[1], calibration=cal, fps=src.fps,
                        fps_source=src.fps_source, n_frames=n_frames, balls=result[2], segments_hint=result[3],
                        warnings=list(dict.fromkeys(list(src.warnings) + warnings)),
@@ -638,6 +659,7 @@ def _finish(det_all: pd.DataFrame, jumps: dict[int, list[int]], frame_t: np.ndar
     # are 2:1); only the balls' image size can tell (tracking/ball_size.py).
     ratio = size_ratio(det_all[det_all.used])
     dets.attrs["ball_size_ratio"] = ratio
+    dets.attrs["ball_size_pinned"] = pinned_share(det_all[det_all.used])
     msg = size_warning(ratio, cal.table.name, cal.ball_diameter_mm, ts.ball_size_low,
                        ts.ball_size_high)
     if msg:
