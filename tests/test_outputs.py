@@ -299,6 +299,30 @@ def test_plots_are_written(tmp_path):
     assert 1.4 < img.shape[1] / img.shape[0] < 2.2
 
 
+def test_contact_labels_on_speed_plot_do_not_overlap(tmp_path, monkeypatch):
+    """Two cushion contacts 7 ms apart (two balls reaching cushions together) must not print their
+    labels on top of each other; measured with matplotlib's own text extents after drawing."""
+    import matplotlib.pyplot as plt
+    tracks, contacts, segments, _ = synthetic_shot()
+    t0 = float(contacts["t_s"].iloc[0])
+    extra = contacts.iloc[[0, 0, 0]].copy()
+    extra["contact"] = [7, 8, 12]
+    extra["t_s"] = [t0 + 0.004, t0 + 0.007, t0 + 0.009]
+    both = pd.concat([contacts, extra], ignore_index=True)
+    kept = []
+    monkeypatch.setattr(plot_out.plt, "close", lambda fig=None: kept.append(fig))
+    plot_out.speed_plot(tracks, segments, both, tmp_path / "speed.png")
+    fig = kept[-1]
+    fig.canvas.draw()
+    r = fig.canvas.get_renderer()
+    boxes = [t.get_window_extent(r) for ax in fig.axes for t in ax.texts if t.get_text().startswith("C")]
+    assert len(boxes) == len(both)
+    for i in range(len(boxes)):
+        for j in range(i + 1, len(boxes)):
+            assert not boxes[i].overlaps(boxes[j]), (i, j)
+    plt.close(fig)
+
+
 # --------------------------------------------------------------------------- report
 def _report_context(tmp_path, clip_name="shot.mp4", ball="red"):
     tracks, contacts, segments, _ = synthetic_shot(ball)

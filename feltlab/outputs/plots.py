@@ -133,9 +133,12 @@ def speed_plot(tracks: pd.DataFrame, segments: pd.DataFrame | None, contacts: pd
             for _, c in contacts.iterrows():
                 ax.axvline(c["t_s"], color="0.3", ls=":", lw=1.3)
     if contacts is not None and len(contacts):
-        for _, c in contacts.iterrows():
+        span = max(tmax - tmin, 1e-9)
+        for c, row in zip(contacts.sort_values("t_s").to_dict("records"),
+                          contact_label_rows(contacts.sort_values("t_s")["t_s"].to_numpy(float), span)):
             axes[0].annotate(f"C{c['contact']}", (c["t_s"], 1.0), xycoords=("data", "axes fraction"),
-                             xytext=(2, -2), textcoords="offset points", va="top", fontsize=9, color="0.15")
+                             xytext=(2, -2 - 11 * row), textcoords="offset points", va="top", fontsize=9,
+                             color="0.15")
     axes[-1].set_xlabel("time (s)")
     axes[-1].set_xlim(tmin, tmax)
     from matplotlib.patches import Patch
@@ -155,6 +158,26 @@ def speed_plot(tracks: pd.DataFrame, segments: pd.DataFrame | None, contacts: pd
     fig.savefig(path, dpi=DPI)
     plt.close(fig)
     return Path(path)
+
+
+def contact_label_rows(t_s: np.ndarray, span_s: float, min_gap: float = 0.045) -> list[int]:
+    """Row (0 = top) for each contact's label on the speed plot, times sorted ascending (s).
+
+    Two contacts closer than ``min_gap`` of the time span would print their labels on top of each
+    other; the later one drops a row, and the rows restart once there is room again.
+
+    >>> contact_label_rows(np.array([0.3, 0.9, 2.000, 2.004, 2.006]), 2.5)
+    [0, 0, 0, 1, 2]
+    """
+    rows: list[int] = []
+    last_t_in_row: dict[int, float] = {}
+    for t in np.asarray(t_s, float):
+        r = 0
+        while r in last_t_in_row and (t - last_t_in_row[r]) < min_gap * span_s:
+            r += 1
+        last_t_in_row[r] = float(t)
+        rows.append(r)
+    return rows
 
 
 def _angle_deg(u, v) -> float:
