@@ -64,7 +64,8 @@ def _restore_logging(saved: tuple) -> None:
                    "(default: the calibration file's, else pool-9ft, or the preset the picture points "
                    "to: carom without side pockets, else the pool size / snooker by the balls' size).")
 @click.option("--calib", type=click.Path(path_type=Path), default=None, metavar="FILE",
-              help="Manual calibration TOML (default: calibrate automatically from the table's cushions).")
+              help="Manual calibration TOML (default: NAME.calibration.toml beside the clip NAME.mp4 if there is "
+                   "one, else calibrate automatically from the table's cushions).")
 @click.option("--fps", type=float, default=None, metavar="N",
               help="Capture frame rate, frames/s (overrides the file's; high-speed cameras often store a playback rate).")
 @click.option("--ball-mass", "ball_mass", type=float, default=None, metavar="KG",

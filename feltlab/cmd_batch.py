@@ -67,7 +67,8 @@ def analyze_settings(table: str | None, calib: Path | None = None, fps: float | 
                    "its workers must see FOLDER and OUT at the same paths.")
 @click.option("--table", default=None, metavar="PRESET", help="Table preset for every clip, e.g. pool-9ft, snooker, carom.")
 @click.option("--calib", type=click.Path(path_type=Path), default=None, metavar="FILE",
-              help="Manual calibration (TOML) for every clip, e.g. a bench camera filming part of a table.")
+              help="Manual calibration (TOML) for every clip, e.g. a bench camera filming part of a table "
+                   "(default: NAME.calibration.toml beside a clip NAME.mp4, else automatic).")
 @click.option("--fps", type=float, default=None, metavar="N",
               help="Capture frame rate of every clip, frames/s (high-speed cameras store a playback rate; "
                    "needed for folders of frames).")

@@ -62,6 +62,13 @@ def command(clip: Path, table: str | None, calib: Path | None, fps: float | None
             if (dest / name).exists():
                 raise FeltlabError(f"{dest / name} already exists; pass --replace or choose another --out")
     rng = parse_frames(frames)
+    if calib is None:
+        from feltlab.pipeline import calibration_beside
+
+        calib = calibration_beside(clip)
+        if calib is not None:
+            click.echo(f"calibration: using {calib}, kept beside the clip (pass --calib to use another file)",
+                       err=True)
     state = {"last": -1}
 
     def progress(done: int, total: int) -> None:

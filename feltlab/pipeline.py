@@ -39,6 +39,10 @@ log = logging.getLogger("feltlab.analyze")
 #: progress(stage, done, total): stage is "track" (frames read) or "draw" (frames annotated).
 Progress = Callable[[str, int, int], None]
 
+# A clip NAME.mp4 (or a frame folder NAME/) with a file NAME + this suffix beside it is calibrated
+# from that file when no --calib is given (our convention; see calibration_beside).
+CALIBRATION_BESIDE_SUFFIX = ".calibration.toml"
+
 
 @dataclass
 class AnalyzeSettings:
@@ -67,6 +71,14 @@ class AnalyzeSettings:
     tracking: Any = None
     physics: Any = None
 
+    def for_clip(self, clip: Path | str) -> "AnalyzeSettings":
+        """These settings for one clip: with no ``calib`` given, a calibration file kept beside
+        the clip (:func:`calibration_beside`) is used; otherwise the settings as they are."""
+        if self.calib:
+            return self
+        side = calibration_beside(clip)
+        return self if side is None else dataclasses.replace(self, calib=str(side))
+
     def identity(self) -> dict:
         """JSON-safe record of the settings (stored in shot.json and compared on re-runs).
 
@@ -84,6 +96,22 @@ class AnalyzeSettings:
             d["calib"] = p.name  # where the file sits does not change the result; its content does
             d["calib_sha256"] = sha256_file(p) if p.is_file() else None
         return jsonable(d)
+
+
+def calibration_beside(clip: Path | str) -> Path | None:
+    """The calibration file kept beside a clip, if there is one: ``NAME.calibration.toml`` in the
+    clip's folder for a clip ``NAME.mp4`` (any video extension) or a folder of frames ``NAME/``.
+
+    A bench camera filming part of a table cannot be calibrated from the cushions; keeping its
+    corner file beside each clip lets one folder mix such clips with whole-table ones.
+
+    >>> calibration_beside("no/such/folder/shot.mp4") is None
+    True
+    """
+    p = Path(clip)
+    stem = p.name if p.is_dir() else p.stem
+    side = p.with_name(stem + CALIBRATION_BESIDE_SUFFIX)
+    return side if side.is_file() else None
 
 
 @dataclass
@@ -247,6 +275,11 @@ def analyze_clip(clip_path, out_dir, settings: AnalyzeSettings | None = None, pr
     settings = settings or AnalyzeSettings()
     clip = Path(clip_path)
     out_dir = Path(out_dir)
+    if not settings.calib and clip.exists():
+        settings = settings.for_clip(clip)
+        if settings.calib:
+            log.info("calibration: using %s, kept beside the clip (pass --calib to use another file)",
+                     settings.calib)
     _check_inputs(clip, settings)
     timings: dict[str, float] = {}
     warnings: list[str] = []

@@ -538,3 +538,46 @@ def test_progress_bar_counts_clips_and_failures(clip_folder: Path, tmp_path: Pat
     err = capsys.readouterr().err
     final = [line for line in err.splitlines() if line.startswith("clips")][-1]
     assert "6/6" in final and "failed 2" in final and "ETA" in final
+
+
+# ---------------------------------------------------------------------------
+# a calibration file kept beside a clip
+# ---------------------------------------------------------------------------
+
+def test_calibration_beside_a_clip_is_used_per_clip_and_counts_as_a_setting(tmp_path: Path) -> None:
+    """A bench clip with NAME.calibration.toml beside it is analysed with that file, a whole-table
+    clip in the same folder without one; a byte-identical copy without the file is not taken as
+    "the same result"; editing the file re-analyses only that clip, beside the old result."""
+    from feltlab.pipeline import AnalyzeSettings, calibration_beside
+
+    root = tmp_path / "clips"
+    write_clip(root / "table.mp4", seed=1)
+    write_clip(root / "bench.MOV", seed=2)
+    (root / "bench_copy.mp4").write_bytes((root / "bench.MOV").read_bytes())
+    side = root / "bench.calibration.toml"
+    side.write_text('table = "pool-9ft"\n')
+    (root / "frames").mkdir()
+    (root / "frames.calibration.toml").write_text("x = 1\n")
+    assert calibration_beside(root / "bench.MOV") == side
+    assert calibration_beside(root / "table.mp4") is None
+    assert calibration_beside(root / "frames") == root / "frames.calibration.toml"
+    assert AnalyzeSettings(calib="given.toml").for_clip(root / "bench.MOV").calib == "given.toml"
+
+    seen: list[tuple[str, str | None]] = []
+
+    def recording(clip: Path, out_dir: Path, settings) -> None:
+        seen.append((clip.name, settings.calib))
+        fake_analyze(clip, out_dir, {"calib": settings.calib})
+
+    out = tmp_path / "out"
+    run_batch(root, out, AnalyzeSettings(), analyze=recording, in_process=True, series=False)
+    assert sorted(seen) == [("bench.MOV", str(side)), ("bench_copy.mp4", None), ("table.mp4", None)]
+    seen.clear()
+    run_batch(root, out, AnalyzeSettings(), analyze=recording, in_process=True, series=False)
+    assert seen == []
+    side.write_text('table = "pool-8ft"\n')
+    rep = run_batch(root, out, AnalyzeSettings(), analyze=recording, in_process=True, series=False)
+    assert seen == [("bench.MOV", str(side))]
+    again = next(o for o in rep.outcomes if o.clip_rel == "bench.MOV")
+    assert Path(again.result_dir).name.startswith("bench__")  # the first result is kept, not overwritten
+    assert (out / "bench" / "shot.json").is_file()

@@ -435,6 +435,7 @@ def run_batch(
             bar.start_clips()
             tasks, waiting, ready = _plan([c for c in clips if c.rel in shas], shas, out, settings, settings_hash,
                                           outcomes)
+            task_hash = {t.clip_rel: t.settings_hash for t in tasks}
             for o in outcomes.values():
                 bar.advance(o)
             for copy_clip, src in ready:
@@ -449,7 +450,7 @@ def run_batch(
                 bar.advance(o)
                 if o.warning:
                     say(o.warning)
-                for dup in waiting.pop(o.clip_sha256, []):
+                for dup in waiting.pop(o.clip_sha256 + task_hash.get(o.clip_rel, settings_hash), []):
                     if o.status == "failed":
                         d = ClipOutcome(dup.rel, dup.result_rel, o.clip_sha256, "failed", stage=o.stage,
                                         reason=one_line(f"same content as {o.clip_rel}, which failed: {o.reason}"),
@@ -484,30 +485,44 @@ def run_batch(
     return report
 
 
+def clip_settings(clip_path: Path, settings: Any) -> Any:
+    """The settings one clip is analysed with: ``settings.for_clip(path)`` where the settings
+    object has it (AnalyzeSettings picks up a calibration file kept beside the clip), else as given."""
+    for_clip = getattr(settings, "for_clip", None)
+    return for_clip(Path(clip_path)) if callable(for_clip) else settings
+
+
 def _plan(clips: list[Clip], shas: dict[str, str], out: Path, settings: Any, settings_hash: str,
           outcomes: dict[str, ClipOutcome]):
     """Split clips into: already finished (into ``outcomes``), tasks to analyse (one per
-    content), copies waiting for a task (by content hash) and copies ready now."""
-    finished_by_sha: dict[str, tuple[str, Path]] = {}
+    content and settings), copies waiting for a task (by content and settings hash) and copies
+    ready now. Settings may differ per clip (:func:`clip_settings`)."""
+    per_clip: dict[str, tuple[Any, str]] = {}
     for c in clips:
-        found = resume.find_finished(out, c.result_rel, shas[c.rel], settings_hash)
+        s_c = clip_settings(c.path, settings)
+        per_clip[c.rel] = (s_c, settings_hash if s_c is settings else resume.settings_sha256(s_c))
+    finished_by_key: dict[str, tuple[str, Path]] = {}
+    for c in clips:
+        h = per_clip[c.rel][1]
+        found = resume.find_finished(out, c.result_rel, shas[c.rel], h)
         if found is not None:
             outcomes[c.rel] = ClipOutcome(c.rel, c.result_rel, shas[c.rel], "skipped", result_dir=str(found))
-            finished_by_sha.setdefault(shas[c.rel], (c.rel, found))
+            finished_by_key.setdefault(shas[c.rel] + h, (c.rel, found))
     tasks: list[ClipTask] = []
     waiting: dict[str, list[Clip]] = {}
     ready: list[tuple[Clip, tuple[str, Path]]] = []
     for c in clips:
         if c.rel in outcomes:
             continue
-        sha = shas[c.rel]
-        if sha in finished_by_sha:
-            ready.append((c, finished_by_sha[sha]))
-        elif sha in waiting:
-            waiting[sha].append(c)
+        s_c, h = per_clip[c.rel]
+        key = shas[c.rel] + h
+        if key in finished_by_key:
+            ready.append((c, finished_by_key[key]))
+        elif key in waiting:
+            waiting[key].append(c)
         else:
-            waiting[sha] = []
-            tasks.append(ClipTask(str(c.path), c.rel, c.result_rel, sha, str(out), settings, settings_hash))
+            waiting[key] = []
+            tasks.append(ClipTask(str(c.path), c.rel, c.result_rel, shas[c.rel], str(out), s_c, h))
     return tasks, waiting, ready
 
 
@@ -517,6 +532,9 @@ def _copy_for(clip: Clip, src: tuple[str, Path], shas: dict[str, str], out: Path
     t0 = time.perf_counter()
     sha = shas[clip.rel]
     src_rel, src_dir = src
+    s_c = clip_settings(clip.path, settings)
+    if s_c is not settings:
+        settings, settings_hash = s_c, resume.settings_sha256(s_c)
     dest, warning = resume.choose_destination(out, clip.result_rel, sha, settings_hash)
     manifest = resume.make_manifest(clip.rel, sha, settings, settings_hash, origin="copied", copied_from=src_rel)
     try:
