@@ -1,7 +1,7 @@
 #!/usr/bin/env python3
 """Tracking accuracy and speed on clips with exact truth (prints figures, asserts nothing).
 
-usage: bench_tracking.py [CLIP.mp4 ...] [--auto] [--both]
+usage: bench_tracking.py [CLIP.mp4 ...] [--auto] [--both] [--breakdown]
 
 Without clips: the outside footage in ../shared/footage (D1, D2) when present,
 and the bundled demo clips in clips/. Each clip needs CLIP.truth.json beside
@@ -42,6 +42,10 @@ Figures per clip (one row per clip and calibration):
   only); ``trk_z2`` / ``trk_z2m``: the same for the track output against its
   own sx_mm, sy_mm (all / moving covered ball-frames; 1 = honest); ``splits``: true contacts followed
   by a motion-segment start within 2 frames; ``ms_fr``: wall time per frame.
+* ``--breakdown``: the moving ball-frames' error by travel per frame (px) and fix
+  kind, along / across the true motion, by distance from a contact and by ball
+  (:func:`moving_breakdown`), to tell a streak centre, a time stamp, the
+  smoother and contact frames apart.
 """
 from __future__ import annotations
 
@@ -69,6 +73,7 @@ from id_metrics import clear_mot_identity, cluster_own_tracks, clusters_at  # no
 
 MOVING_MM_S = 5.0  # truth speed above which a ball-frame counts as moving
 COVER_MM = 5.0     # a track point within this of the truth covers the ball-frame
+BREAKDOWN = False  # --breakdown: print moving_breakdown per clip
 
 
 def truth_path(clip: Path) -> Path:
@@ -194,6 +199,62 @@ def identity_figures(truth: dict, tcal: Calibration, by_name: dict, n: int, R: f
     return {"rep": rep, "own": own_txt, "lines": lines}
 
 
+def moving_breakdown(truth: dict, tcal: Calibration, tracks, dets, inv: dict) -> list[str]:
+    """Moving ball-frames' error broken down (lines of a markdown table): by travel in px per frame and
+    the fix's kind (circle fit, streak fit, none = predicted), along / across the true motion (detection
+    and track RMSE, track mean along = a time-stamp or lag bias), their share of the track's squared
+    error; then by distance from the ball's nearest contact and by ball."""
+    fps, n = truth["fps"], truth["n"]
+    ctimes: dict[str, list[float]] = {}
+    for t_c, _, a, b in truth["contacts"]:
+        for x in (a, b):
+            if x:
+                ctimes.setdefault(x, []).append(t_c)
+    rows = []
+    for bid, nm in inv.items():
+        P = truth["pos"][bid]
+        g = tracks[tracks.ball == nm].set_index("frame")
+        dd = dets[dets.ball == nm].drop_duplicates("frame").set_index("frame")
+        V = np.full_like(P, np.nan)
+        V[1:-1] = (P[2:] - P[:-2]) * fps / 2
+        view = in_view(tcal, P)
+        for k in range(1, n - 1):
+            sp = float(np.hypot(*V[k]))
+            if not view[k] or not np.isfinite(sp) or sp <= MOVING_MM_S or k not in g.index:
+                continue
+            u = V[k] / sp
+            w = np.array([-u[1], u[0]])
+            uv = tcal.table_to_px(np.array([P[k], P[k] + u]))
+            et = g.loc[k, ["x_mm", "y_mm"]].to_numpy(float) - P[k]
+            r = {"ball": bid, "px": sp / fps * float(np.hypot(*(uv[1] - uv[0]))), "t_al": et @ u, "t_ac": et @ w,
+                 "kind": "none", "d_al": np.nan, "d_ac": np.nan,
+                 "dc": min((abs(k / fps - t) * fps for t in ctimes.get(bid, [])), default=np.inf)}
+            if k in dd.index:
+                ed = dd.loc[k, ["x_mm", "y_mm"]].to_numpy(float) - P[k]
+                r.update(kind="streak" if float(dd.at[k, "streak_px"] if "streak_px" in dd else 0) > 0 else "circle",
+                         d_al=ed @ u, d_ac=ed @ w)
+            rows.append(r)
+    if not rows:
+        return []
+    import pandas as pd
+    df = pd.DataFrame(rows)
+    df["e2"] = df.t_al ** 2 + df.t_ac ** 2
+    tot = max(float(df.e2.sum()), 1e-12)
+    out = ["| travel px/frame | fix | n | det RMSE along / across mm | track RMSE along / across mm | track mean along mm | share of track SSE |",
+           "|---|---|---|---|---|---|---|"]
+    df["bin"] = pd.cut(df.px, [0, 1, 3, 6, 12, 25, 50, 1e9])
+    for (bn, kd), s in df.groupby(["bin", "kind"], observed=True):
+        out.append(f"| {bn} | {kd} | {len(s)} | {_rms(s.d_al.dropna()):.2f} / {_rms(s.d_ac.dropna()):.2f} | "
+                   f"{_rms(s.t_al):.2f} / {_rms(s.t_ac):.2f} | {s.t_al.mean():+.2f} | {s.e2.sum() / tot:.2f} |")
+    for lab, s in (("<= 1 frame from a contact", df[df.dc <= 1]), ("1-2 frames", df[(df.dc > 1) & (df.dc <= 2)]),
+                   ("farther", df[df.dc > 2])):
+        out.append(f"{lab}: n {len(s)}, track RMSE {np.sqrt(s.e2.mean()) if len(s) else np.nan:.2f} mm, "
+                   f"share {s.e2.sum() / tot:.2f}")
+    for bid, s in df.groupby("ball"):
+        out.append(f"ball {bid}: n {len(s)}, track RMSE {np.sqrt(s.e2.mean()):.2f} mm, share {s.e2.sum() / tot:.2f}")
+    return out
+
+
 def bench(clip: Path, auto: bool) -> dict:
     truth = load_truth(truth_path(clip))
     tcal = truth["cal"]
@@ -307,6 +368,7 @@ def bench(clip: Path, auto: bool) -> dict:
         "labels": ",".join(f"{k}={v}" for k, v in sorted(match.items(), key=lambda kv: kv[1])),
         "unmatched": ",".join(sorted(set(names) - set(match))),
         "height_from": str((res.calibration.camera.meta or {}).get("height_from", ""))[:24],
+        "breakdown": moving_breakdown(truth, tcal, tr, dets, inv) if BREAKDOWN else [],
     }
 
 
@@ -325,7 +387,11 @@ def main() -> None:
     ap.add_argument("clips", nargs="*", type=Path)
     ap.add_argument("--auto", action="store_true", help="calibrate from the clip instead of the truth camera")
     ap.add_argument("--both", action="store_true", help="run each clip with the truth camera and with auto calibration")
+    ap.add_argument("--breakdown", action="store_true",
+                    help="also print the moving ball-frames' error by travel per frame, fix kind, contact distance and ball")
     a = ap.parse_args()
+    global BREAKDOWN
+    BREAKDOWN = a.breakdown
     clips = a.clips
     if not clips:
         foot = ROOT.parent / "shared" / "footage"
@@ -341,6 +407,8 @@ def main() -> None:
                 print(f"{'':>9s} labels: {r['labels']}" + (f"  unmatched tracks: {r['unmatched']}" if r["unmatched"] else "")
                       + (f"  height from: {r['height_from']}" if auto else ""))
                 for line in r["ident_lines"]:
+                    print(f"{'':>9s} {line}")
+                for line in r["breakdown"]:
                     print(f"{'':>9s} {line}")
             sys.stdout.flush()
 

@@ -413,3 +413,40 @@ def bridge_gap(xa: np.ndarray, va: np.ndarray, ta: float, xb: np.ndarray, vb: np
     pos = np.where(before, xa + va * (t - ta)[:, None], xb + vb * (t - tb)[:, None])
     vel = np.where(before, va, vb)
     return pos, np.broadcast_to(vel, pos.shape).copy(), miss
+
+
+def scatter_scale(frames: np.ndarray, z: np.ndarray, C: np.ndarray, stretches: list[tuple[int, int]],
+                  min_quads: int = 5) -> float:
+    """Factor k^2 >= 1 by which one ball's moving detections scatter more than their covariances say.
+
+    frames: (N,) frame numbers; z: (N,2) mm; C: (N,2,2) mm^2; stretches:
+    detection index ranges [a, b) where the ball moves. Over four fixes in
+    consecutive frames the third difference d = z3 - 3 z2 + 3 z1 - z0 is
+    blind to any motion of constant acceleration (a sliding ball's friction
+    mu_s g along a fixed slip direction, a rolling ball's mu_r g: a parabola
+    in time), so with independent errors it has covariance
+    B = C0 + 9 C1 + 9 C2 + C3 and d' B^-1 d ~ chi-square(2), median 2 ln 2.
+    k^2 is the median of d' B^-1 d over all such quadruples / (2 ln 2)
+    (a median: a contact or the slide-to-roll change inside a quadruple is
+    a rare outlier), at least 1, and 1 with fewer than ``min_quads`` quadruples.
+    A ball whose fits wander with its turning markings or its shadow (a dark
+    or cloth-coloured ball) shows k^2 of 2-7 where the detector claims its
+    usual sigma.
+
+    >>> rng = np.random.default_rng(1)
+    >>> f = np.arange(400); z = np.column_stack([3.0 * f, 0.01 * f ** 2]) + rng.normal(0, 2.0, (400, 2))
+    >>> round(scatter_scale(f, z, np.tile(np.eye(2), (400, 1, 1)), [(0, 400)]), 1)  # true 2^2 = 4
+    4.0
+    """
+    f = np.asarray(frames, int)
+    q = []
+    for a, b in stretches:
+        for i in range(a, b - 3):
+            if f[i + 3] - f[i] != 3:
+                continue
+            d3 = z[i + 3] - 3 * z[i + 2] + 3 * z[i + 1] - z[i]
+            B3 = C[i] + 9 * C[i + 1] + 9 * C[i + 2] + C[i + 3]
+            q.append(float(d3 @ np.linalg.solve(B3, d3)))
+    if len(q) < min_quads:
+        return 1.0
+    return max(1.0, float(np.median(q) / (2.0 * np.log(2.0))))

@@ -49,7 +49,8 @@ from tracking.detect import build_background, detect_frame
 from tracking.exposure import ExposureMatcher
 from tracking.dark_ring import RingGate
 from tracking.faint import add_faint, faint_background
-from tracking.kalman import as_cov, bridge_gap, smear_cov, smear_scale, smooth_segment, split_segments
+from tracking.kalman import (as_cov, bridge_gap, scatter_scale, smear_cov, smear_scale, smooth_segment,
+                             split_segments)
 from tracking.appearance import add_appearance, light_field
 from tracking.labels import label_tracks
 from tracking.overlap import separate_overlaps
@@ -249,6 +250,17 @@ def smooth_ball(frames: np.ndarray, t: np.ndarray, z: np.ndarray, sig: np.ndarra
     vis[frames - f0] = 1
     pieces: list[tuple[int, int, str]] = []  # detection index ranges
     runs = rest_runs(t, z, sig, s)
+    moving = [(a, b) for a, b in zip([0] + [r[1] for r in runs], [r[0] for r in runs] + [n]) if b > a]
+    # The smoother weighs the moving fixes by how much they really scatter
+    # (tracking/kalman.py scatter_scale); the contact and outlier tests keep
+    # the detector's covariances, so a wandering ball's gross fixes stay out.
+    Cs = C
+    if s.scatter_scale:
+        k2 = scatter_scale(frames, z, C, moving, s.scatter_min_quads)
+        if k2 > 1.0:
+            Cs = C.copy()
+            for a, b in moving:
+                Cs[a:b] *= k2
     cursor = 0
     for a, b in runs + [(n, n)]:
         if a > cursor:
@@ -268,7 +280,7 @@ def smooth_ball(frames: np.ndarray, t: np.ndarray, z: np.ndarray, sig: np.ndarra
             continue
         g0, g1 = int(frames[idx[0]]) - f0, int(frames[idx[-1]]) - f0
         if kind == "rest" or len(idx) == 1:
-            sg = sig[idx] if kind == "rest" else np.sqrt(C[idx][:, [0, 1], [0, 1]])
+            sg = sig[idx] if kind == "rest" else np.sqrt(Cs[idx][:, [0, 1], [0, 1]])
             w = 1.0 / np.maximum(sg ** 2, 1e-6)
             m = np.sum(w * z[idx], axis=0) / np.sum(w, axis=0)
             var_det = np.median(sg ** 2, axis=0)
@@ -282,7 +294,7 @@ def smooth_ball(frames: np.ndarray, t: np.ndarray, z: np.ndarray, sig: np.ndarra
                 X[g0, 2:] = np.nan
         else:
             tg = frame_t[grid_f[g0:g1 + 1]]
-            fit = smooth_segment(tg, frames[idx] - f0 - g0, z[idx], C[idx], s.accel_sigma_mm_s2,
+            fit = smooth_segment(tg, frames[idx] - f0 - g0, z[idx], Cs[idx], s.accel_sigma_mm_s2,
                                  s.birth_speed_sigma_mm_s)
             X[g0:g1 + 1] = fit.x
             var = np.stack([fit.P[:, 0, 0], fit.P[:, 1, 1]], axis=1)

@@ -943,6 +943,18 @@ class TrackingSettings:
     #: differences, covariance matching; tracking/kalman.py smear_scale),
     #: capped by the uniform-smear bound above; False: use the bound itself.
     smear_from_clip: bool = True
+    #: Weigh each ball's moving fixes by their own scatter in the smoother:
+    #: their covariances are scaled by k^2 >= 1, the median of the third
+    #: differences' chi-square over its median 2 ln 2 (tracking/kalman.py
+    #: scatter_scale; a third difference is blind to constant acceleration,
+    #: friction while sliding or rolling), from at least scatter_min_quads
+    #: runs of four consecutive fixes. A dark or cloth-coloured ball's fits
+    #: wander with its turning markings and its shadow (measured k^2 2-7 at
+    #: 30 fps on sweep clips f09, f05b, m05, MuJoCo mj9911, where the cue
+    #: ball's are below 1); with its claimed sigma the smoother followed them.
+    #: The contact and outlier tests keep the detector's covariances.
+    scatter_scale: bool = True
+    scatter_min_quads: int = 5
     #: Warn when the balls' image size (median fitted / expected silhouette
     #: radius of resting balls, tracking/ball_size.py) lies outside
     #: [ball_size_low, ball_size_high]: a wrong --table preset or ball set.
