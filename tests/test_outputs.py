@@ -564,8 +564,9 @@ def test_diagram_labels_a_compound_event_once_and_never_prints_nan(tmp_path, mon
     for col in ("va_out_x_mm_s", "va_out_y_mm_s", "vb_out_x_mm_s", "vb_out_y_mm_s"):
         links[col] = np.nan
     links["group"], links["group_balls"] = 1, "a b c d"
+    lone = links.iloc[[0]].assign(group=2, group_balls="e f")  # a "group" of one touch is a plain contact
     rest = contacts.assign(group=-1, group_balls="")
-    allc = pd.concat([rest, links], ignore_index=True)
+    allc = pd.concat([rest, links, lone], ignore_index=True)
     allc["contact"] = np.arange(len(allc))
     texts = []
     real = matplotlib.axes.Axes.annotate
@@ -578,6 +579,64 @@ def test_diagram_labels_a_compound_event_once_and_never_prints_nan(tmp_path, mon
     plot_out.table_diagram(tracks, allc, TABLE, R, tmp_path / "table.png")
     assert not any("nan" in t.lower() for t in texts), texts
     assert sum("3 touches within one frame" in t for t in texts) == 1, texts
+    assert not any("1 touch" in t for t in texts), texts
+    assert sum(t.startswith(f"C{len(allc) - 1} ") for t in texts) == 1, texts
+
+
+def test_diagram_magnifies_a_knot_of_contacts_without_hiding_a_ball(tmp_path, monkeypatch):
+    """A break-like shot: five object balls racked touching (centres one diameter apart, the
+    equilateral packing of a rack, common practice), the cue hits the apex and all fly apart.
+    The diagram adds a close-up of the rack that takes in every contact point, names the racked
+    balls there, magnifies at least INSET_MIN_ZOOM, and covers no ball's start or end on the table.
+    Plain geometry, no outside reference needed."""
+    tracks, contacts, _, _ = synthetic_shot()
+    apex = np.array([1500.0, 635.0])
+    d = 2 * R
+    rack = {"red": apex, "blue": apex + [d * math.cos(math.pi / 6), d / 2],
+            "green": apex + [d * math.cos(math.pi / 6), -d / 2], "black": apex + [2 * d * math.cos(math.pi / 6), d],
+            "yellow": apex + [2 * d * math.cos(math.pi / 6), 0.0]}
+    away = {"red": [1900.0, 1100.0], "blue": [2300.0, 900.0], "green": [2300.0, 200.0], "black": [1700.0, 1150.0],
+            "yellow": [2400.0, 640.0]}
+    t = np.arange(N_FRAMES) / FPS
+    rows = [r for r in tracks[tracks["ball"] == "cue"].to_dict("records")]
+    for b, p0 in rack.items():
+        for k, tk in enumerate(t):
+            f = min(1.0, 2.0 * tk / t[-1])
+            x, y = np.asarray(p0) + f * (np.asarray(away[b]) - p0)
+            rows.append(dict(frame=k, t_s=tk, ball=b, x_mm=x, y_mm=y, vx_mm_s=0.0, vy_mm_s=0.0, sx_mm=0.2,
+                             sy_mm=0.2, visible=1))
+    tr = pd.DataFrame(rows)
+    pairs = [("cue", "red"), ("red", "blue"), ("red", "green"), ("blue", "black"), ("green", "yellow")]
+    base = contacts.iloc[0].to_dict()
+    cs = []
+    for i, (a, b) in enumerate(pairs):
+        pa = apex - [d, 0.0] if a == "cue" else rack[a]
+        mid = (np.asarray(pa) + rack[b]) / 2
+        cs.append({**base, "contact": i, "ball_a": a, "ball_b": b, "x_mm": mid[0], "y_mm": mid[1], "group": 1,
+                   "group_balls": " ".join(sorted(set(sum(pairs, ()))))})
+    allc = pd.DataFrame(cs)
+    kept = []
+    monkeypatch.setattr(plot_out.plt, "close", lambda fig=None: kept.append(fig))
+    plot_out.table_diagram(tr, allc, TABLE, R, tmp_path / "table.png")
+    fig = kept[-1]
+    main = fig.axes[0]
+    assert len(main.child_axes) == 1
+    ins = main.child_axes[0]
+    x0, x1 = ins.get_xlim()
+    y0, y1 = ins.get_ylim()
+    assert ((allc["x_mm"] > x0) & (allc["x_mm"] < x1) & (allc["y_mm"] > y0) & (allc["y_mm"] < y1)).all()
+    names = {t.get_text() for t in ins.texts}
+    assert set(rack) <= names
+    # where the close-up sits on the table (mm) and what it magnifies
+    fig.canvas.draw()
+    bb = ins.get_window_extent()  # display pixels, after the aspect is applied
+    (bx0, by0), (bx1, by1) = main.transData.inverted().transform([[bb.x0, bb.y0], [bb.x1, bb.y1]])
+    assert (bx1 - bx0) / (x1 - x0) >= plot_out.INSET_MIN_ZOOM - 1e-6
+    for b, g in tr.groupby("ball"):
+        for x, y in g.sort_values("t_s")[["x_mm", "y_mm"]].to_numpy()[[0, -1]]:
+            assert not (bx0 - R < x < bx1 + R and by0 - R < y < by1 + R), (b, x, y)
+    import matplotlib.pyplot as plt
+    plt.close(fig)
 
 
 def test_closeup_arrows_fit_their_crop():

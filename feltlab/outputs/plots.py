@@ -37,6 +37,14 @@ POCKET_DRAW_MM = 60.0
 DPI = 110
 #: At most this many balls get a speed panel (the ones in contacts first).
 MAX_SPEED_PANELS = 6
+#: Table diagram close-up: drawn when at least BUSY_MIN_CONTACTS contact points lie within
+#: BUSY_RADIUS_R ball radii of one another's centre (a rack break, a cluster); the inset is
+#: INSET_FRACTION of the table's length wide. Layout choices, not physics.
+BUSY_MIN_CONTACTS = 4
+BUSY_RADIUS_R = 6.0
+INSET_FRACTION = 0.40
+INSET_MAX_HEIGHT = 0.50     # of the table's width
+INSET_MIN_ZOOM = 1.5        # a close-up magnifying less than this is not drawn
 
 
 
@@ -238,6 +246,118 @@ def _draw_table(ax, table) -> None:
                 rotation=90 if name.endswith(("x0", "xL")) else 0)
 
 
+def busy_region(points_mm: np.ndarray, radius_mm: float, min_count: int = BUSY_MIN_CONTACTS,
+                extra_mm: np.ndarray | None = None, pad_mm: float = 0.0) -> tuple[float, float, float, float] | None:
+    """Box (x0, y0, x1, y1), table mm, around the densest knot of contact points, or None.
+
+    A knot is the points within ``radius_mm`` of the point with most such neighbours, if there are at
+    least ``min_count``; the box also takes in ``extra_mm`` points (e.g. the balls' start positions)
+    inside that radius of the knot's centre, and is padded by ``pad_mm``.
+
+    >>> busy_region(np.array([[0, 0], [10, 0], [0, 10], [5, 5], [900, 900]]), 50, 4)
+    (0.0, 0.0, 10.0, 10.0)
+    >>> busy_region(np.array([[0, 0], [500, 0]]), 50, 2) is None
+    True
+    """
+    p = np.asarray(points_mm, float).reshape(-1, 2)
+    p = p[np.isfinite(p).all(axis=1)]
+    if len(p) < min_count:
+        return None
+    d = np.hypot(*(p[:, None, :] - p[None, :, :]).transpose(2, 0, 1))
+    near = d <= radius_mm
+    k = int(np.argmax(near.sum(axis=1)))
+    if near[k].sum() < min_count:
+        return None
+    knot = p[near[k]]
+    c = knot.mean(axis=0)
+    if extra_mm is not None and len(extra_mm):
+        e = np.asarray(extra_mm, float).reshape(-1, 2)
+        e = e[np.isfinite(e).all(axis=1)]
+        knot = np.vstack([knot, e[np.hypot(*(e - c).T) <= radius_mm]])
+    x0, y0 = knot.min(axis=0) - pad_mm
+    x1, y1 = knot.max(axis=0) + pad_mm
+    return float(x0), float(y0), float(x1), float(y1)
+
+
+def inset_place(region: tuple[float, float, float, float], length_mm: float, width_mm: float,
+                path_xy: np.ndarray, discs_xy: np.ndarray | None = None,
+                fraction: float = INSET_FRACTION) -> tuple[float, float, float, float]:
+    """Where to draw a close-up of ``region`` on the table (x, y, w, h in table mm).
+
+    The close-up keeps the region's aspect and is at most ``fraction`` of the table's length wide
+    and INSET_MAX_HEIGHT of its width high. Positions on a 7 x 5 grid over the playing surface
+    are tried, at full size and then smaller (down to INSET_MIN_ZOOM); the first size with a
+    position that covers no ball (``discs_xy``: start and end positions) and not the region
+    itself wins, at its position covering the fewest path points.
+    """
+    rx0, ry0, rx1, ry1 = region
+    rw, rh = max(rx1 - rx0, 1.0), max(ry1 - ry0, 1.0)
+    w0 = min(fraction * length_mm, INSET_MAX_HEIGHT * width_mm * rw / rh)
+    m = 0.015 * length_mm
+    pts = np.asarray(path_xy, float).reshape(-1, 2)
+    discs = np.empty((0, 2)) if discs_xy is None else np.asarray(discs_xy, float).reshape(-1, 2)
+    best = None
+    for scale in (1.0, 0.85, 0.72, 0.6):
+        w = w0 * scale
+        if w / rw < INSET_MIN_ZOOM and best is not None:
+            break
+        h = w * rh / rw
+        best_cost = np.inf
+        for x in np.linspace(m, length_mm - m - w, 7):
+            for y in np.linspace(m, width_mm - m - h, 5):
+                if not (x + w < rx0 or rx1 < x or y + h < ry0 or ry1 < y):
+                    continue
+                inside = lambda q, pad=0.0: int(((q[:, 0] >= x - pad) & (q[:, 0] <= x + w + pad)  # noqa: E731
+                                                 & (q[:, 1] >= y - pad) & (q[:, 1] <= y + h + pad)).sum())
+                cost = inside(pts) + 1e6 * inside(discs, pad=0.04 * length_mm)
+                if cost < best_cost:
+                    best_cost, cand = cost, (float(x), float(y), float(w), float(h))
+        if np.isfinite(best_cost):
+            best = cand
+            if best_cost < 1e6:
+                return best
+    return best if best is not None else (m, m, w0, w0 * rh / rw)
+
+
+def _draw_ends(ax, name: str, xy: np.ndarray, c, R: float) -> None:
+    """A ball's start (open circle) and end (filled disc) on a table drawing, radius R (mm)."""
+    ax.add_patch(Circle(xy[0], R, facecolor="none", edgecolor=c, lw=1.4, zorder=6))
+    if str(name) in ("cue", "white") or str(name).startswith("white-"):
+        # a white ball ends as a white disc with a dot (its paper colour is black, and a
+        # black-filled end would read as the black ball)
+        ax.add_patch(Circle(xy[-1], R, facecolor="white", edgecolor=c, lw=1.6, zorder=6))
+        ax.plot(*xy[-1], marker="o", ms=2.5, color=c, zorder=6)
+    else:
+        ax.add_patch(Circle(xy[-1], R, facecolor=c, edgecolor="0.1", lw=0.8, alpha=0.55, zorder=6))
+
+
+def _draw_closeup(ax, box, region, paths: dict[str, np.ndarray], cps: np.ndarray, cols, dashes, R: float):
+    """Magnified view of ``region`` (table mm) drawn in ``box`` (x, y, w, h, table mm) on ``ax``."""
+    import matplotlib.patheffects as pe
+
+    ins = ax.inset_axes(list(box), transform=ax.transData, zorder=12)
+    ins.set_facecolor("0.97")
+    for b, xy in paths.items():
+        c = mpl(cols[b])
+        ins.plot(xy[:, 0], xy[:, 1], color=c, lw=1.6, ls=dashes[b], zorder=5)
+        _draw_ends(ins, b, xy, c, R)
+    for b, xy in paths.items():
+        if region[0] <= xy[0, 0] <= region[2] and region[1] <= xy[0, 1] <= region[3]:
+            ins.text(xy[0, 0], xy[0, 1], b, ha="center", va="center", fontsize=6, color="0.05", zorder=9,
+                     path_effects=[pe.withStroke(linewidth=2.2, foreground="white")])
+    if len(cps):
+        ins.plot(cps[:, 0], cps[:, 1], ls="", marker="x", color="black", ms=5, mew=1.3, zorder=8)
+    ins.set_xlim(region[0], region[2])
+    ins.set_ylim(region[1], region[3])
+    ins.set_aspect("equal", adjustable="box")
+    ins.set_xticks([])
+    ins.set_yticks([])
+    zoom = box[2] / max(region[2] - region[0], 1e-9)
+    ins.set_title(f"close-up, x{zoom:.1f}", fontsize=7, pad=2, loc="left")
+    ax.indicate_inset_zoom(ins, edgecolor="0.35", alpha=0.9)
+    return ins
+
+
 def table_diagram(tracks: pd.DataFrame, contacts: pd.DataFrame | None, table, ball_radius_mm: float,
                   path: Path, title: str = "") -> Path:
     """Write the to-scale top-down diagram (PNG) and return its path."""
@@ -251,24 +371,32 @@ def table_diagram(tracks: pd.DataFrame, contacts: pd.DataFrame | None, table, ba
     name_specs: list[LabelSpec] = []
     contact_specs: list[LabelSpec] = []
     path_pts: list[np.ndarray] = []
+    paths: dict[str, np.ndarray] = {}
     for b in ball_order(tracks["ball"].unique()):
         g = tracks[tracks["ball"] == b].sort_values("t_s")
         xy = g[["x_mm", "y_mm"]].to_numpy(float)
         xy = xy[np.isfinite(xy).all(axis=1)]
-        if not len(xy):
-            continue
+        if len(xy):
+            paths[str(b)] = xy
+    # A knot of contacts (a rack break) gets a magnified close-up; its balls are named there.
+    cps = (contacts[["x_mm", "y_mm"]].to_numpy(float) if contacts is not None and len(contacts)
+           and {"x_mm", "y_mm"} <= set(contacts.columns) else np.empty((0, 2)))
+    starts = np.array([xy[0] for xy in paths.values()]) if paths else np.empty((0, 2))
+    region = busy_region(cps, BUSY_RADIUS_R * R, extra_mm=starts, pad_mm=1.6 * R)
+    box = None
+    if region is not None:
+        ends = np.array([xy[[0, -1]] for xy in paths.values()]).reshape(-1, 2)
+        box = inset_place(region, L, W, np.vstack(list(paths.values()) + [cps]), discs_xy=ends)
+        if box[2] / max(region[2] - region[0], 1e-9) < INSET_MIN_ZOOM:
+            region = box = None
+    for b, xy in paths.items():
         c = mpl(cols[b])
         ax.plot(xy[:, 0], xy[:, 1], color=c, lw=1.6, ls=dashes[b], zorder=5, label=b)
-        ax.add_patch(Circle(xy[0], R, facecolor="none", edgecolor=c, lw=1.4, zorder=6))
-        if str(b) in ("cue", "white") or str(b).startswith("white-"):
-            # a white ball ends as a white disc with a dot (its paper colour is black, and a
-            # black-filled end would read as the black ball)
-            ax.add_patch(Circle(xy[-1], R, facecolor="white", edgecolor=c, lw=1.6, zorder=6))
-            ax.plot(*xy[-1], marker="o", ms=2.5, color=c, zorder=6)
-        else:
-            ax.add_patch(Circle(xy[-1], R, facecolor=c, edgecolor="0.1", lw=0.8, alpha=0.55, zorder=6))
-        name_specs.append(LabelSpec(tuple(xy[0]), str(b), prefer=(1.0, 1.0), radii_pt=(5.0, 10.0, 18.0, 30.0),
-                                    leader_from_pt=15.0, style=dict(fontsize=8, color="0.1", zorder=8)))
+        _draw_ends(ax, b, xy, c, R)
+        in_closeup = region is not None and (region[0] <= xy[0, 0] <= region[2] and region[1] <= xy[0, 1] <= region[3])
+        if not in_closeup:
+            name_specs.append(LabelSpec(tuple(xy[0]), str(b), prefer=(1.0, 1.0), radii_pt=(5.0, 10.0, 18.0, 30.0),
+                                        leader_from_pt=15.0, style=dict(fontsize=8, color="0.1", zorder=8)))
         path_pts.append(xy[:: max(1, len(xy) // 400)])
         # start and end circles count as many path points: a label should not hide a ball
         path_pts.append(np.repeat(xy[[0, -1]], 12, axis=0))
@@ -282,11 +410,11 @@ def table_diagram(tracks: pd.DataFrame, contacts: pd.DataFrame | None, table, ba
                 continue
             ax.plot(*cp, marker="x", color="black", ms=7, mew=1.8, zorder=9)
             grp = _group_id(c)
-            if grp > 0:  # a compound event: one label for all its touches, no per-link circles
+            ids = contacts.loc[contacts["group"] == c["group"], "contact"].astype(int) if grp > 0 else []
+            if grp > 0 and len(ids) > 1:  # a compound event: one label for all its touches, no per-link circles
                 if grp in labelled_groups:
                     continue
                 labelled_groups.add(grp)
-                ids = contacts.loc[contacts["group"] == c["group"], "contact"].astype(int)
                 txt = (f"{contact_ranges(ids)}  {len(ids)} touch{'es' if len(ids) != 1 else ''} within one frame"
                        + (f"\n({c['group_balls']})" if str(c.get("group_balls", "") or "") else ""))
             elif c.get("kind") == "ball-ball":
@@ -316,6 +444,11 @@ def table_diagram(tracks: pd.DataFrame, contacts: pd.DataFrame | None, table, ba
     ax.set_xlim(-CUSHION_DRAW_MM - 10, L + CUSHION_DRAW_MM + 10)
     ax.set_ylim(-CUSHION_DRAW_MM - 10, W + CUSHION_DRAW_MM + 10)
     ax.set_aspect("equal")
+    if region is not None and box is not None:
+        _draw_closeup(ax, box, region, paths, cps, cols, dashes, R)
+        # labels keep off the close-up: its area counts as densely drawn
+        gx, gy = np.meshgrid(np.linspace(box[0], box[0] + box[2], 24), np.linspace(box[1], box[1] + box[3], 12))
+        path_pts.append(np.repeat(np.column_stack([gx.ravel(), gy.ravel()]), 3, axis=0))
     step = 250 if L > 2000 else 200
     ax.set_xticks(np.arange(0, L + 1, step))
     ax.set_yticks(np.arange(0, W + 1, step))
