@@ -527,8 +527,13 @@ def annotate_groups(contacts: pd.DataFrame, cands: list[ContactCandidate], fits:
         dp = p1 - p0
         cdp = sum(Ci[2:, 2:] + Ci[:2, :2] - Ci[:2, 2:] - Ci[2:, :2] for Ci in C) * (m * k) ** 2
         u = dp / max(np.hypot(*dp), 1e-15)
-        res_pct = 100 * np.hypot(*dp) / max(np.hypot(*p0), 1e-15)
-        res_sig = 100 * np.sqrt(max(u @ cdp @ u, 0.0)) / max(np.hypot(*p0), 1e-15)
+        # The residual is a fraction of the momentum brought in; balls all at rest before (moved by
+        # a neighbouring group's touches) bring none, so there is no fraction to give.
+        cp0 = sum(Ci[:2, :2] for Ci in C) * (m * k) ** 2
+        u0 = p0 / max(np.hypot(*p0), 1e-15)
+        brought_in = np.hypot(*p0) > 3.0 * np.sqrt(max(u0 @ cp0 @ u0, 0.0)) and np.hypot(*p0) > 0
+        res_pct = 100 * np.hypot(*dp) / np.hypot(*p0) if brought_in else np.nan
+        res_sig = 100 * np.sqrt(max(u @ cdp @ u, 0.0)) / np.hypot(*p0) if brought_in else np.nan
         ke0 = 0.5 * m * float((v0**2).sum()) * k * k
         ke1 = 0.5 * m * float((v1**2).sum()) * k * k
         # sigma of the loss fraction 1 - ke1/ke0 by linear propagation of each ball's velocities
@@ -562,5 +567,5 @@ def annotate_groups(contacts: pd.DataFrame, cands: list[ContactCandidate], fits:
         df.loc[rows, "group_ke_before_J"] = ke0
         df.loc[rows, "group_ke_after_J"] = ke1
         df.loc[rows, "group_ke_loss_frac"] = 1 - ke1 / ke0 if ke0 > 0 else np.nan
-        df.loc[rows, "group_ke_loss_sigma_frac"] = np.sqrt(var)
+        df.loc[rows, "group_ke_loss_sigma_frac"] = np.sqrt(var) if ke0 > 0 else np.nan
     return df
