@@ -366,6 +366,33 @@ def test_report_sentence_closed_form(tmp_path):
     assert ctx["summary"][1] == "1 contact found: 1 ball-ball, 0 ball-cushion."
 
 
+def test_report_tells_a_compound_event_once():
+    """Three touches within one frame (a cue ball into a line of two): one sentence for the group
+    at its first touch, naming every link, the incoming and the fastest outgoing ball; a separate
+    contact keeps its own sentence; a touch of balls all at rest before gets no momentum fraction
+    (none was brought in: momentum p = m v, closed form). Plain wording, no outside reference."""
+    base = dict(kind="ball-ball", group=1, group_balls="cue red blue yellow", group_momentum_residual_pct=2.0,
+                group_momentum_residual_sigma_pct=1.0, group_ke_loss_frac=0.1, e=np.nan)
+    rows = [dict(base, contact=0, t_s=0.300, ball_a="cue", ball_b="red", va_in_x_mm_s=2000.0, va_in_y_mm_s=0.0,
+                 a_phase_in="roll", vb_out_x_mm_s=30.0, vb_out_y_mm_s=0.0),
+            dict(base, contact=1, t_s=0.301, ball_a="red", ball_b="blue", vb_out_x_mm_s=40.0, vb_out_y_mm_s=0.0),
+            dict(kind="ball-cushion", contact=2, t_s=0.302, ball_a="green", cushion="x0", e=0.8, e_sigma=0.01,
+                 group=-1),
+            dict(base, contact=3, t_s=0.302, ball_a="blue", ball_b="yellow", vb_out_x_mm_s=1800.0,
+                 vb_out_y_mm_s=0.0),
+            dict(kind="ball-ball", contact=4, t_s=0.9, ball_a="black", ball_b="pink", group=2,
+                 group_balls="black pink", e=np.nan, group_momentum_residual_pct=np.nan, group_px_in_Ns=0.0,
+                 group_py_in_Ns=0.0, va_in_x_mm_s=0.0, va_in_y_mm_s=0.0, a_phase_in="rest")]
+    out = rep_out.describe_contacts(rows)
+    assert len(out) == 3
+    assert out[0].startswith("C0-C1, C3 at 0.300-0.302 s: 3 touches")
+    assert "cue–red, red–blue, blue–yellow" in out[0] and "cue came in at 2.00 m/s (rolling)" in out[0]
+    assert "yellow left fastest, at 1.80 m/s" in out[0] and "2.0 ± 1.0%" in out[0]
+    assert out[1].startswith("C2 at 0.302 s: green reached cushion x0")
+    assert out[2].startswith("C4 at 0.900 s: black (at rest) and pink touched")
+    assert "%" not in out[2] and "momentum came from other touches" in out[2]
+
+
 # --------------------------------------------------------------------------- pipeline glue
 def test_analyze_writes_everything_atomically(tmp_path, monkeypatch):
     from feltlab.pipeline import AnalyzeSettings, analyze_clip

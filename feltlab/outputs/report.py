@@ -69,6 +69,11 @@ def _phase_word(p) -> str:
     return {"slide": "sliding", "roll": "rolling", "rest": "at rest"}.get(str(p), "")
 
 
+#: Below this approach speed (mm/s) the striking ball is described as at rest (a touch by a
+#: neighbour's push, not a shot); about the tracker's speed noise on a resting ball.
+AT_REST_WORDS_MM_S = 5.0
+
+
 def describe_contact(c: dict) -> str:
     """One contact in plain words (pure).
 
@@ -85,11 +90,13 @@ def describe_contact(c: dict) -> str:
     phase = _phase_word(c.get("a_phase_in", ""))
     if c.get("kind") == "ball-ball":
         vb_out = _speed(c, "vb_out")
-        s = f"{a} arrived at {ms(va_in)}" + (f" ({phase})" if phase else "")
-        if _ok(c.get("cut_angle_deg")):
+        if phase == "at rest" or (math.isfinite(va_in) and va_in < AT_REST_WORDS_MM_S):
+            s = f"{a} (at rest) and {b} touched"
+        elif _ok(c.get("cut_angle_deg")):
+            s = f"{a} arrived at {ms(va_in)}" + (f" ({phase})" if phase else "")
             s += f", {_f(c['cut_angle_deg']):.0f}° cut on {b}"
         else:
-            s += f" and struck {b}"
+            s = f"{a} arrived at {ms(va_in)}" + (f" ({phase})" if phase else "") + f" and struck {b}"
         s += f"; {b} left at {ms(vb_out)}"
         if _ok(ang.get("object_deg")):
             s += f" ({ang['object_deg']:.1f}° off {a}'s line"
@@ -118,6 +125,81 @@ def describe_contact(c: dict) -> str:
     return head + "; ".join(parts) + "."
 
 
+def describe_contacts(rows: list[dict]) -> list[str]:
+    """Plain-words lines for every contact, time order kept; a compound event of several touches
+    (balls touching within one frame, e.g. a rack break) is told once, at its first touch (pure).
+
+    >>> rows = [dict(contact=0, t_s=0.30, kind="ball-ball", ball_a="cue", ball_b="red", group=1,
+    ...              group_balls="cue red blue", va_in_x_mm_s=2000.0, va_in_y_mm_s=0.0, va_out_x_mm_s=90.0,
+    ...              va_out_y_mm_s=0.0, vb_out_x_mm_s=60.0, vb_out_y_mm_s=0.0, a_phase_in="roll",
+    ...              group_momentum_residual_pct=2.0, group_momentum_residual_sigma_pct=1.0,
+    ...              group_ke_loss_frac=0.1),
+    ...         dict(contact=1, t_s=0.301, kind="ball-ball", ball_a="red", ball_b="blue", group=1,
+    ...              group_balls="cue red blue", va_out_x_mm_s=60.0, va_out_y_mm_s=0.0, vb_out_x_mm_s=1850.0,
+    ...              vb_out_y_mm_s=0.0, group_momentum_residual_pct=2.0, group_momentum_residual_sigma_pct=1.0,
+    ...              group_ke_loss_frac=0.1)]
+    >>> describe_contacts(rows)
+    ["C0-C1 at 0.300-0.301 s: 2 touches within one frame among cue, red, blue (cue–red, red–blue): cue came in at 2.00 m/s (rolling); blue left fastest, at 1.85 m/s. The touches were too close together to see each one's e; the group's momentum changed by 2.0 ± 1.0% and it lost 10.0% of its kinetic energy."]
+    """
+    out: list[str] = []
+    groups: dict[int, list[dict]] = {}
+    for c in rows:
+        g = int(_f(c.get("group"))) if _ok(c.get("group")) else -1
+        if g > 0 and not _ok(c.get("e")):
+            groups.setdefault(g, []).append(c)
+    told: set[int] = set()
+    for c in rows:
+        g = int(_f(c.get("group"))) if _ok(c.get("group")) else -1
+        if g in groups and len(groups[g]) > 1:
+            if g not in told:
+                told.add(g)
+                out.append(describe_group(groups[g]))
+            continue
+        out.append(describe_contact(c))
+    return out
+
+
+def describe_group(links: list[dict]) -> str:
+    """One compound event (several touches within one frame) in plain words (pure)."""
+    from feltlab.outputs.plots import contact_ranges
+
+    links = sorted(links, key=lambda c: _f(c.get("t_s")))
+    first = links[0]
+    t0, t1 = _f(first.get("t_s")), _f(links[-1].get("t_s"))
+    balls = str(first.get("group_balls", "") or "").split()
+    pairs = ", ".join(f"{c.get('ball_a')}–{c.get('ball_b')}" for c in links)
+    s = (f"{contact_ranges([int(_f(c['contact'])) for c in links])} at {t0:.3f}-{t1:.3f} s: {len(links)} touches "
+         f"within one frame among {', '.join(balls)} ({pairs})")
+    v_in: dict[str, tuple[float, str]] = {}
+    v_out: dict[str, float] = {}
+    for c in links:
+        for who, pre in ((str(c.get("ball_a")), "va"), (str(c.get("ball_b")), "vb")):
+            vi, vo = _speed(c, f"{pre}_in"), _speed(c, f"{pre}_out")
+            if math.isfinite(vi) and vi > v_in.get(who, (-1.0, ""))[0]:
+                v_in[who] = (vi, _phase_word(c.get("a_phase_in" if pre == "va" else "b_phase_in", "")))
+            if math.isfinite(vo):
+                v_out[who] = max(vo, v_out.get(who, -1.0))
+    words = []
+    if v_in:
+        who, (v, phase) = max(v_in.items(), key=lambda kv: kv[1][0])
+        if v > 0:
+            words.append(f"{who} came in at {ms(v)}" + (f" ({phase})" if phase else ""))
+    if v_out:
+        who, v = max(v_out.items(), key=lambda kv: kv[1])
+        words.append(f"{who} left fastest, at {ms(v)}")
+    if words:
+        s += ": " + "; ".join(words)
+    s += ". The touches were too close together to see each one's e"
+    if _ok(first.get("group_momentum_residual_pct")):
+        s += (f"; the group's momentum changed by "
+              f"{pm(first['group_momentum_residual_pct'], first.get('group_momentum_residual_sigma_pct'), 1)}%")
+    elif _ok(first.get("group_px_in_Ns")) and _f(first.get("group_px_in_Ns")) == 0 == _f(first.get("group_py_in_Ns")):
+        s += "; its balls were all at rest before, so their momentum came from other touches"
+    if _ok(first.get("group_ke_loss_frac")):
+        s += f" and it lost {100 * _f(first['group_ke_loss_frac']):.1f}% of its kinetic energy"
+    return s + "."
+
+
 def group_words(c: dict) -> str:
     """Plain words for one link of a compound event (balls touching within one frame; pure).
 
@@ -125,12 +207,18 @@ def group_words(c: dict) -> str:
     ...     "group_momentum_residual_sigma_pct": 1.0, "group_ke_loss_frac": 0.12})
     "one of the touches of group 2 (blue red yellow), all within one frame, so this touch's own e cannot be seen; the group's momentum changed by 3.0 ± 1.0% and it lost 12.0% of its kinetic energy"
     """
-    s = f"one of the touches of group {int(_f(c['group']))}"
-    if str(c.get("group_balls", "") or ""):
-        s += f" ({c['group_balls']})"
-    s += ", all within one frame, so this touch's own e cannot be seen"
+    n_balls = len(str(c.get("group_balls", "") or "").split())
+    if n_balls == 2:  # a group of one touch: it came within one frame of other touches
+        s = "within one frame of other touches, so this touch's own e cannot be seen"
+    else:
+        s = f"one of the touches of group {int(_f(c['group']))}"
+        if str(c.get("group_balls", "") or ""):
+            s += f" ({c['group_balls']})"
+        s += ", all within one frame, so this touch's own e cannot be seen"
     if _ok(c.get("group_momentum_residual_pct")):
         s += f"; the group's momentum changed by {pm(c['group_momentum_residual_pct'], c.get('group_momentum_residual_sigma_pct'), 1)}%"
+    elif _ok(c.get("group_px_in_Ns")) and _f(c.get("group_px_in_Ns")) == 0 == _f(c.get("group_py_in_Ns")):
+        s += "; both balls were at rest before, so their momentum came from other touches"
     if _ok(c.get("group_ke_loss_frac")):
         s += f" and it lost {100 * _f(c['group_ke_loss_frac']):.1f}% of its kinetic energy"
     return s
@@ -257,8 +345,7 @@ def build_context(shot: dict, contacts: pd.DataFrame | None, plots: dict[str, Pa
         ("rolling resistance μr (deceleration / g)", pm(fr.get("mu_r"), fr.get("mu_r_sigma"), 4)),
         ("software", f"feltlab {shot['software']['version']}"),
     ]
-    sentences = [describe_contact(r) for r in (contacts.to_dict(orient="records")
-                                               if contacts is not None and len(contacts) else [])]
+    sentences = describe_contacts(contacts.to_dict(orient="records") if contacts is not None and len(contacts) else [])
     heads, rows = contacts_rows(contacts)
     return {
         "title": f"Shot report: {shot['clip']['name']}",
