@@ -695,6 +695,29 @@ def test_closeup_arrows_fit_their_crop():
     assert fr_out.closeup_arrow_factor(ov, contact, [0, 1, 2]) == 1.0
 
 
+def test_compound_event_gets_one_closeup_that_takes_in_every_touch():
+    """Touches within one frame are shown once: the first leads with a label naming all of them and a
+    close-up box holding every touch point (plus 3 radii); the others draw no frames of their own;
+    a plain contact is untouched. Geometry and counting only."""
+    cons = [dict(contact=i, t_s=0.30 + 0.001 * i, group=1, e=np.nan, cp_px=np.array([600.0 + 60 * i, 300.0 + 25 * i]),
+                 label=f"C{i}", e_text="e = n/a") for i in range(4)]
+    cons.append(dict(contact=4, t_s=0.9, group=-1, e=0.8, cp_px=np.array([100.0, 100.0]), label="C4", e_text="x"))
+    fr_out._merge_groups(cons)
+    lead = cons[0]
+    assert lead["label"] == "C0-C3: 4 touches within one frame" and "not measurable" in lead["e_text"]
+    assert [bool(c.get("follower")) for c in cons] == [False, True, True, True, False]
+    assert cons[4]["label"] == "C4"
+    n = 2
+    ov = fr_out.Overlay(n_frames=n, fps=60.0, image_size=(1280, 720), px={}, tip={}, speed={}, colours={},
+                        radius_px=11.0, arrow_s=0.3, legend_mm_s=1000.0, legend_px=300.0, contacts=cons)
+    x0, y0, x1, y1 = fr_out.closeup_box(ov, lead)
+    for c in cons[:4]:
+        assert x0 + 3 * 11.0 - 1 <= c["cp_px"][0] <= x1 - 3 * 11.0 + 1
+        assert y0 + 3 * 11.0 - 1 <= c["cp_px"][1] <= y1 - 3 * 11.0 + 1
+    assert (x1 - x0) / (y1 - y0) == pytest.approx(1.6, rel=0.02)  # the close-up's 16:10 shape kept
+    assert [c["contact"] for c in fr_out.framed_contacts(ov)] == [0, 4]
+
+
 def test_compound_event_labels_name_their_contacts():
     """A compound event's label on the table diagram lists its own contact numbers as runs (a group of one
     inside another group's range had read 'C2-C2  1 touches'); plain counting, no outside reference needed."""

@@ -226,11 +226,46 @@ def build_overlay(tracks: pd.DataFrame, contacts: pd.DataFrame, calibration, fps
         c["label"] = _contact_label(c)
         c["e_text"] = e_text(c.get("e", np.nan), c.get("e_sigma", np.nan))
         cons.append(c)
+    _merge_groups(cons)
     corner = _quiet_corner(calibration, (w, h))
     return Overlay(n_frames=n_frames, fps=fps, image_size=(w, h), px=px, tip=tip, speed=speed, colours=colours,
                    radius_px=R * px_per_mm, arrow_s=arrow_s, legend_mm_s=legend,
                    legend_px=legend * arrow_s * px_per_mm, contacts=cons, seen=seen, panel_corner=corner,
                    font_px=max(13, int(round(h / 40.0))))
+
+
+def _merge_groups(cons: list[dict]) -> None:
+    """A compound event (several touches within one frame, e NaN) is shown once: its first touch
+    leads (label naming all its contacts, a close-up taking in every touch point) and the others
+    are marked ``follower`` (no frames of their own). Edits the contact dicts in place."""
+    from feltlab.outputs.plots import contact_ranges
+
+    groups: dict[int, list[dict]] = {}
+    for c in cons:
+        try:
+            g = float(c.get("group", -1))
+        except (TypeError, ValueError):
+            continue
+        if np.isfinite(g) and g > 0 and not np.isfinite(float(c.get("e", np.nan))):
+            groups.setdefault(int(g), []).append(c)
+    for members in groups.values():
+        if len(members) < 2:
+            continue
+        members.sort(key=lambda c: float(c["t_s"]))
+        lead = members[0]
+        lead["label"] = f"{contact_ranges([m['contact'] for m in members])}: {len(members)} touches within one frame"
+        lead["e_text"] = "e not measurable (touches too close together)"
+        pts = [m["cp_px"] for m in members if m.get("cp_px") is not None and np.isfinite(m["cp_px"]).all()]
+        if pts:
+            lead["closeup_pts_px"] = np.array(pts, float)
+        lead["group_ids"] = [m["contact"] for m in members]
+        for m in members[1:]:
+            m["follower"] = True
+
+
+def framed_contacts(ov: "Overlay") -> list[dict]:
+    """The contacts that get their own frames and close-up (a compound event's followers do not)."""
+    return [c for c in ov.contacts if not c.get("follower")]
 
 
 def _quiet_corner(calibration, size: tuple[int, int]) -> str:
@@ -346,9 +381,10 @@ def draw_overlay(image: np.ndarray, ov: Overlay, frame: int, t_s: float | None =
     r = max(4, int(round(ov.radius_px * sc)))
     # Contacts: normal line, contact point and e, held for a while after the contact.
     shown = []
+    focus_ids = set(focus_contact.get("group_ids", [focus_contact["contact"]])) if focus_contact is not None else set()
     for c in ov.contacts:
         dt = t - c["t_s"]
-        if (focus_contact is not None and c["contact"] == focus_contact["contact"]) or (
+        if (focus_contact is not None and c["contact"] in focus_ids) or (
                 focus_contact is None and 0 <= dt <= CONTACT_HOLD_S):
             shown.append(c)
     for c in shown:
@@ -503,7 +539,7 @@ def render_annotations(video_path: Path, ov: Overlay, out_dir: Path, write_video
     Frames before ``start_frame`` (outside an analysed frame range) are skipped.
     """
     out_dir = Path(out_dir)
-    plan = contact_frame_plan(pd.DataFrame(ov.contacts), ov.fps, ov.n_frames) if write_frames else []
+    plan = contact_frame_plan(pd.DataFrame(framed_contacts(ov)), ov.fps, ov.n_frames) if write_frames else []
     want: dict[int, list[tuple[int, str]]] = {}
     for c, tag, k in plan:
         want.setdefault(k, []).append((c, tag))
@@ -575,12 +611,21 @@ def render_annotations(video_path: Path, ov: Overlay, out_dir: Path, write_video
 
 
 def closeup_box(ov: Overlay, contact: dict) -> tuple[int, int, int, int]:
-    """Crop (x0, y0, x1, y1) px around a contact: 16 x 10 ball radii, at least 240 x 150 px, inside the image."""
+    """Crop (x0, y0, x1, y1) px around a contact: 16 x 10 ball radii, at least 240 x 150 px, inside the image;
+    for a compound event, around all its touch points (``closeup_pts_px``) with 3 ball radii to spare."""
     w, h = ov.image_size
     hw = int(min(w // 2, max(120, 8 * ov.radius_px)))
     hh = int(min(h // 2, max(75, 5 * ov.radius_px)))
     cp = contact.get("cp_px")
     cx, cy = (w // 2, h // 2) if cp is None or not np.isfinite(cp).all() else _pt(cp)
+    pts = contact.get("closeup_pts_px")
+    if pts is not None and len(pts):
+        lo, hi = np.min(pts, axis=0), np.max(pts, axis=0)
+        cx, cy = _pt((lo + hi) / 2)
+        half = (hi - lo) / 2 + 3 * ov.radius_px
+        # keep the 16:10 shape: grow both sides together
+        f = max(1.0, half[0] / hw, half[1] / hh)
+        hw, hh = int(min(w // 2, hw * f)), int(min(h // 2, hh * f))
     x0 = int(np.clip(cx - hw, 0, w - 2 * hw))
     y0 = int(np.clip(cy - hh, 0, h - 2 * hh))
     return x0, y0, x0 + 2 * hw, y0 + 2 * hh
