@@ -323,6 +323,32 @@ def test_contact_labels_on_speed_plot_do_not_overlap(tmp_path, monkeypatch):
     plt.close(fig)
 
 
+def test_speed_plot_of_a_break_keeps_the_fastest_balls_and_one_label_per_group(tmp_path, monkeypatch):
+    """Eight balls set moving by one compound event: the panels are the cue ball and the fastest
+    others (MAX_SPEED_PANELS in all), and the group's touches share one label. Counting only."""
+    tracks, contacts, segments, _ = synthetic_shot()
+    t = np.sort(tracks["t_s"].unique())
+    rows, cs = [], []
+    names = [f"ball-{i}" for i in range(1, 8)]
+    for i, b in enumerate(names):  # ball-i leaves at (100 + 300 i) mm/s
+        v = 100.0 + 300.0 * i
+        for k, tk in enumerate(t):
+            rows.append(dict(frame=k, t_s=tk, ball=b, x_mm=1500.0 + v * tk, y_mm=300.0 + 100 * i, vx_mm_s=v,
+                             vy_mm_s=0.0, sx_mm=0.2, sy_mm=0.2, visible=1))
+        cs.append(dict(contacts.iloc[0].to_dict(), contact=i, ball_a="cue", ball_b=b, group=1, e=np.nan,
+                       t_s=0.3 + 0.001 * i))
+    tr = pd.concat([tracks[tracks["ball"] == "cue"], pd.DataFrame(rows)], ignore_index=True)
+    kept = []
+    monkeypatch.setattr(plot_out.plt, "close", lambda fig=None: kept.append(fig))
+    plot_out.speed_plot(tr, None, pd.DataFrame(cs), tmp_path / "speed.png")
+    fig = kept[-1]
+    panels = [ax.get_ylabel().split("\n")[0] for ax in fig.axes]
+    assert panels == ["cue"] + [f"ball-{i}" for i in range(8 - plot_out.MAX_SPEED_PANELS + 1, 8)]
+    assert [t.get_text() for t in fig.axes[0].texts] == ["C0-C6"]
+    import matplotlib.pyplot as plt
+    plt.close(fig)
+
+
 # --------------------------------------------------------------------------- report
 def _report_context(tmp_path, clip_name="shot.mp4", ball="red"):
     tracks, contacts, segments, _ = synthetic_shot(ball)

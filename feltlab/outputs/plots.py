@@ -98,6 +98,12 @@ def speed_plot(tracks: pd.DataFrame, segments: pd.DataFrame | None, contacts: pd
     if contacts is not None and len(contacts):  # the balls the shot is about
         names = {str(b) for b in contacts["ball_a"]} | {str(b) for b in contacts["ball_b"]}
         balls = [b for b in balls if b in names] or balls
+    if len(balls) > MAX_SPEED_PANELS:  # too many for a panel each: the first ball, then the fastest
+        peak = {b: float(np.nanmax(np.hypot(g["vx_mm_s"].to_numpy(float), g["vy_mm_s"].to_numpy(float)),
+                                   initial=0.0))
+                for b, g in tracks[tracks["ball"].isin(balls)].groupby("ball")}
+        keep = set([balls[0]] + sorted(balls[1:], key=lambda b: -peak.get(b, 0.0))[: MAX_SPEED_PANELS - 1])
+        balls = [b for b in balls if b in keep]
     balls = balls[:MAX_SPEED_PANELS] or ball_order(tracks["ball"].unique())[:1]
     cols = ball_colours(tracks["ball"].unique(), on_paper=True)
     dashes = ball_dashes(tracks["ball"].unique())
@@ -142,9 +148,9 @@ def speed_plot(tracks: pd.DataFrame, segments: pd.DataFrame | None, contacts: pd
                 ax.axvline(c["t_s"], color="0.3", ls=":", lw=1.3)
     if contacts is not None and len(contacts):
         span = max(tmax - tmin, 1e-9)
-        for c, row in zip(contacts.sort_values("t_s").to_dict("records"),
-                          contact_label_rows(contacts.sort_values("t_s")["t_s"].to_numpy(float), span)):
-            axes[0].annotate(f"C{c['contact']}", (c["t_s"], 1.0), xycoords=("data", "axes fraction"),
+        marks = contact_marks(contacts)
+        for (t, text), row in zip(marks, contact_label_rows(np.array([t for t, _ in marks]), span)):
+            axes[0].annotate(text, (t, 1.0), xycoords=("data", "axes fraction"),
                              xytext=(2, -2 - 11 * row), textcoords="offset points", va="top", fontsize=9,
                              color="0.15")
     axes[-1].set_xlabel("time (s)")
@@ -166,6 +172,32 @@ def speed_plot(tracks: pd.DataFrame, segments: pd.DataFrame | None, contacts: pd
     fig.savefig(path, dpi=DPI)
     plt.close(fig)
     return Path(path)
+
+
+def contact_marks(contacts: pd.DataFrame) -> list[tuple[float, str]]:
+    """(time s, label) of each contact for the speed plot, in time order; a compound event (several
+    touches within one frame, e not measured) gets one label for all its touches, at the first.
+
+    >>> contact_marks(pd.DataFrame({"contact": [0, 1, 2], "t_s": [0.3, 0.301, 0.9], "group": [1, 1, -1],
+    ...                             "e": [float("nan"), float("nan"), 0.8]}))
+    [(0.3, 'C0-C1'), (0.9, 'C2')]
+    """
+    rows = contacts.sort_values("t_s").to_dict("records")
+    groups: dict[int, list[int]] = {}
+    for c in rows:
+        g = _group_id(c)
+        if g > 0 and not np.isfinite(float(c.get("e", np.nan))):
+            groups.setdefault(g, []).append(int(c["contact"]))
+    out, done = [], set()
+    for c in rows:
+        g = _group_id(c)
+        if g in groups and len(groups[g]) > 1:
+            if g not in done:
+                done.add(g)
+                out.append((float(c["t_s"]), contact_ranges(groups[g])))
+            continue
+        out.append((float(c["t_s"]), f"C{c['contact']}"))
+    return out
 
 
 def contact_label_rows(t_s: np.ndarray, span_s: float, min_gap: float = 0.045) -> list[int]:
