@@ -419,6 +419,18 @@ def test_report_tells_a_compound_event_once():
     assert "%" not in out[2] and "momentum came from other touches" in out[2]
 
 
+def test_report_never_calls_an_energy_gain_a_negative_loss():
+    """KE after > KE before cannot come from a contact (energy conservation, closed form): the report
+    says it rose and why, never 'lost -38.8%'."""
+    gain = rep_out.energy_words(-0.388, 0.2, group=True)
+    assert "rose 38.8 ± 20.0%" in gain and "-" not in gain.split("(")[0]
+    assert rep_out.energy_words(0.095) == "9.5% of the kinetic energy lost"
+    c = dict(contact=3, t_s=0.5, kind="ball-cushion", ball_a="red", cushion="y0", e=1.02, e_sigma=0.03,
+             ke_loss_frac=-0.04)
+    s = rep_out.describe_contact(c)
+    assert "lost" not in s and "kinetic energy rose 4.0% (a contact cannot add energy" in s
+
+
 # --------------------------------------------------------------------------- pipeline glue
 def test_analyze_writes_everything_atomically(tmp_path, monkeypatch):
     from feltlab.pipeline import AnalyzeSettings, analyze_clip

@@ -121,8 +121,25 @@ def describe_contact(c: dict) -> str:
     else:
         parts.append(f"e = {pm(c.get('e'), c.get('e_sigma'))}")
     if _ok(c.get("ke_loss_frac")):
-        parts.append(f"{100 * _f(c['ke_loss_frac']):.1f}% of the kinetic energy lost")
+        parts.append(energy_words(c["ke_loss_frac"], c.get("ke_loss_sigma_frac")))
     return head + "; ".join(parts) + "."
+
+
+def energy_words(loss_frac, sigma=None, group: bool = False) -> str:
+    """The kinetic-energy change in words: a loss as measured; a gain (no contact makes energy,
+    so it is measurement error, or for a group a push from outside it) says so instead of a negative loss.
+
+    >>> energy_words(0.36)
+    '36.0% of the kinetic energy lost'
+    >>> energy_words(-0.388, 0.2, group=True)
+    'its kinetic energy rose 38.8 ± 20.0% (a contact cannot add energy: within its error, or pushed from outside)'
+    """
+    f, sg = _f(loss_frac), _f(sigma)
+    if f >= 0:
+        return f"it lost {100 * f:.1f}% of its kinetic energy" if group else f"{100 * f:.1f}% of the kinetic energy lost"
+    amount = pm(-100 * f, 100 * sg, 1) if math.isfinite(sg) and sg > 0 else f"{-100 * f:.1f}"
+    why = "within its error, or pushed from outside" if group else "measurement error"
+    return f"{'its ' if group else ''}kinetic energy rose {amount}% (a contact cannot add energy: {why})"
 
 
 def describe_contacts(rows: list[dict]) -> list[str]:
@@ -196,7 +213,7 @@ def describe_group(links: list[dict]) -> str:
     elif _ok(first.get("group_px_in_Ns")) and _f(first.get("group_px_in_Ns")) == 0 == _f(first.get("group_py_in_Ns")):
         s += "; its balls were all at rest before, so their momentum came from other touches"
     if _ok(first.get("group_ke_loss_frac")):
-        s += f" and it lost {100 * _f(first['group_ke_loss_frac']):.1f}% of its kinetic energy"
+        s += " and " + energy_words(first["group_ke_loss_frac"], first.get("group_ke_loss_sigma_frac"), group=True)
     return s + "."
 
 
@@ -220,7 +237,7 @@ def group_words(c: dict) -> str:
     elif _ok(c.get("group_px_in_Ns")) and _f(c.get("group_px_in_Ns")) == 0 == _f(c.get("group_py_in_Ns")):
         s += "; both balls were at rest before, so their momentum came from other touches"
     if _ok(c.get("group_ke_loss_frac")):
-        s += f" and it lost {100 * _f(c['group_ke_loss_frac']):.1f}% of its kinetic energy"
+        s += " and " + energy_words(c["group_ke_loss_frac"], c.get("group_ke_loss_sigma_frac"), group=True)
     return s
 
 
