@@ -252,3 +252,28 @@ def test_mean_energy_loss_per_kind_matches_the_closed_form() -> None:
     k = stats.kind_summary(df).set_index("kind")
     assert k.loc["ball-ball", "ke_loss_frac_mean"] == pytest.approx(np.mean((1 - e**2) / 2))
     assert math.isnan(stats.kind_summary(df.drop(columns="ke_loss_frac"))["ke_loss_frac_mean"].iloc[0])
+
+
+def test_e_plot_counts_only_contacts_with_a_measured_e(tmp_path: Path, monkeypatch) -> None:
+    """Touches of a compound event carry no e (NaN): they are not points of the e-vs-speed plot,
+    its legend counts only the drawn contacts, and the fitted line spans their speeds only."""
+    from feltlab.batch import series_report as sr
+
+    rng = np.random.default_rng(5)
+    v = np.array([900.0, 1200.0, 1500.0, 1800.0, 2700.0, 2900.0])
+    e = np.array([0.95, 0.94, 0.95, 0.94, np.nan, np.nan])
+    c = pd.DataFrame({"clip": "a.mp4", "clip_sha256": "0" * 64, "kind": "ball-ball", "speed_in_mm_s": v,
+                      "e": e + np.where(np.isfinite(e), rng.normal(0, 0.002, 6), 0.0),
+                      "e_sigma": np.where(np.isfinite(e), 0.004, np.nan)})
+    shots = pd.DataFrame({"clip": ["a.mp4"], "clip_sha256": ["0" * 64], "shot_speed_mm_s": [2000.0]})
+    res = sr.compute_series(sr.SeriesData(c, shots))
+    plt = sr._plt()
+    kept = []
+    monkeypatch.setattr(plt, "close", lambda fig=None: kept.append(fig))
+    sr.plot_e_vs_speed(res, tmp_path / "e.png")
+    ax = kept[-1].axes[0]
+    labels = ax.get_legend_handles_labels()[1]
+    assert "contacts (n=4)" in labels
+    line = next(l for l in ax.get_lines() if l.get_label().startswith("WLS line"))
+    assert max(line.get_xdata()) == pytest.approx(1.8)
+    plt.close(kept[-1])

@@ -234,6 +234,9 @@ def plot_e_vs_speed(res: SeriesResult, path: Path) -> Path | None:
         e = g["e"].to_numpy(float)
         s = g["e_sigma"].to_numpy(float)
         out = g["outlier"].to_numpy(bool)
+        # touches whose e could not be measured (compound events) are not points of this plot
+        has_e = np.isfinite(e) & np.isfinite(v)
+        v, e, s, out = v[has_e], e[has_e], s[has_e], out[has_e]
         if res.spec is not None:
             for r in res.spec.bands:
                 if r.band.kind != kind:
