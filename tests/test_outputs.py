@@ -431,6 +431,17 @@ def test_report_never_calls_an_energy_gain_a_negative_loss():
     assert "lost" not in s and "kinetic energy rose 4.0% (a contact cannot add energy" in s
 
 
+def test_report_does_not_show_an_exact_fit_as_a_zero_residual():
+    """Four marked points fix a pinhole camera exactly (8 equations, 8 unknowns: a plane homography,
+    Hartley & Zisserman, Multiple View Geometry, 2nd ed., sec. 4.1), so a manual calibration's ~0 px
+    residual is no check: the report says so; an automatic fit keeps its residual."""
+    manual = rep_out.calibration_words({"method": "manual", "residual_px": 3e-7, "residual_mm": 8e-7,
+                                        "px_per_mm": 0.98})
+    assert "0.00 px" not in manual and "exact fit" in manual and "0.980 px/mm" in manual
+    auto = rep_out.calibration_words({"method": "auto", "residual_px": 0.44, "residual_mm": 1.13, "px_per_mm": 0.392})
+    assert auto == "auto, residual 0.44 px / 1.13 mm, 0.392 px/mm"
+
+
 # --------------------------------------------------------------------------- pipeline glue
 def test_analyze_writes_everything_atomically(tmp_path, monkeypatch):
     from feltlab.pipeline import AnalyzeSettings, analyze_clip

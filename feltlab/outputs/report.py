@@ -142,6 +142,27 @@ def energy_words(loss_frac, sigma=None, group: bool = False) -> str:
     return f"{'its ' if group else ''}kinetic energy rose {amount}% (a contact cannot add energy: {why})"
 
 
+def calibration_words(cal: dict) -> str:
+    """The calibration fact line. Four hand-marked corners determine the camera exactly (8 numbers for
+    at most 8 unknowns), so their residual is ~0 by construction and says nothing: say so instead.
+
+    >>> calibration_words({"method": "manual", "residual_px": 1e-6, "residual_mm": 2e-6, "px_per_mm": 0.98})
+    'manual, from 4 marked points (an exact fit: no residual to check it by), 0.980 px/mm'
+    >>> calibration_words({"method": "auto", "residual_px": 0.44, "residual_mm": 1.13, "px_per_mm": 0.392})
+    'auto, residual 0.44 px / 1.13 mm, 0.392 px/mm'
+    """
+    method, res = cal.get("method"), _f(cal.get("residual_px"))
+    scale = f"{pm(cal.get('px_per_mm'), None, 3)} px/mm"
+    if method == "manual" and math.isfinite(res) and res < EXACT_FIT_PX:
+        return f"manual, from 4 marked points (an exact fit: no residual to check it by), {scale}"
+    return (f"{method}, residual {pm(cal.get('residual_px'), None, 2)} px / {pm(cal.get('residual_mm'), None, 2)} mm, "
+            f"{scale}")
+
+
+#: A manual calibration's residual below this (px) is the exact fit of four points, not a check.
+EXACT_FIT_PX = 0.005
+
+
 def describe_contacts(rows: list[dict]) -> list[str]:
     """Plain-words lines for every contact, time order kept; a compound event of several touches
     (balls touching within one frame, e.g. a rack break) is told once, at its first touch (pure).
@@ -355,8 +376,7 @@ def build_context(shot: dict, contacts: pd.DataFrame | None, plots: dict[str, Pa
         ("duration", f"{shot['duration_s']:.3f} s" if shot.get("duration_s") is not None else "n/a"),
         ("table", f"{shot['table']['preset']} ({shot['table']['length_mm']:.0f} x {shot['table']['width_mm']:.0f} mm)"),
         ("ball", f"{shot['ball']['diameter_mm']:.2f} mm, {shot['ball']['mass_kg'] * 1000:.0f} g"),
-        ("calibration", f"{cal.get('method')}, residual {pm(cal.get('residual_px'), None, 2)} px"
-                        f" / {pm(cal.get('residual_mm'), None, 2)} mm, {pm(cal.get('px_per_mm'), None, 3)} px/mm"),
+        ("calibration", calibration_words(cal)),
         ("balls found", ", ".join(ball_order(str(b.get("ball")) for b in shot.get("balls", []))) or "none"),
         ("cloth sliding friction μs", pm(fr.get("mu_s"), fr.get("mu_s_sigma"))),
         ("rolling resistance μr (deceleration / g)", pm(fr.get("mu_r"), fr.get("mu_r_sigma"), 4)),
