@@ -648,7 +648,8 @@ def _colour_edge_points(img: np.ndarray, centre: np.ndarray, r_exp: float, setti
 
     Used where a ray runs into a touching ball: the boundary between two
     balls is the strongest colour change one radius out (stripe and number
-    boundaries lie further in).
+    boundaries lie further in on this ball, further out on the neighbour:
+    the caller keeps [lo, hi] close to 1, DetectionSettings.touch_edge_lo/hi).
     """
     n = settings.n_rays
     th = np.linspace(0, 2 * np.pi, n, endpoint=False).astype(np.float32)
@@ -672,14 +673,38 @@ def _colour_edge_points(img: np.ndarray, centre: np.ndarray, r_exp: float, setti
     return pts, y1, inside.all(axis=1) & (y1 > 0)
 
 
+def _toward_neighbour(c: np.ndarray, r: float, others: np.ndarray | None, n_rays: int,
+                      near: float = 1.6, far: float = 2.6) -> np.ndarray:
+    """(n_rays,) bool: rays from image point ``c`` (px) that cross the disc of radius ``r`` about
+    another ball's centre ``near``-``far`` radii away (a touching or close neighbour; nearer is
+    the same ball's second seed, rigid balls never being closer than 2 r)."""
+    out = np.zeros(n_rays, bool)
+    if others is None or len(others) == 0:
+        return out
+    v = np.asarray(others, float).reshape(-1, 2) - c
+    dist = np.hypot(v[:, 0], v[:, 1])
+    v = v[(dist >= near * r) & (dist <= far * r)]
+    if not len(v):
+        return out
+    th = np.linspace(0, 2 * np.pi, n_rays, endpoint=False)
+    u = np.column_stack([np.cos(th), np.sin(th)])
+    along = u @ v.T  # (n_rays, n_other)
+    perp = np.abs(u[:, :1] * v[None, :, 1] - u[:, 1:] * v[None, :, 0])
+    return ((along > 0) & (perp < r)).any(axis=1)
+
+
 def refine_centre(d: np.ndarray, x0: float, y0: float, r_exp: float,
                   settings: DetectionSettings = DetectionSettings(), image: np.ndarray | None = None,
-                  threshold_dn: float | None = None) -> dict | None:
+                  threshold_dn: float | None = None, others: np.ndarray | None = None) -> dict | None:
     """Sub-pixel silhouette centre near (x0, y0) in foreground-strength image ``d`` (Delta-E units).
 
     With ``image`` (the BGR frame) and ``threshold_dn``, rays that end on
-    other foreground (a touching ball in a cluster) use the image instead:
-    the steepest rise of the colour distance from this ball's own colour.
+    other foreground (a touching ball in a cluster, or the ball's own
+    motion smear) use the image instead: the strongest colour change. A
+    blocked ray aimed at another ball's disc (``others``: (n, 2) image px of
+    the frame's other seeds and fits, centres 1.6-2.6 radii away) looks for
+    it within DetectionSettings.touch_edge_lo/hi radii (the boundary with a
+    neighbour lies one radius out); other blocked rays within 0.8-1.25.
     Returns dict(x, y, radius, sigma_px, support, fixed_radius) or None when
     the silhouette is not ball-like.
     """
@@ -703,6 +728,11 @@ def refine_centre(d: np.ndarray, x0: float, y0: float, r_exp: float,
                 if own is None:
                     own = cv2.GaussianBlur(ip, (0, 0), settings.edge_smooth_px)
                 p2, s2, v2 = _colour_edge_points(own, c, r_exp, settings)
+                nb = blocked & _toward_neighbour(c + [xa, ya], r_exp, others, settings.n_rays)
+                if nb.any():
+                    p3, s3, v3 = _colour_edge_points(own, c, r_exp, settings, settings.touch_edge_lo,
+                                                     settings.touch_edge_hi)
+                    p2[nb], s2[nb], v2[nb] = p3[nb], s3[nb], v3[nb]
                 pts[blocked], stren[blocked], valid[blocked] = p2[blocked], s2[blocked], v2[blocked]
         if valid.sum() < 6:
             return None
@@ -1155,7 +1185,8 @@ def detect_frame(image: np.ndarray, calibration: Calibration, settings: Detectio
         r_exp, _, _ = background.lookup(gx, gy)
         ref = streak_centre(gx, gy, r_exp) if settings.streak_fit else None
         if ref is None:
-            ref = refine_centre(edge_map(d, de, gx, gy, r0, settings), gx, gy, r_exp, settings, image, thr)
+            others = np.vstack([seeds_px] + [[[f[0]["x"], f[0]["y"]]] for f in found])
+            ref = refine_centre(edge_map(d, de, gx, gy, r0, settings), gx, gy, r_exp, settings, image, thr, others)
         if ref is None:
             return False
         r_exp, ox, oy = background.lookup(ref["x"], ref["y"])
@@ -1169,6 +1200,8 @@ def detect_frame(image: np.ndarray, calibration: Calibration, settings: Detectio
         found.append((ref, r_exp, ox, oy))
         return True
 
+    # every seed: where another ball may touch the one being fitted (refine_centre's others)
+    seeds_px = cands[:, :2] + [x0, y0] if len(cands) else np.zeros((0, 2))
     for cx, cy, sc in cands:
         accept(cx + x0, cy + y0)
     if settings.explain_clusters:

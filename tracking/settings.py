@@ -339,6 +339,21 @@ class DetectionSettings:
     ray_max: float = 1.6
     #: Radial sampling step along a ray (px).
     ray_step_px: float = 0.25
+    #: Where a ray ends on another ball (foreground at its end, aimed at
+    #: another seed or fit 1.6-2.6 radii away: a touching or near neighbour),
+    #: the edge is the strongest colour change between touch_edge_lo and
+    #: touch_edge_hi x the expected radius (detect._colour_edge_points; rays
+    #: that end on the ball's own motion smear keep 0.8-1.25, where the
+    #: narrow window cost fast balls fitted as circles 2-5 mm). Rigid
+    #: balls: the boundary with a neighbour, or with the cloth showing in a
+    #: gap, lies at one radius from the centre, so the window need only hold
+    #: the centre's error during the fit plus the edge blur (~1 px at 12-15
+    #: px radius: 0.1). A wider window (0.8-1.25 until 2026-12-03) let the
+    #: neighbour's own markings beyond the contact point win: a stripe's or
+    #: number circle's edge 1.1-1.25 radii out pulled the centre 2-3 px into
+    #: the neighbour (blue on blue in rack9931, black on blue in rack8853).
+    touch_edge_lo: float = 0.9
+    touch_edge_hi: float = 1.1
     #: Gaussian pre-smoothing of the difference image before differentiating
     #: (px); small so that a 10 px radius edge is not biased.
     edge_smooth_px: float = 0.8
