@@ -20,8 +20,9 @@ Definitions (table plane, mm, s, kg; results in N·s, J, degrees):
   to ball b's velocity change; departure angles are signed from a's incoming direction.
 * cushion incidence: between ``-v`` and ``n``; rebound: between ``v'`` and ``n``.
 
-Uncertainties come from first-order propagation of the chain covariances (balls are fitted
-independently, so their covariances are independent).
+Uncertainties come from first-order propagation of the chain covariances. The balls are fitted
+one at a time, but the two balls of a ball-ball contact share the slip shift of their cloth-slip
+priors, so their fits are correlated: their joint covariance is in :mod:`physics.pair_cov`.
 """
 from __future__ import annotations
 

@@ -89,6 +89,10 @@ class ChainLayout:
     #: (n_break,) mm/s its sigma along n; None: X = 0, n = dv direction, sigma from settings.
     slip_shift: np.ndarray | None = None
     slip_shift_sigma: np.ndarray | None = None
+    #: per break (n_break,): where the shift prior is the OTHER ball's estimate (pass 3,
+    #: physics.pipeline._shared_slip_shifts), the sigma (mm/s) of the pass-2 prior both balls
+    #: started from, NaN elsewhere; used for the two balls' joint covariance (physics.pair_cov).
+    slip_shift_s0: np.ndarray | None = None
 
     @property
     def links(self) -> np.ndarray:
@@ -274,6 +278,16 @@ def _link_state(x: np.ndarray, lay: ChainLayout, i: int):
     return prev, tau, v_end, u_end, v1, u_start, v1 - v_end
 
 
+def link_sigma_along(x: np.ndarray, lay: ChainLayout, s: PhysicsSettings, i: int) -> float:
+    """Sigma (mm/s) of break i's slip-prior residual along the shift direction n, as used in the
+    fit (:func:`_link_residuals`; includes the shift prior's own sigma); NaN without a shift."""
+    st = _link_state(x, lay, i)
+    if st is None or lay.slip_shift is None or not np.all(np.isfinite(lay.slip_shift[i])):
+        return float("nan")
+    sp = float(np.hypot(*st[6]))
+    return float(np.hypot(np.hypot(s.slip_sigma_rel * sp, s.slip_sigma_mm_s), float(lay.slip_shift_sigma[i])))
+
+
 def _link_residuals(x: np.ndarray, lay: ChainLayout, s: PhysicsSettings, i: int) -> list[float]:
     """The two slip-prior residuals (along, across the shift direction; in sigmas) of break i."""
     st = _link_state(x, lay, i)
@@ -327,6 +341,11 @@ class ChainFit:
     xy: np.ndarray = field(repr=False)
     used: np.ndarray = field(repr=False)
     cost: float = float("nan")
+    #: k of ``cov = k (J^T J)^-1``: reduced chi^2 (floored) x residual autocorrelation time
+    cov_scale: float = float("nan")
+    #: information of the samples alone (the J^T J / k of the data rows; priors left out): the
+    #: sampling part of the covariance is ``cov @ info_data @ cov`` (physics.pair_cov)
+    info_data: np.ndarray | None = field(default=None, repr=False)
 
     def state(self, t, x: np.ndarray | None = None):
         """Positions (T,2) mm and velocities (T,2) mm/s of the fitted model at times ``t`` (s)."""
@@ -572,15 +591,22 @@ def fit_chain(
     Js = Jf / d
     cov[np.ix_(free, free)] = np.linalg.pinv(Js.T @ Js, rcond=1e-12) / np.outer(d, d) * chi2
     P, _, seg_u = chain_eval(x_fit, lay, tu)
+    k_cov = chi2
     if s.residual_corr_inflation and len(tu):
         # detection errors of a moving ball are correlated from frame to frame (shading and
         # blur change slowly along its path): the covariance of white errors is too small by
         # the residuals' integrated autocorrelation time
         r = np.clip((P - xyu) / sgu, -s.f_scale, s.f_scale)
         series = [r[seg_u == k, i] for k in np.unique(seg_u) for i in range(2)]
-        cov *= max(integrated_autocorr_time(series, s.corr_max_lag), 1.0)
+        tau = max(integrated_autocorr_time(series, s.corr_max_lag), 1.0)
+        cov *= tau
+        k_cov *= tau
     rms = float(np.sqrt(np.mean(np.sum((P - xyu) ** 2, axis=1)))) if len(tu) else float("nan")
-    return ChainFit(lay, x_fit, cov, rms, int(len(tu)), float(chi2), t, xy, used, float(res.cost))
+    info = np.zeros((lay.n_par, lay.n_par))
+    Jd = J[:n_data][:, free]
+    info[np.ix_(free, free)] = Jd.T @ Jd / k_cov
+    return ChainFit(lay, x_fit, cov, rms, int(len(tu)), float(chi2), t, xy, used, float(res.cost),
+                    float(k_cov), info)
 
 
 def integrated_autocorr_time(series: list[np.ndarray], max_lag: int = 50) -> float:

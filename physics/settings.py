@@ -114,6 +114,16 @@ class PhysicsSettings:
     #: after the contact is uncertain by mu_s g times it.
     model_time_cushion_s: float = 0.0015
     model_time_ball_s: float = 0.0003
+    #: Vertical friction at a ball-ball contact (the slip shift X n, see slip_mu_bb_max) lifts one
+    #: ball off the cloth: its vertical speed is v_z = p_z / m and X = (5/2) p_z / m, so
+    #: v_z = (2/5) |X|, and it flies t_h = 2 v_z / g (projectile motion) with no cloth friction;
+    #: the other ball is pressed into the cloth and may rebound, by at most as much (cloth
+    #: restitution < 1). The fitted slide starts at the break, so each sliding ball's velocity
+    #: just after is uncertain by up to mu_s g t_h = (4/5) mu_s |X|, taken as uniform on
+    #: [0, that] (sigma = bound / sqrt 3). Seen on an independent engine (MuJoCo, mj9101: the cue
+    #: ball's normal velocity flat for ~12 ms after a rolling hit, v_z 58 mm/s, e +0.007 in every
+    #: noise draw). Derivation ours; not tuned.
+    hop_sigma: bool = True
     #: A ball leaves a cushion sliding (its spin is not reversed with its velocity), but a short
     #: slide can hide in the samples: its path differs from a roll from the break (whose time the
     #: fit may move) by at most ~ dv (t_s - t)^2 / (2 t_s) over the slide of duration t_s, with
@@ -184,6 +194,11 @@ class PhysicsSettings:
     #: Third pass: the shift is the same X n for both balls of a contact, so each ball's prior
     #: on X takes in the other ball's estimate (physics.pipeline._shared_slip_shifts).
     slip_share_shift: bool = True
+    #: ... and e's sigma of such a contact is propagated with the two balls' joint covariance
+    #: (physics.pair_cov): each fit follows the other ball's data through the shared shift, so
+    #: their post-contact velocities along n err together and largely cancel in e. First-order
+    #: error propagation, not tuned.
+    pair_joint_cov: bool = True
     #: A linked contact whose fitted slip residuals still add up to more than this chi^2 (2 degrees
     #: of freedom; 13.8 is the 99.9 % point) contradicts the prior: the motion model on one side is
     #: wrong there (e.g. a roll-over fitted on the wrong side of the contact, where the slip has no
