@@ -69,12 +69,15 @@ def joint_cov(fa: ChainFit, ia: int, fb: ChainFit, ib: int, s: PhysicsSettings,
     cz[:na, :na] = fa.cov
     cz[na:, na:] = fb.cov
     if s.slip_prior and s.pair_joint_cov:
-        cj = _joint(fa, ia, fb, ib, s)
-        if cj is None:
-            cj = _one_way(fa, ia, fb, ib, s)
-        if cj is None:
-            cj = _common_prior(fa, ia, fb, ib, s)
-        if cj is not None:
+        try:
+            cj = _joint(fa, ia, fb, ib, s)
+            if cj is None:
+                cj = _one_way(fa, ia, fb, ib, s)
+            if cj is None:
+                cj = _common_prior(fa, ia, fb, ib, s)
+        except (np.linalg.LinAlgError, ValueError, IndexError, TypeError):
+            cj = None  # a degenerate fit: its own blocks, as before (never a failed analysis)
+        if cj is not None and np.all(np.isfinite(cj)):
             cz = cj
     if sampling:
         h = np.zeros_like(cz)
