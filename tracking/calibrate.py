@@ -38,6 +38,9 @@ Automatic (:func:`calibrate_auto`)
    all cushion tops look alike, a rail does not). A fit that fails them is
    tried once more with weaker-supported inner lines accepted
    (``CalibrationSettings.line_share_retry``).
+7. Notes (no refusal) where the corners may be over ~1 px off: a view that
+   magnifies a small error on one line (:func:`corner_gain`), or lines that
+   do not meet one camera (face-foot RMS, :func:`line_offsets_px`).
 
 Table frame (see DEVELOPERS.md): origin at the playing-surface corner nearest
 the image's bottom-left, x along the long side, y along the short side, z up.
@@ -391,6 +394,7 @@ def _calibrate_once(frames: list[np.ndarray], table: TablePreset, ball_diameter_
     height_from = "focal-length prior (near-overhead view; see CalibrationSettings.hfov_prior_deg)"
     # Vertical cushion faces in view: their foot (z = 0) fixes the camera height.
     band = _band_check(fit.camera, pts, inner, L, W, settings)
+    fit_prior = prior  # the prior of the fit kept (none where the faces fix the height)
     if band is not None:
         groups2 = nose_groups + [(side, 0.0, band[side]) for side in SIDE_ORDER]
         fit2, groups2 = _fit_robust(fit.camera, groups2, L, W, settings, None)
@@ -405,6 +409,7 @@ def _calibrate_once(frames: list[np.ndarray], table: TablePreset, ball_diameter_
         if foot_ok and r_nose < 1.5 * r_prev + 0.05:
             fit, groups = fit2, groups2
             n_nose = n2
+            fit_prior = None
             height_from = "cushion faces (nose at z = h, foot at z = 0)"
         else:
             notes.append("cushion-face band seen but inconsistent with vertical faces; camera height from "
@@ -464,12 +469,31 @@ def _calibrate_once(frames: list[np.ndarray], table: TablePreset, ball_diameter_
             f"the light on the cloth falls off {levels[bright] / max(levels[dim], 1.0):.0f}-fold from side {bright} to "
             f"side {dim} (a low lamp at one end?): cushions lit at a grazing angle can show their edge off the nose "
             "line, a few px here; check calibration.png or calibrate from a file")
+    gain = corner_gain(fit.camera, groups, L, W, settings, fit_prior)
+    if gain * settings.corner_note_edge_px > settings.corner_note_px:
+        notes.append(
+            f"this view magnifies edge errors: {settings.corner_note_edge_px:.2f} px on one cushion line moves the "
+            f"fitted table corners by {gain * settings.corner_note_edge_px:.1f} px (the camera's height is poorly "
+            "fixed by the table's outline), so positions may be off by over 1 px near the cushions; check "
+            "calibration.png or calibrate from a file")
+    off_line = line_offsets_px(fit.resid_px, groups)
+    worst = max(off_line, key=lambda k: abs(off_line[k]))
+    r_foot = (float(np.sqrt(np.mean(fit.resid_px[n_nose:] ** 2))) if fit_prior is None and len(fit.resid_px) > n_nose
+              else None)
+    if (r_foot is not None and r_foot > settings.foot_note_px) or abs(off_line[worst]) > settings.line_offset_note_px:
+        detail = (f"face-foot lines RMS {r_foot:.2f} px, " if r_foot is not None else "") + (
+            f"line {worst} off by {off_line[worst]:+.2f} px")
+        notes.append(
+            f"the cushion lines do not agree well with one camera ({detail}; compressed or blurred video, or an "
+            "edge taken off the nose?): the table corners may be off by over 1 px; check calibration.png or "
+            "calibrate from a file")
     cam_fit = fit.camera
     lens = lens_note(float(cam_fit.dist[0]), settings.k1_warn)
     if lens:
         notes.append(lens)
     cam_fit.meta = {"layout": layout, "nose_height_mm": z_nose, "n_edge_points": int(n_nose),
-                    "height_from": height_from}
+                    "height_from": height_from, "corner_gain": gain, "line_offsets_px": off_line,
+                    "foot_rms_px": r_foot}
     return Calibration(camera=cam_fit, table=table, ball_diameter_mm=ball_d, residual_px=res_px,
                        residual_mm=res_mm, method="auto", notes=notes)
 
@@ -544,6 +568,63 @@ def off_frame_share(cam: CameraModel, side: str, L: float, W: float, z: float, s
     inside = ((p[:, 0] >= margin_px) & (p[:, 0] <= w - 1 - margin_px)
               & (p[:, 1] >= margin_px) & (p[:, 1] <= h - 1 - margin_px))
     return float(1.0 - inside.mean())
+
+
+def corner_gain(cam: CameraModel, groups: list, L: float, W: float, settings: CalibrationSettings,
+                prior: tuple[float, float] | None) -> float:
+    """How far (px) the cloth corners move per px of error on one nose line, root-sum-square over the four.
+
+    See :func:`corner_gains` (per line).
+    """
+    g = list(corner_gains(cam, groups, L, W, settings, prior).values())
+    return float(np.sqrt(np.sum(np.square(g)))) if g else 0.0
+
+
+def corner_gains(cam: CameraModel, groups: list, L: float, W: float, settings: CalibrationSettings,
+                 prior: tuple[float, float] | None) -> dict[str, float]:
+    """Largest cloth-corner displacement (px) per px of outward error on each nose line, keyed by side.
+
+    Each side's nose points are moved 1 px outward across their fitted line
+    and the camera refitted (same loss and prior); the largest cloth-corner
+    displacement (z = 0) is that side's gain. A near-overhead view fixes the
+    camera's height only through the table outline's perspective, weak when
+    the camera is far (weak perspective: depth differences small against the
+    distance), so an edge error there moves height and focal together and
+    the cloth corners (seen from a wrong height) with them: gains of 4-9
+    where an unmodelled short-side bias put corners 1-3 px off (MuJoCo
+    renders m02, m03, mj8861), 0.8-2.4 on the others. :func:`corner_gain`
+    takes the four lines' errors as independent (root-sum-square).
+    """
+    corners = np.array([[0, 0, 0], [L, 0, 0], [L, W, 0], [0, W, 0]], float)
+    base = fit_edges(cam, groups, L, W, settings.fit_k2, settings.loss_scale_px, prior)
+    uv0 = base.camera.project(corners)
+    gains = {}
+    for k in range(min(4, len(groups))):
+        side, z, px = groups[k]
+        if len(px) == 0:
+            continue
+        p, n = _curve(cam, side, L, W, z)(np.linspace(0.0, 1.0, 64))
+        near = np.argmin(((px[:, None, :] - p[None]) ** 2).sum(axis=2), axis=1)
+        moved = list(groups)
+        moved[k] = (side, z, px + n[near])
+        f = fit_edges(cam, moved, L, W, settings.fit_k2, settings.loss_scale_px, prior)
+        gains[side] = float(np.linalg.norm(f.camera.project(corners) - uv0, axis=1).max())
+    return gains
+
+
+def line_offsets_px(resid_px: np.ndarray, groups: list) -> dict[str, float]:
+    """Median residual (px) of each fitted line's points, keyed 'y0', ... (nose) and 'y0@0', ... (face foot).
+
+    Four nose lines alone leave no offset (the camera absorbs one per line);
+    with the face-foot lines as well, a line the camera cannot meet shows a
+    coherent offset.
+    """
+    out, i0 = {}, 0
+    for k, (side, z, px) in enumerate(groups):
+        r = resid_px[i0: i0 + len(px)]
+        i0 += len(px)
+        out[side if k < 4 else f"{side}@0"] = float(np.median(r)) if len(r) else 0.0
+    return out
 
 
 def _band_width_px(pts: np.ndarray, band: np.ndarray | None) -> float:

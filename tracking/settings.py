@@ -231,6 +231,28 @@ class CalibrationSettings:
     #: edge was found on the wrong line and the fit bent the lens to reach it
     #: (our MuJoCo render mj9104: k1 -0.66, corners 41 px off).
     k1_warn: float = 0.4
+    #: Note when an error of corner_note_edge_px on one nose line would move
+    #: the fitted cloth corners by more than corner_note_px
+    #: (calibrate.corner_gain, root-sum-square over the four lines). 0.25 px:
+    #: what our nose lines reach on clean footage (mid-side within 0.13 px of
+    #: truth on D1/D2, 0.1-0.4 px on our and MuJoCo renders' long sides); the
+    #: short sides of MuJoCo renders are off by up to 1.2 px where an undercut
+    #: face just shows. Measured gains (truth presets): 0.75-1.0 where the
+    #: face-foot lines fix the height, 1.7-2.4 on the other clips, 4.7 / 6.2
+    #: / 8.7 on the MuJoCo tuning renders m02 / m03 / mj8861 (true corner
+    #: error 3.05 / 1.13 / 0.87 px); fresh MuJoCo seed 10412: 8.1 (0.80 px).
+    corner_note_edge_px: float = 0.25
+    corner_note_px: float = 1.0
+    #: Where the face-foot lines fix the camera's height (8 lines, 7-8
+    #: unknowns), note when their RMS residual exceeds foot_note_px or any
+    #: line's median residual exceeds line_offset_note_px: the lines do not
+    #: meet one camera. Measured on the sweep tuning clips (our renderer):
+    #: foot RMS 0.18-0.58 px and line offsets <= 0.36 px where the corners were
+    #: within 0.5 px; foot RMS 0.82 / 0.85 px on the H.264 recodes f01ch (crf
+    #: 28) and f04h32 (crf 32), corners 2.05 / 1.68 px off, and a line offset
+    #: of 2.32 px on f07 (its true preset; 3.87 px). Fresh renders (seeds
+    #: chosen before looking, clean): foot RMS 0.19-0.69 px.
+    line_offset_note_px: float = 0.5
     #: Refuse a fitted camera higher than this above the cloth (mm): a table
     #: room's ceiling is ~2.5-4 m (common practice); 10 m leaves room for halls.
     #: Edge points on the wrong line (a rail instead of the nose) give fits
