@@ -289,6 +289,7 @@ def _analyze(tracks, detections, table, ball_radius_mm, ball_mass_kg, fps, setti
     contacts = _drop_non_separating(contacts, cands, s)
     # compound events (several balls touching within one frame): group columns, e NaN per link
     contacts = annotate_groups(contacts, cands, fits, maps, m)
+    contacts = _blank_unmeasurable_e(contacts, fits, maps, s)
     segments, _ = _segments_table(fits, samples, s2)
     events = _events_table(samples, fits, layouts, maps, contacts, segments, dt, s)
     return ShotPhysics(events, segments, contacts, *mu, fits=fits,
@@ -311,6 +312,48 @@ def _slide_into(best: ChainFit, other: ChainFit | None, b: BallSamples, lay: Cha
         elif other is None or fc.cost < other.cost:
             other = fc
     return best, other
+
+
+def samples_around_break(f: ChainFit, i: int) -> tuple[int, int]:
+    """(used samples in the segment before break ``i``, used samples in the segment after it)."""
+    br = np.asarray(f.breaks(), float)
+    tu = f.t[f.used]
+    lo = br[i - 1] if i > 0 else -np.inf
+    hi = br[i + 1] if i + 1 < len(br) else np.inf
+    return int(((tu > lo) & (tu < br[i])).sum()), int(((tu > br[i]) & (tu < hi)).sum())
+
+
+def _blank_unmeasurable_e(contacts: pd.DataFrame, fits: dict, maps: dict, s: PhysicsSettings) -> pd.DataFrame:
+    """e and e_sigma left empty, with a note, where e's sigma is above
+    ``s.e_sigma_no_information`` (a one-sigma interval wider than 0 <= e <= 1; PhysicsSettings); the note
+    gives the fewest samples any ball of the contact has on either side of its break."""
+    if not len(contacts):
+        return contacts
+    df = contacts
+    for r in df.index:
+        e, sg = float(df.at[r, "e"]), float(df.at[r, "e_sigma"])
+        if not np.isfinite(e) or (np.isfinite(sg) and sg <= s.e_sigma_no_information):
+            continue
+        fewest = None
+        for ball in (df.at[r, "ball_a"], df.at[r, "ball_b"]):
+            if not isinstance(ball, str) or not ball or ball not in fits or ball not in maps:
+                continue
+            i = maps[ball][0].get(int(df.at[r, "_cand"]))
+            if i is None:
+                continue
+            for n, side in zip(samples_around_break(fits[ball], i), ("before", "after")):
+                if fewest is None or n < fewest[0]:
+                    fewest = (n, ball, side)
+        df.at[r, "e"] = np.nan
+        df.at[r, "e_sigma"] = np.nan
+        note = (f"e not measured: its sigma ({sg:.2g}) is above {s.e_sigma_no_information:.2f}, a one-sigma "
+                "interval wider than the whole range 0 <= e <= 1")
+        if fewest is not None:
+            n, ball, side = fewest
+            note += f" ({ball} has {n} frame{'s' if n != 1 else ''} {side} the contact)"
+        old = str(df.at[r, "note"] or "") if "note" in df.columns else ""
+        df.at[r, "note"] = f"{old}; {note}" if old else note
+    return df
 
 
 def _drop_non_separating(contacts: pd.DataFrame, cands, s: PhysicsSettings) -> pd.DataFrame:

@@ -124,6 +124,14 @@ class PhysicsSettings:
     #: ball's normal velocity flat for ~12 ms after a rolling hit, v_z 58 mm/s, e +0.007 in every
     #: noise draw). Derivation ours; not tuned.
     hop_sigma: bool = True
+    #: An e whose propagated sigma is above this says nothing beyond 0 <= e <= 1: its one-sigma
+    #: interval (2 sigma wide) is wider than that whole range. Such a contact (e.g. in the clip's
+    #: last frames, where the segment after it has one or two samples for a velocity and its
+    #: deceleration) keeps its row but e and e_sigma are left empty with a note, rather than a
+    #: number whose sigma runs to hundreds (fresh MuJoCo clip mj10111: e = 0.69 +- 506, 2 frames
+    #: after a cushion contact). Short segments between two contacts usually keep a useful sigma,
+    #: because the chained fit ties their positions at both ends.
+    e_sigma_no_information: float = 0.5
     #: A ball leaves a cushion sliding (its spin is not reversed with its velocity), but a short
     #: slide can hide in the samples: its path differs from a roll from the break (whose time the
     #: fit may move) by at most ~ dv (t_s - t)^2 / (2 t_s) over the slide of duration t_s, with

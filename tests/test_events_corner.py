@@ -79,11 +79,16 @@ def test_corner_two_cushions_2_6_frames_apart_are_both_found(seed):
     """0.86 m/s into a corner at 240 fps: the second cushion is touched 2.6 frame periods after
     the first, so each contact's one-sided window on the other side holds 1-2 samples after the
     cushion guard. Both contacts must be found, each within half a frame of its closed-form time,
-    and each e within 3 of its reported sigmas of the closed-form value 0.72."""
+    and each e within 3 of its reported sigmas of the closed-form value 0.72 where a sigma that
+    says anything (<= 0.5: a one-sigma interval narrower than 0..1) is reported, else left empty with a note (the sigmas here
+    run to 10-2500: two samples between the cushions do not fix the velocity)."""
     tracks, det, (t1, t2), _ = corner_shot(seed=seed)
     c = analyze_tracks(tracks, det, TABLE, R, M, 240.0).contacts
     cu = c[c.kind == "ball-cushion"].sort_values("t_s")
     assert cu.cushion.tolist() == ["y0", "x0"], c[["t_s", "kind", "cushion", "e", "e_sigma"]]
     for (_, r), tt in zip(cu.iterrows(), (t1, t2)):
         assert abs(r.t_s - tt) * 240.0 < 0.5, (r.t_s, tt)
-        assert abs(r.e - 0.72) < 3 * r.e_sigma, (r.cushion, r.e, r.e_sigma)
+        if np.isfinite(r.e):  # reported only with a sigma that says something (PhysicsSettings)
+            assert r.e_sigma <= 0.5 and abs(r.e - 0.72) < 3 * r.e_sigma, (r.cushion, r.e, r.e_sigma)
+        else:  # sigma above 0.5: left empty, with a note saying why
+            assert np.isnan(r.e_sigma) and "e not measured" in str(r.note), (r.cushion, r.note)

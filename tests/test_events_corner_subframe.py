@@ -13,6 +13,7 @@ from __future__ import annotations
 
 from dataclasses import replace
 
+import numpy as np
 import pytest
 
 from physics.pipeline import analyze_tracks
@@ -33,14 +34,17 @@ def _cushions(seed: int, settings: PhysicsSettings = PhysicsSettings()):
 @pytest.mark.parametrize("seed", range(6))
 def test_corner_cushions_less_than_a_frame_apart_are_both_found(seed):
     """Both cushions found, each within half a frame of its closed-form time, each e within 3
-    reported sigmas of 0.72 (seed 2 lost the first cushion before: its window was cut by the
+    reported sigmas of 0.72 where reported (sigma <= 0.5; else left empty with a note) (seed 2 lost the first cushion before: its window was cut by the
     other cushion's noise minima)."""
     cu, (t1, t2) = _cushions(seed)
     assert sorted(cu.cushion) == ["x0", "y0"], cu[["t_s", "cushion", "e", "e_sigma"]]
     for r in cu.itertuples():
         tt = t1 if r.cushion == "y0" else t2
         assert abs(r.t_s - tt) * FPS < 0.5, (r.cushion, r.t_s, tt)
-        assert abs(r.e - 0.72) < 3 * r.e_sigma, (r.cushion, r.e, r.e_sigma)
+        if np.isfinite(r.e):  # reported only with a sigma that says something (PhysicsSettings)
+            assert r.e_sigma <= 0.5 and abs(r.e - 0.72) < 3 * r.e_sigma, (r.cushion, r.e, r.e_sigma)
+        else:  # sigma above 0.5 (x0 here, ~0.6): left empty, with a note saying why
+            assert np.isnan(r.e_sigma) and "e not measured" in str(r.note), (r.cushion, r.note)
 
 
 @pytest.mark.slow
