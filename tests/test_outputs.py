@@ -425,6 +425,10 @@ def test_report_never_calls_an_energy_gain_a_negative_loss():
     gain = rep_out.energy_words(-0.388, 0.2, group=True)
     assert "rose 38.8 ± 20.0%" in gain and "-" not in gain.split("(")[0]
     assert rep_out.energy_words(0.095) == "9.5% of the kinetic energy lost"
+    blank = rep_out.describe_contact(dict(contact=4, t_s=1.4, kind="ball-cushion", ball_a="red", cushion="yW",
+                                          e=np.nan, e_sigma=np.nan, note="e not measured: its sigma (5e+02) is "
+                                          "above 0.50 (red has 2 frames after the contact)"))
+    assert "e = n/a" not in blank and "e not measured: its sigma (5e+02)" in blank
     c = dict(contact=3, t_s=0.5, kind="ball-cushion", ball_a="red", cushion="y0", e=1.02, e_sigma=0.03,
              ke_loss_frac=-0.04)
     s = rep_out.describe_contact(c)

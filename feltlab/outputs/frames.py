@@ -225,6 +225,8 @@ def build_overlay(tracks: pd.DataFrame, contacts: pd.DataFrame, calibration, fps
             c["n_px"] = None
         c["label"] = _contact_label(c)
         c["e_text"] = e_text(c.get("e", np.nan), c.get("e_sigma", np.nan))
+        if c["e_text"] == "e = n/a" and "e not measured" in str(c.get("note", "") or ""):
+            c["e_text"] = "e not measured (too uncertain: see the report)"
         cons.append(c)
     _merge_groups(cons)
     corner = _quiet_corner(calibration, (w, h))

@@ -116,8 +116,11 @@ def describe_contact(c: dict) -> str:
         if _ok(ang.get("rebound_deg")):
             s += f", {ang['rebound_deg']:.0f}° from the normal"
         parts.append(s)
+    note = str(c.get("note", "") or "")
     if _ok(c.get("group")) and _f(c["group"]) > 0 and not _ok(c.get("e")):
         parts.append(group_words(c))
+    elif not _ok(c.get("e")) and "e not measured" in note:
+        parts.append(note[note.index("e not measured"):].split(";")[0])
     else:
         parts.append(f"e = {pm(c.get('e'), c.get('e_sigma'))}")
     if _ok(c.get("ke_loss_frac")):
