@@ -252,6 +252,7 @@ class CalibrationSettings:
     #: 28) and f04h32 (crf 32), corners 2.05 / 1.68 px off, and a line offset
     #: of 2.32 px on f07 (its true preset; 3.87 px). Fresh renders (seeds
     #: chosen before looking, clean): foot RMS 0.19-0.69 px.
+    foot_note_px: float = 0.75
     line_offset_note_px: float = 0.5
     #: Refuse a fitted camera higher than this above the cloth (mm): a table
     #: room's ceiling is ~2.5-4 m (common practice); 10 m leaves room for halls.
