@@ -240,20 +240,9 @@ def _merge_groups(cons: list[dict]) -> None:
     """A compound event (several touches within one frame, e NaN) is shown once: its first touch
     leads (label naming all its contacts, a close-up taking in every touch point) and the others
     are marked ``follower`` (no frames of their own). Edits the contact dicts in place."""
-    from feltlab.outputs.plots import contact_ranges
+    from feltlab.outputs.plots import compound_groups, contact_ranges
 
-    groups: dict[int, list[dict]] = {}
-    for c in cons:
-        try:
-            g = float(c.get("group", -1))
-        except (TypeError, ValueError):
-            continue
-        if np.isfinite(g) and g > 0 and not np.isfinite(float(c.get("e", np.nan))):
-            groups.setdefault(int(g), []).append(c)
-    for members in groups.values():
-        if len(members) < 2:
-            continue
-        members.sort(key=lambda c: float(c["t_s"]))
+    for members in compound_groups(cons).values():
         lead = members[0]
         lead["label"] = f"{contact_ranges([m['contact'] for m in members])}: {len(members)} touches within one frame"
         lead["e_text"] = "e not measurable (touches too close together)"

@@ -67,7 +67,7 @@ def contact_ranges(ids) -> str:
             runs.append([i, i])
     return ", ".join(f"C{a}" if a == b else f"C{a}-C{b}" for a, b in runs)
 
-def _group_id(c: dict) -> int:
+def group_id(c: dict) -> int:
     """Compound-event id of a contact row (> 0), or -1 (missing, NaN or not part of a group)."""
     try:
         g = float(c.get("group", -1))
@@ -174,6 +174,27 @@ def speed_plot(tracks: pd.DataFrame, segments: pd.DataFrame | None, contacts: pd
     return Path(path)
 
 
+def compound_groups(rows: list[dict]) -> dict[int, list[dict]]:
+    """Compound events of more than one touch (rows with a group id > 0 and no measured e, i.e.
+    touches within one frame): group id -> its rows in time order. Groups of one are left out.
+
+    >>> g = compound_groups([dict(contact=0, t_s=0.31, group=1, e=float("nan")),
+    ...                      dict(contact=1, t_s=0.30, group=1, e=float("nan")), dict(contact=2, t_s=0.9, group=-1)])
+    >>> {k: [r["contact"] for r in v] for k, v in g.items()}
+    {1: [1, 0]}
+    """
+    groups: dict[int, list[dict]] = {}
+    for c in rows:
+        g = group_id(c)
+        try:
+            e = float(c.get("e", np.nan))
+        except (TypeError, ValueError):
+            e = np.nan
+        if g > 0 and not np.isfinite(e):
+            groups.setdefault(g, []).append(c)
+    return {g: sorted(m, key=lambda c: float(c["t_s"])) for g, m in groups.items() if len(m) > 1}
+
+
 def contact_marks(contacts: pd.DataFrame) -> list[tuple[float, str]]:
     """(time s, label) of each contact for the speed plot, in time order; a compound event (several
     touches within one frame, e not measured) gets one label for all its touches, at the first.
@@ -183,18 +204,14 @@ def contact_marks(contacts: pd.DataFrame) -> list[tuple[float, str]]:
     [(0.3, 'C0-C1'), (0.9, 'C2')]
     """
     rows = contacts.sort_values("t_s").to_dict("records")
-    groups: dict[int, list[int]] = {}
-    for c in rows:
-        g = _group_id(c)
-        if g > 0 and not np.isfinite(float(c.get("e", np.nan))):
-            groups.setdefault(g, []).append(int(c["contact"]))
+    groups = compound_groups(rows)
     out, done = [], set()
     for c in rows:
-        g = _group_id(c)
-        if g in groups and len(groups[g]) > 1:
+        g = group_id(c)
+        if g in groups:
             if g not in done:
                 done.add(g)
-                out.append((float(c["t_s"]), contact_ranges(groups[g])))
+                out.append((float(c["t_s"]), contact_ranges([int(m["contact"]) for m in groups[g]])))
             continue
         out.append((float(c["t_s"]), f"C{c['contact']}"))
     return out
@@ -441,7 +458,7 @@ def table_diagram(tracks: pd.DataFrame, contacts: pd.DataFrame | None, table, ba
             if not np.isfinite(cp).all():
                 continue
             ax.plot(*cp, marker="x", color="black", ms=7, mew=1.8, zorder=9)
-            grp = _group_id(c)
+            grp = group_id(c)
             ids = contacts.loc[contacts["group"] == c["group"], "contact"].astype(int) if grp > 0 else []
             if grp > 0 and len(ids) > 1:  # a compound event: one label for all its touches, no per-link circles
                 if grp in labelled_groups:

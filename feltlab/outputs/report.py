@@ -183,15 +183,13 @@ def describe_contacts(rows: list[dict]) -> list[str]:
     ["C0-C1 at 0.300-0.301 s: 2 touches within one frame among cue, red, blue (cue–red, red–blue): cue came in at 2.00 m/s (rolling); blue left fastest, at 1.85 m/s. The touches were too close together to see each one's e; the group's momentum changed by 2.0 ± 1.0% and it lost 10.0% of its kinetic energy."]
     """
     out: list[str] = []
-    groups: dict[int, list[dict]] = {}
-    for c in rows:
-        g = int(_f(c.get("group"))) if _ok(c.get("group")) else -1
-        if g > 0 and not _ok(c.get("e")):
-            groups.setdefault(g, []).append(c)
+    from feltlab.outputs.plots import group_id, compound_groups
+
+    groups = compound_groups(rows)
     told: set[int] = set()
     for c in rows:
-        g = int(_f(c.get("group"))) if _ok(c.get("group")) else -1
-        if g in groups and len(groups[g]) > 1:
+        g = group_id(c)
+        if g in groups:
             if g not in told:
                 told.add(g)
                 out.append(describe_group(groups[g]))
