@@ -215,6 +215,9 @@ def truth_feed(path: str, noise_mm: float, seeds, settings: PhysicsSettings, ver
                 print(f"seed {sd}: MISSED {tc['kind']} {tc['ball_a']}-{tc['other']} t={tc['t_s']:.4f}")
                 continue
             r = hit.iloc[0]
+            if not np.isfinite(float(r["e"])):  # left empty: its sigma said nothing (PhysicsSettings)
+                print(f"seed {sd}: {tc['kind']} {tc['ball_a']}-{tc['other']} t={tc['t_s']:.4f}: e left empty")
+                continue
             err = float(r["e"] - tc["e"])
             errs[tc["kind"]].append(err)
             z.append(abs(err) / r["e_sigma"] if r["e_sigma"] > 0 else np.inf)
@@ -279,6 +282,9 @@ def main() -> None:
             for c, r in pairs:
                 if not significant(c) or abs(c.speed_in_mm_s) < 150:
                     continue
+                if not np.isfinite(r.e):  # left empty: its sigma said nothing (PhysicsSettings)
+                    s["blank"] = s.get("blank", 0) + 1
+                    continue
                 err = r.e - c.e_measured
                 (s["bb"] if c.kind == "ball-ball" else s["bc"]).append(err)
                 z = abs(err) / r.e_sigma if r.e_sigma > 0 else np.inf
@@ -316,10 +322,10 @@ def main() -> None:
         print(f"{fps:4.0f} {s['n']:6d} {s['missed']:6d} {s['false']:5d} | {len(bb):8d} {q(bb,50):8.4f} {q(bb,90):7.4f} "
               f"| {len(bc):11d} {q(bc,50):8.4f} {q(bc,90):6.4f} | {np.mean(z < 2) if len(z) else float('nan'):14.3f} "
               f"| {q(dtf,50):6.3f} / {q(dtf,90):6.3f}        | {q(mu,50):17.3f} | {s['time'] / max(a.n - a.start, 1):6.2f}")
-    _issue_figures(stats)
+    _issue_figures(stats, settings)
 
 
-def _issue_figures(stats) -> None:
+def _issue_figures(stats, settings: PhysicsSettings) -> None:
     """The physics figures the targets name, per frame rate and pooled: contact recall and
     precision, contact-time error in frames (target |dt| <= 0.25 frame), restitution error by
     kind, 2-sigma coverage of e (target 80-99.5 %) with |err|/sigma median and worst, mu_s and
@@ -337,7 +343,8 @@ def _issue_figures(stats) -> None:
         for k, v in (("dt", dtf), ("z", z), ("mu", mu), ("mur", mur)):
             pooled[k] += list(v)
         print(f"  {fps:4.0f} fps: recall {rec:.3f} ({s['n'] - s['missed']}/{s['n']}), precision {prec:.3f} "
-              f"({s['found'] - s['false']}/{s['found']})")
+              f"({s['found'] - s['false']}/{s['found']}); e left empty (sigma > "
+              f"{settings.e_sigma_no_information:.2f}) on {s.get('blank', 0)} matched contacts")
         print(f"      contact time |dt| frames: median {q(dtf, 50):.3f}, p95 {q(dtf, 95):.3f}, "
               f"within 0.25 frame {np.mean(dtf <= 0.25) if len(dtf) else float('nan'):.3f} (n {len(dtf)})")
         for kind, key in (("ball-ball", "bb"), ("cushion", "bc")):
