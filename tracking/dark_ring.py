@@ -326,6 +326,41 @@ def _ring_fix(cal: Calibration, background: Background, cx: float, cy: float, co
     return r, p, cal.px_to_table(p)[0], sig, cal.ball_radius_mm / r
 
 
+def _outline_holds(patch: np.ndarray, background: Background, xa: int, ya: int, wp: np.ndarray,
+                   old: tuple[float, float], new: tuple[float, float], r: float,
+                   settings: DetectionSettings) -> bool:
+    """Whether a disc of radius r about ``new`` (image px) holds the ball's clearly-not-cloth pixels as well as
+    the one about ``old`` does.
+
+    A ball's silhouette is a disc of known radius and every part of the ball
+    (a stripe's white caps, a number circle, the coloured band) lies inside
+    it. Clearly-not-cloth: the shade-free colour difference
+    (:func:`tracking.detect.shade_free_de`, blind to the ball's own cast
+    shadow) above ``ring_outline_level`` foreground thresholds, within
+    1.6 r of ``old`` where ``wp`` > 0 (other balls' discs and off-cloth
+    pixels out). Holds unless the new disc (r + ``ring_outline_pad_px``)
+    leaves more than ``ring_outline_max_out`` of those pixels outside beyond
+    what the old disc left. patch: BGR pixels of the box whose top-left
+    pixel is image (xa, ya), the same box as ``wp``.
+    """
+    from tracking.detect import shade_free_de
+
+    bl = background.lab_image()[ya:ya + patch.shape[0], xa:xa + patch.shape[1]]
+    bw = background.weight_map()[ya:ya + patch.shape[0], xa:xa + patch.shape[1]]
+    if bl.shape[:2] != patch.shape[:2]:
+        return True
+    sf = shade_free_de(to_lab(patch), bl, settings.shade_min_light) * bw
+    yy, xx = np.mgrid[ya:ya + patch.shape[0], xa:xa + patch.shape[1]]
+    d_old = np.hypot(xx - old[0], yy - old[1])
+    d_new = np.hypot(xx - new[0], yy - new[1])
+    ball = (d_old <= 1.6 * r) & (wp > 0) & (sf > settings.ring_outline_level * background.threshold_dn)
+    n = int(ball.sum())
+    if n == 0:
+        return True
+    lim = r + settings.ring_outline_pad_px
+    return int(np.sum(ball & (d_new > lim))) - int(np.sum(ball & (d_old > lim))) <= settings.ring_outline_max_out * n
+
+
 def recentre_by_ring(det: pd.DataFrame, image: np.ndarray, calibration: Calibration, background: Background,
                      settings: DetectionSettings = DetectionSettings()) -> pd.DataFrame:
     """Detections whose colour evidence is weak, re-centred on their dark ring (a new DataFrame; det unchanged).
@@ -345,7 +380,10 @@ def recentre_by_ring(det: pd.DataFrame, image: np.ndarray, calibration: Calibrat
     discs carry no weight. Per-pixel L* noise: measured in the patch on
     the cloth beyond ``ring_outer`` radii (:func:`patch_noise`). A detection
     with another ball's disc reaching into its outer annulus (centres closer
-    than ``ring_outer[1]`` r + the other's r: a rack) keeps its colour centre.
+    than ``ring_outer[1]`` r + the other's r: a rack) keeps its colour centre,
+    and so does one whose ring disc would leave the ball's clearly-not-cloth
+    pixels outside (:func:`_outline_holds`: a stripe ball's dark band read as
+    a limb, its white cap left on the cloth).
     """
     if det.empty or not settings.ring_recentre:
         return det
@@ -403,6 +441,8 @@ def recentre_by_ring(det: pd.DataFrame, image: np.ndarray, calibration: Calibrat
         cx, cy = (ref[0] + xa, ref[1] + ya) if ref is not None else (tx + xa, ty + ya)
         if np.hypot(cx - gx, cy - gy) > settings.ring_recentre_max_shift * r_exp:
             continue
+        if not _outline_holds(image[ya:yb, xa:xb], background, xa, ya, wp, (gx, gy), (cx, cy), r_exp, settings):
+            continue  # the ring's disc would leave clear ball pixels (a stripe's white cap) on the cloth
         r_new, p, xy, sig, mmpp = _ring_fix(cal, background, cx, cy, contrast, noise_px, settings)
         j = out.index[i]
         out.loc[j, ["x_px", "y_px", "x_mm", "y_mm"]] = [p[0, 0], p[0, 1], xy[0], xy[1]]

@@ -876,6 +876,22 @@ class DetectionSettings:
     ring_recentre: bool = True
     ring_recentre_contrast: float = 4.0
     ring_recentre_max_shift: float = 0.5
+    #: The ring centre must keep the ball's outline (dark_ring._outline_holds):
+    #: every part of a ball, white caps and number circle included, lies
+    #: inside its silhouette disc, so a ring centre whose disc (r +
+    #: ring_outline_pad_px, the edge's blur) leaves more than
+    #: ring_outline_max_out of the clearly-not-cloth pixels (shade-free
+    #: colour difference above ring_outline_level thresholds) outside, beyond
+    #: what the colour fit's disc left, is refused. Measured (share left out
+    #: by the ring's disc minus the colour fit's, truth camera): a stripe
+    #: ball whose dark band the ring took for a limb, sweep f09 blue-stripe
+    #: 0.08-0.19 (ring centre 2.9-5.0 px off, colour fit 0.3-0.9) and fresh
+    #: varied10102 purple-stripe 0.13-0.16 (3.2-3.6 px off vs 0.6-0.9);
+    #: the balls the ring is for, f02 green on green -0.21-0.02 and f03b
+    #: red on red 0. 0.05 lies between (chosen on these clips).
+    ring_outline_level: float = 2.0
+    ring_outline_pad_px: float = 1.0
+    ring_outline_max_out: float = 0.05
     ring_gate_warmup: int = 3
     ring_gate_period: int = 8
     ring_gate_reach: float = 6.0
