@@ -50,6 +50,7 @@ from physics.segments import (
     slide_into_breaks,
     slip_link_chi2,
     unpack_segment,
+    widened_cov,
 )
 from physics.settings import PhysicsSettings
 
@@ -734,7 +735,7 @@ def _contacts_table(cands, fits, maps, table, R, m, dt, s, hidden=None) -> pd.Da
                                     contact_distance_mm(R, table.cushion_nose_height_mm), dt)
 
             core = core_of(f.x)
-            var = propagate(lambda z: _e_t(core_of(z)), f.x, f.cov)
+            var = propagate(lambda z: _e_t(core_of(z)), f.x, widened_cov(f.cov, f.misfit_sd()))
             flags = _roll_flags(f, i)
             d = derived(core, m, False, flags, (False, False))
             dvm = s.mu_s_prior * s.g_mm_s2 * s.model_time_cushion_s
@@ -817,6 +818,10 @@ def ball_ball_values(fa: ChainFit, ia: int, fb: ChainFit, ib: int, R: float, dt:
         c3 = propagate_cov(lambda z: _touch_times(core_of(z)), xz, cb)
         core_of = partial(core_of, w=touch_time_weights(c3))
     cz = joint_cov(fa, ia, fb, ib, s, sampling=sampling)
+    if not sampling:
+        # a segment whose samples misfit the model widens its parameters' errors (lack of fit,
+        # physics.segments.misfit_scales); the noise-only part is left as the samples make it
+        cz = widened_cov(cz, np.concatenate([fa.misfit_sd(), fb.misfit_sd()]))
     return core_of(xz), propagate(lambda z: _e_t(core_of(z)), xz, cz)
 
 

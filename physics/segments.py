@@ -346,6 +346,13 @@ class ChainFit:
     #: information of the samples alone (the J^T J / k of the data rows; priors left out): the
     #: sampling part of the covariance is ``cov @ info_data @ cov`` (physics.pair_cov)
     info_data: np.ndarray | None = field(default=None, repr=False)
+    #: per segment (n_seg,): lack-of-fit variance factor >= 1 (:func:`misfit_scales`); None: all 1
+    seg_misfit: np.ndarray | None = field(default=None, repr=False)
+
+    def misfit_sd(self) -> np.ndarray:
+        """Per parameter (n_par,): factor on its standard error for lack of fit (1 where the
+        samples agree with the model), see :func:`misfit_scales` and :func:`widened_cov`."""
+        return param_misfit_sd(self.layout, self.seg_misfit)
 
     def state(self, t, x: np.ndarray | None = None):
         """Positions (T,2) mm and velocities (T,2) mm/s of the fitted model at times ``t`` (s)."""
@@ -432,20 +439,11 @@ def _bounds(lay: ChainLayout, t_end: float, s: PhysicsSettings):
     return lo, hi
 
 
-def _move_start_guess(t, xy, sig, s: PhysicsSettings):
-    """Independent start values for one move segment (samples t, xy): (p0, v0, a, t_roll, a_r).
-
-    For each roll time on a grid the path is linear in its parameters if the roll phase is
-    approximated by a second constant acceleration (p0 + v0 tau + a (ts^2/2 + t_roll tr) +
-    b tr^2/2 with ts = min(tau, t_roll), tr = max(tau - t_roll, 0)); the grid point with the
-    smallest weighted residual is kept and then refined with the exact model.
-    """
-    t0 = t[0]
-    tau = t - t0
-    dur = max(tau[-1], 1e-3)
-    w = 1.0 / sig
+def _grid_linear(tau, xy, w, grid, s: PhysicsSettings):
+    """Best (cost, t_roll, (cx, cy)) over roll times ``grid`` (s) of the linearised move model
+    (see :func:`_move_start_guess`) on samples ``tau`` (s from the segment start), ``xy`` mm with
+    weights ``w`` (1/mm)."""
     best = None
-    grid = np.unique(np.concatenate([np.linspace(0.0, dur, 21), [1.5 * dur]]))
     for tr0 in grid:
         ts = np.minimum(tau, tr0)
         tr = np.maximum(tau - tr0, 0.0)
@@ -454,7 +452,7 @@ def _move_start_guess(t, xy, sig, s: PhysicsSettings):
         if n_roll >= 3:
             cols.append(0.5 * tr**2)
         A = np.column_stack(cols)
-        if len(t) < A.shape[1] + 1:
+        if len(tau) < A.shape[1] + 1:
             A = A[:, :2]
         cost = 0.0
         coefs = []
@@ -475,29 +473,67 @@ def _move_start_guess(t, xy, sig, s: PhysicsSettings):
                 cost += 1e6
         if best is None or cost < best[0] - 1e-9:
             best = (cost, tr0, coefs)
-    _, tr0, (cx, cy) = best
+    return best
+
+
+def _move_start_guess(t, xy, sig, s: PhysicsSettings):
+    """Independent start values for one move segment (samples t, xy): (p0, v0, a, t_roll, a_r).
+
+    For each roll time on a grid the path is linear in its parameters if the roll phase is
+    approximated by a second constant acceleration (p0 + v0 tau + a (ts^2/2 + t_roll tr) +
+    b tr^2/2 with ts = min(tau, t_roll), tr = max(tau - t_roll, 0)); the grid point with the
+    smallest weighted residual is kept and then refined with the exact model.
+
+    Two grids are tried: 21 roll times over the whole segment, and every sample interval of an
+    early window (``s.guess_windows_s``) fitted on that window alone. A short slide right after a
+    contact (tens of ms) falls between the coarse grid's points, and over a long segment the
+    quadratic stand-in for roll-then-rest misfits the tail more than the slide misfits the head,
+    so the whole-segment grid alone can settle on a wrong roll time. Both starts are refined on
+    the whole segment with the exact model; an early-window start is kept where its robust cost
+    is lower by more than ``s.ambiguity_dcost``.
+    """
+    t0 = t[0]
+    tau = t - t0
+    dur = max(tau[-1], 1e-3)
+    w = 1.0 / sig
     g = s.g_mm_s2
-    p0 = np.array([cx[0], cy[0]])
-    v0 = np.array([cx[1], cy[1]])
-    a = np.array([cx[2], cy[2]])
-    b = np.array([cx[3], cy[3]])
-    vr = v0 + a * tr0
-    sp = np.hypot(*vr)
-    a_r = float(-(b @ vr) / sp) if sp > 1e-9 else s.mu_r_prior * g
-    a_r = float(np.clip(a_r, 0.0, s.mu_r_max * g))
-    if tr0 >= dur:
-        a_r = s.mu_r_prior * g
+    grid = np.unique(np.concatenate([np.linspace(0.0, dur, 21), [1.5 * dur]]))
+    starts = [_grid_linear(tau, xy, w, grid, s)]
+    for win in s.guess_windows_s:
+        m = tau <= win
+        if win >= dur or m.sum() < 8:
+            continue
+        mids = 0.5 * (tau[m][1:] + tau[m][:-1])
+        starts.append(_grid_linear(tau[m], xy[m], w[m], np.concatenate([[0.0], mids]), s))
     lay = ChainLayout("", t0, False, [], np.zeros(0), np.zeros(0), np.zeros(0))
     lo, hi = _bounds(lay, t[-1], s)
-    x0 = np.clip(np.concatenate([p0, v0, a, [tr0, a_r]]), lo, hi)
-    try:
-        r = least_squares(
-            _residuals, x0, bounds=(lo, hi), args=(lay, t, xy, sig, s),
-            x_scale="jac", max_nfev=100,
-        )
-        x = r.x
-    except ValueError:
-        x = x0
+    best = None
+    for j, (_, tr0, (cx, cy)) in enumerate(starts):
+        p0 = np.array([cx[0], cy[0]])
+        v0 = np.array([cx[1], cy[1]])
+        a = np.array([cx[2], cy[2]])
+        b = np.array([cx[3], cy[3]])
+        vr = v0 + a * tr0
+        sp = np.hypot(*vr)
+        a_r = float(-(b @ vr) / sp) if sp > 1e-9 else s.mu_r_prior * g
+        a_r = float(np.clip(a_r, 0.0, s.mu_r_max * g))
+        if tr0 >= dur:
+            a_r = s.mu_r_prior * g
+        x0 = np.clip(np.concatenate([p0, v0, a, [tr0, a_r]]), lo, hi)
+        try:
+            r = least_squares(
+                _residuals, x0, bounds=(lo, hi), args=(lay, t, xy, sig, s),
+                x_scale="jac", max_nfev=100,
+            )
+            x, cost = r.x, float(r.cost)
+        except ValueError:
+            x, cost = x0, np.inf
+        # an early-window start must fit clearly better (half a chi^2 difference of
+        # 2 ambiguity_dcost): a slide of one or two samples barely changes the cost but leaves
+        # its deceleration and roll time undetermined
+        if best is None or cost < best[0] - (s.ambiguity_dcost if j else 1e-9):
+            best = (cost, x)
+    x = best[1]
     return x[0:2], x[2:4], x[4:6], x[6], x[7]
 
 
@@ -592,6 +628,7 @@ def fit_chain(
     cov[np.ix_(free, free)] = np.linalg.pinv(Js.T @ Js, rcond=1e-12) / np.outer(d, d) * chi2
     P, _, seg_u = chain_eval(x_fit, lay, tu)
     k_cov = chi2
+    tau = 1.0
     if s.residual_corr_inflation and len(tu):
         # detection errors of a moving ball are correlated from frame to frame (shading and
         # blur change slowly along its path): the covariance of white errors is too small by
@@ -605,8 +642,80 @@ def fit_chain(
     info = np.zeros((lay.n_par, lay.n_par))
     Jd = J[:n_data][:, free]
     info[np.ix_(free, free)] = Jd.T @ Jd / k_cov
+    scales = misfit_scales(P, xyu, sgu, seg_u, lay, chi2, tau, s)
     return ChainFit(lay, x_fit, cov, rms, int(len(tu)), float(chi2), t, xy, used, float(res.cost),
-                    float(k_cov), info)
+                    float(k_cov), info, scales)
+
+
+def misfit_scales(P: np.ndarray, xy: np.ndarray, sig: np.ndarray, seg: np.ndarray, lay: ChainLayout,
+                  chi2_red: float, tau: float, s: PhysicsSettings) -> np.ndarray:
+    """Per segment (n_seg,): variance factor >= 1 for a local lack of fit.
+
+    The chain's covariance is scaled by the reduced chi^2 of ALL its samples (:func:`fit_chain`),
+    so a misfit over a few frames next to a contact (a slide->roll time in the wrong place, an
+    unmodelled hop) is diluted by hundreds of well-fitted samples elsewhere and does not show in
+    the contact's sigmas. Here each move segment's residuals (fitted ``P`` vs samples ``xy``, mm,
+    in units of ``sig``; robust as in the fit) are pooled over three windows: the whole segment,
+    its first and its last ``s.misfit_window`` samples (those that fix the velocities at its
+    breaks). A window's reduced chi^2 over the one already in the covariance (``chi2_red``: the
+    chain's, floored) that fails a chi^2 test at level ``s.misfit_alpha`` (effective degrees of freedom
+    2 n / tau, ``tau`` the residuals' autocorrelation time) becomes the segment's factor (largest
+    window wins), times the window's residual autocorrelation time where it exceeds the chain's
+    (a misfit is a run of same-signed residuals; same correction as the chain's, see
+    :func:`integrated_autocorr_time`). Standard practice when a least-squares fit's chi^2/dof
+    exceeds 1: scale the parameter errors by sqrt(chi^2/dof) (Particle Data Group, Review of
+    Particle Physics, introduction, scale factor S; from memory), applied locally. 1 for a
+    segment that fits.
+    """
+    from scipy.stats import chi2 as chi2_dist
+
+    out = np.ones(lay.n_seg)
+    if not s.misfit_inflation or len(P) == 0:
+        return out
+    z = robust_residuals(((P - xy) / sig).ravel(), s).reshape(-1, 2)
+    z2 = np.sum(z**2, axis=1)
+    w = int(s.misfit_window)
+    for k in range(lay.n_seg):
+        if lay.move_offset(k) is None:
+            continue
+        idx = np.flatnonzero(seg == k)
+        if len(idx) < 3:
+            continue
+        for win in (idx, idx[:w], idx[-w:]):
+            n = len(win)
+            ratio = float(z2[win].sum()) / (2 * n) / max(chi2_red, 1e-12)
+            dof = max(2 * n / max(tau, 1.0), 1.0)
+            if ratio > chi2_dist.ppf(1.0 - s.misfit_alpha, dof) / dof:
+                # a misfit is a run of same-signed residuals: like correlated noise it informs
+                # the parameters less than white residuals would, by its autocorrelation time
+                # beyond the chain's (already in the covariance, see fit_chain)
+                tau_w = integrated_autocorr_time([z[win, 0], z[win, 1]], s.corr_max_lag)
+                out[k] = max(out[k], ratio * max(tau_w / max(tau, 1.0), 1.0))
+    return out
+
+
+def param_misfit_sd(lay: ChainLayout, seg_misfit: np.ndarray | None) -> np.ndarray:
+    """Per parameter (n_par,): sqrt of the lack-of-fit factor of the segment it belongs to (the
+    start position: segment 0; a break time: the larger of its two segments)."""
+    d = np.ones(lay.n_par)
+    if seg_misfit is None:
+        return d
+    sc = np.sqrt(np.maximum(np.asarray(seg_misfit, float), 1.0))
+    d[0:2] = sc[0]
+    for k in range(lay.n_seg):
+        o = lay.move_offset(k)
+        if o is not None:
+            d[o : o + N_MOVE] = sc[k]
+    b = lay.break_offset
+    for i in range(lay.n_seg - 1):
+        d[b + i] = max(sc[i], sc[i + 1])
+    return d
+
+
+def widened_cov(cov: np.ndarray, sd: np.ndarray) -> np.ndarray:
+    """``D cov D`` with ``D = diag(sd)``: each parameter's standard error times its lack-of-fit
+    factor, correlations kept (positive semi-definite whenever ``cov`` is)."""
+    return cov * np.outer(sd, sd)
 
 
 def integrated_autocorr_time(series: list[np.ndarray], max_lag: int = 50) -> float:

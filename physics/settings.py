@@ -304,9 +304,23 @@ class PhysicsSettings:
     f_scale: float = 3.0
     #: Multi-start fractions of a segment's duration for the slide->roll time. Design choice.
     t_roll_starts: tuple[float, ...] = (0.0, 0.1, 0.25, 0.45, 0.7, 1.0, 1.6)
+    #: Early windows (s from a segment's start) in which the start values also search the
+    #: slide->roll time at every sample interval (physics.segments._move_start_guess): a slide
+    #: after a contact lasts up to ~0.5 s (2 |u| / (7 mu_s g) with |u| <= 3 m/s, mu_s >= 0.2),
+    #: often tens of ms. Design choice (a search range, not a fitted value).
+    guess_windows_s: tuple[float, ...] = (0.3, 1.0)
     #: Floor on the reduced chi^2 that scales the covariance (design choice: input sigmas may be
     #: overstated, but never trust them to be more than 2x too large).
     chi2_floor: float = 0.5
+    #: Local lack of fit (physics.segments.misfit_scales): a segment whose residuals over the
+    #: whole segment, or over its first / last ``misfit_window`` samples, fail a chi^2 test at
+    #: level ``misfit_alpha`` has its parameters' standard errors scaled by sqrt(chi^2/dof) (scale
+    #: factor practice of the Particle Data Group's Review of Particle Physics, from memory). The
+    #: window is about the samples that fix a velocity at a break; alpha is a conventional 1 %
+    #: test. Design choices, not tuned.
+    misfit_inflation: bool = True
+    misfit_window: int = 8
+    misfit_alpha: float = 0.01
     #: The fit covariance is multiplied by the residuals' integrated autocorrelation time
     #: (physics.segments.integrated_autocorr_time; Geyer's initial positive sequence, Statistical
     #: Science 7:473, 1992), at lags up to ``corr_max_lag`` samples: detection errors of a moving
