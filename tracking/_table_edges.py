@@ -15,6 +15,10 @@ the face itself, lit at grazing incidence). So, walking a profile outward from
 the cloth, the nose is the *last* strong edge before the first flat stretch
 of the cushion top; where there is no band it is the single cloth/cushion
 edge. All these points lie at height h, which is what the camera fit assumes.
+An undercut face (leaning back below the nose) is hidden from a camera whose
+sight line to the nose is steeper than the lean; just past that angle it
+shows as a dark line narrower than the blur, which no profile resolves but
+which pulls the single edge inward (:func:`face_line_shift`).
 The cushion top may be of the cloth's own shade (cushions are covered with the
 same cloth); then the band between is what marks the nose, and it must be no
 wider than a face can look (``CalibrationSettings.band_max_mm``).
@@ -461,6 +465,107 @@ def _relocate_peaks(prof: np.ndarray, offs: np.ndarray, pos: np.ndarray, setting
     return out
 
 
+def _step_line_fits(ms: np.ndarray, w: float) -> tuple[tuple, tuple]:
+    """Least-squares fits of profiles ms (B, N) on the grid u = -5..5 px (0.125 px), plain step and step + line.
+
+    Model c + A Phi((u - e)/s) [+ D (Phi((u - e + w)/s) - Phi((u - e)/s))]: c,
+    A, D linear, e (-1..3 px) and s (0.4..3 px) on a grid. Returns per model
+    (e (B,), s (B,), coefficients (B, k), cost (B,)).
+    """
+    from scipy.special import ndtr
+
+    u = np.arange(-5.0, 5.0 + 1e-9, 0.125)
+    es = np.arange(-1.0, 3.0 + 1e-9, 0.02)
+    ss = np.arange(0.4, 3.0 + 1e-9, 0.05)
+    E, S = np.meshgrid(es, ss, indexing="ij")
+    z = (u[None, None, :] - E[..., None]) / S[..., None]
+    step = ndtr(z)
+    out = []
+    for with_line in (False, True):
+        cols = [np.ones_like(step), step]
+        if with_line:
+            cols.append(ndtr(z + w / S[..., None]) - step)
+        A = np.stack(cols, axis=-1)  # E, S, N, k
+        At = np.swapaxes(A, -1, -2)
+        proj = np.linalg.solve(At @ A + 1e-9 * np.eye(len(cols)), At)  # E, S, k, N
+        coef = np.einsum("eskn,bn->besk", proj, ms)
+        cost = ((ms[:, None, None, :] - np.einsum("esnk,besk->besn", A, coef)) ** 2).sum(axis=-1)
+        b = np.arange(len(ms))
+        i, j = np.unravel_index(cost.reshape(len(ms), -1).argmin(axis=1), cost.shape[1:])
+        out.append((es[i], ss[j], coef[b, i, j], cost[b, i, j]))
+    return out[0], out[1]
+
+
+def face_line_shift(prof: np.ndarray, offs: np.ndarray, edge: np.ndarray, face_px: float,
+                    settings: CalibrationSettings, info: dict | None = None) -> float:
+    """Outward shift (px) of a side's single edges to the nose, given a dark face line face_px wide inward of it.
+
+    Where the camera just sees an undercut face (view angle a little past its
+    lean-back, predicted from the fitted camera by the caller), the face shows
+    as a line narrower than the blur between cloth and nose, darker than both
+    (grazing light). Blurred, a line of area a = w (k - b) next to a step of
+    height A = c - k moves the step's gradient peak inward by ~a / A (first
+    order in the line: d/dx of A Phi(x/s) + a phi(x/s) / s peaks at x ~ -a/A).
+    The side's median profile (profiles aligned on their gradient peaks
+    ``edge``, px, at ``offs``) is fitted with c + A Phi((u - e)/s) + D B(u)
+    (B the blurred box of width face_px ending at e) and without the box; the
+    shift is the difference of the two e.
+
+    To first order a thin line *is* an edge shift, and to second order a blur
+    change, so the fit alone cannot tell a line from a step whose shape is
+    not exactly a Gaussian-blurred one (a tone curve, sharpening, codec
+    ringing): there it finds false lines. The shift is therefore taken only
+    where the data show the line itself, tested on ``face_line_blocks``
+    stretches along the side (noise, and its correlation along the profile,
+    from the side's own image): (1) the shift is consistently positive: its
+    mean over the stretches' own fits, over its standard error, exceeds the
+    one-sided Student-t quantile for ``face_line_alpha``; (2) the profile dips
+    below both plateaus (cloth and cushion top: no monotone step does) by as
+    many standard errors; (3) it does not overshoot the brighter plateau by
+    half that much (sharpening rings on both sides; a dark line only dips).
+    Otherwise 0. prof: (P, N) profiles on the locating image (DN).
+    """
+    from scipy.ndimage import gaussian_filter1d as _g1
+    from scipy.special import ndtr
+    from scipy.stats import t as _student_t
+
+    u = np.arange(-5.0, 5.0 + 1e-9, 0.125)
+    al = np.array([np.interp(u + e, offs, row) for e, row in zip(edge, prof)])
+    k = int(min(settings.face_line_blocks, len(al) // 4))
+    if k < 4:
+        return 0.0
+    blocks = [np.median(al[b], axis=0) for b in np.array_split(np.arange(len(al)), k)]
+    ms = np.vstack([np.median(al, axis=0)] + blocks)
+    w = float(min(max(face_px, 0.05), settings.face_line_max_px))
+    (e0, s0, c0, cost0), (e1, s1, c1, cost1) = _step_line_fits(ms, w)
+    sh = e1 - e0
+    shift = float(sh[0])
+    se_shift = float(np.std(sh[1:], ddof=1) / np.sqrt(k))
+    # plateaus: the outer 1.5 px at either end; the dip read where the pooled
+    # line fit is lowest (a fixed place: the minimum of noisy samples would be
+    # below the plateau even on a plain step), on the profiles smoothed over
+    # 0.25 px; the overshoot where the pooled median is highest
+    q = np.array(blocks)
+    qs = _g1(q, 0.25 / 0.125, axis=1)
+    zz = (u - e1[0]) / s1[0]
+    curve = c1[0][1] * ndtr(zz) + c1[0][2] * (ndtr(zz + w / s1[0]) - ndtr(zz))
+    pooled = _g1(ms[0], 0.25 / 0.125)
+    near, far = np.median(q[:, :12], axis=1), np.median(q[:, -12:], axis=1)
+    dip = np.minimum(near, far) - qs[:, int(np.argmin(curve))]
+    over = qs[:, int(np.argmax(pooled[12:-12])) + 12] - np.maximum(near, far)
+    se_dip = float(np.std(dip, ddof=1) / np.sqrt(k))
+    z_min = float(_student_t.ppf(1.0 - settings.face_line_alpha, k - 1))
+    z_shift = shift / max(se_shift, 1e-9)
+    z_dip = float(dip.mean()) / max(se_dip, 1e-9)
+    dark = bool(c1[0][2] < min(c1[0][1], 0.0))
+    ok = dark and shift > 0 and z_shift >= z_min and z_dip >= z_min and float(over.mean()) < 0.5 * float(dip.mean())
+    if info is not None:
+        info.update(e0=float(e0[0]), e1=float(e1[0]), s0=float(s0[0]), s1=float(s1[0]), step=float(c1[0][1]),
+                    line=float(c1[0][2]), shift=shift, z_shift=float(z_shift), dip=float(dip.mean()),
+                    z_dip=z_dip, over=float(over.mean()), z_min=z_min, blocks=k, taken=ok)
+    return shift if ok else 0.0
+
+
 def noise_strip_px(det: np.ndarray, cols: slice, step: float, settings: CalibrationSettings) -> float:
     """Half-length (px) of the strip along the edge over which profiles are averaged, from their noise.
 
@@ -500,7 +605,7 @@ def edge_points_along(gray: np.ndarray, p0: np.ndarray, p1: np.ndarray, outward:
                       plateau_px: float, settings: CalibrationSettings,
                       curve=None, n_profiles: int | None = None, gray_lin: np.ndarray | None = None,
                       detect: np.ndarray | None = None, rough_line: bool = False,
-                      stats: dict | None = None) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+                      stats: dict | None = None, face_px: float = 0.0) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
     """Nose points along the segment p0->p1 (px), profiles taken along ``outward``.
 
     ``gray`` (tone-encoded DN) is used to detect the edges; ``gray_lin`` (the
@@ -517,6 +622,11 @@ def edge_points_along(gray: np.ndarray, p0: np.ndarray, p1: np.ndarray, outward:
 
     Returns (nose points (N,2), edge contrast (N,), band inner-edge points
     (N,2), NaN where the profile shows no band).
+
+    face_px: predicted image width (px) of an undercut cushion face in view
+    just inward of the nose (0: hidden; the caller decides from the fitted
+    camera, ``calibrate.face_width_px``). Where > 0, the side's single edges
+    are moved by :func:`face_line_shift` (``stats["face_shift_px"]``).
 
     s_ranges: fractions of the segment to use (pockets excluded). ``curve``
     optionally maps fractions s (M,) -> (points (M,2), outward normals (M,2)) to
@@ -594,6 +704,13 @@ def edge_points_along(gray: np.ndarray, p0: np.ndarray, p1: np.ndarray, outward:
         band = np.isfinite(inner_a)
         if (gray_lin is not None or detect is not None) and (~band).any():
             nose_a[~band] = _relocate_peaks(prof_l[rows_a[~band]], offs, nose_a[~band], settings)
+        if face_px > 0 and (~band).sum() >= 8:
+            info: dict = {}
+            shift = face_line_shift(prof_l[rows_a[~band]], offs, nose_a[~band], face_px, settings, info)
+            if stats is not None:
+                stats["face_shift_px"] = shift
+                stats["face_fit"] = info
+            nose_a[~band] += shift
         if band.any():
             # the fit sees the band and a margin either side of it: shading
             # further out (light falling off towards a cushion, a highlight

@@ -16,7 +16,10 @@ Automatic (:func:`calibrate_auto`)
    (``CalibrationSettings.edge_signal``: a cushion top of the cloth's own
    colour differs from it along that direction, a faint step in grey) and
    located on grey. In the first pass only each side's innermost
-   well-supported line is kept (:func:`main_line`).
+   well-supported line is kept (:func:`main_line`). Once a camera is fitted,
+   a side whose undercut face may be in view (:func:`face_in_view`) has its
+   single edges corrected for the face's unresolved dark line
+   (:func:`tracking._table_edges.face_line_shift`).
    ``CalibrationSettings.tone_curve`` optionally locates edges in linear light.
 4. Camera fit (scipy ``least_squares``, soft-L1 loss): focal, pose, radial k1
    (k2 optional) so that the four nose lines x = 0, x = L, y = 0, y = W at
@@ -302,6 +305,8 @@ def _calibrate_once(frames: list[np.ndarray], table: TablePreset, ball_diameter_
     # band's foot edge (a wide lens shows the faces at the ends ~25 mm wide):
     # the leading 35 % (edge_points_along) end >= 4 px inward of the band
     band_seen = {side: 0.0 for side in SIDE_ORDER}
+    # face-line widths (px) per side used in the last pass (:func:`_face_px`)
+    face_used: dict[str, float] = {}
     cut_off = {side: False for side in SIDE_ORDER}
     # whether the first pass (profiles across the cloth region's own outline,
     # before any fit) lost noses off the picture on a side: only then can a
@@ -311,7 +316,10 @@ def _calibrate_once(frames: list[np.ndarray], table: TablePreset, ball_diameter_
     prior = (settings.hfov_prior_deg, settings.hfov_prior_sigma_deg)
     fit = None
     inner: dict[str, np.ndarray] = {}
-    for it in range(max(settings.passes, 1)):
+    n_pass = max(settings.passes, 1)
+    it = -1
+    while it + 1 < n_pass:
+        it += 1
         pts: dict[str, np.ndarray] = {}
         for i, side in enumerate(SIDE_ORDER):
             ranges = _side_ranges(table, side, settings)
@@ -353,7 +361,7 @@ def _calibrate_once(frames: list[np.ndarray], table: TablePreset, ball_diameter_
                     win + plateau_px * 1.5,
                     plateau_px, settings, curve=_curve(fit.camera, side, L, W, z_nose),
                     n_profiles=_n_profiles(fit.camera, side, L, W, z_nose, settings), gray_lin=gray_lin, detect=det,
-                    stats=stats)
+                    stats=stats, face_px=face_used.setdefault(side, _face_px(fit.camera, side, L, W, z_nose, settings)))
                 if len(found):
                     r = np.abs(_point_resid_px(fit.camera, side, found, L, W, z_nose))
                     ok = r < max(settings.outlier_px, 4 * settings.loss_scale_px) + (win if it == 1 else 0)
@@ -389,6 +397,15 @@ def _calibrate_once(frames: list[np.ndarray], table: TablePreset, ball_diameter_
                 "cushions blur them)? otherwise calibrate from a file")
         groups = [(side, z_nose, pts[side]) for side in SIDE_ORDER]
         fit, groups = _fit_robust(fit.camera if fit else cam, groups, L, W, settings, prior)
+        # the face-line call (which sides, how wide) is made again with the
+        # refitted camera; where the last pass made it differently (in view or
+        # not), one more pass with the new call
+        if it > 0:
+            call = {side: _face_px(fit.camera, side, L, W, z_nose, settings) for side in SIDE_ORDER}
+            if it + 1 == n_pass and n_pass == max(settings.passes, 1) and (
+                    {s for s, v in call.items() if v > 0} != {s for s, v in face_used.items() if v > 0}):
+                n_pass += 1
+            face_used = call
     nose_groups = groups
     n_nose = sum(len(g[2]) for g in groups)
     height_from = "focal-length prior (near-overhead view; see CalibrationSettings.hfov_prior_deg)"
@@ -625,6 +642,63 @@ def line_offsets_px(resid_px: np.ndarray, groups: list) -> dict[str, float]:
         i0 += len(px)
         out[side if k < 4 else f"{side}@0"] = float(np.median(r)) if len(r) else 0.0
     return out
+
+
+def face_in_view(cam: CameraModel, side: str, L: float, W: float, z: float, settings: CalibrationSettings,
+                 tan_scale: float = 1.0) -> bool:
+    """Whether a side's undercut cushion face can be seen from the camera (mid-side).
+
+    In the plane across the side, the face runs from the nose (height z on
+    the nose line) down and outward at ``CalibrationSettings.face_lean_deg``
+    from vertical. A camera d mm inside the nose line and H mm above the nose
+    sees the face's front exactly when its sight line to the nose is further
+    off vertical than the lean: d / H > tan(lean) (the sight line then meets
+    the face, not the cloth beneath it). tan_scale multiplies d / H (a camera
+    that much lower, as a focal length off by that factor would put it).
+    The angle barely changes along a side of a camera over the table.
+    """
+    if settings.face_lean_deg is None:
+        return False
+    a, b, out = _side_world(side, L, W)
+    c = cam.centre_mm
+    hc = float(c[2]) - z
+    d = float((0.5 * (a + b) - c[:2]) @ out)
+    return hc > 0 and d / hc * tan_scale > math.tan(math.radians(settings.face_lean_deg))
+
+
+def face_width_px(cam: CameraModel, side: str, L: float, W: float, z: float,
+                  settings: CalibrationSettings) -> float:
+    """Image width (px) of a side's undercut face at mid-side, 0 where it is hidden (:func:`face_in_view`).
+
+    The nose-to-foot distance across the projected nose line; the foot lies
+    z tan(lean) outward of the nose on the cloth. In the image it lies inward
+    of the nose when the face is in view (the face's front is then seen).
+    """
+    if not face_in_view(cam, side, L, W, z, settings):
+        return 0.0
+    a, b, out = _side_world(side, L, W)
+    mid = 0.5 * (a + b)
+    foot = mid + out * z * math.tan(math.radians(settings.face_lean_deg))
+    p = cam.project(np.array([[*mid, z], [*foot, 0.0], [*(mid + out * 5.0), z]]))
+    n = p[2] - p[0]
+    n /= max(float(np.linalg.norm(n)), 1e-12)
+    return max(float((p[0] - p[1]) @ n), 0.0)
+
+
+def _face_px(cam: CameraModel, side: str, L: float, W: float, z: float, settings: CalibrationSettings) -> float:
+    """Width (px) of the face line to model on a side (:func:`tracking._table_edges.face_line_shift`), 0 for none.
+
+    The view angle comes from the fitted camera, whose focal length (so the
+    angle's tangent) is known only to ``face_focal_unc`` near-overhead, and
+    the face's own pull on the nose edge moves the fit either way. So a face
+    is modelled where it is in view for a focal within that band (its width
+    then at least ``face_line_min_px``); the shift is taken only where the
+    side's profiles show the line (:func:`tracking._table_edges.face_line_shift`).
+    The caller makes this call again with each refitted camera.
+    """
+    if face_in_view(cam, side, L, W, z, settings, 1.0 + settings.face_focal_unc):
+        return max(face_width_px(cam, side, L, W, z, settings), settings.face_line_min_px)
+    return 0.0
 
 
 def _band_width_px(pts: np.ndarray, band: np.ndarray | None) -> float:
