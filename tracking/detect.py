@@ -49,6 +49,11 @@ origin at the centre of the top-left pixel):
    (:func:`silhouette_offset_px`); at 3 m camera height it is <= ~0.05 px.
 5. Table position through the ball-centre plane z = R
    (``Calibration.px_to_table``) and an honest sigma from the fit residuals.
+6. Outline re-seeding (:func:`_outline_reseed`): a seed from the blob of a
+   ball and its cast shadow can lie most of a radius off and make the fit
+   settle on the shadow; where a disc of the known radius best covers the
+   shade-free map's not-cloth pixels, the fit is redone and the better-
+   covering one kept (balls with parts darker than the cloth excepted).
 
 References: circle fitting, N. Chernov, *Circular and Linear Regression*
 (CRC, 2010); Tukey biweight, Holland & Welsch, Commun. Stat. 6:813 (1977);
@@ -693,6 +698,77 @@ def _toward_neighbour(c: np.ndarray, r: float, others: np.ndarray | None, n_rays
     return ((along > 0) & (perp < r)).any(axis=1)
 
 
+def outline_kernel(r: float, ring_out: float) -> np.ndarray:
+    """Disc-minus-annulus kernel (float32, sums to 0): +1/N over the disc of radius r px, -1/M over the
+    annulus r + 1 px .. ring_out x r (pixel centres, 4x4 supersampled coverage)."""
+    n = int(np.ceil(ring_out * r)) + 1
+    sub = (np.arange(4) + 0.5) / 4 - 0.5
+    yy, xx = np.mgrid[-n:n + 1, -n:n + 1].astype(np.float32)
+    rr = np.hypot(xx[..., None, None] + sub[None, None, None, :], yy[..., None, None] + sub[None, None, :, None])
+    disc = (rr <= r).mean(axis=(2, 3))
+    ring = ((rr >= r + 1.0) & (rr <= ring_out * r)).mean(axis=(2, 3))
+    return (disc / max(disc.sum(), 1e-9) - ring / max(ring.sum(), 1e-9)).astype(np.float32)
+
+
+def outline_centre(em: np.ndarray, x0: float, y0: float, r: float, threshold_dn: float,
+                   settings: DetectionSettings) -> tuple[float, float, float] | None:
+    """Where a disc of the ball's known radius r (px) best covers the not-cloth pixels near (x0, y0).
+
+    The ball's silhouette is a disc of known image radius and every part of
+    the ball lies inside it; the cloth around it is empty. On the edge map
+    ``em`` (Delta-E units) each pixel's not-cloth weight is clip(em /
+    level, 0, 1), level from :func:`outline_level` (half the ball's own
+    typical contrast, so that a cast shadow weaker than the ball weighs
+    less); the score of a centre is the mean weight inside the disc minus
+    that in the annulus r + 1 px to ``outline_ring_out`` r
+    (:func:`outline_kernel`). Returns (x, y) of the score's maximum within
+    ``outline_search`` r of (x0, y0) (sub-pixel: parabola through the peak)
+    and the level used, or None near the image border.
+    """
+    reach = settings.outline_search * r
+    kern = outline_kernel(r, settings.outline_ring_out)
+    h = kern.shape[0] // 2
+    half = int(np.ceil(reach)) + h + 2
+    xi, yi = int(round(x0)), int(round(y0))
+    if xi - half < 0 or yi - half < 0 or xi + half + 1 > em.shape[1] or yi + half + 1 > em.shape[0]:
+        return None
+    patch = em[yi - half:yi + half + 1, xi - half:xi + half + 1]
+    level = outline_level(patch, threshold_dn, settings)
+    w = np.clip(patch / level, 0, 1).astype(np.float32)
+    sc = cv2.filter2D(w, cv2.CV_32F, kern, borderType=cv2.BORDER_CONSTANT)
+    yy, xx = np.mgrid[-half:half + 1, -half:half + 1]
+    sc = np.where(np.hypot(xx + xi - x0, yy + yi - y0) <= reach, sc, -np.inf)
+    j, i = np.unravel_index(int(np.argmax(sc)), sc.shape)
+    if not (0 < i < sc.shape[1] - 1 and 0 < j < sc.shape[0] - 1):
+        return None
+
+    def vertex(a: float, b: float, c: float) -> float:
+        den = a - 2 * b + c
+        return float(np.clip(0.5 * (a - c) / den, -0.5, 0.5)) if np.isfinite(den) and den < -1e-9 else 0.0
+
+    dx = vertex(sc[j, i - 1], sc[j, i], sc[j, i + 1])
+    dy = vertex(sc[j - 1, i], sc[j, i], sc[j + 1, i])
+    return xi - half + i + dx, yi - half + j + dy, level
+
+
+def outline_level(patch: np.ndarray, threshold_dn: float, settings: DetectionSettings) -> float:
+    """Edge-map level (Delta-E units) at which a pixel counts as wholly not-cloth: ``outline_level_frac`` x the
+    patch's ``outline_level_pct`` percentile (the ball's own typical contrast), at least the threshold."""
+    return max(float(threshold_dn), settings.outline_level_frac * float(np.percentile(patch, settings.outline_level_pct)))
+
+
+def outline_score(em: np.ndarray, x: float, y: float, r: float, level: float,
+                  settings: DetectionSettings) -> float:
+    """:func:`outline_centre`'s score of the disc about (x, y) px (nearest pixel) with its ``level``; -inf near the border."""
+    kern = outline_kernel(r, settings.outline_ring_out)
+    h = kern.shape[0] // 2
+    xi, yi = int(round(x)), int(round(y))
+    if xi - h < 0 or yi - h < 0 or xi + h + 1 > em.shape[1] or yi + h + 1 > em.shape[0]:
+        return -np.inf
+    w = np.clip(em[yi - h:yi + h + 1, xi - h:xi + h + 1] / level, 0, 1)
+    return float((w * kern).sum())
+
+
 def refine_centre(d: np.ndarray, x0: float, y0: float, r_exp: float,
                   settings: DetectionSettings = DetectionSettings(), image: np.ndarray | None = None,
                   threshold_dn: float | None = None, others: np.ndarray | None = None) -> dict | None:
@@ -1186,7 +1262,12 @@ def detect_frame(image: np.ndarray, calibration: Calibration, settings: Detectio
         ref = streak_centre(gx, gy, r_exp) if settings.streak_fit else None
         if ref is None:
             others = np.vstack([seeds_px] + [[[f[0]["x"], f[0]["y"]]] for f in found])
-            ref = refine_centre(edge_map(d, de, gx, gy, r0, settings), gx, gy, r_exp, settings, image, thr, others)
+            em = edge_map(d, de, gx, gy, r0, settings)
+            ref = refine_centre(em, gx, gy, r_exp, settings, image, thr, others)
+            if settings.outline_reseed and de is not None and em is d:
+                p2 = pad + int(np.ceil(settings.outline_search * r_exp)) + 2  # the refit's rays, from up to r away
+                fill(int(gx) - p2, int(gy) - p2, int(gx) + p2 + 2, int(gy) + p2 + 2)
+                ref = _outline_reseed(ref, d, de, em, gx, gy, r_exp, settings, image, thr, others)
         if ref is None:
             return False
         r_exp, ox, oy = background.lookup(ref["x"], ref["y"])
@@ -1231,6 +1312,42 @@ def detect_frame(image: np.ndarray, calibration: Calibration, settings: Detectio
             })
     rows = _drop_duplicates(rows, r0)
     return pd.DataFrame(rows, columns=DETECTION_COLUMNS)
+
+
+def _outline_reseed(ref: dict | None, d: np.ndarray, de: np.ndarray | None, em: np.ndarray, gx: float, gy: float,
+                    r_exp: float, settings: DetectionSettings, image: np.ndarray, thr: float,
+                    others: np.ndarray) -> dict | None:
+    """The circle fit ``ref`` from the seed (gx, gy) px, or the one redone from the outline's best disc when that
+    covers the ball better.
+
+    A seed placed on a ball and its cast shadow together (the shadow of a
+    ball of the cloth's colour is as strong in Delta-E as the ball) can lie
+    most of a radius off; there the shadow also decides the edge map
+    (:func:`edge_map` reads the shade-free map's contrast at the seed: low,
+    so Delta-E ``d``) and the ray fit settles on the shadow's side. When the
+    edge map ``em`` was ``d`` but a shade-free map ``de`` exists,
+    :func:`outline_centre` on ``de`` finds where a disc of the known radius
+    best covers the not-cloth pixels. Only where the ball keeps all its
+    contrast on ``de`` (mean inside 0.6 r at least ``outline_reseed_min_ratio``
+    of ``d``'s: no part of it reads as shadow, unlike a black ball or a dark
+    band, whose fits stay on ``d``) is the fit redone from there on ``de``;
+    of the two, the one whose disc scores higher on ``de``
+    (:func:`outline_score`) is kept.
+    """
+    if de is None or em is de:
+        return ref
+    oc = outline_centre(de, gx, gy, r_exp, thr, settings)
+    if oc is None:
+        return ref
+    if _disc_mean(de, oc[0], oc[1], 0.6 * r_exp) < settings.outline_reseed_min_ratio * _disc_mean(d, oc[0], oc[1],
+                                                                                                    0.6 * r_exp):
+        return ref
+    alt = refine_centre(de, oc[0], oc[1], r_exp, settings, image, thr, others)
+    if alt is None or ref is None:
+        return alt if ref is None else ref
+    s_ref = outline_score(de, ref["x"], ref["y"], r_exp, oc[2], settings)
+    s_alt = outline_score(de, alt["x"], alt["y"], r_exp, oc[2], settings)
+    return alt if s_alt > s_ref else ref
 
 
 def _drop_streak_ends(found: list, settings: DetectionSettings) -> list:

@@ -609,6 +609,27 @@ class DetectionSettings:
     #: 1.0: below about one radius the circle fit reaches both ends (its
     #: outermost-drop search goes to 1.3 radii, a smear's ends lie at
     #: 1 + L/2r) and both fits measured alike on our fast renders.
+    #: Re-seeding the circle fit from the outline (detect._outline_reseed),
+    #: for a fit located on Delta-E while a shade-free map exists: where a
+    #: disc of the known radius best covers the shade-free map's not-cloth
+    #: pixels (weight clip(de / level, 0, 1), level outline_level_frac x the
+    #: patch's outline_level_pct percentile: the ball's own contrast; score
+    #: the disc's mean minus that of the annulus r + 1 px .. outline_ring_out
+    #: r), searched within outline_search r of the seed; the fit is redone
+    #: there only where the ball keeps outline_reseed_min_ratio of its Delta-E
+    #: contrast on the shade-free map. Measured there (mean inside 0.6 r,
+    #: shade-free / Delta-E, truth camera): MuJoCo mj9911's blue ball on blue
+    #: cloth 0.99-1.00 (seeds on its shadow, fits 4.8-5.4 px off -> 0.6-1.5);
+    #: sweep f05b's black ball with its white number 0.69-0.80 (the refit
+    #: went to the white part, 0.2-1.8 -> 1.3-2.7 px). 0.9 lies between
+    #: (chosen on these clips); 1.0 is a ball with no part darker than the
+    #: cloth along the cloth's own colour.
+    outline_reseed: bool = True
+    outline_search: float = 1.0
+    outline_ring_out: float = 1.4
+    outline_reseed_min_ratio: float = 0.9
+    outline_level_frac: float = 0.5
+    outline_level_pct: float = 90.0
     streak_fit: bool = True
     #: Locate a streak's rim (tracking.streak.refine_streak) on the same edge
     #: map as the circle fit (detect.edge_map: shade-free where the ball keeps
