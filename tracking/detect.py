@@ -754,12 +754,14 @@ def outline_centre(em: np.ndarray, x0: float, y0: float, r: float, threshold_dn:
 def outline_level(patch: np.ndarray, threshold_dn: float, settings: DetectionSettings) -> float:
     """Edge-map level (Delta-E units) at which a pixel counts as wholly not-cloth: ``outline_level_frac`` x the
     patch's ``outline_level_pct`` percentile (the ball's own typical contrast), at least the threshold."""
-    return max(float(threshold_dn), settings.outline_level_frac * float(np.percentile(patch, settings.outline_level_pct)))
+    typical = float(np.percentile(patch, settings.outline_level_pct))
+    return max(float(threshold_dn), settings.outline_level_frac * typical)
 
 
 def outline_score(em: np.ndarray, x: float, y: float, r: float, level: float,
                   settings: DetectionSettings) -> float:
-    """:func:`outline_centre`'s score of the disc about (x, y) px (nearest pixel) with its ``level``; -inf near the border."""
+    """:func:`outline_centre`'s score of the disc about (x, y) px (nearest pixel) with its ``level``;
+    -inf near the border."""
     kern = outline_kernel(r, settings.outline_ring_out)
     h = kern.shape[0] // 2
     xi, yi = int(round(x)), int(round(y))
