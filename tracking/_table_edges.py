@@ -486,10 +486,11 @@ def _step_line_fits(ms: np.ndarray, w: float) -> tuple[tuple, tuple]:
         if with_line:
             cols.append(ndtr(z + w / S[..., None]) - step)
         A = np.stack(cols, axis=-1)  # E, S, N, k
-        At = np.swapaxes(A, -1, -2)
-        proj = np.linalg.solve(At @ A + 1e-9 * np.eye(len(cols)), At)  # E, S, k, N
-        coef = np.einsum("eskn,bn->besk", proj, ms)
-        cost = ((ms[:, None, None, :] - np.einsum("esnk,besk->besn", A, coef)) ** 2).sum(axis=-1)
+        atm = np.einsum("esnk,bn->eskb", A, ms)  # A^T m
+        coef = np.linalg.solve(np.swapaxes(A, -1, -2) @ A + 1e-9 * np.eye(len(cols)), atm)  # E, S, k, B
+        # least-squares residual sum of squares: |m|^2 - coef . A^T m
+        cost = np.moveaxis((ms * ms).sum(axis=1) - (coef * atm).sum(axis=2), -1, 0)  # B, E, S
+        coef = np.moveaxis(coef, -1, 0)  # B, E, S, k
         b = np.arange(len(ms))
         i, j = np.unravel_index(cost.reshape(len(ms), -1).argmin(axis=1), cost.shape[1:])
         out.append((es[i], ss[j], coef[b, i, j], cost[b, i, j]))
