@@ -17,8 +17,9 @@ Automatic (:func:`calibrate_auto`)
    colour differs from it along that direction, a faint step in grey) and
    located on grey. In the first pass only each side's innermost
    well-supported line is kept (:func:`main_line`). Once a camera is fitted,
-   a side whose undercut face may be in view (:func:`face_in_view`) has its
-   single edges corrected for the face's unresolved dark line
+   a side whose undercut face may be in view (:func:`face_in_view`, called
+   again with each refitted camera) has its single edges corrected for the
+   face's unresolved dark line where the side's own profiles show that line
    (:func:`tracking._table_edges.face_line_shift`).
    ``CalibrationSettings.tone_curve`` optionally locates edges in linear light.
 4. Camera fit (scipy ``least_squares``, soft-L1 loss): focal, pose, radial k1
