@@ -268,6 +268,7 @@ def find_groups(samples: dict[str, BallSamples], times: np.ndarray, P, S, V, see
     # the most energetic seeds first: they set the group's time
     order = sorted(seeds, key=lambda c: -(np.nan_to_num(V[c[1]][c[4]]) + np.nan_to_num(V[c[2]][c[4]])))
     gid = 0
+    events: list[tuple] = []  # (t_grp, pinned side, link pairs, group ids) per measured event
     for kind, a, b, _, k, _, _ in order:
         if any(abs(k - k0) <= 2 and (a in bs or b in bs) for k0, bs in done):
             continue
@@ -368,12 +369,18 @@ def find_groups(samples: dict[str, BallSamples], times: np.ndarray, P, S, V, see
                for c in out for l in ok):
             continue
         multi = any(len(p) >= 2 for p in comp)
+        # the jumping balls' median break pinned at the edge of the scanned frame: the change lies
+        # at or beyond it, so t_grp is only a bound on the event's time
+        side = _pinned_side(tb[np.asarray(jump, bool)], t_c, dt)
+        ev = (t_grp, side, {frozenset(links[l]) for l in ok}, [])
+        events.append(ev)
         for piece in comp:
             # a lone link counts inside a compound event (its pair test cannot judge a ball that
             # also passed a push on), else it is left to the pairwise test
             if len(piece) < 2 and not (multi and s.compound_lone_links):
                 continue
             gid += 1
+            ev[3].append(gid)
             for lp in piece:
                 l = ok[[li[o] for o in ok].index(lp)]
                 p, q = links[l]
@@ -388,7 +395,55 @@ def find_groups(samples: dict[str, BallSamples], times: np.ndarray, P, S, V, see
                     "ball-ball", A, B, "", t_grp, nn, float(np.nanmin(gaps[(p, q)][0][ks])),
                     float(sol.J[l] / sol.J_sigma[l]), np.nan_to_num(dv[idx[A]]), np.nan_to_num(dv[idx[B]]),
                     group=gid, simultaneous=True))
-    return out
+    # one event seen from two seed frames: a slow ball is inside the touching margin for frames
+    # before it arrives, so a group can be measured early, its fits reaching the real change and
+    # pinned at the scan's edge. Such a group is a copy of a group that shares one of its links
+    # and lies beyond that edge within ``compound_copy_frames`` frame periods: it is dropped
+    drop = _copies(events, s.compound_copy_frames * dt)
+    return [c for c in out if c.group not in drop]
+
+
+def _copies(events: list[tuple], reach_s: float) -> set[int]:
+    """Group ids of events measured early or late: events are (t_grp s, pinned side -1/0/+1,
+    set of link pairs, list of group ids); an event pinned at one edge is a copy when another
+    reported event (group ids not empty) sharing one of its link pairs lies beyond that edge
+    within ``reach_s`` seconds and is not itself pinned back towards it (two events pinned towards
+    each other bracket the change: neither is the better measurement, both stay).
+
+    >>> ab, bc = frozenset("ab"), frozenset("bc")
+    >>> sorted(_copies([(0.800, 1, {ab}, [3]), (0.842, 0, {ab, bc}, [4])], 0.05))
+    [3]
+    >>> sorted(_copies([(0.800, -1, {ab}, [3]), (0.842, 0, {ab, bc}, [4])], 0.05))
+    []
+    >>> sorted(_copies([(0.150, 1, {ab}, [1]), (0.167, -1, {ab}, [2])], 0.05))
+    []
+    >>> sorted(_copies([(0.800, 1, {ab}, [3]), (0.842, 0, {ab}, [])], 0.05))
+    []
+    """
+    drop: set[int] = set()
+    for i, (tg, side, prs, gids) in enumerate(events):
+        if side and any(j != i and h[3] and prs & h[2] and 0.0 < side * (h[0] - tg) <= reach_s
+                        and h[1] != -side for j, h in enumerate(events)):
+            drop |= set(gids)
+    return drop
+
+
+def _pinned_side(tb: np.ndarray, t_c: float, dt: float) -> int:
+    """+1 / -1 when the median of the break times ``tb`` (s) sits at the later / earlier edge of
+    the frame scanned around frame time ``t_c`` (within 5 % of a frame period ``dt`` of t_c +- dt),
+    else 0 (also for no finite break time).
+
+    >>> _pinned_side(np.array([0.8, 0.8, 0.8, 0.7792]), 0.78333, 1 / 60)
+    1
+    >>> _pinned_side(np.array([0.2687, 0.2646, 0.2708]), 0.26667, 1 / 60)
+    0
+    """
+    tb = np.asarray(tb, float)
+    tb = tb[np.isfinite(tb)]
+    if not len(tb):
+        return 0
+    off = float(np.median(tb)) - t_c
+    return int(np.sign(off)) if abs(off) > 0.95 * dt else 0
 
 
 def _hops(start: int, links: list[tuple[int, int]], n: int) -> np.ndarray:

@@ -26,6 +26,7 @@ import numpy as np
 import pandas as pd
 
 from feltlab.errors import FeltlabError
+from feltlab.standards import MU_BALL_BALL_RANGE
 from physics.settings import PhysicsSettings
 
 CUSHION_NORMALS = {
@@ -628,6 +629,18 @@ def find_contacts(
             slack = s.dv_z * float(np.hypot(sJ[lo_b], r * sJ[hi_b]))
             if J[lo_b] < r * J[hi_b] - slack:
                 return None
+            # ... along their line of centres: across the tangent each ball changes only by the
+            # throw, at most mu_bb of the normal change (ball-ball friction, feltlab.standards.
+            # MU_BALL_BALL_RANGE). A ball that changes mostly across the line was pushed by another
+            # ball: a rack neighbour pushed away from this one by a third, or a slow ball that hit
+            # one of two side-by-side balls and grazed the other
+            if s.pair_tangent_check:
+                tang = np.array([-n[1], n[0]])
+                for ball in (a, b):
+                    dvt = float(dvs[ball] @ tang)
+                    sdt = float(np.sqrt(max(tang @ fits[ball].dv_cov @ tang, 0.0)))
+                    if abs(dvt) > MU_BALL_BALL_RANGE[1] * J[hi_b] + s.dv_z * sdt:
+                        return None
         # the striking ball approaches faster along the normal
         fa, fb = fits[a], fits[b]
         va = fa.v_pre @ n if fa is not None else 0.0

@@ -269,6 +269,16 @@ class PhysicsSettings:
     #: passed along a side row of a rack) is reported with the event, not left to the pairwise
     #: test, which refuses a ball that passed the push on within the frame.
     compound_lone_links: bool = True
+    #: Compound events: a group whose balls' breaks are pinned at the edge of the scanned frame
+    #: saw a change at or beyond it; another group sharing one of its links that far on, within
+    #: this many frame periods, is the same event and the pinned one a copy. A slow ball is within
+    #: the touching margin (3 mm + 4 sigma + one frame of travel, ~8 mm) for ~8 mm / (v dt)
+    #: frames before it arrives: 2.7 frames at 180 mm/s and 60 fps. Geometry.
+    compound_copy_frames: float = 3.0
+    #: A pairwise contact's velocity changes must lie along the line of centres: across it each
+    #: ball may change by the throw (at most the published ball-ball friction times the normal
+    #: change, feltlab.standards.MU_BALL_BALL_RANGE) plus dv_z standard errors. Physics.
+    pair_tangent_check: bool = True
     #: A pairwise contact's two balls must change their normal velocities alike (one impulse,
     #: equal masses): the smaller change must reach this fraction of the larger, within dv_z
     #: standard errors. Half: allows a cue ball up to twice an object ball's mass (the equal-mass
