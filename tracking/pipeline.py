@@ -188,8 +188,10 @@ def spikes(frames: np.ndarray, z: np.ndarray, sig: np.ndarray, k_sigma: float) -
     """(N,) bool: detections a ball cannot have made - farther from both neighbours (the frames just
     before and after) than the ball travels in one frame on either side, by more than ``k_sigma`` x
     the two detections' sigmas (mm). A ball reaches a point between two frames only by moving there:
-    a cushion bounce or a struck ball stays within its incoming or outgoing step; an out-and-back
-    jump with still neighbours is a wrong detection (a merged blob, a neighbour's disc).
+    a cushion bounce or a struck ball stays within its incoming or outgoing step, and a fix on the
+    straight path between its two neighbours (a ball struck from rest that reaches a cushion within
+    the next frame) is passed through; an out-and-back jump with still neighbours is a wrong
+    detection (a merged blob, a neighbour's disc).
     Judged only with two consecutive neighbours on each side."""
     n = len(frames)
     out = np.zeros(n, bool)
@@ -203,7 +205,10 @@ def spikes(frames: np.ndarray, z: np.ndarray, sig: np.ndarray, k_sigma: float) -
         step = max(np.linalg.norm(z[k - 1] - z[k - 2]), np.linalg.norm(z[k + 2] - z[k + 1]))
         dp, dn = np.linalg.norm(z[k] - z[k - 1]), np.linalg.norm(z[k] - z[k + 1])
         tol = k_sigma * (s[k] + max(s[k - 1], s[k + 1]))
-        out[k] = min(dp, dn) > step + tol
+        # a fix on the straight path between its neighbours is passed through, not a spike: a ball
+        # struck from rest whose next step ends at a cushion (its outgoing step then folds back)
+        detour = dp + dn - np.linalg.norm(z[k + 1] - z[k - 1])
+        out[k] = min(dp, dn) > step + tol and detour > tol
     return out
 
 
