@@ -193,7 +193,8 @@ def kink_fit(
     m = (b.t > lo) & (b.t < hi) & (np.abs(b.t - t_c) > guard)
     t, xy, sig = b.t[m], b.xy[m], b.sig[m]
     best = None
-    for tb in np.linspace(t_c - dt, t_c + dt, 17) if scan is None else scan:
+    span = max(dt, s.contact_time_floor_s)
+    for tb in np.linspace(t_c - span, t_c + span, 2 * int(np.ceil(8 * span / dt)) + 1) if scan is None else scan:
         pre = t < tb
         npre, npost = int(pre.sum()), int((~pre).sum())
         if npre < 2 or npost < 2:
@@ -744,7 +745,7 @@ def find_contacts(
             if cand is not None:
                 tested.append((cand, len(geo) - 1))
     gi_of = {id(c): gi for c, gi in tested}
-    out = _dedupe([c for c, _ in tested], dt)
+    out = _dedupe([c for c, _ in tested], dt, s.contact_time_floor_s)
     # compound events: links inside a group touching within one frame replace the pairwise view
     from physics.compound import find_groups, merge_groups  # noqa: PLC0415 - compound uses this module
 
@@ -753,7 +754,7 @@ def find_contacts(
     grouped = find_groups(samples, times, P, S, V, seeds, cand_t, radius_mm, dt, s, out, covered)
     if grouped:
         # the groups' jumps are taken: pairwise candidates whose windows reached over them again
-        out = _dedupe([c for c, _ in settle([(c, gi_of[id(c)]) for c in out], grouped)], dt)
+        out = _dedupe([c for c, _ in settle([(c, gi_of[id(c)]) for c in out], grouped)], dt, s.contact_time_floor_s)
     out = merge_groups(out, grouped, dt, covered)
     return sorted(out, key=lambda c: c.t_init_s)
 
@@ -823,14 +824,16 @@ def onset_candidates(samples: dict[str, BallSamples], onsets: dict[str, Onset], 
     return out
 
 
-def _dedupe(cands: list[ContactCandidate], dt: float) -> list[ContactCandidate]:
-    """Keep one candidate per (pair or ball+cushion) within 2 frame periods: the most significant."""
+def _dedupe(cands: list[ContactCandidate], dt: float, floor_s: float = 0.0) -> list[ContactCandidate]:
+    """Keep one candidate per (pair or ball+cushion) within 2 frame periods (at least 2 x
+    ``floor_s``, settings.contact_time_floor_s): the most significant."""
     keep: list[ContactCandidate] = []
+    win = 2.0 * max(dt, floor_s)
     for c in sorted(cands, key=lambda c: -c.z):
         key = (c.kind, frozenset((c.ball_a, c.ball_b)), c.cushion)
         clash = any(
             (k.kind, frozenset((k.ball_a, k.ball_b)), k.cushion) == key
-            and abs(k.t_init_s - c.t_init_s) < 2.0 * dt
+            and abs(k.t_init_s - c.t_init_s) < win
             for k in keep
         )
         if not clash:

@@ -157,7 +157,8 @@ def _layouts(samples, cands, onsets, dt, s):
             s.guard_cushion_s if m.kind == "ball-cushion" else s.guard_strike_s
             for m in merged
         ])
-        half = np.array([1.0 * dt if m.kind != "strike" else 2.5 * dt for m in merged])
+        half = np.array([max(1.0 * dt, s.contact_time_floor_s) if m.kind != "strike" else 2.5 * dt
+                         for m in merged])
         layouts[name] = ChainLayout(
             name, float(b.t[0]), bool(rest_first and (merged or on.t_onset is None)),
             [m.kind for m in merged], np.array([m.t for m in merged]), half, guards,

@@ -344,3 +344,14 @@ class PhysicsSettings:
     # -- leaving the table -----------------------------------------------------------------
     #: A ball whose samples stop this many frame periods before the clip end left the table.
     leave_frames: int = 3
+
+    # -- high frame rates ----------------------------------------------------------------------
+    #: Every search for a contact's time spans at least this (s) on either side, and candidates of
+    #: one pair (or one ball and cushion) closer than twice it are one contact: the change-point
+    #: scan around a sampled gap minimum, a break's freedom in the chain fit (ChainLayout
+    #: break_halfwidth) and the duplicate test. The sampled gap's minimum is uncertain by about the
+    #: gap noise over the closing speed (sqrt(2) x 0.3-0.5 mm over 150-400 mm/s: 1-5 ms), which one
+    #: frame period covers at <= 250 fps (so nothing changes there) but not at 500-1000 fps, where
+    #: contacts were held 1-3 ms from their time (bench seed 213 at 1000 fps: ball-ball e errors up
+    #: to 0.12). Geometry and noise, not tuned; 4 ms = one frame at 250 fps.
+    contact_time_floor_s: float = 0.004
