@@ -41,6 +41,24 @@ def make_calibration(k1: float = -0.03, size=(960, 540), roll=0.6, pitch=1.5, ya
     return Calibration(camera=cam, table=table, ball_diameter_mm=POOL_BALL.diameter_mm, method="truth")
 
 
+def sphere_normals(cal: Calibration, C: np.ndarray, x0: int, y0: int, x1: int, y1: int, ss: int):
+    """Ray-cast a ball of radius R_MM centred at C (table mm) over pixels [x0, x1) x [y0, y1), ss x ss
+    sub-samples per pixel (row-major, sub-samples last): unit surface normals (N, 3) where each ray
+    first meets the sphere (closed-form ray-sphere intersection), and which rays hit (N,) bool."""
+    O = cal.camera.centre_mm
+    sub = (np.arange(ss) + 0.5) / ss - 0.5
+    gy, gx = np.mgrid[y0:y1, x0:x1]
+    px = (gx[..., None, None] + sub[None, None, None, :]).repeat(ss, axis=2)
+    py = (gy[..., None, None] + sub[None, None, :, None]).repeat(ss, axis=3)
+    _, d = cal.camera.rays(np.column_stack([px.ravel(), py.ravel()]))
+    oc = O - C
+    bq = d @ oc
+    disc = bq * bq - (oc @ oc - R_MM * R_MM)
+    hit = disc > 0
+    s = -bq - np.sqrt(np.where(hit, disc, 0))
+    return (O + s[:, None] * d - C) / R_MM, hit
+
+
 def render(cal: Calibration, balls: list[dict], rng: np.random.Generator | None = None, noise_dn: float = 0.0,
            light=(0.0, 0.0, 1.0), ambient: float = 0.55, ss: int = 4, blur_path_mm=None) -> np.ndarray:
     """Ray-cast BGR uint8 frame of balls on a flat cloth.
@@ -54,7 +72,6 @@ def render(cal: Calibration, balls: list[dict], rng: np.random.Generator | None 
     img[:] = CLOTH
     L = np.asarray(light, float)
     L /= np.linalg.norm(L)
-    O = cal.camera.centre_mm
     for b in balls:
         steps = [(0.0, 0.0)]
         if b.get("path"):
@@ -69,20 +86,9 @@ def render(cal: Calibration, balls: list[dict], rng: np.random.Generator | None 
             half = int(np.ceil(r_px * 1.6 + 2 + (np.hypot(*b["path"]) / cal.camera.mm_per_px(C) if b.get("path") else 0)))
             cx, cy = int(round(c_px[0])), int(round(c_px[1]))
             x0, y0, x1, y1 = max(cx - half, 0), max(cy - half, 0), min(cx + half + 1, w), min(cy + half + 1, h)
-            sub = (np.arange(ss) + 0.5) / ss - 0.5
-            gy, gx = np.mgrid[y0:y1, x0:x1]
-            px = (gx[..., None, None] + sub[None, None, None, :]).repeat(ss, axis=2)
-            py = (gy[..., None, None] + sub[None, None, :, None]).repeat(ss, axis=3)
-            _, d = cal.camera.rays(np.column_stack([px.ravel(), py.ravel()]))
-            oc = O - C
-            bq = d @ oc
-            disc = bq * bq - (oc @ oc - R_MM * R_MM)
-            hit = disc > 0
-            s = -bq - np.sqrt(np.where(hit, disc, 0))
-            P = O + s[:, None] * d
-            n = (P - C) / R_MM
+            n, hit = sphere_normals(cal, C, x0, y0, x1, y1, ss)
             shade = ambient + (1 - ambient) * np.clip(n @ L, 0, 1)
-            base = np.tile(np.asarray(b["bgr"], float), (len(d), 1))
+            base = np.tile(np.asarray(b["bgr"], float), (len(n), 1))
             if b.get("stripe"):
                 white = np.abs(n[:, 1]) > 0.45
                 base[white] = (235, 240, 242)

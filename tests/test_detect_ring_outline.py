@@ -22,7 +22,7 @@ from dataclasses import replace
 import numpy as np
 import pytest
 
-from test_detect import CLOTH, R_MM, empty_background, make_calibration, nearest, truth_px
+from test_detect import CLOTH, R_MM, empty_background, make_calibration, nearest, sphere_normals, truth_px
 from tracking.dark_ring import recentre_by_ring
 from tracking.detect import detect_frame
 from tracking.settings import DetectionSettings
@@ -44,24 +44,13 @@ def render_stripe(cal, x: float, y: float, band_bgr, axis, rng, noise_dn: float,
     img[:] = CLOTH
     L = np.asarray(light, float) / np.linalg.norm(light)
     a = np.asarray(axis, float) / np.linalg.norm(axis)
-    O = cal.camera.centre_mm
     C = np.array([x, y, R_MM])
     c_px = cal.camera.project(C[None])[0]
     r_px = R_MM / cal.camera.mm_per_px(C)
     half = int(np.ceil(1.6 * r_px + 2))
     cx, cy = int(round(c_px[0])), int(round(c_px[1]))
     x0, y0, x1, y1 = cx - half, cy - half, cx + half + 1, cy + half + 1
-    sub = (np.arange(ss) + 0.5) / ss - 0.5
-    gy, gx = np.mgrid[y0:y1, x0:x1]
-    px = (gx[..., None, None] + sub[None, None, None, :]).repeat(ss, axis=2)
-    py = (gy[..., None, None] + sub[None, None, :, None]).repeat(ss, axis=3)
-    _, d = cal.camera.rays(np.column_stack([px.ravel(), py.ravel()]))
-    oc = O - C
-    bq = d @ oc
-    disc = bq * bq - (oc @ oc - R_MM * R_MM)
-    hit = disc > 0
-    s = -bq - np.sqrt(np.where(hit, disc, 0))
-    n = (O + s[:, None] * d - C) / R_MM
+    n, hit = sphere_normals(cal, C, x0, y0, x1, y1, ss)
     shade = ambient + (1 - ambient) * np.clip(n @ L, 0, 1)
     base = np.where((np.abs(n @ a) < 0.45)[:, None], np.asarray(band_bgr, float), np.asarray(WHITE, float))
     shape = (y1 - y0, x1 - x0, ss * ss)

@@ -53,18 +53,23 @@ def follow_shot(v_c: float, phase: float, duration: float = 0.8):
     return t, {"cue": np.column_stack([xa, y]), "red": np.column_stack([xb, y])}
 
 
+def ball_ball_contacts(v_c: float, seed: int):
+    """The ball-ball rows the physics stage finds in one noise draw (0.45 mm per axis, a
+    high-speed camera's small, noisy frames) of the follow shot at approach ``v_c`` mm/s."""
+    rng = np.random.default_rng(seed)
+    t, pos = follow_shot(v_c, rng.uniform())
+    tracks, det = tables_from_positions(t, pos, 0.45, rng, FPS)
+    out = analyze_tracks(tracks, det, TABLE, R, M, FPS)
+    return out.contacts[out.contacts.kind == "ball-ball"]
+
+
 def test_slow_contact_at_1000_fps_time_and_restitution():
-    """Eight noise draws (0.45 mm per axis, a high-speed camera's small, noisy frames) of a
-    300 mm/s follow shot: one ball-ball contact each, within 1 ms of the true time, e within
+    """Eight noise draws of a 300 mm/s follow shot: one ball-ball contact each, within 1 ms of the true time, e within
     3 sigma of 0.93. With the time searches one frame wide, one draw gave e 0.834 +- 0.026
     (3.7 sigma) with the time held 1 ms from the change."""
     z, dts = [], []
     for seed in range(8):
-        rng = np.random.default_rng(seed)
-        t, pos = follow_shot(300.0, rng.uniform())
-        tracks, det = tables_from_positions(t, pos, 0.45, rng, FPS)
-        out = analyze_tracks(tracks, det, TABLE, R, M, FPS)
-        c = out.contacts[out.contacts.kind == "ball-ball"]
+        c = ball_ball_contacts(300.0, seed)
         assert len(c) == 1, f"seed {seed}: {len(c)} ball-ball contacts"
         row = c.iloc[0]
         dts.append(float(row.t_s) - T_C)
@@ -79,11 +84,7 @@ def test_slow_contact_at_1000_fps_is_one_contact():
     within 2 x contact_time_floor_s), not a touch plus a false second one with e left empty (4 of
     10 draws with the duplicate test two frames wide)."""
     for seed in range(6):
-        rng = np.random.default_rng(seed)
-        t, pos = follow_shot(200.0, rng.uniform())
-        tracks, det = tables_from_positions(t, pos, 0.45, rng, FPS)
-        out = analyze_tracks(tracks, det, TABLE, R, M, FPS)
-        c = out.contacts[out.contacts.kind == "ball-ball"]
+        c = ball_ball_contacts(200.0, seed)
         assert len(c) == 1, f"seed {seed}: {len(c)} ball-ball contacts at {c.t_s.tolist()}"
         assert abs(float(c.iloc[0].t_s) - T_C) < 1.5e-3
         assert abs(float(c.iloc[0].e) - E) < 3 * float(c.iloc[0].e_sigma)
