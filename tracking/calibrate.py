@@ -33,9 +33,14 @@ Automatic (:func:`calibrate_auto`)
    face, or the shadow under an overhanging nose lit from above), the band's
    inner edge is the foot of the face at z = 0 and the fit uses both lines;
    the band widths must pass a geometric test first (``_band_check``).
-   Otherwise a weak prior on the field of view sets the focal length
-   (``meta['height_from']`` says which); the nose and ball-centre planes are
-   then still right to a fraction of a pixel, the cloth plane less so.
+   Otherwise a weak prior on the field of view sets the focal length, or
+   the lens's field of view where the user gives it (``meta['height_from']``
+   and ``meta['hfov_source']`` say which; a note says so); the nose and
+   ball-centre planes are then still right to a fraction of a pixel, the
+   cloth plane less so. (The balls' own outlines were tried as a measure:
+   a sphere off the optical axis images as an ellipse stretched radially by
+   ~1/cos of its angle off the axis, but on renders with cast shadows the
+   measured stretch was off by 0.05-0.16 against a 0.01-0.07 signal.)
 6. Checks, each a one-line refusal: residual, camera height, a clear edge
    on the cloth inward of a fitted line (:func:`inner_step_ratio`), and the
    colour just outside the four fitted lines (:func:`cushion_colour_spread`:
@@ -67,6 +72,7 @@ Manual calibration file (TOML, our schema; see clips/example_calibration.toml)
     # ball_diameter_mm = 57.15
     # k1 = -0.02                  # radial distortion, if known
     # focal_px = 1163.6           # if known; otherwise fitted from the corners
+    # hfov_deg = 58.0             # or the lens's horizontal field of view (deg) instead
     # nose_height_mm = 36.5       # overrides the preset for corners_plane = "nose"
 
 Four corners fix a homography (8 numbers); the camera has focal + pose = 7, so
@@ -207,14 +213,40 @@ def _curve(cam: CameraModel, side: str, L: float, W: float, z: float):
     return f
 
 
+def hfov_deg_of(cam: CameraModel) -> float:
+    """Horizontal field of view (deg) of the pinhole model: 2 atan(w / 2f), w the image width (px)."""
+    return float(np.degrees(2 * np.arctan(cam.image_size[0] / 2.0 / cam.K[0, 0])))
+
+
+def check_hfov_deg(value, settings: CalibrationSettings = CalibrationSettings()) -> float:
+    """A user-given horizontal field of view (deg), checked; raises a one-line FeltlabError if implausible."""
+    try:
+        v = float(value)
+    except (TypeError, ValueError):
+        v = float("nan")
+    lo, hi = settings.hfov_given_min_deg, settings.hfov_given_max_deg
+    if not (math.isfinite(v) and lo <= v <= hi):
+        raise FeltlabError(
+            f"field of view {value!r} is not a lens's horizontal angle in degrees between {lo:g} and {hi:g}; "
+            "give the horizontal field of view from the lens data sheet, in degrees (e.g. 62)")
+    return v
+
+
 def calibrate_auto(frames: list[np.ndarray], table: TablePreset, ball_diameter_mm: float | None = None,
-                   settings: CalibrationSettings = CalibrationSettings()) -> Calibration:
+                   settings: CalibrationSettings = CalibrationSettings(),
+                   hfov_deg: float | None = None) -> Calibration:
     """Calibrate the camera from a few frames showing the whole playing surface.
 
     frames: BGR (or grey) images of one clip. table: the preset whose playing
     surface (between cushion noses) is in view. Returns a Calibration
     (method 'auto') with the fitted camera in the table frame (mm), RMS
     edge residuals in px and mm, and notes (warnings) for the user.
+    hfov_deg: the lens's horizontal field of view (deg, e.g. from its data
+    sheet), used where the picture does not fix the camera height (no
+    cushion faces in view) instead of the assumed one
+    (``CalibrationSettings.hfov_prior_deg``). ``camera.meta['hfov_deg']`` is
+    the fitted value and ``meta['hfov_source']`` where it came from:
+    "measured" (cushion faces), "given" or "assumed".
 
     Where the fit fails its checks, it is tried once more with each side's
     innermost line taken on weaker support (``CalibrationSettings.
@@ -225,14 +257,17 @@ def calibrate_auto(frames: list[np.ndarray], table: TablePreset, ball_diameter_m
     # synchronisation there, and on a shared CPU they wait for each other
     # (least_squares' SVDs took 35 ms each on 2 loaded cores; one thread:
     # calibration 1.4-1.6x faster, same numbers on D1 to 1e-6)
+    if hfov_deg is not None:
+        hfov_deg = check_hfov_deg(hfov_deg, settings)
     with threadpool_limits(limits=1, user_api="blas"):
         try:
-            return _calibrate_once(frames, table, ball_diameter_mm, settings, settings.line_share)
+            return _calibrate_once(frames, table, ball_diameter_mm, settings, settings.line_share, hfov_deg)
         except FeltlabError as first:
             if not getattr(first, "retry", False):
                 raise
             try:
-                return _calibrate_once(frames, table, ball_diameter_mm, settings, settings.line_share_retry)
+                return _calibrate_once(frames, table, ball_diameter_mm, settings, settings.line_share_retry,
+                                       hfov_deg)
             except FeltlabError:
                 raise first from None
 
@@ -260,7 +295,7 @@ def _region_error(msg: str) -> FeltlabError:
 
 
 def _calibrate_once(frames: list[np.ndarray], table: TablePreset, ball_diameter_mm: float | None,
-                    settings: CalibrationSettings, line_share: float) -> Calibration:
+                    settings: CalibrationSettings, line_share: float, hfov_deg: float | None = None) -> Calibration:
     """calibrate_auto with one support share for the first pass's lines (:func:`main_line`)."""
     imgs = _check_frames(frames)
     ball_d = float(ball_diameter_mm or table.ball.diameter_mm)
@@ -314,7 +349,8 @@ def _calibrate_once(frames: list[np.ndarray], table: TablePreset, ball_diameter_
     # later pass's noses lost there mean that the frame cuts the cushion;
     # otherwise the fit itself has moved the line off the table
     edge_met = {side: False for side in SIDE_ORDER}
-    prior = (settings.hfov_prior_deg, settings.hfov_prior_sigma_deg)
+    prior = ((settings.hfov_prior_deg, settings.hfov_prior_sigma_deg) if hfov_deg is None
+             else (hfov_deg, settings.hfov_given_sigma_deg))
     fit = None
     inner: dict[str, np.ndarray] = {}
     n_pass = max(settings.passes, 1)
@@ -409,7 +445,9 @@ def _calibrate_once(frames: list[np.ndarray], table: TablePreset, ball_diameter_
             face_used = call
     nose_groups = groups
     n_nose = sum(len(g[2]) for g in groups)
-    height_from = "focal-length prior (near-overhead view; see CalibrationSettings.hfov_prior_deg)"
+    height_from = ("focal-length prior (near-overhead view; see CalibrationSettings.hfov_prior_deg)" if hfov_deg is None
+                   else "given field of view (near-overhead view)")
+    hfov_source = "assumed" if hfov_deg is None else "given"
     # Vertical cushion faces in view: their foot (z = 0) fixes the camera height.
     band = _band_check(fit.camera, pts, inner, L, W, settings)
     fit_prior = prior  # the prior of the fit kept (none where the faces fix the height)
@@ -429,9 +467,10 @@ def _calibrate_once(frames: list[np.ndarray], table: TablePreset, ball_diameter_
             n_nose = n2
             fit_prior = None
             height_from = "cushion faces (nose at z = h, foot at z = 0)"
+            hfov_source = "measured"
         else:
             notes.append("cushion-face band seen but inconsistent with vertical faces; camera height from "
-                         "the focal-length prior")
+                         + ("the focal-length prior" if hfov_deg is None else "the given field of view"))
     res_px = float(np.sqrt(np.mean(fit.resid_px[:n_nose] ** 2)))
     res_mm = float(np.sqrt(np.mean(fit.resid_mm[:n_nose] ** 2)))
     if not math.isfinite(res_px) or res_px > settings.max_residual_px:
@@ -509,11 +548,34 @@ def _calibrate_once(frames: list[np.ndarray], table: TablePreset, ball_diameter_
     lens = lens_note(float(cam_fit.dist[0]), settings.k1_warn)
     if lens:
         notes.append(lens)
+    hfov = hfov_deg_of(cam_fit)
+    fov = fov_note(hfov, hfov_source, hfov_deg, settings)
+    if fov:
+        notes.append(fov)
     cam_fit.meta = {"layout": layout, "nose_height_mm": z_nose, "n_edge_points": int(n_nose),
                     "height_from": height_from, "corner_gain": gain, "line_offsets_px": off_line,
-                    "foot_rms_px": r_foot}
+                    "foot_rms_px": r_foot, "hfov_deg": hfov, "hfov_source": hfov_source}
     return Calibration(camera=cam_fit, table=table, ball_diameter_mm=ball_d, residual_px=res_px,
                        residual_mm=res_mm, method="auto", notes=notes)
+
+
+def fov_note(hfov: float, source: str, given: float | None, settings: CalibrationSettings) -> str | None:
+    """The calibration note on the horizontal field of view (deg): where it came from, if not measured.
+
+    source: "measured" (cushion faces), "given" or "assumed". A measured
+    value gets a note only when a given one is over
+    ``hfov_given_conflict_deg`` off it.
+    """
+    if source == "assumed":
+        return (f"field of view {hfov:.1f} deg assumed: nothing in the picture fixes the camera height (no cushion "
+                "faces in view), and the cloth-plane corners move ~1-2 px per 10 deg; give the lens's horizontal "
+                "field of view (--hfov) if known")
+    if source == "given":
+        return f"field of view {hfov:.1f} deg from the given {given:g} deg (not measurable in this picture)"
+    if given is not None and abs(hfov - given) > settings.hfov_given_conflict_deg:
+        return (f"the cushion faces give a field of view of {hfov:.1f} deg, not the given {given:g} deg (kept the "
+                "measured one; a video mode that crops the sensor narrows the lens's field of view)")
+    return None
 
 
 def cushion_colour_spread(img: np.ndarray, cam: CameraModel, table: TablePreset, z: float,
@@ -935,13 +997,19 @@ def _num_list(path: Path, d: dict, key: str, shape: tuple[int, ...]) -> np.ndarr
 
 
 def calibration_from_file(path: str | os.PathLike, table: TablePreset | None = None,
-                          hfov_prior: tuple[float, float] | None = None) -> Calibration:
+                          hfov_prior: tuple[float, float] | None = None,
+                          hfov_deg: float | None = None) -> Calibration:
     """Read a calibration TOML: a saved calibration, or manual corners (schema in the module docstring).
 
     ``table`` overrides the file's table preset. Manual corners are fitted
     with :func:`tracking._camera_fit.fit_points` (focal too unless given, with
-    the weak field-of-view prior of CalibrationSettings).
+    the weak field-of-view prior of CalibrationSettings). ``hfov_deg``: the
+    lens's horizontal field of view (deg), as the file's ``hfov_deg`` key;
+    it fixes the focal of manual corners, and a saved camera must agree
+    with it to 0.5 deg.
     """
+    if hfov_deg is not None:
+        hfov_deg = check_hfov_deg(hfov_deg)
     p = Path(path)
     if not p.is_file():
         raise FeltlabError(f"{p}: no such calibration file; check the path")
@@ -969,6 +1037,9 @@ def calibration_from_file(path: str | os.PathLike, table: TablePreset | None = N
         except KeyError as exc:
             raise _toml_error(p, f"[camera] is missing {exc.args[0]!r}") from None
         cam.meta = {k: v for k, v in d.get("camera_meta", {}).items()}
+        if hfov_deg is not None and abs(hfov_deg_of(cam) - hfov_deg) > 0.5:
+            raise _toml_error(p, f"its camera has a {hfov_deg_of(cam):.1f} deg field of view, not the given "
+                                 f"{hfov_deg:g} deg; drop the field of view or calibrate again")
         return Calibration(camera=cam, table=table, ball_diameter_mm=ball_d,
                            residual_px=float(d.get("residual_px", float("nan"))),
                            residual_mm=float(d.get("residual_mm", float("nan"))),
@@ -1003,6 +1074,21 @@ def calibration_from_file(path: str | os.PathLike, table: TablePreset | None = N
         focal = float(focal)
         if not (0 < focal < 100 * w):
             raise _toml_error(p, f"focal_px = {focal} is not plausible for a {w} px wide image")
+    if "hfov_deg" in d:
+        try:
+            key_fov = check_hfov_deg(d["hfov_deg"])
+        except FeltlabError as exc:
+            raise _toml_error(p, f"hfov_deg: {exc}") from None
+        if hfov_deg is not None and abs(key_fov - hfov_deg) > 0.5:
+            raise _toml_error(p, f"hfov_deg = {key_fov:g} differs from the given field of view {hfov_deg:g} deg; "
+                                 "give one")
+        hfov_deg = key_fov
+    if hfov_deg is not None:
+        f_fov = w / 2.0 / math.tan(math.radians(hfov_deg) / 2)
+        if focal is not None and abs(f_fov / focal - 1) > 0.01:
+            raise _toml_error(p, f"focal_px = {focal:g} and a {hfov_deg:g} deg field of view (focal {f_fov:.1f} px) "
+                                 "disagree; give one of them")
+        focal = f_fov
     # the corners must form a convex quadrilateral in the stated order
     def _cross(a, b):
         return a[0] * b[1] - a[1] * b[0]
@@ -1021,7 +1107,8 @@ def calibration_from_file(path: str | os.PathLike, table: TablePreset | None = N
                         hfov_prior=None if focal is not None else prior)
     res_px = float(np.sqrt(np.mean(r ** 2)))
     res_mm = res_px * cam.mm_per_px(xyz.mean(axis=0))
-    cam.meta = {"corners_plane": plane}
+    cam.meta = {"corners_plane": plane, "hfov_deg": hfov_deg_of(cam),
+                "hfov_source": "given" if focal is not None else "corners"}
     if focal is None:
         notes.append("focal length fitted from four corners: poorly determined for a camera looking "
                      "straight down; give focal_px if you know it")
@@ -1072,6 +1159,9 @@ def save_calibration(cal: Calibration, path_toml: str | os.PathLike, overwrite: 
         f"residual_px = {_toml_value(float(cal.residual_px))}",
         f"residual_mm = {_toml_value(float(cal.residual_mm))}",
         f"px_per_mm = {_toml_value(float(cal.px_per_mm))}  # at the table centre, ball-centre plane",
+        f"hfov_deg = {_toml_value(round(hfov_deg_of(cam), 3))}  # horizontal field of view of the camera below",
+        f"hfov_source = {_toml_value(str((cam.meta or {}).get('hfov_source', 'unknown')))}  "
+        "# measured (cushion faces), given, assumed, or corners (manual fit)",
         f"image_size = {_toml_value(list(cam.image_size))}",
         "# playing-surface corners (0,0), (L,0), (L,W), (0,W) at cushion-nose height, for reference",
         'corners_plane = "nose"',

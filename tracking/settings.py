@@ -239,6 +239,19 @@ class CalibrationSettings:
     #: relative to the measured nose plane, hardly the ball-centre plane.
     hfov_prior_deg: float = 60.0
     hfov_prior_sigma_deg: float = 25.0
+    #: A field of view given by the user (lens data sheet; ``hfov_deg`` of
+    #: calibrate_auto) replaces that prior, with this sigma (deg): lens focal
+    #: lengths are nominal to about +/-5 % (from memory), 2.3 deg at 60 deg,
+    #: and video modes may crop the sensor. Where cushion faces measure the
+    #: field of view the measurement is kept; a given value further off than
+    #: ``hfov_given_conflict_deg`` gets a note. Values outside
+    #: [hfov_given_min_deg, hfov_given_max_deg] are refused: a pinhole
+    #: (rectilinear) lens has under 180 deg, and below 5 deg a 3 m table
+    #: fills the view only from over 30 m away.
+    hfov_given_sigma_deg: float = 2.0
+    hfov_given_conflict_deg: float = 6.0
+    hfov_given_min_deg: float = 5.0
+    hfov_given_max_deg: float = 150.0
     #: Cushion-face band (between cloth and cushion top) used to fix the
     #: camera height: it must show on this fraction of a side's profiles, be
     #: at least band_min_mm wide (mm on the table; narrower carries too little

@@ -48,11 +48,14 @@ def _scaled_height_absurd(refusal: FeltlabError, table: TablePreset, other: Tabl
     return h * s > settings.max_camera_height_mm * settings.scale_skip_factor
 
 
-def calibrate_choosing_table(frames: list[np.ndarray], table: TablePreset) -> tuple[Calibration, list[str]]:
+def calibrate_choosing_table(frames: list[np.ndarray], table: TablePreset,
+                             hfov_deg: float | None = None) -> tuple[Calibration, list[str]]:
     """calibrate_auto with ``table``; if it has pockets but the picture shows none, again as carom.
 
     frames: BGR images of one clip (the calibration sample). Returns the
     calibration and warnings for the user (empty when ``table`` was kept).
+    hfov_deg: the lens's horizontal field of view if given (deg; see
+    :func:`tracking.calibrate.calibrate_auto`).
     When ``table`` cannot be fitted at all, every other preset is tried in
     turn (their cushion heights and pocket stretches differ) and the first
     that fits is used, with a warning; the first error is raised when none
@@ -64,7 +67,7 @@ def calibrate_choosing_table(frames: list[np.ndarray], table: TablePreset) -> tu
     would scale it to an absurd height too (:func:`_scaled_height_absurd`).
     """
     try:
-        cal = calibrate_auto(frames, table)
+        cal = calibrate_auto(frames, table, hfov_deg=hfov_deg)
     except FeltlabError as first:
         kind = getattr(first, "kind", None)
         if kind == "region":  # the table was not found in the picture: no preset mends that
@@ -81,7 +84,7 @@ def calibrate_choosing_table(frames: list[np.ndarray], table: TablePreset) -> tu
                          getattr(first, "height_mm", 0.0) * other.length_mm / table.length_mm / 1000)
                 continue
             try:
-                cand = calibrate_auto(frames, other)
+                cand = calibrate_auto(frames, other, hfov_deg=hfov_deg)
             except FeltlabError:
                 continue
             k1 = float(cand.camera.dist[0])
@@ -106,5 +109,5 @@ def calibrate_choosing_table(frames: list[np.ndarray], table: TablePreset) -> tu
     if has_side_pockets(list(contrast)) is not False:
         return cal, []
     log.info("no side pockets (mid-cushion brightness %.2f, %.2f of the cushion's): carom", *contrast)
-    return calibrate_auto(frames, table_preset("carom")), [
+    return calibrate_auto(frames, table_preset("carom"), hfov_deg=hfov_deg), [
         "table taken as carom: the long cushions have no side pockets; pass --table to set it"]
