@@ -68,6 +68,9 @@ def _restore_logging(saved: tuple) -> None:
                    "one, else calibrate automatically from the table's cushions).")
 @click.option("--fps", type=float, default=None, metavar="N",
               help="Capture frame rate, frames/s (overrides the file's; high-speed cameras often store a playback rate).")
+@click.option("--hfov", "hfov", type=float, default=None, metavar="DEG",
+              help="The lens's horizontal field of view in degrees (data sheet), for views where the picture "
+                   "does not fix the camera height (no cushion faces in view); otherwise an assumed one is used.")
 @click.option("--ball-mass", "ball_mass", type=float, default=None, metavar="KG",
               help="Ball mass in kg (default: the preset's, e.g. 0.163 for pool).")
 @click.option("--frames", "frames", default=None, metavar="FIRST:LAST", help="Analyse only these frame indices.")
@@ -76,13 +79,20 @@ def _restore_logging(saved: tuple) -> None:
 @click.option("--replace", is_flag=True, help="Replace a finished result made from another clip or other settings.")
 @click.option("--no-video", is_flag=True, help="Skip annotated.mp4 (the contact frames are still drawn).")
 @click.option("--quiet", "-q", is_flag=True, help="No progress bar or log lines; errors only.")
-def command(clip: Path, table: str | None, calib: Path | None, fps: float | None, ball_mass: float | None,
-            frames: str | None, out: Path, replace: bool, no_video: bool, quiet: bool) -> None:
+def command(clip: Path, table: str | None, calib: Path | None, fps: float | None, hfov: float | None,
+            ball_mass: float | None, frames: str | None, out: Path, replace: bool, no_video: bool,
+            quiet: bool) -> None:
     """Measure one shot: tracks, contacts, restitution, impulse and energy loss, with plots and a report."""
     from feltlab.pipeline import AnalyzeSettings
+    from tracking.calibrate import check_hfov_deg
 
+    if hfov is not None:
+        try:
+            hfov = check_hfov_deg(hfov)
+        except FeltlabError as exc:
+            raise FeltlabError(f"--hfov: {exc}") from None
     settings = AnalyzeSettings(table=table, calib=str(calib) if calib else None, fps=fps, ball_mass_kg=ball_mass,
-                               frame_range=_frame_range(frames), video=not no_video)
+                               frame_range=_frame_range(frames), video=not no_video, hfov_deg=hfov)
     dest = Path(out) / Path(clip).stem
     tty = sys.stderr.isatty() and not quiet
     console = None

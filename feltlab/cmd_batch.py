@@ -20,9 +20,11 @@ EXIT_CLIP_FAILED = 1
 EXIT_SPEC_FAILED = 3
 
 
-def analyze_settings(table: str | None, calib: Path | None = None, fps: float | None = None):
+def analyze_settings(table: str | None, calib: Path | None = None, fps: float | None = None,
+                     hfov: float | None = None):
     """The single-clip analyser's settings, with ``table`` (preset name or alias), ``calib``
-    (manual calibration file used for every clip) and ``fps`` (capture rate of every clip) set when given."""
+    (manual calibration file used for every clip), ``fps`` (capture rate of every clip) and ``hfov``
+    (the lens's horizontal field of view, deg) set when given."""
     import math
 
     from feltlab.standards import table_preset
@@ -49,6 +51,13 @@ def analyze_settings(table: str | None, calib: Path | None = None, fps: float | 
             raise FeltlabError(f"--fps {fps} is not a frame rate; give the camera's capture rate, e.g. --fps 240",
                                stage="input")
         kw["fps"] = float(fps)
+    if hfov is not None:
+        from tracking.calibrate import check_hfov_deg
+
+        try:
+            kw["hfov_deg"] = check_hfov_deg(hfov)
+        except FeltlabError as exc:
+            raise FeltlabError(f"--hfov: {exc}", stage="input") from None
     missing = set(kw) - names
     if missing:
         raise FeltlabError(f"this version of the analyser has no {', '.join(sorted(missing))} setting; "
@@ -72,11 +81,15 @@ def analyze_settings(table: str | None, calib: Path | None = None, fps: float | 
 @click.option("--fps", type=float, default=None, metavar="N",
               help="Capture frame rate of every clip, frames/s (high-speed cameras store a playback rate; "
                    "needed for folders of frames).")
+@click.option("--hfov", "hfov", type=float, default=None, metavar="DEG",
+              help="The lens's horizontal field of view in degrees (data sheet) for every clip, for views where "
+                   "the picture does not fix the camera height (no cushion faces in view).")
 @click.option("--spec", "spec_path", type=click.Path(path_type=Path), default=None, metavar="SPEC.toml",
               help="Acceptance bands to judge the series against (see clips/example_spec.toml).")
 @click.option("--quiet", is_flag=True, help="No progress bar, only the summary lines.")
 def command(folder: Path, out_dir: Path, workers: int | None, scheduler: str | None, table: str | None,
-            calib: Path | None, fps: float | None, spec_path: Path | None, quiet: bool) -> None:
+            calib: Path | None, fps: float | None, hfov: float | None, spec_path: Path | None,
+            quiet: bool) -> None:
     """Analyse every video clip (or folder of frames) below FOLDER; skip clips already finished with the same settings.
 
     Writes failures.csv, all_contacts.csv/.parquet, series.csv, series.html and
@@ -89,7 +102,7 @@ def command(folder: Path, out_dir: Path, workers: int | None, scheduler: str | N
     from feltlab.batch.spec import load_spec
 
     spec = load_spec(spec_path) if spec_path is not None else None
-    settings = analyze_settings(table, calib, fps)
+    settings = analyze_settings(table, calib, fps, hfov)
     show = not quiet and sys.stderr.isatty()
     try:
         report = run_batch(folder, out_dir, settings, workers=workers or os.cpu_count(), scheduler=scheduler,

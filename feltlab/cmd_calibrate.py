@@ -26,19 +26,28 @@ from feltlab.standards import DEFAULT_TABLE, table_preset
               help="Capture frame rate, frames/s (only checked here; high-speed cameras store a playback rate).")
 @click.option("--calib", type=click.Path(path_type=Path), default=None, metavar="FILE",
               help="Fit from a manual calibration TOML (four corners) instead of finding the table.")
+@click.option("--hfov", "hfov", type=float, default=None, metavar="DEG",
+              help="The lens's horizontal field of view in degrees (data sheet), for views where the picture "
+                   "does not fix the camera height (no cushion faces in view); otherwise an assumed one is used.")
 @click.option("--frames", "n_frames", type=int, default=9, show_default=True, metavar="N",
               help="Frames sampled across the clip (their median hides moving balls).")
 @click.option("--out", type=click.Path(path_type=Path), default=None, metavar="DIR",
               help="Output folder (default results/<clip stem>/).")
 @click.option("--replace", is_flag=True, help="Replace an existing calibration.toml / calibration.png.")
-def command(clip: Path, table: str | None, fps: float | None, calib: Path | None, n_frames: int,
-            out: Path | None, replace: bool) -> None:
+def command(clip: Path, table: str | None, fps: float | None, calib: Path | None, hfov: float | None,
+            n_frames: int, out: Path | None, replace: bool) -> None:
     """Fit the camera to the table's cushion noses; write calibration.toml and a check image."""
-    from tracking.calibrate import calibrate_auto, calibration_from_file, draw_calibration, save_calibration
+    from tracking.calibrate import (calibrate_auto, calibration_from_file, check_hfov_deg, draw_calibration,
+                                    save_calibration)
     from tracking.video import open_video
 
     if n_frames < 1:
         raise FeltlabError(f"--frames must be at least 1, got {n_frames}")
+    if hfov is not None:
+        try:
+            hfov = check_hfov_deg(hfov)
+        except FeltlabError as exc:
+            raise FeltlabError(f"--hfov: {exc}") from None
     preset = None
     if table is not None:
         try:
@@ -55,18 +64,18 @@ def command(clip: Path, table: str | None, fps: float | None, calib: Path | None
                 raise FeltlabError(f"{p} already exists; pass --replace to redo it or choose another --out")
     samples = [img for _, _, img in src.sample(n_frames)]
     if calib is not None:
-        cal = calibration_from_file(calib, table=preset)
+        cal = calibration_from_file(calib, table=preset, hfov_deg=hfov)
         if tuple(cal.camera.image_size) != (src.width, src.height):
             raise FeltlabError(f"{calib.name} is for {cal.camera.image_size[0]}x{cal.camera.image_size[1]} px "
                                f"images but {clip.name} is {src.width}x{src.height}")
     elif preset is None:
         from tracking.table_choice import calibrate_choosing_table
 
-        cal, notes = calibrate_choosing_table(samples, table_preset(DEFAULT_TABLE))
+        cal, notes = calibrate_choosing_table(samples, table_preset(DEFAULT_TABLE), hfov_deg=hfov)
         for note in notes:
             click.echo(f"feltlab: {note}", err=True)
     else:
-        cal = calibrate_auto(samples, preset)
+        cal = calibrate_auto(samples, preset, hfov_deg=hfov)
     frame = np.median(np.stack(samples), axis=0).astype(np.uint8) if len(samples) > 1 else samples[0]
     picture = draw_calibration(frame, cal)
     dest.mkdir(parents=True, exist_ok=True)

@@ -47,14 +47,24 @@ def parse_frames(text: str | None) -> tuple[int, int | None] | None:
               help="Calibration TOML (from feltlab calibrate, or manual corners); default: fit automatically.")
 @click.option("--fps", type=float, default=None, metavar="N",
               help="Capture frame rate, frames/s (high-speed cameras store a playback rate).")
+@click.option("--hfov", "hfov", type=float, default=None, metavar="DEG",
+              help="The lens's horizontal field of view in degrees (data sheet), for views where the picture "
+                   "does not fix the camera height (no cushion faces in view); otherwise an assumed one is used.")
 @click.option("--frames", "frames", default=None, metavar="A:B", help="Only frames A (inclusive) to B (exclusive).")
 @click.option("--out", type=click.Path(path_type=Path), default=None, metavar="DIR",
               help="Output folder (default results/<clip stem>/).")
 @click.option("--replace", is_flag=True, help="Replace existing track files in the output folder.")
-def command(clip: Path, table: str | None, calib: Path | None, fps: float | None, frames: str | None,
-            out: Path | None, replace: bool) -> None:
+def command(clip: Path, table: str | None, calib: Path | None, fps: float | None, hfov: float | None,
+            frames: str | None, out: Path | None, replace: bool) -> None:
     """Track every ball; write tracks.csv / tracks.parquet (mm, s, mm/s, table frame)."""
+    from tracking.calibrate import check_hfov_deg
     from tracking.pipeline import track_clip
+
+    if hfov is not None:
+        try:
+            hfov = check_hfov_deg(hfov)
+        except FeltlabError as exc:
+            raise FeltlabError(f"--hfov: {exc}") from None
 
     dest = Path(out) if out is not None else Path("results") / clip.stem
     if not replace:
@@ -78,7 +88,7 @@ def command(clip: Path, table: str | None, calib: Path | None, fps: float | None
             state["last"] = pct
 
     res = track_clip(clip, table=table, calibration=calib, fps=fps, frame_range=rng, progress=progress,
-                     auto_table=table is None and calib is None)
+                     auto_table=table is None and calib is None, hfov_deg=hfov)
     dest.mkdir(parents=True, exist_ok=True)
     tmp = {name: dest / f".{name}.partial" for name in OUTPUTS}
     try:

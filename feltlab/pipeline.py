@@ -56,6 +56,8 @@ class AnalyzeSettings:
     playback rate such as 30 into the file). ball_mass_kg: None -> the
     preset's ball mass. frame_range: (first, last+1) frame indices or None.
     video / frames / plots / report: which optional outputs to write.
+    hfov_deg: the lens's horizontal field of view (deg) for automatic calibration or manual
+    corners (None: measured from the cushion faces where they show, else assumed).
     tracking / physics: stage settings dataclasses (None: their defaults).
     """
 
@@ -70,6 +72,7 @@ class AnalyzeSettings:
     report: bool = True
     tracking: Any = None
     physics: Any = None
+    hfov_deg: float | None = None
 
     def for_clip(self, clip: Path | str) -> "AnalyzeSettings":
         """These settings for one clip: with no ``calib`` given, a calibration file kept beside
@@ -91,6 +94,8 @@ class AnalyzeSettings:
             if dataclasses.is_dataclass(v) and not isinstance(v, type):
                 v = {"type": type(v).__name__, **dataclasses.asdict(v)}
             d[f.name] = v
+        if d.get("hfov_deg") is None:
+            d.pop("hfov_deg", None)  # results made before the option existed stay reusable
         if self.calib:
             p = Path(self.calib)
             d["calib"] = p.name  # where the file sits does not change the result; its content does
@@ -218,7 +223,7 @@ def _calibration(settings: AnalyzeSettings, table: TablePreset | None):
     from tracking.calibrate import calibration_from_file
 
     try:
-        return calibration_from_file(settings.calib, table=table)
+        return calibration_from_file(settings.calib, table=table, hfov_deg=settings.hfov_deg)
     except TypeError:  # older signature without `table`
         return calibration_from_file(settings.calib)
 
@@ -228,6 +233,8 @@ def _track(clip: Path, table: TablePreset, cal, settings: AnalyzeSettings, progr
 
     kw: dict[str, Any] = dict(table=table, calibration=cal, fps=settings.fps, frame_range=settings.frame_range,
                               auto_table=settings.table is None and cal is None)
+    if settings.hfov_deg is not None:
+        kw["hfov_deg"] = settings.hfov_deg
     if settings.tracking is not None:
         kw["settings"] = settings.tracking
     if progress is not None:

@@ -143,3 +143,49 @@ def test_saved_file_states_field_of_view_and_source(tmp_path):
     assert back.camera.K[0, 0] == pytest.approx(f)
     with pytest.raises(FeltlabError, match="drop the field of view or calibrate again"):
         calibration_from_file(out, hfov_deg=64.0)
+
+
+def test_cli_hfov_option(narrow_view, tmp_path):
+    """`feltlab calibrate --hfov`: a nonsense value is one line and exit 2 with nothing written; a good one
+    is used and stated in calibration.toml."""
+    from click.testing import CliRunner
+
+    from feltlab.cli import main
+
+    _, frames = narrow_view
+    clip = tmp_path / "shot"
+    clip.mkdir()
+    for i, im in enumerate(frames):
+        cv2.imwrite(str(clip / f"{i:04d}.png"), im)
+    r = CliRunner().invoke(main, ["calibrate", str(clip), "--hfov", "0.8", "--out", str(tmp_path / "bad")])
+    assert r.exit_code == 2 and "--hfov" in r.output and "in degrees" in r.output
+    assert not (tmp_path / "bad").exists()
+    r = CliRunner().invoke(main, ["calibrate", str(clip), "--table", "pool-9ft", "--hfov", "45",
+                                  "--out", str(tmp_path / "ok"), "--frames", "2"])
+    assert r.exit_code == 0, r.output
+    d = tomllib.loads((tmp_path / "ok" / "calibration.toml").read_text())
+    assert d["hfov_source"] == "given" and d["hfov_deg"] == pytest.approx(HFOV, abs=1.0)
+    r = CliRunner().invoke(main, ["analyze", str(clip), "--hfov", "200", "--out", str(tmp_path / "an")])
+    assert r.exit_code == 2 and "--hfov" in r.output
+    assert not (tmp_path / "an").exists()
+
+
+def test_cli_hfov_refused_by_track_and_batch(narrow_view, tmp_path):
+    """`feltlab track` and `feltlab batch` take the same --hfov: a nonsense value is one line, exit 2, nothing
+    written (the check is the same closed range as calibrate's)."""
+    from click.testing import CliRunner
+
+    from feltlab.cli import main
+
+    _, frames = narrow_view
+    clip = tmp_path / "clips" / "shot"
+    clip.mkdir(parents=True)
+    for i, im in enumerate(frames[:2]):
+        cv2.imwrite(str(clip / f"{i:04d}.png"), im)
+    for args in (["track", str(clip), "--hfov", "nan", "--out", str(tmp_path / "tr")],
+                 ["batch", str(tmp_path / "clips"), "--hfov", "-5", "--fps", "60", "--out", str(tmp_path / "ba")]):
+        r = CliRunner().invoke(main, args)
+        assert r.exit_code == 2, (args[0], r.output)
+        assert "--hfov" in r.output and "in degrees" in r.output
+        assert len(r.output.strip().splitlines()) == 1, r.output
+        assert not (tmp_path / args[-1].rsplit("/", 1)[-1]).exists()

@@ -419,7 +419,7 @@ def track_clip(path: str | os.PathLike, table: str | TablePreset | None = DEFAUL
                frame_range: tuple[int, int | None] | None = None,
                settings: TrackClipSettings = TrackClipSettings(),
                progress: Callable[[int, int], None] | None = None, auto_table: bool = False,
-               phantoms: PhantomSettings = PhantomSettings()) -> TrackResult:
+               phantoms: PhantomSettings = PhantomSettings(), hfov_deg: float | None = None) -> TrackResult:
     """Track every ball in a clip; see :class:`TrackResult` for the output.
 
     table: preset name (or TablePreset; None: the calibration file's, else
@@ -436,6 +436,9 @@ def track_clip(path: str | os.PathLike, table: str | TablePreset | None = DEFAUL
     with the preset it points to. A warning says what was chosen. For
     callers whose user named no preset. phantoms: the compressed-footage
     background update and the off-surface test (tracking/phantoms.py).
+    hfov_deg: the lens's horizontal field of view (deg) for automatic
+    calibration (:func:`tracking.calibrate.calibrate_auto`) or a calibration
+    file's manual corners (:func:`tracking.calibrate.calibration_from_file`).
     """
     from tracking.video import open_video
 
@@ -452,16 +455,16 @@ def track_clip(path: str | os.PathLike, table: str | TablePreset | None = DEFAUL
         calib_imgs = imgs[::step][: settings.calibration_frames]
         if auto_table:
             # a carom table is 2:1 like pool: only the missing side pockets tell
-            cal, notes = calibrate_choosing_table(calib_imgs, tp or table_preset(DEFAULT_TABLE))
+            cal, notes = calibrate_choosing_table(calib_imgs, tp or table_preset(DEFAULT_TABLE), hfov_deg=hfov_deg)
             warnings.extend(notes)
         else:
-            cal = calibrate_auto(calib_imgs, tp or table_preset(DEFAULT_TABLE))
+            cal = calibrate_auto(calib_imgs, tp or table_preset(DEFAULT_TABLE), hfov_deg=hfov_deg)
     elif isinstance(calibration, Calibration):
         cal = calibration
     else:
         from tracking.calibrate import calibration_from_file
 
-        cal = calibration_from_file(calibration, table=tp)
+        cal = calibration_from_file(calibration, table=tp, hfov_deg=hfov_deg)
     warnings.extend(f"calibration: {n}" for n in cal.notes)
     w, h = cal.camera.image_size
     if (imgs[0].shape[1], imgs[0].shape[0]) != (w, h):
