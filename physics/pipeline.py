@@ -247,7 +247,16 @@ def _analyze(tracks, detections, table, ball_radius_mm, ball_mass_kg, fps, setti
             pri = {k: _loo_prior(s, mus, mur, (name, k)) for k in range(lay3.n_seg)}
             f3 = fit_chain(b.t, b.xy, b.sig, lay3, s2, x_init=fits[name].x, seg_priors=pri)
             fits[name] = f3
-            alternates.pop(name, None)
+            alt = alternates.pop(name, None)
+            if alt is not None and s.alternates_pass3:
+                # the runner-up is refitted with the same shared-shift priors: where the samples
+                # still cannot choose between the two (a slow ball's slide after a contact
+                # decelerating or accelerating), the choice stays an uncertainty of e
+                a3 = fit_chain(b.t, b.xy, b.sig, lay3, s2, x_init=alt.x, seg_priors=pri)
+                best, other = (a3, f3) if a3.cost < f3.cost - 1e-9 else (f3, a3)
+                fits[name] = best
+                if other.cost - best.cost < s.ambiguity_dcost:
+                    alternates[name] = other
     if s2.slip_prior:
         # a link whose prior the final fit still contradicts is a model error on that side: that
         # ball is refitted without it, from its final and its prior-free pass-1 parameters
@@ -288,6 +297,10 @@ def _analyze(tracks, detections, table, ball_radius_mm, ball_mass_kg, fps, setti
         both = contacts.merge(alt[["_cand", "e"]], on="_cand", how="left", suffixes=("", "_alt"))
         d = np.nan_to_num(both["e_alt"].to_numpy(float) - both["e"].to_numpy(float))
         contacts["e_sigma"] = np.sqrt(contacts["e_sigma"].to_numpy(float) ** 2 + d**2)
+        if s.e_sigma_parts:
+            for p, dd in zip(contacts["_e_var_parts"], d):
+                if isinstance(p, dict):
+                    p["alt"] = float(dd**2)
     contacts = _drop_non_separating(contacts, cands, s)
     # compound events (several balls touching within one frame): group columns, e NaN per link
     contacts = annotate_groups(contacts, cands, fits, maps, m)
@@ -693,6 +706,18 @@ def _roll_flags(f: ChainFit, i: int, x=None) -> tuple[bool, bool]:
     return ph0 in ("roll", "rest"), ph1 in ("roll", "rest")
 
 
+def _slide_along(f: ChainFit, i: int, n: np.ndarray) -> float:
+    """|a_hat . n| of the slide that starts at break ``i`` (its fitted acceleration's direction
+    along the unit normal ``n``), 0 where the ball does not slide after the break."""
+    tb = float(f.breaks()[i])
+    par = unpack_segment(f.x, f.layout, i + 1)
+    if par is None or f.phase_at(i + 1, tb + 1e-6) != "slide":
+        return 0.0
+    a = np.asarray(par[1], dtype=float)
+    na = float(np.hypot(*a))
+    return abs(float(a @ n)) / na if na > 1e-9 else 0.0
+
+
 def _contacts_table(cands, fits, maps, table, R, m, dt, s, hidden=None) -> pd.DataFrame:
     """Contact rows; ``hidden``: {"sig": ball -> median sample sigma (mm), "mu_s": shot sliding
     friction} for the hidden-slide term after cushions (PhysicsSettings.hidden_slide_sigma)."""
@@ -708,15 +733,23 @@ def _contacts_table(cands, fits, maps, table, R, m, dt, s, hidden=None) -> pd.Da
             # a break shared with another contact (within one frame) times that group, not this pair
             own = all(list(maps[bn][0].values()).count(j) == 1 and not maps[bn][1][j].mixed
                       for bn, j in ((c.ball_a, ia), (c.ball_b, ib)))
-            core, var = ball_ball_values(fa, ia, fb, ib, R, dt, s, fuse=own)
+            parts = {} if s.e_sigma_parts else None
+            core, var = ball_ball_values(fa, ia, fb, ib, R, dt, s, fuse=own, parts=parts)
             rolls_a, rolls_b = _roll_flags(fa, ia), _roll_flags(fb, ib)
             dvm = s.mu_s_prior * s.g_mm_s2 * s.model_time_ball_s
             den = abs((core["vb0"] - core["va0"]) @ core["n"])
             n_slide = (not rolls_a[1]) + (not rolls_b[1])
-            var[0] += n_slide * (dvm / max(den, 1e-9)) ** 2
+            _add_part(var, parts, "model", n_slide * (dvm / max(den, 1e-9)) ** 2)
             if s.hop_sigma and n_slide:
-                dvh = hop_dv(fa, ia, fb, ib, hidden["mu_s"] if hidden else s.mu_s_prior)
-                var[0] += n_slide * (dvh / max(den, 1e-9)) ** 2 / 3.0
+                dvh = hop_dv(fa, ia, fb, ib, hidden["mu_s"] if hidden else s.mu_s_prior, s, parts)
+                if s.hop_along_normal:
+                    w = sum(_slide_along(f, j, core["n"]) ** 2 for f, j in ((fa, ia), (fb, ib)))
+                else:
+                    w = float(n_slide)
+                _add_part(var, parts, "hop", w * (dvh / max(den, 1e-9)) ** 2 / 3.0)
+                if parts is not None:  # diagnostics: the term before hop_shift_debias / hop_along_normal
+                    x_old = 0.8 * (hidden["mu_s"] if hidden else s.mu_s_prior) * abs(parts.get("X", 0.0))
+                    parts["hop_old"] = float(n_slide * (x_old / max(den, 1e-9)) ** 2 / 3.0)
             d = derived(core, m, True, rolls_a, rolls_b)
             pt = core["pa"] + R * core["n"]
             phase_a = fa.phase_at(ia, float(fa.breaks()[ia]) - 1e-6)
@@ -737,23 +770,28 @@ def _contacts_table(cands, fits, maps, table, R, m, dt, s, hidden=None) -> pd.Da
 
             core = core_of(f.x)
             var = propagate(lambda z: _e_t(core_of(z)), f.x, widened_cov(f.cov, f.misfit_sd()))
+            parts = None
+            if s.e_sigma_parts:
+                parts = _fit_parts(lambda z: _e_t(core_of(z)), f.x, f.cov, f.cov @ f.info_data @ f.cov
+                                   if f.info_data is not None else None, float(var[0]))
             flags = _roll_flags(f, i)
             d = derived(core, m, False, flags, (False, False))
             dvm = s.mu_s_prior * s.g_mm_s2 * s.model_time_cushion_s
-            var[0] += (not flags[1]) * (dvm / max(abs(core["va0"] @ core["n"]), 1e-9)) ** 2
+            _add_part(var, parts, "model", (not flags[1]) * (dvm / max(abs(core["va0"] @ core["n"]), 1e-9)) ** 2)
             # other cushion contacts sharing this break (within one frame): their friction may
             # have changed this contact's incoming velocity before it (settings)
             for cj, j in maps[c.ball_a][0].items():
                 if cj != ci and j == i and cands[cj].kind == "ball-cushion":
                     n_o = cands[cj].normal
                     dvo = abs(float((core["va1"] - core["va0"]) @ n_o))
-                    var[0] += (s.shared_cushion_mu * dvo / max(abs(core["va0"] @ core["n"]), 1e-9)) ** 2
+                    _add_part(var, parts, "shared",
+                              (s.shared_cushion_mu * dvo / max(abs(core["va0"] @ core["n"]), 1e-9)) ** 2)
             if s.hidden_slide_sigma and hidden is not None and c.ball_a in hidden["sig"]:
                 n_sl = _slide_samples_after(f, i)
                 if n_sl < s.hidden_slide_min_samples:
                     dvh = hidden_slide_dv(hidden["sig"][c.ball_a], 1.0 / dt, hidden["mu_s"], s.g_mm_s2,
                                           s.guard_cushion_s, s.hidden_slide_z)
-                    var[0] += (dvh / max(abs(core["va0"] @ core["n"]), 1e-9)) ** 2
+                    _add_part(var, parts, "hidden", (dvh / max(abs(core["va0"] @ core["n"]), 1e-9)) ** 2)
             pt = core["pa"] - R * core["n"]
             phase_a = f.phase_at(i, float(f.breaks()[i]) - 1e-6)
             phase_b = ""
@@ -771,37 +809,77 @@ def _contacts_table(cands, fits, maps, table, R, m, dt, s, hidden=None) -> pd.Da
             a_phase_in=phase_a, b_phase_in=phase_b, a_phase_out=out_a, b_phase_out=out_b, x_mm=pt[0], y_mm=pt[1], _cand=ci,
         )
         row.update(d)
+        if parts is not None:
+            row["_e_var_parts"] = parts
         rows.append(row)
-    df = pd.DataFrame(rows, columns=CONTACT_COLUMNS + ["_cand"])
+    df = pd.DataFrame(rows, columns=CONTACT_COLUMNS + ["_cand"] + (["_e_var_parts"] if s.e_sigma_parts else []))
     df = df.sort_values("t_s").reset_index(drop=True)
     df["contact"] = np.arange(len(df))
     return df
 
 
-def hop_dv(fa: ChainFit, ia: int, fb: ChainFit, ib: int, mu_s: float) -> float:
+def _add_part(var: np.ndarray, parts: dict | None, name: str, v: float) -> None:
+    """Add a model-error variance ``v`` to e's variance ``var[0]`` (and to ``parts`` when kept)."""
+    var[0] += v
+    if parts is not None:
+        parts[name] = parts.get(name, 0.0) + float(v)
+
+
+def _fit_parts(fn, x: np.ndarray, cov: np.ndarray, cov_noise: np.ndarray | None, var_widened: float) -> dict:
+    """e's variance parts from the fit (PhysicsSettings.e_sigma_parts): ``fit`` the propagated
+    fit covariance, ``noise`` its samples-only part (priors' centres held), ``widen`` what the
+    lack-of-fit widening adds."""
+    v = float(propagate(fn, x, cov)[0])
+    vn = float(propagate(fn, x, cov_noise)[0]) if cov_noise is not None else float("nan")
+    return dict(fit=v, noise=vn, widen=var_widened - v)
+
+
+def hop_dv(fa: ChainFit, ia: int, fb: ChainFit, ib: int, mu_s: float, s: PhysicsSettings | None = None,
+           parts: dict | None = None) -> float:
     """Largest post-contact velocity error (mm/s) from a ball leaving the cloth after a ball-ball
     contact (PhysicsSettings.hop_sigma): ``(4/5) mu_s |X|`` with X (mm/s) the fitted slip shift
     along n (mean of the two balls' implied shifts, physics.pair_cov.implied_shift); 0 without a
-    linked slip shift."""
-    xs = []
-    for f, j in ((fa, ia), (fb, ib)):
+    linked slip shift. With ``s.hop_shift_debias`` |X| is estimated by sqrt(max(X^2 - var X, 0)),
+    var X propagated from the two fits' joint covariance (physics.pair_cov): the square of a
+    noisy estimate overstates X^2 by its variance (E[X_hat^2] = X^2 + var), so a shift the
+    samples cannot tell from 0 adds no hop. ``parts`` (diagnostics): gets ``X`` and ``X_sd``."""
+    na = len(fa.x)
+    terms = []
+    for f, j, sl in ((fa, ia, slice(0, na)), (fb, ib, slice(na, None))):
         lay = f.layout
         if lay.slip_shift is None or not lay.links[j] or not np.all(np.isfinite(lay.slip_shift[j])):
             continue
-        v = implied_shift(f.x, lay, j, np.asarray(lay.slip_shift[j][1:], dtype=float))
-        if np.isfinite(v):
-            xs.append(v)
-    return 0.8 * float(mu_s) * abs(float(np.mean(xs))) if xs else 0.0
+        n = np.asarray(lay.slip_shift[j][1:], dtype=float)
+        if np.isfinite(implied_shift(f.x, lay, j, n)):
+            terms.append((f, j, sl, n))
+    if not terms:
+        return 0.0
+
+    def mean_shift(z):
+        return np.array([np.mean([implied_shift(z[sl], f.layout, j, n) for f, j, sl, n in terms])])
+
+    xz = np.concatenate([fa.x, fb.x])
+    X = float(mean_shift(xz)[0])
+    x2 = X**2
+    if s is not None and (s.hop_shift_debias or parts is not None):
+        var = float(propagate(mean_shift, xz, joint_cov(fa, ia, fb, ib, s))[0])
+        if parts is not None:
+            parts.update(X=X, X_sd=float(np.sqrt(max(var, 0.0))))
+        if s.hop_shift_debias and np.isfinite(var):
+            x2 = max(x2 - var, 0.0)
+    return 0.8 * float(mu_s) * float(np.sqrt(x2))
 
 
 def ball_ball_values(fa: ChainFit, ia: int, fb: ChainFit, ib: int, R: float, dt: float,
-                     s: PhysicsSettings, fuse: bool = True, sampling: bool = False) -> tuple[dict, np.ndarray]:
+                     s: PhysicsSettings, fuse: bool = True, sampling: bool = False,
+                     parts: dict | None = None) -> tuple[dict, np.ndarray]:
     """(core values, variances (2,) of e and of the touch time in s^2) of the ball-ball contact at
     breaks ``ia`` / ``ib`` of two fitted chains (R mm, dt s). The variances come from one Jacobian
     over both balls' parameters with their joint covariance (physics.pair_cov: the two fits share
     the slip shift, hence the touch time and normal enter both). ``fuse``: touch time from the gap
     and both velocity breaks (settings.touch_time_fuse). ``sampling``: only the samples' noise
-    part of the variance (what noise draws of one shot show; priors held fixed)."""
+    part of the variance (what noise draws of one shot show; priors held fixed). ``parts``: filled
+    with e's variance parts (:func:`_fit_parts`)."""
     na = len(fa.x)
 
     def core_of(z, w=None):
@@ -819,11 +897,16 @@ def ball_ball_values(fa: ChainFit, ia: int, fb: ChainFit, ib: int, R: float, dt:
         c3 = propagate_cov(lambda z: _touch_times(core_of(z)), xz, cb)
         core_of = partial(core_of, w=touch_time_weights(c3))
     cz = joint_cov(fa, ia, fb, ib, s, sampling=sampling)
+    cz0 = cz
     if not sampling:
         # a segment whose samples misfit the model widens its parameters' errors (lack of fit,
         # physics.segments.misfit_scales); the noise-only part is left as the samples make it
         cz = widened_cov(cz, np.concatenate([fa.misfit_sd(), fb.misfit_sd()]))
-    return core_of(xz), propagate(lambda z: _e_t(core_of(z)), xz, cz)
+    var = propagate(lambda z: _e_t(core_of(z)), xz, cz)
+    if parts is not None:
+        parts.update(_fit_parts(lambda z: _e_t(core_of(z)), xz, cz0,
+                                joint_cov(fa, ia, fb, ib, s, sampling=True), float(var[0])))
+    return core_of(xz), var
 
 
 def _segments_table(fits: dict[str, ChainFit], samples, s: PhysicsSettings, per_segment: bool = False):

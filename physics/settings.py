@@ -124,6 +124,15 @@ class PhysicsSettings:
     #: ball's normal velocity flat for ~12 ms after a rolling hit, v_z 58 mm/s, e +0.007 in every
     #: noise draw). Derivation ours; not tuned.
     hop_sigma: bool = True
+    #: |X| in the hop bound is estimated without the noise's bias: sqrt(max(X_hat^2 - var, 0))
+    #: (E[X_hat^2] = X^2 + var for an unbiased X_hat; standard). A shift within its own noise of
+    #: 0 (no ball-ball friction, or no spin across the contact) then adds no hop term.
+    hop_shift_debias: bool = True
+    #: Only the normal parts of the velocities enter e: a ball that flies for t_h misses its
+    #: slide's acceleration a for t_h, so its fitted velocity at the break errs by a t_h, whose
+    #: part along the contact normal n is mu_s g t_h |a_hat . n| (a_hat from its fitted slide).
+    #: Each sliding ball's hop bound is scaled by that projection (was: 1 per sliding ball).
+    hop_along_normal: bool = True
     #: An e whose propagated sigma is above this says nothing beyond 0 <= e <= 1: its one-sigma
     #: interval (2 sigma wide) is wider than that whole range. Such a contact (e.g. in the clip's
     #: last frames, where the segment after it has one or two samples for a velocity and its
@@ -151,6 +160,11 @@ class PhysicsSettings:
     hidden_slide_sigma: bool = True
     hidden_slide_z: float = 2.0
     hidden_slide_min_samples: int = 3
+    #: Keep e's variance split into its parts (fit, its noise-only part, lack-of-fit widening,
+    #: model-time, hop, hidden-slide, shared-cushion and model-choice terms) in a private
+    #: ``_e_var_parts`` column of the contacts table, for scripts/bench_physics.py --parts. Off
+    #: in analyses: it costs two more propagations per contact.
+    e_sigma_parts: bool = False
 
     # -- motion-model priors (weak; keep parameters defined when data say nothing) -----------
     #: Ball-cloth sliding friction, typical 0.2, range 0.15-0.4 (Physics of Pool FAQ, CSU).
@@ -242,6 +256,13 @@ class PhysicsSettings:
     #: this of the better one's (half a chi^2 difference of 4, i.e. ~2 sigma), the contacts'
     #: restitution difference between them is added to e_sigma as model-choice uncertainty.
     ambiguity_dcost: float = 2.0
+    #: Pass 3 (shared slip shifts) refits the runner-up too, and keeps it as the alternate when
+    #: it is still within ambiguity_dcost (it was dropped there before). A slow ball after a
+    #: contact (the cue ball of a stun shot, 15-60 mm/s) can fit a short decelerating slide or an
+    #: accelerating one about equally well; with only the better one's linearised sigma, e was
+    #: 2.1-5.1 sigma off in 4 of 40 noise draws of a closed-form stun shot at 120 fps (0.9-1.1
+    #: sigma with the alternate; tests/test_physics_sigma_calibration.py). Not tuned.
+    alternates_pass3: bool = True
 
     # -- slow touches and compound events (physics.events, physics.compound) ------------------
     #: Change-point windows tried (multiples of the standard window) while a jump is not yet

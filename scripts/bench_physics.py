@@ -8,6 +8,14 @@ Reported: contacts found / missed / false, restitution errors by kind and frame 
 truths within 2 reported sigmas, contact-time error in frames, sliding-friction error.
 
 usage: python scripts/bench_physics.py [--n 36] [--fps 60,120,240] [--seed 1] [--set slip_prior=false] [--refine]
+       [--parts FILE.csv]
+
+``--parts FILE.csv`` keeps e's variance split into its parts (PhysicsSettings.e_sigma_parts: the fit's
+propagated covariance and its samples-only part, the lack-of-fit widening, the model-time, hop,
+hidden-slide, shared-cushion and model-choice terms; for the hop also the slip shift X and its sigma)
+per matched contact, writes them with the error to CSV and prints per kind the median |err|/sigma
+with the whole sigma, the fit alone, its noise part and with each added part left out: which part
+makes a sigma too wide or too narrow.
 
 Physics stage alone on a clip with exact truth (is an error the physics stage's or the tracker's?):
 ``--truth-clip CLIP.truth.json --noise 0.8 --n 20 --seed 1`` feeds the truth's per-frame centres
@@ -247,11 +255,17 @@ def main() -> None:
                     help="override a PhysicsSettings field (repeatable), e.g. slip_prior=false")
     ap.add_argument("--truth-clip", default=None, help="truth JSON of a clip: feed its centres + noise instead")
     ap.add_argument("--noise", type=float, default=0.5, help="with --truth-clip: noise (mm) per coordinate")
+    ap.add_argument("--parts", default=None, metavar="CSV",
+                    help="write each matched contact's e error, sigma and sigma's parts (fit, noise-only, "
+                         "lack-of-fit widening, model-time, hop, ...) to CSV, and print their summary")
     ap.add_argument("--refine", action="store_true",
                     help="also refit each matched contact with physics.refine (circular here: its model is "
                          "the simulator; an upper bound, see scripts/bench_refine.py)")
     a = ap.parse_args()
     settings = _settings(a.set)
+    if a.parts:
+        settings = replace(settings, e_sigma_parts=True)
+    part_rows: list[dict] = []
     if a.truth_clip:
         truth_feed(a.truth_clip, a.noise, range(a.seed, a.seed + a.n), settings, a.verbose)
         return
@@ -291,6 +305,8 @@ def main() -> None:
                 s["z"].append(z)
                 s["zk"].append((c.kind, z, i, float(c.t_s), float(err), float(r.e_sigma)))
                 s["dt"].append((r.t_s - c.t_s) * fps)
+                if a.parts:
+                    part_rows.append(_part_row(a.seed, fps, i, c, r, err))
                 if ref is not None and r.contact in ref.index:
                     q = ref.loc[r.contact]
                     s["ref"].append((c.kind, abs(err), abs(q.e_refined - c.e_measured)))
@@ -323,6 +339,46 @@ def main() -> None:
               f"| {len(bc):11d} {q(bc,50):8.4f} {q(bc,90):6.4f} | {np.mean(z < 2) if len(z) else float('nan'):14.3f} "
               f"| {q(dtf,50):6.3f} / {q(dtf,90):6.3f}        | {q(mu,50):17.3f} | {s['time'] / max(a.n - a.start, 1):6.2f}")
     _issue_figures(stats, settings)
+    if a.parts:
+        _parts_summary(part_rows, a.parts)
+
+
+PARTS = ("noise", "fit", "widen", "model", "hop", "hidden", "shared", "alt")
+
+
+def _part_row(seed: int, fps: float, shot: int, c, r, err: float) -> dict:
+    """One matched contact: its e error, sigma and sigma's variance parts (PhysicsSettings.e_sigma_parts)."""
+    p = r.get("_e_var_parts") if hasattr(r, "get") else None
+    p = p if isinstance(p, dict) else {}
+    row = dict(seed=seed, fps=fps, shot=shot, kind=c.kind, t_s=float(c.t_s), speed_mm_s=abs(float(c.speed_in_mm_s)),
+               e_true=float(c.e_measured), err=float(err), e_sigma=float(r.e_sigma),
+               phase_a_out=r.a_phase_out, phase_b_out=r.b_phase_out)
+    row.update({f"var_{k}": float(p.get(k, 0.0)) for k in PARTS})
+    row.update(hop_X=float(p.get("X", np.nan)), hop_X_sd=float(p.get("X_sd", np.nan)),
+               var_hop_old=float(p.get("hop_old", 0.0)))
+    return row
+
+
+def _parts_summary(rows: list[dict], path: str) -> None:
+    """Write the per-contact rows to CSV and print, per kind, the median |err|/sigma with the whole
+    sigma, with the fit's part alone and its noise-only part, and with each added part left out
+    (0.67 for a calibrated Gaussian sigma), and each part's median share of the variance."""
+    import pandas as pd
+
+    df = pd.DataFrame(rows)
+    df.to_csv(path, index=False)
+    if not len(df):
+        return
+    print(f"\nsigma parts ({path}): median |err|/sigma with everything, the fit alone (unwidened), its "
+          "noise-only part, and without one part (0.67 calibrated); median share of the variance")
+    tot = df["e_sigma"] ** 2
+    for kind, g in df.groupby("kind"):
+        t = tot[g.index]
+        z = lambda v: float(np.median(np.abs(g["err"]) / np.sqrt(np.maximum(v, 1e-30))))
+        line = f"  {kind:12s} n {len(g):3d}  all {z(t):.2f}  fit {z(g['var_fit']):.2f}  noise {z(g['var_noise']):.2f}"
+        line += "  without: " + " ".join(f"{k} {z(t - g['var_' + k]):.2f}" for k in PARTS[2:])
+        line += "  share: " + " ".join(f"{k} {float(np.median(g['var_' + k] / t)):.2f}" for k in PARTS)
+        print(line)
 
 
 def _issue_figures(stats, settings: PhysicsSettings) -> None:
