@@ -89,6 +89,11 @@ def test_suggested_preset_follows_the_measured_size():
             got = suggest_preset(bias * predicted_size_factor(p9, true), p9, *band)
             assert got is not None and got.name == true.name
             assert suggest_preset(bias, true, *band) is None
+    # a ratio the assumed preset explains (any bias inside its own band) never switches it, even where
+    # another preset's band overlaps (9 ft vs 8 ft: 100/92 apart, WPA, against a band wider than that)
+    for r in np.linspace(band[0], band[1], 25):
+        assert suggest_preset(r, p9, *band) is None
+    assert suggest_preset(band[1] * 1.01, p9, *band).name == "pool-8ft"
     # far outside every band: keep the assumed preset (and its warning)
     assert suggest_preset(2.0, p9, *band) is None
     assert suggest_preset(float("nan"), p9, *band) is None

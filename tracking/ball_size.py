@@ -213,21 +213,28 @@ def suggest_preset(ratio: float, assumed, low: float, high: float, names: tuple[
 
     ratio: :func:`size_ratio` measured with ``assumed`` (a TablePreset).
     Each candidate predicts ratio = bias x :func:`predicted_size_factor`,
-    with the detector's bias anywhere in [low, high]; the candidate whose
-    prediction lies nearest (in log ratio, to the band's geometric centre)
-    wins, and only a candidate whose band holds the measurement may replace
-    the assumed preset. Returns None when the assumed preset wins, when no
-    band holds the ratio, or when the ratio is NaN.
+    with the detector's bias anywhere in [low, high]. A ratio inside the
+    assumed preset's own band is explained by it: no switch (the bands of
+    9-ft and 8-ft pool overlap, 1.087 apart against a 1.14-wide band, and a
+    switch on a right preset scales every distance by 8.7 %; measured: a
+    MuJoCo 9-ft render at 1.015 was switched to 8 ft by a nearest-centre
+    rule). Outside it, the candidate whose prediction lies nearest (in log
+    ratio, to the band's geometric centre) wins, and only a candidate whose
+    band holds the measurement may replace the assumed preset. Returns None
+    when the assumed preset explains the ratio, when no band holds it, or
+    when the ratio is NaN.
 
     >>> from feltlab.standards import table_preset
     >>> suggest_preset(0.96, table_preset("pool-9ft"), 0.925, 1.03) is None
+    True
+    >>> suggest_preset(1.015, table_preset("pool-9ft"), 0.90, 1.03) is None
     True
     >>> suggest_preset(1.05, table_preset("pool-9ft"), 0.925, 1.03).name
     'pool-8ft'
     """
     from feltlab.standards import table_preset
 
-    if not np.isfinite(ratio) or ratio <= 0:
+    if not np.isfinite(ratio) or ratio <= 0 or low <= ratio <= high:
         return None
     centre = 0.5 * (np.log(low) + np.log(high))
     best, best_d = None, np.inf
