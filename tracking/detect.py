@@ -41,7 +41,10 @@ origin at the centre of the top-left pixel):
    :func:`shade_free_de`) locates the edge on a colour difference that
    ignores darkening of the cloth along its own colour (the cast shadow the
    dark limb runs into), so the cloth just outside the limb no longer reads
-   as foreground there.
+   as foreground there. A ball whose rim is darker than the cloth along the
+   cloth's own colour (a black ball, :func:`dark_rim`) is located on the
+   lightness difference instead (:func:`edge_map`): on the shade-free map
+   its rim reads as shadow and its white number circle as the ball.
 4. Perspective: the silhouette of a sphere is the image of its tangent cone,
    whose centre is not exactly the projection of the sphere centre. We
    project the exact tangent circle through the calibrated camera (with lens
@@ -304,15 +307,43 @@ def shade_free_de(lab: np.ndarray, bg_lab: np.ndarray, min_light: float = 0.15) 
 
 
 def edge_map(d: np.ndarray, de: np.ndarray | None, x: float, y: float, r: float,
-             settings: DetectionSettings) -> np.ndarray:
-    """The map to locate a ball's edge on: ``de`` (shade-free) when given and the ball keeps its contrast there.
+             settings: DetectionSettings, dl: np.ndarray | None = None) -> np.ndarray:
+    """The map to locate a ball's edge on near (x, y) px, radius r px.
 
-    Keeps: mean of ``de`` inside 0.6 r of (x, y) px >= edge_shade_free_min_ratio
-    x that of the Delta-E map ``d`` (a black ball does not; see the setting).
+    - ``dl`` (:func:`lightness_difference`) when given and the ball's rim
+      keeps little of its Delta-E contrast on the shade-free map ``de``
+      (:func:`dark_rim`): a rim darker than the cloth along the cloth's own
+      colour (a black ball, whatever its number circle does inside);
+    - else ``de`` (shade-free) when given and the ball keeps its contrast
+      there: mean of ``de`` inside 0.6 r >= edge_shade_free_min_ratio x that
+      of the Delta-E map ``d``;
+    - else ``d``.
     """
-    if de is not None and _disc_mean(de, x, y, 0.6 * r) >= settings.edge_shade_free_min_ratio * _disc_mean(d, x, y, 0.6 * r):
+    if de is None:
+        return d
+    if dl is not None and dark_rim(d, de, x, y, r, settings):
+        return dl
+    if _disc_mean(de, x, y, 0.6 * r) >= settings.edge_shade_free_min_ratio * _disc_mean(d, x, y, 0.6 * r):
         return de
     return d
+
+
+def dark_rim(d: np.ndarray, de: np.ndarray, x: float, y: float, r: float, settings: DetectionSettings) -> bool:
+    """True when, over the annulus ``dark_rim_inner``-``dark_rim_outer`` r about (x, y) px, the median of the
+    shade-free map ``de`` is below ``dark_rim_ratio`` x the median of Delta-E ``d`` (a rim darker than the
+    cloth along the cloth's own colour; medians, so that a number circle reaching into part of the annulus
+    does not decide)."""
+    vd = _ring_values(d, x, y, settings.dark_rim_inner * r, settings.dark_rim_outer * r)
+    if not len(vd):
+        return False
+    md = float(np.median(vd))
+    ve = _ring_values(de, x, y, settings.dark_rim_inner * r, settings.dark_rim_outer * r)
+    return md > 0 and float(np.median(ve)) < settings.dark_rim_ratio * md
+
+
+def lightness_difference(lab: np.ndarray, bg_lab: np.ndarray) -> np.ndarray:
+    """|L* - L*_background| (float32, CIELAB lightness units; CIE 15:2004)."""
+    return np.abs(np.asarray(lab, np.float32)[..., 0] - np.asarray(bg_lab, np.float32)[..., 0])
 
 
 def _colour_distance(a: np.ndarray, b: np.ndarray) -> np.ndarray:
@@ -1161,8 +1192,10 @@ def detect_frame(image: np.ndarray, calibration: Calibration, settings: Detectio
     bg_lab, bg_w = background.lab_image(), background.weight_map()
     half_res = r0 >= 6.0
     # Edge-location strength: Delta-E, or the shade-free difference (see
-    # DetectionSettings.edge_shade_free), filled alongside d.
+    # DetectionSettings.edge_shade_free), or the lightness difference for a
+    # dark-rimmed ball (DetectionSettings.dark_rim_luminance), filled alongside d.
     de = None
+    dl = None
     if half_res:
         # Seeds from a half-resolution foreground map (4x fewer pixels); the
         # full-resolution strength is computed only in patches round the seeds.
@@ -1176,11 +1209,17 @@ def detect_frame(image: np.ndarray, calibration: Calibration, settings: Detectio
         small = d[y0:y1, x0:x1]
         filled = np.ones(image.shape[:2], bool)
         if settings.edge_shade_free:
+            lab_roi = to_lab(image[y0:y1, x0:x1])
             de = np.zeros(image.shape[:2], np.float32)
-            de[y0:y1, x0:x1] = shade_free_de(to_lab(image[y0:y1, x0:x1]), bg_lab[y0:y1, x0:x1], settings.shade_min_light) \
+            de[y0:y1, x0:x1] = shade_free_de(lab_roi, bg_lab[y0:y1, x0:x1], settings.shade_min_light) \
                 * bg_w[y0:y1, x0:x1]
+            if settings.dark_rim_luminance:
+                dl = np.zeros(image.shape[:2], np.float32)
+                dl[y0:y1, x0:x1] = lightness_difference(lab_roi, bg_lab[y0:y1, x0:x1]) * bg_w[y0:y1, x0:x1]
     if half_res and settings.edge_shade_free:
         de = np.zeros(image.shape[:2], np.float32)
+        if settings.dark_rim_luminance:
+            dl = np.zeros(image.shape[:2], np.float32)
     pad = int(np.ceil(settings.ray_max * float(np.max(background.radius_grid)) + 3 * settings.edge_smooth_px)) + 8
 
     def fill(xa_: int, ya_: int, xb_: int, yb_: int) -> None:
@@ -1192,6 +1231,8 @@ def detect_frame(image: np.ndarray, calibration: Calibration, settings: Detectio
         d[ya_:yb_, xa_:xb_] = delta_e76(lab_p, bg_lab[ya_:yb_, xa_:xb_]) * bg_w[ya_:yb_, xa_:xb_]
         if de is not None:
             de[ya_:yb_, xa_:xb_] = shade_free_de(lab_p, bg_lab[ya_:yb_, xa_:xb_], settings.shade_min_light) * bg_w[ya_:yb_, xa_:xb_]
+        if dl is not None:
+            dl[ya_:yb_, xa_:xb_] = lightness_difference(lab_p, bg_lab[ya_:yb_, xa_:xb_]) * bg_w[ya_:yb_, xa_:xb_]
         filled[ya_:yb_, xa_:xb_] = True
     fg = np.clip(small / thr - 0.5, 0, 1).astype(np.float32)
     if half_res:
@@ -1238,7 +1279,7 @@ def detect_frame(image: np.ndarray, calibration: Calibration, settings: Detectio
         cands = np.vstack([cands] + extra)
     found = []
 
-    def streak_centre(gx: float, gy: float, r_exp: float) -> dict | None:
+    def streak_centre(gx: float, gy: float, r_exp: float, dl: np.ndarray | None) -> dict | None:
         """Mid-exposure centre of a motion streak round seed (gx, gy) px, or None (not a streak)."""
         hw = int(np.ceil(r_exp * (1.0 + 0.5 * settings.streak_max_len))) + 3
         fill(int(gx) - hw, int(gy) - hw, int(gx) + hw + 2, int(gy) + hw + 2)
@@ -1249,7 +1290,7 @@ def detect_frame(image: np.ndarray, calibration: Calibration, settings: Detectio
         fill(int(ax["x"]) - hw, int(ax["y"]) - hw, int(ax["x"]) + hw + 2, int(ax["y"]) + hw + 2)
         # the streak's rim on the same map as the circle fit's (edge_map; see
         # DetectionSettings.streak_shade_free)
-        em = edge_map(d, de, gx, gy, r_exp, settings) if settings.streak_shade_free else d
+        em = edge_map(d, de, gx, gy, r_exp, settings, dl) if settings.streak_shade_free else d
         return refine_streak(em, ax, r_exp, settings, thr)
 
     def accept(gx: float, gy: float, min_contrast: float = settings.min_inner_contrast) -> bool:
@@ -1261,12 +1302,16 @@ def detect_frame(image: np.ndarray, calibration: Calibration, settings: Detectio
         if _disc_mean(d, gx, gy, 0.6 * r0) < settings.min_inner_contrast * thr:
             return False  # not a ball-sized patch that differs from the cloth
         r_exp, _, _ = background.lookup(gx, gy)
-        ref = streak_centre(gx, gy, r_exp) if settings.streak_fit else None
+        # a pocket is a dark hole: its rim would read as a black ball's (dark_rim); the lightness map
+        # only where a ball can be (centre half a radius or more inside the nose lines, not in a corner mouth)
+        dl_here = dl if dl is not None and _ball_room(cal.px_to_table(np.array([[gx, gy]]))[0], cal,
+                                                      settings.corner_mouth_min_mm) else None
+        ref = streak_centre(gx, gy, r_exp, dl_here) if settings.streak_fit else None
         if ref is None:
             others = np.vstack([seeds_px] + [[[f[0]["x"], f[0]["y"]]] for f in found])
-            em = edge_map(d, de, gx, gy, r0, settings)
+            em = edge_map(d, de, gx, gy, r0, settings, dl_here)
             ref = refine_centre(em, gx, gy, r_exp, settings, image, thr, others)
-            if settings.outline_reseed and de is not None and em is d:
+            if settings.outline_reseed and de is not None and em is not de:
                 p2 = pad + int(np.ceil(settings.outline_search * r_exp)) + 2  # the refit's rays, from up to r away
                 fill(int(gx) - p2, int(gy) - p2, int(gx) + p2 + 2, int(gy) + p2 + 2)
                 ref = _outline_reseed(ref, d, de, em, gx, gy, r_exp, settings, image, thr, others)
@@ -1326,13 +1371,16 @@ def _outline_reseed(ref: dict | None, d: np.ndarray, de: np.ndarray | None, em: 
     ball of the cloth's colour is as strong in Delta-E as the ball) can lie
     most of a radius off; there the shadow also decides the edge map
     (:func:`edge_map` reads the shade-free map's contrast at the seed: low,
-    so Delta-E ``d``) and the ray fit settles on the shadow's side. When the
-    edge map ``em`` was ``d`` but a shade-free map ``de`` exists,
+    so Delta-E ``d``, or the lightness map when the annulus about the seed
+    takes the shadow for a dark rim: :func:`dark_rim`) and the ray fit
+    settles on the shadow's side. When the edge map ``em`` was not ``de``
+    but a shade-free map ``de`` exists,
     :func:`outline_centre` on ``de`` finds where a disc of the known radius
     best covers the not-cloth pixels. Only where the ball keeps all its
     contrast on ``de`` (mean inside 0.6 r at least ``outline_reseed_min_ratio``
     of ``d``'s: no part of it reads as shadow, unlike a black ball or a dark
-    band, whose fits stay on ``d``) is the fit redone from there on ``de``;
+    band, whose fits stay on ``d``; nor where the rim there is dark,
+    :func:`dark_rim`) is the fit redone from there on ``de``;
     of the two, the one whose disc scores higher on ``de``
     (:func:`outline_score`) is kept.
     """
@@ -1341,6 +1389,8 @@ def _outline_reseed(ref: dict | None, d: np.ndarray, de: np.ndarray | None, em: 
     oc = outline_centre(de, gx, gy, r_exp, thr, settings)
     if oc is None:
         return ref
+    if em is not d and dark_rim(d, de, oc[0], oc[1], r_exp, settings):
+        return ref  # a dark-rimmed ball (the lightness map) there too: its fit stays
     if _disc_mean(de, oc[0], oc[1], 0.6 * r_exp) < settings.outline_reseed_min_ratio * _disc_mean(d, oc[0], oc[1],
                                                                                                     0.6 * r_exp):
         return ref
@@ -1447,6 +1497,20 @@ def _explain_cluster(blob: np.ndarray, bx0: int, by0: int, found: list, accept, 
         blank(gx, gy, r_exp)
 
 
+def _ball_room(xy_mm: np.ndarray, cal: Calibration, mouth_mm: float) -> bool:
+    """Away from the pockets' dark holes: table point xy_mm at least half a radius inside the nose lines (a
+    ball touches a cushion at one radius; the seed is a few px off), not inside a corner pocket's mouth, and
+    (tables with pockets) over two radii from a side pocket's mouth (the middle of a long side)."""
+    R = cal.ball_radius_mm
+    L, W = cal.table.length_mm, cal.table.width_mm
+    x, y = float(xy_mm[0]), float(xy_mm[1])
+    if not (0.5 * R <= x <= L - 0.5 * R and 0.5 * R <= y <= W - 0.5 * R):
+        return False
+    if getattr(cal.table, "pockets", False) and abs(x - 0.5 * L) < 2 * R and min(y, W - y) < 2 * R:
+        return False
+    return not bool(inside_corner_mouth(np.array([[x, y]]), cal.table, mouth_mm)[0])
+
+
 def _mask_fill(mask: np.ndarray, x: float, y: float, r: float) -> float:
     """Share of the disc of radius r (px) about (x, y) that is inside the image and True in ``mask``."""
     n = int(np.ceil(r))
@@ -1455,6 +1519,19 @@ def _mask_fill(mask: np.ndarray, x: float, y: float, r: float) -> float:
     px, py = np.round(x).astype(int) + xx[inside], np.round(y).astype(int) + yy[inside]
     ok = (px >= 0) & (px < mask.shape[1]) & (py >= 0) & (py < mask.shape[0])
     return float(mask[py[ok], px[ok]].sum()) / max(int(inside.sum()), 1)
+
+
+def _ring_values(d: np.ndarray, x: float, y: float, r_in: float, r_out: float) -> np.ndarray:
+    """Values of image ``d`` over the annulus r_in..r_out (px) about (x, y), pixels inside the image only."""
+    n = int(np.ceil(r_out))
+    h, w = d.shape
+    xi, yi = int(round(x)), int(round(y))
+    xa, ya, xb, yb = max(0, xi - n), max(0, yi - n), min(w, xi + n + 1), min(h, yi + n + 1)
+    if xb <= xa or yb <= ya:
+        return np.zeros(0, d.dtype)
+    yy, xx = np.mgrid[ya:yb, xa:xb]
+    rr = (xx - x) ** 2 + (yy - y) ** 2
+    return d[ya:yb, xa:xb][(rr >= r_in * r_in) & (rr <= r_out * r_out)]
 
 
 def _disc_mean(d: np.ndarray, x: float, y: float, r: float) -> float:
