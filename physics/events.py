@@ -5,6 +5,10 @@ Table frame, mm, s. A contact is accepted only with both kinds of evidence:
 * geometric: the sampled gap (centre distance - 2R, or distance to a cushion-nose line - R)
   has a local minimum below a margin that allows for noise and for one frame of travel, or (two
   balls) a run of frames below that margin begins with an arrival;
+  a cushion candidate is then moved to the change point of its touching run
+  (:func:`run_change_point`: where the velocity along the normal changes, from all samples either
+  side), since at high frame rates the run spans many frames and the gap's noise minima lie
+  anywhere in it;
 * kinematic: a change-point fit around the candidate (position continuous at a break time
   scanned across the candidate frame, separate velocity and acceleration on each side,
   weighted linear least squares) shows a velocity jump along the contact normal that is larger
@@ -456,6 +460,102 @@ def _run_start(below: np.ndarray, k: int) -> int:
     return j
 
 
+def _run_span(below: np.ndarray, k: int, cap: int) -> tuple[int, int]:
+    """Frames (first, last) of the run of True values of ``below`` that holds index k, at most
+    ``cap`` frames either side of k."""
+    j0 = _run_start(below, k)
+    j1 = k
+    while j1 + 1 < len(below) and below[j1 + 1] and j1 + 1 - k <= cap:
+        j1 += 1
+    return max(j0, k - cap), j1
+
+
+def run_change_point(samples: dict[str, BallSamples], balls: tuple[str, ...], n: np.ndarray, t_lo: float,
+                     t_hi: float, lo: dict[str, float], hi: dict[str, float], dt: float,
+                     s: PhysicsSettings) -> float | None:
+    """Break time (s) in [t_lo, t_hi] that best fits the balls' positions along the contact
+    normal ``n``: per ball, position-continuous quadratics either side of the break (one change of
+    velocity and acceleration), weighted least squares on the samples within one standard window
+    (``side_window_s``, at least ``side_window_frames`` periods) beyond the range and inside
+    (lo[ball], hi[ball]); the chi^2 summed over the balls (one instant for both balls of a pair)
+    is minimised over a grid of dt / 4. All samples are used (no guard): the two-line corner of a
+    contact that lasts a few samples still lies where the velocity turns.
+
+    A touching run (frames within the touching margin) can span many frames at high frame rates
+    (15 ms at 700 mm/s and 1000 fps), and noise minima of the sampled gap lie anywhere in it; the
+    velocity change is located by all samples on both sides. None if no break has 3 samples on
+    each side for every ball."""
+    w0 = max(s.side_window_s, s.side_window_frames * dt)
+    data = []
+    for ball in balls:
+        b = samples[ball]
+        m = (b.t > max(lo.get(ball, -np.inf), t_lo - w0)) & (b.t < min(hi.get(ball, np.inf), t_hi + w0))
+        sn = np.sqrt((b.sig[m] ** 2) @ (n**2))
+        data.append((b.t[m], (b.xy[m] @ n) / sn, 1.0 / sn))
+    best, best_t = np.inf, None
+    for tb in np.arange(t_lo, t_hi + 1e-9 * dt, dt / 4.0):
+        chi2 = 0.0
+        for t, yw, w in data:
+            pre = t < tb
+            if pre.sum() < 3 or (~pre).sum() < 3:
+                chi2 = np.inf
+                break
+            tau = t - tb
+            A = np.column_stack([np.ones_like(tau), np.where(pre, tau, 0.0), np.where(pre, 0.0, tau),
+                                 np.where(pre, 0.5 * tau**2, 0.0), np.where(pre, 0.0, 0.5 * tau**2)]) * w[:, None]
+            coef, *_ = np.linalg.lstsq(A, yw, rcond=None)
+            r = yw - A @ coef
+            chi2 += float(r @ r)
+        if chi2 < best:
+            best, best_t = chi2, float(tb)
+    return best_t
+
+
+def _relocate(geo: list[tuple], run: dict, extent: dict, raw_t: dict, samples: dict[str, BallSamples],
+              times: np.ndarray, P: dict, dt: float, s: PhysicsSettings) -> tuple[list[tuple], dict, dict]:
+    """Each cushion candidate moved to the frame nearest the change point of its touching run
+    (:func:`run_change_point`, over the frames of :func:`_run_span` +- one period; windows end at
+    the ball's candidates of other pairs / cushions); minima of one run that land on one frame are
+    one candidate (the deepest gap kept). Returns the candidates, their runs and their change
+    points (kind, a, b, cushion, k) -> s."""
+    out: dict[tuple, tuple] = {}
+    new_run: dict[tuple, int] = {}
+    cps: dict[tuple, float] = {}
+    for item in geo:
+        kind, a, b, c, k, gap, n = item
+        k0, k1 = extent[(kind, a, b, c, k)]
+        t_lo, t_hi = float(times[k0]) - dt, float(times[k1]) + dt
+        key = (kind, frozenset((a, b)), c)
+        lo, hi = {}, {}
+        balls = (a, b) if b else (a,)
+        for ball in balls:
+            others = [x for x, kx in raw_t[ball] if kx != key and not (t_lo - 2.5 * dt < x < t_hi + 2.5 * dt)]
+            lo[ball] = max([x for x in others if x < t_lo], default=-np.inf)
+            hi[ball] = min([x for x in others if x > t_hi], default=np.inf)
+        k_new, tb = k, None
+        # two balls keep the gap's minimum: a pair's run change point also sees each ball's other
+        # changes along that line (a struck rack neighbour, a graze beside a hit: pymunk scene in
+        # tests/test_events_rack_slow_push.py moved a graze onto the hit and reported it). Only
+        # where the cushion guard spans a frame period or more (>= 250 fps) is the run many frames
+        # wide with the change-point fit blind around the candidate; below, nothing changes
+        if kind == "ball-cushion" and s.guard_cushion_s >= dt and k1 > k0:
+            tb = run_change_point(samples, balls, n, t_lo, t_hi, lo, hi, dt, s)
+            if tb is not None:
+                k_new = int(np.clip(np.round((tb - times[0]) / dt), 0, len(times) - 1))
+        n_new = n
+        if b and k_new != k:
+            d = P[b][k_new] - P[a][k_new]
+            if np.all(np.isfinite(d)) and np.hypot(*d) > 0:
+                n_new = d / np.hypot(*d)
+        ident = (kind, a, b, c, k_new)
+        if ident not in out or gap < out[ident][5]:
+            out[ident] = (kind, a, b, c, k_new, gap, n_new)
+            new_run[ident] = run[(kind, a, b, c, k)]
+            if tb is not None:
+                cps[ident] = tb
+    return list(out.values()), new_run, cps
+
+
 def _grid(samples: dict[str, BallSamples], dt: float):
     """Common time grid: frame index k -> (T_all,) times; per ball (K,2) positions (NaN = none)."""
     t_all = np.concatenate([b.t for b in samples.values()])
@@ -498,6 +598,8 @@ def find_contacts(
     names = sorted(samples)
     geo: list[tuple] = []  # (kind, a, b, cushion, k, gap, normal)
     run: dict[tuple, int] = {}  # (kind, a, b, cushion, k) -> first frame of its touching run
+    extent: dict[tuple, tuple[int, int]] = {}  # ... -> frames of its run (at most one window either side)
+    cap = int(np.ceil(max(s.side_window_s, s.side_window_frames * dt) / dt))
     for a in names:
         for c, n in CUSHION_NORMALS.items():
             g = cushion_distance(P[a], c, length_mm, width_mm) - radius_mm
@@ -513,6 +615,7 @@ def find_contacts(
                 if g[k] < margin[k] and V[a][k] > s.rest_speed_mm_s:
                     geo.append(("ball-cushion", a, "", c, k, float(g[k]), n))
                     run[("ball-cushion", a, "", c, k)] = _run_start(g < margin, k)
+                    extent[("ball-cushion", a, "", c, k)] = _run_span(g < margin, k, cap)
     for (a, b), (d, g, vrel, margin) in pair_gaps(P, S, V, names, radius_mm, dt, s).items():
         mins = []
         for k in _local_minima(g):
@@ -520,6 +623,7 @@ def find_contacts(
                 n = d[k] / np.hypot(*d[k])
                 geo.append(("ball-ball", a, b, "", k, float(g[k]), n))
                 run[("ball-ball", a, b, "", k)] = _run_start(g < margin, k)
+                extent[("ball-ball", a, b, "", k)] = _run_span(g < margin, k, cap)
                 mins.append(k)
         # balls that stay at the touching distance after a touch (a stop shot into a ball that
         # passes the push on, a frozen pair) can have their smallest sampled gap frames after
@@ -533,6 +637,17 @@ def find_contacts(
                 n = d[k0] / np.hypot(*d[k0])
                 geo.append(("ball-ball", a, b, "", int(k0), float(g[k0]), n))
                 run[("ball-ball", a, b, "", int(k0))] = int(k0)
+                extent[("ball-ball", a, b, "", int(k0))] = _run_span(below, int(k0), cap)
+    # compound events are judged on the sampled minima themselves (physics.compound)
+    raw_bb = [g for g in geo if g[0] == "ball-ball"]
+    raw_t: dict[str, list[tuple[float, tuple]]] = {nm: [] for nm in names}
+    for kind, a, b, c, k, gap, n in geo:
+        for ball in (a, b) if b else (a,):
+            raw_t[ball].append((times[k], (kind, frozenset((a, b)), c)))
+    if s.run_change_point:
+        geo, run, cps = _relocate(geo, run, extent, raw_t, samples, times, P, dt, s)
+    else:
+        cps = {}
     # candidate times per ball: limit the change-point windows to the neighbouring candidates
     cand_t: dict[str, list[tuple[float, tuple]]] = {nm: [] for nm in names}
     same: dict[tuple, int] = {}  # (key, time) -> touching run: minima in one run are one contact
@@ -548,7 +663,17 @@ def find_contacts(
         """Kinematic test of one geometric candidate; ``limits``: ball -> times of contacts
         already accepted, which also bound the change-point windows. A candidate that passes is
         tested again with windows cut at each ball's own larger change (:func:`kink_fit_own`)."""
-        return None if judge(item, limits, False) is None else judge(item, limits, True)
+        if judge(item, limits, False) is None:
+            return None
+        cand = judge(item, limits, True)
+        # the break time: the run's change point, from all samples, where the fit above leaves
+        # out more than one frame period around the candidate (the guard of a cushion contact at
+        # >= 250 fps): no sample there fixes its break, which lies anywhere in the gap
+        guard = s.guard_ball_s if item[0] == "ball-ball" else s.guard_cushion_s
+        t_cp = cps.get(item[:5]) if guard >= dt else None
+        if cand is not None and t_cp is not None and abs(t_cp - cand.t_init_s) <= max(dt, s.contact_time_floor_s):
+            cand.t_init_s = t_cp
+        return cand
 
     def judge(item: tuple, limits: dict[str, list[float]], own: bool) -> ContactCandidate | None:
         kind, a, b, c, k, gap, n = item
@@ -731,6 +856,9 @@ def find_contacts(
             item = ("ball-ball", a, b, "", k, gap, n)
             key = ("ball-ball", frozenset((a, b)), "")
             geo.append(item)
+            raw_bb.append(item)
+            raw_t[a].append((t_k, key))
+            raw_t[b].append((t_k, key))
             run[("ball-ball", a, b, "", k)] = k
             same[(key, t_k)] = k
             deepest[(key, k)] = min(deepest.get((key, k), np.inf), gap)
@@ -749,9 +877,9 @@ def find_contacts(
     # compound events: links inside a group touching within one frame replace the pairwise view
     from physics.compound import find_groups, merge_groups  # noqa: PLC0415 - compound uses this module
 
-    seeds = [g for g in geo if g[0] == "ball-ball"]
     covered: list = []
-    grouped = find_groups(samples, times, P, S, V, seeds, cand_t, radius_mm, dt, s, out, covered)
+    grouped = find_groups(samples, times, P, S, V, raw_bb, raw_t if s.run_change_point else cand_t,
+                          radius_mm, dt, s, out, covered)
     if grouped:
         # the groups' jumps are taken: pairwise candidates whose windows reached over them again
         out = _dedupe([c for c, _ in settle([(c, gi_of[id(c)]) for c in out], grouped)], dt, s.contact_time_floor_s)

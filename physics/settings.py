@@ -376,3 +376,14 @@ class PhysicsSettings:
     #: contacts were held 1-3 ms from their time (bench seed 213 at 1000 fps: ball-ball e errors up
     #: to 0.12). Geometry and noise, not tuned; 4 ms = one frame at 250 fps.
     contact_time_floor_s: float = 0.004
+    #: Each cushion candidate is moved to the change point of its touching run before the
+    #: kinematic test (physics.events.run_change_point: the instant where the ball's velocity along
+    #: the cushion normal changes, from all samples either side), not left at the sampled gap's
+    #: minimum: a run within the touching margin spans margin / speed (~15 ms at 700 mm/s), and at
+    #: 500-1000 fps its noise minima lie anywhere in it (bench seed 213 at 1000 fps shot 9: a
+    #: corner's first cushion 6.9 ms late). Only where the cushion guard spans a frame period or
+    #: more (>= 250 fps; identical below by construction), and there the change point is also the
+    #: contact's initial time (no sample inside the guard fixes the break). Ball-ball
+    #: candidates keep the gap's minimum: a pair's change point also sees each ball's other changes
+    #: (a graze beside a hit was moved onto the hit). Least squares, not tuned.
+    run_change_point: bool = True
