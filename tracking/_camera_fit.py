@@ -145,6 +145,29 @@ class EdgeFit:
     length_scale: float = 1.0
 
 
+def gaussian_under_soft_l1(c: np.ndarray | float, f_scale: float) -> np.ndarray:
+    """A residual that costs what ``c`` would with no robust loss, under scipy's ``soft_l1`` with ``f_scale``.
+
+    least_squares applies one robust loss to every residual; a prior term of
+    c (sigma-weighted) would cost only ~f_scale * |c| there (linear, like an
+    outlier), so many edge points sharing a systematic error outweigh it.
+    scipy's cost is 0.5 * sum(f^2 rho((r / f)^2)) with rho(z) = 2 (sqrt(1 + z)
+    - 1) for soft_l1 and rho(z) = z for no loss (scipy.optimize.least_squares
+    docs); f^2 rho = c^2 gives r = f sqrt((1 + c^2 / (2 f^2))^2 - 1), with the
+    sign of c. The prior stays Gaussian at every distance.
+
+    >>> from scipy.optimize._lsq.least_squares import soft_l1
+    >>> c = np.array([0.3, -4.0, 25.0])
+    >>> r = gaussian_under_soft_l1(c, 0.5)
+    >>> rho = np.empty((3, 3)); soft_l1((r / 0.5) ** 2, rho, cost_only=False)
+    >>> np.allclose(0.25 * rho[0], c ** 2)
+    True
+    """
+    c = np.asarray(c, float)
+    z = (1.0 + c ** 2 / (2.0 * f_scale ** 2)) ** 2 - 1.0
+    return np.sign(c) * f_scale * np.sqrt(z)
+
+
 def fit_edges(cam0: CameraModel, groups: list[Group], L: float, W: float,
               fit_k2: bool = False, loss_scale_px: float = 0.5,
               hfov_prior: tuple[float, float] | None = None, free_length: bool = False) -> EdgeFit:
@@ -155,8 +178,9 @@ def fit_edges(cam0: CameraModel, groups: list[Group], L: float, W: float,
     distance (mm) along the table axis between the point back-projected onto
     the plane z and the line, times the nominal scale (px/mm) so the loss works
     in pixels. ``free_length`` also fits a factor on L (to check the aspect
-    ratio). hfov_prior: (deg, sigma deg), a prior on the horizontal field
-    of view, weighted like one side's points (see below).
+    ratio). hfov_prior: (deg, sigma deg), a Gaussian prior on the
+    horizontal field of view, weighted like one side's points (see below)
+    and kept quadratic under the robust loss (:func:`gaussian_under_soft_l1`).
     """
     w = cam0.image_size[0]
     z_ref = groups[0][1]
@@ -177,7 +201,8 @@ def fit_edges(cam0: CameraModel, groups: list[Group], L: float, W: float,
         r = _edge_resid_mm(cam, groups, L, W, ls) * scale
         if hfov_prior is not None:
             hfov = np.degrees(2 * np.arctan(w / 2.0 / p[0]))
-            r = np.append(r, prior_w * (hfov - hfov_prior[0]) / hfov_prior[1])
+            r = np.append(r, gaussian_under_soft_l1(prior_w * (hfov - hfov_prior[0]) / hfov_prior[1],
+                                                    loss_scale_px))
         return r
 
     lo = np.full_like(p0, -np.inf)
