@@ -226,7 +226,7 @@ def test_cli_exits_nonzero_when_a_clip_fails(clip_folder: Path, tmp_path: Path,
     from feltlab.cli import main
 
     monkeypatch.setattr(runner, "default_analyzer", lambda: fake_analyze)
-    monkeypatch.setattr(cmd, "analyze_settings", lambda table, calib=None, fps=None: {"table": table})
+    monkeypatch.setattr(cmd, "analyze_settings", lambda table, calib=None, fps=None, hfov=None: {"table": table})
     out = tmp_path / "out"
     res = CliRunner().invoke(main, ["batch", str(clip_folder), "--out", str(out), "--workers", "1", "--quiet"])
     assert res.exit_code == 1, res.output

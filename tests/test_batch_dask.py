@@ -77,7 +77,7 @@ def test_cli_scheduler_option_reaches_the_cluster(cluster, folder: Path, tmp_pat
 
     lc, _ = cluster
     monkeypatch.setattr(runner, "default_analyzer", lambda: fake_analyze)
-    monkeypatch.setattr(cmd, "analyze_settings", lambda table, calib=None, fps=None: SETTINGS)
+    monkeypatch.setattr(cmd, "analyze_settings", lambda table, calib=None, fps=None, hfov=None: SETTINGS)
     (folder / "series_b" / "empty.mkv").unlink()
     res = CliRunner().invoke(main, ["batch", str(folder), "--out", str(tmp_path / "o"), "--scheduler",
                                     lc.scheduler_address, "--quiet"])
