@@ -12,6 +12,7 @@ from pathlib import Path
 
 import click
 
+from feltlab.cli_options import hfov_option
 from feltlab.errors import FeltlabError
 
 
@@ -68,9 +69,7 @@ def _restore_logging(saved: tuple) -> None:
                    "one, else calibrate automatically from the table's cushions).")
 @click.option("--fps", type=float, default=None, metavar="N",
               help="Capture frame rate, frames/s (overrides the file's; high-speed cameras often store a playback rate).")
-@click.option("--hfov", "hfov", type=float, default=None, metavar="DEG",
-              help="The lens's horizontal field of view in degrees (data sheet), for views where the picture "
-                   "does not fix the camera height (no cushion faces in view); otherwise an assumed one is used.")
+@hfov_option()
 @click.option("--ball-mass", "ball_mass", type=float, default=None, metavar="KG",
               help="Ball mass in kg (default: the preset's, e.g. 0.163 for pool).")
 @click.option("--frames", "frames", default=None, metavar="FIRST:LAST", help="Analyse only these frame indices.")
@@ -84,13 +83,7 @@ def command(clip: Path, table: str | None, calib: Path | None, fps: float | None
             quiet: bool) -> None:
     """Measure one shot: tracks, contacts, restitution, impulse and energy loss, with plots and a report."""
     from feltlab.pipeline import AnalyzeSettings
-    from tracking.calibrate import check_hfov_deg
 
-    if hfov is not None:
-        try:
-            hfov = check_hfov_deg(hfov)
-        except FeltlabError as exc:
-            raise FeltlabError(f"--hfov: {exc}") from None
     settings = AnalyzeSettings(table=table, calib=str(calib) if calib else None, fps=fps, ball_mass_kg=ball_mass,
                                frame_range=_frame_range(frames), video=not no_video, hfov_deg=hfov)
     dest = Path(out) / Path(clip).stem

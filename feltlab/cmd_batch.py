@@ -14,6 +14,7 @@ from pathlib import Path
 
 import click
 
+from feltlab.cli_options import hfov_option
 from feltlab.errors import FeltlabError
 
 EXIT_CLIP_FAILED = 1
@@ -52,12 +53,7 @@ def analyze_settings(table: str | None, calib: Path | None = None, fps: float | 
                                stage="input")
         kw["fps"] = float(fps)
     if hfov is not None:
-        from tracking.calibrate import check_hfov_deg
-
-        try:
-            kw["hfov_deg"] = check_hfov_deg(hfov)
-        except FeltlabError as exc:
-            raise FeltlabError(f"--hfov: {exc}", stage="input") from None
+        kw["hfov_deg"] = float(hfov)  # checked by the option (feltlab/cli_options.py)
     missing = set(kw) - names
     if missing:
         raise FeltlabError(f"this version of the analyser has no {', '.join(sorted(missing))} setting; "
@@ -81,9 +77,7 @@ def analyze_settings(table: str | None, calib: Path | None = None, fps: float | 
 @click.option("--fps", type=float, default=None, metavar="N",
               help="Capture frame rate of every clip, frames/s (high-speed cameras store a playback rate; "
                    "needed for folders of frames).")
-@click.option("--hfov", "hfov", type=float, default=None, metavar="DEG",
-              help="The lens's horizontal field of view in degrees (data sheet) for every clip, for views where "
-                   "the picture does not fix the camera height (no cushion faces in view).")
+@hfov_option(" for every clip")
 @click.option("--spec", "spec_path", type=click.Path(path_type=Path), default=None, metavar="SPEC.toml",
               help="Acceptance bands to judge the series against (see clips/example_spec.toml).")
 @click.option("--quiet", is_flag=True, help="No progress bar, only the summary lines.")

@@ -13,6 +13,7 @@ import click
 import cv2
 import numpy as np
 
+from feltlab.cli_options import hfov_option
 from feltlab.errors import FeltlabError
 from feltlab.standards import DEFAULT_TABLE, table_preset
 
@@ -26,9 +27,7 @@ from feltlab.standards import DEFAULT_TABLE, table_preset
               help="Capture frame rate, frames/s (only checked here; high-speed cameras store a playback rate).")
 @click.option("--calib", type=click.Path(path_type=Path), default=None, metavar="FILE",
               help="Fit from a manual calibration TOML (four corners) instead of finding the table.")
-@click.option("--hfov", "hfov", type=float, default=None, metavar="DEG",
-              help="The lens's horizontal field of view in degrees (data sheet), for views where the picture "
-                   "does not fix the camera height (no cushion faces in view); otherwise an assumed one is used.")
+@hfov_option()
 @click.option("--frames", "n_frames", type=int, default=9, show_default=True, metavar="N",
               help="Frames sampled across the clip (their median hides moving balls).")
 @click.option("--out", type=click.Path(path_type=Path), default=None, metavar="DIR",
@@ -37,17 +36,11 @@ from feltlab.standards import DEFAULT_TABLE, table_preset
 def command(clip: Path, table: str | None, fps: float | None, calib: Path | None, hfov: float | None,
             n_frames: int, out: Path | None, replace: bool) -> None:
     """Fit the camera to the table's cushion noses; write calibration.toml and a check image."""
-    from tracking.calibrate import (calibrate_auto, calibration_from_file, check_hfov_deg, draw_calibration,
-                                    save_calibration)
+    from tracking.calibrate import calibrate_auto, calibration_from_file, draw_calibration, save_calibration
     from tracking.video import open_video
 
     if n_frames < 1:
         raise FeltlabError(f"--frames must be at least 1, got {n_frames}")
-    if hfov is not None:
-        try:
-            hfov = check_hfov_deg(hfov)
-        except FeltlabError as exc:
-            raise FeltlabError(f"--hfov: {exc}") from None
     preset = None
     if table is not None:
         try:

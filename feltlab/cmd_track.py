@@ -12,6 +12,7 @@ from pathlib import Path
 
 import click
 
+from feltlab.cli_options import hfov_option
 from feltlab.errors import FeltlabError
 from feltlab.standards import DEFAULT_TABLE
 
@@ -47,9 +48,7 @@ def parse_frames(text: str | None) -> tuple[int, int | None] | None:
               help="Calibration TOML (from feltlab calibrate, or manual corners); default: fit automatically.")
 @click.option("--fps", type=float, default=None, metavar="N",
               help="Capture frame rate, frames/s (high-speed cameras store a playback rate).")
-@click.option("--hfov", "hfov", type=float, default=None, metavar="DEG",
-              help="The lens's horizontal field of view in degrees (data sheet), for views where the picture "
-                   "does not fix the camera height (no cushion faces in view); otherwise an assumed one is used.")
+@hfov_option()
 @click.option("--frames", "frames", default=None, metavar="A:B", help="Only frames A (inclusive) to B (exclusive).")
 @click.option("--out", type=click.Path(path_type=Path), default=None, metavar="DIR",
               help="Output folder (default results/<clip stem>/).")
@@ -57,14 +56,8 @@ def parse_frames(text: str | None) -> tuple[int, int | None] | None:
 def command(clip: Path, table: str | None, calib: Path | None, fps: float | None, hfov: float | None,
             frames: str | None, out: Path | None, replace: bool) -> None:
     """Track every ball; write tracks.csv / tracks.parquet (mm, s, mm/s, table frame)."""
-    from tracking.calibrate import check_hfov_deg
     from tracking.pipeline import track_clip
 
-    if hfov is not None:
-        try:
-            hfov = check_hfov_deg(hfov)
-        except FeltlabError as exc:
-            raise FeltlabError(f"--hfov: {exc}") from None
 
     dest = Path(out) if out is not None else Path("results") / clip.stem
     if not replace:
