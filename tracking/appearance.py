@@ -67,8 +67,45 @@ RIM_CLOTH_DE = 20.0
 RIM_WHITE_MAX_SAT = 0.28
 RIM_WHITE_MIN_VAL = 0.35
 
+#: A clip is monochrome (a grey-level camera, common in high-speed work, or
+#: footage converted to grey) when no spot anywhere in its sampled frames
+#: shows a channel spread (max - min of B, G, R, after a 5 px median that
+#: drops hot pixels and codec speckle) above this many DN. Grey video coded
+#: as YUV returns equal channels within 1-2 DN of rounding; any coloured
+#: ball, cloth, rail or pocket in a colour clip spreads its channels by tens
+#: of DN (a cloth sold as grey still shows 5-10 DN of tint under warm light,
+#: its balls far more). Ours.
+MONO_MAX_SPREAD_DN = 8.0
+
 APPEARANCE_COLUMNS = ["r_n", "g_n", "b_n", "hue_deg_n", "sat_n", "val_n", "white_frac_n", "dark_frac_n",
                       "rim_col_frac", "rim_white_frac", "rim_hue_deg", "light_gain"]
+
+
+def channel_spread(image: np.ndarray) -> np.ndarray:
+    """Per-pixel max - min over the B, G, R channels (DN, uint8), median-filtered over 5 px.
+
+    A grey-level image has none (0 everywhere); a grey image read as BGR has
+    equal channels.
+
+    >>> img = np.zeros((9, 9, 3), np.uint8); img[..., 1] = 40
+    >>> int(channel_spread(img).max()), int(channel_spread(img[..., :1].repeat(3, 2)).max())
+    (40, 0)
+    """
+    if image.ndim == 2 or image.shape[2] == 1:
+        return np.zeros(image.shape[:2], np.uint8)
+    spread = (image.max(axis=2) - image.min(axis=2)).astype(np.uint8)
+    return cv2.medianBlur(spread, 5)
+
+
+def is_monochrome(images: list[np.ndarray], max_spread_dn: float = MONO_MAX_SPREAD_DN) -> bool:
+    """True when no sampled frame shows colour anywhere (:data:`MONO_MAX_SPREAD_DN`).
+
+    images: BGR (or grey) uint8 frames. Ball names then come from lightness,
+    not hue (tracking/labels.py).
+    """
+    if not images:
+        return False
+    return all(float(channel_spread(im).max()) <= max_spread_dn for im in images)
 
 
 @dataclass(frozen=True)

@@ -36,6 +36,17 @@ below ``BAND_SEEN_WHITE_P10``: in a tenth of the frames over half the disc
 was not white), or (c) the table is known to be a pocketed one.
 With the table unknown and no stripe in sight it stays ``white``.
 
+A monochrome clip (a grey-level camera: no colour anywhere,
+:func:`tracking.appearance.is_monochrome`) carries no hue, and a ball's grey
+level does not tell its colour (a yellow and a white ball, or a red and a
+green one, can read alike). There the cue is the struck ball among the
+brightest (mean grey level of the inner disc within ``MONO_CUE_VAL_FRAC`` of the brightest ball's;
+a white ball reflects most, common practice), else the brightest;
+``black`` keeps its rule (dark pixels over most of the disc), and every other
+ball is ``shade-1``, ``shade-2``, ... from the lightest to the darkest (that
+grey level), without a stripe suffix (a stripe's band and caps can read alike in
+grey).
+
 A non-cue ball whose median white fraction is >= ``STRIPE_WHITE_FRAC`` (or
 whose 90th percentile is >= ``STRIPE_WHITE_P90``) gets the ``-stripe`` suffix (a stripe ball shows its white caps; a solid shows only
 its small number circle). A second ball with the same name gets ``-2``
@@ -114,6 +125,12 @@ MAROON_VAL_LIGHT_FREE = 0.6
 #: 0.6; two balls of one colour under the scene's light taken out read within
 #: about 10 % of each other, so the split lies between (ours).
 MAROON_PAIR_RATIO = 0.8
+
+#: Monochrome clips: balls whose grey level is at least this fraction of
+#: the brightest ball's may be the cue (the first of them to move is; ours:
+#: a white ball's grey level can be matched by a yellow one within ~10 %,
+#: BT.601 luma of sRGB white 255 vs a ball yellow (230, 190, 40) 0.78, from memory).
+MONO_CUE_VAL_FRAC = 0.85
 
 HUE_BANDS = [  # (name, hue from, hue to) degrees
     ("red", 345.0, 360.0), ("red", 0.0, 12.0), ("orange", 12.0, 40.0), ("yellow", 40.0, 70.0),
@@ -235,13 +252,43 @@ def _split_red_maroon_pair(info: pd.DataFrame, base: list[str]) -> None:
                 base[dark], base[bright] = "maroon" + suffix, "red" + suffix
 
 
+def _mono_names(info: pd.DataFrame) -> tuple[list[str], list[str]]:
+    """Names of a monochrome clip's tracks (module docstring): cue, black, shade-1.. (lightest first)."""
+    # grey level: the mean of the inner disc (the "coloured pixels" value leaves out a white ball's white)
+    val = info[["r", "g", "b"]].mean(axis=1).to_numpy(float)
+    lit = np.where(np.isfinite(val), val, -np.inf)
+    n = len(info)
+    cue = None
+    if n and np.isfinite(lit.max()):
+        cand = np.nonzero(lit >= MONO_CUE_VAL_FRAC * lit.max())[0]
+        cue = int(cand[np.argmax(lit[cand])])
+        starts = info["move_start_s"].to_numpy(float)[cand]
+        if len(cand) >= 2 and np.isfinite(starts).any():
+            order = np.argsort(np.where(np.isfinite(starts), starts, np.inf))
+            if not np.isfinite(starts[order[1]]) or starts[order[0]] < starts[order[1]]:
+                cue = int(cand[order[0]])
+    final = [""] * n
+    pattern = ["solid"] * n
+    if cue is not None:
+        final[cue] = "cue"
+    rest = [k for k in range(n) if k != cue]
+    dark = [k for k in rest if np.isfinite(info["dark_frac"].iloc[k]) and info["dark_frac"].iloc[k] > BLACK_DARK_FRAC]
+    for j, k in enumerate(sorted(dark, key=lambda k: -int(info["n_detections"].iloc[k]))):
+        final[k] = "black" if j == 0 else f"black-{j + 1}"
+    shades = sorted((k for k in rest if k not in dark), key=lambda k: -lit[k])
+    for j, k in enumerate(shades):
+        final[k] = f"shade-{j + 1}"
+    return final, pattern
+
+
 def label_tracks(det: pd.DataFrame, track_col: str = "track",
-                 table: str | None = None) -> tuple[dict[int, str], pd.DataFrame]:
+                 table: str | None = None, monochrome: bool = False) -> tuple[dict[int, str], pd.DataFrame]:
     """Name every track from its detections' colours.
 
     table: the table preset name when known ("carom..." allows a second white
     ball; any other name means a pool/snooker set with one white ball); None:
-    decide from the balls seen (module docstring).
+    decide from the balls seen (module docstring). monochrome: the clip has
+    no colour (grey-level camera): names from lightness (module docstring).
 
     Returns ({track id: name}, balls DataFrame with columns ball, r, g, b,
     pattern, hue_deg, white_frac, n_detections).
@@ -271,6 +318,13 @@ def label_tracks(det: pd.DataFrame, track_col: str = "track",
     names: dict[int, str] = {}
     if info.empty:
         return names, pd.DataFrame(columns=["ball", "r", "g", "b", "pattern", "hue_deg", "white_frac", "n_detections"])
+    if monochrome:
+        final, pattern = _mono_names(info)
+        for k, r in info.iterrows():
+            names[int(r["track"])] = final[k]
+        balls = info.assign(ball=final, pattern=pattern)[
+            ["ball", "r", "g", "b", "pattern", "hue_deg", "white_frac", "n_detections"]]
+        return names, balls.reset_index(drop=True)
     # Whiteness: white fraction minus colourfulness of the rest.
     whiteness = info["white_frac"] - 0.2 * info["sat"].fillna(0)
     # A band at the rim marks a stripe seen cap-up, never the cue (carom sets have no stripes).

@@ -51,7 +51,7 @@ from tracking.dark_ring import RingGate
 from tracking.faint import add_faint, faint_background
 from tracking.kalman import (as_cov, bridge_gap, scatter_scale, smear_cov, smear_scale, smooth_segment,
                              split_segments)
-from tracking.appearance import add_appearance, light_field
+from tracking.appearance import add_appearance, is_monochrome, light_field
 from tracking.labels import label_tracks
 from tracking.overlap import separate_overlaps
 from tracking.phantoms import StillCloth, off_surface_tracks, clean_median, codec_tracks, ring_shading
@@ -470,6 +470,10 @@ def track_clip(path: str | os.PathLike, table: str | TablePreset | None = DEFAUL
     if (imgs[0].shape[1], imgs[0].shape[0]) != (w, h):
         raise FeltlabError(f"the calibration is for {w}x{h} images but the clip is "
                            f"{imgs[0].shape[1]}x{imgs[0].shape[0]}; calibrate this clip")
+    mono = is_monochrome(imgs)
+    if mono:
+        warnings.append("the clip has no colour (grey-level camera): balls are named by lightness - cue, black, "
+                        "shade-1 (lightest) ... - not by colour")
     bg = build_background(imgs, cal, ds)
     bg = faint_background(bg, cal, ds)  # faint resting balls out of the background too
     # where a ball stood for part of the clip: the median of the frames that show the cloth there
@@ -526,7 +530,7 @@ def track_clip(path: str | os.PathLike, table: str | TablePreset | None = DEFAUL
     det_all = pd.concat(chunks, ignore_index=True) if chunks else pd.DataFrame(
         columns=list(chunks[0].columns) if chunks else ["frame", "t_s", "track", "row", "x_mm", "y_mm"])
     jumps = linker.jumps()
-    result = _finish(det_all, jumps, frame_t, cal, ts, warnings, ds.streak_sigma_frac, phantoms)
+    result = _finish(det_all, jumps, frame_t, cal, ts, warnings, ds.streak_sigma_frac, phantoms, mono)
     if auto_table and calibration is None and not cal.table.pockets and not _carom_set(result[2]):
         # No side pockets, but not a carom ball set either (more than four
         # balls, or stripes): a pool table drawn without pockets. Pool it is.
@@ -581,8 +585,9 @@ def track_clip(path: str | os.PathLike, table: str | TablePreset | None = DEFAUL
 
 def _finish(det_all: pd.DataFrame, jumps: dict[int, list[int]], frame_t: np.ndarray, cal: Calibration,
             ts: TrackingSettings, warnings: list[str], streak_sigma_frac: float = 0.0,
-            phantoms: PhantomSettings = PhantomSettings()):
-    """Detections with track ids -> (tracks, detections, balls, segments_hint)."""
+            phantoms: PhantomSettings = PhantomSettings(), monochrome: bool = False):
+    """Detections with track ids -> (tracks, detections, balls, segments_hint); monochrome: name balls
+    by lightness (tracking/labels.py)."""
     empty_tracks = pd.DataFrame(columns=TRACK_COLUMNS)
     if det_all.empty or "track" not in det_all:
         warnings.append("no balls were found; check the calibration and that the balls are in view")
@@ -622,7 +627,7 @@ def _finish(det_all: pd.DataFrame, jumps: dict[int, list[int]], frame_t: np.ndar
     if dropped:
         warnings.append(f"{dropped} short track(s) (< {ts.min_track_s} s) dropped as clutter")
     det_all = det_all[det_all.track.isin(keep_ids)].copy()
-    names, balls = label_tracks(det_all, table=cal.table.name)
+    names, balls = label_tracks(det_all, table=cal.table.name, monochrome=monochrome)
     det_all["ball"] = det_all.track.map(names)
     track_rows = []
     segs: dict[str, list] = {}
