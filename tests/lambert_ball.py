@@ -46,3 +46,26 @@ def encode_frame(img_lin: np.ndarray, cloth_bgr, *, blur_px: float = 0.8, noise_
     frame = np.clip(np.round(srgb_encode(img) + rng.normal(0.0, noise_dn, img.shape)), 0, 255).astype(np.uint8)
     bg = np.broadcast_to(srgb_encode(np.asarray(cloth_bgr, float)), img.shape).astype(np.float32)
     return frame, np.ascontiguousarray(bg)
+
+
+def soft_shadow(img_lin: np.ndarray, cx: float, cy: float, r: float, cloth_bgr, offset, depth: float,
+                soft_px: float) -> np.ndarray:
+    """``img_lin`` with the ball's cast shadow on the cloth: the cloth outside the ball's disc is scaled by
+    1 - depth x (the disc of radius r moved by ``offset`` (dx, dy) px, Gaussian-blurred by ``soft_px``: a
+    lamp of finite size). The ball itself is untouched (pixels whose 8x8 sub-samples are partly ball keep
+    their drawn mixture; only the cloth share is shaded)."""
+    h, w = img_lin.shape[:2]
+    ss = 8
+    sub = (np.arange(ss) + 0.5) / ss - 0.5
+    ys, xs = np.mgrid[0:h, 0:w]
+    q2 = ((xs[..., None, None] + sub[None, None, None, :] - cx) ** 2
+          + (ys[..., None, None] + sub[None, None, :, None] - cy) ** 2) / (r * r)
+    cover = (q2 < 1.0).mean(axis=(2, 3))
+    sx, sy = cx + offset[0], cy + offset[1]
+    q2s = ((xs[..., None, None] + sub[None, None, None, :] - sx) ** 2
+           + (ys[..., None, None] + sub[None, None, :, None] - sy) ** 2) / (r * r)
+    shade = (q2s < 1.0).mean(axis=(2, 3))
+    if soft_px > 0:
+        shade = cv2.GaussianBlur(shade, (0, 0), soft_px)
+    cloth = np.asarray(cloth_bgr, float)[None, None, :]
+    return img_lin - (1.0 - cover)[..., None] * cloth * depth * shade[..., None]
