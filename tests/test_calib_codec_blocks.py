@@ -98,3 +98,22 @@ def test_fit_single_edges_closed_form_blurred_step():
     start = e_true + rng.uniform(-1.5, 1.5, 40)
     got = te.fit_single_edges(prof, offs, start, start - 10.0, start + 10.0)
     assert np.max(np.abs(got - e_true)) < 0.1
+
+
+@pytest.mark.parametrize("block_px", [4.0, 8.0, 16.0])
+def test_band_width_scatter_of_block_phase_widths(block_px):
+    """Widths set by an edge's phase in a codec block (uniform over 0..b) vs a face band's perspective trend.
+
+    Closed form: the median absolute deviation of a uniform distribution of
+    width b is b / 4, so the robust sd is 1.4826 b / 4.
+    """
+    rng = np.random.default_rng(int(block_px))
+    s = np.linspace(0.0, 1.0, 400)
+    phase_w = rng.uniform(0.0, block_px, len(s))
+    got = te.band_width_scatter_px(s, phase_w)
+    assert got == pytest.approx(1.4826 * block_px / 4, rel=0.12)
+    assert got > te.BAND_WIDTH_SCATTER_PX
+    # a face band: width growing 3 -> 6 px along the side (perspective), 0.2 px noise, 5 % clutter
+    face_w = 3.0 + 3.0 * s + rng.normal(0.0, 0.2, len(s))
+    face_w[::20] += 6.0
+    assert te.band_width_scatter_px(s, face_w) == pytest.approx(0.2, abs=0.06)

@@ -488,6 +488,39 @@ SINGLE_FIT_REACH_PX = 3.0
 SINGLE_FIT_SIGMAS = (0.6, 0.8, 1.0, 1.3, 1.7, 2.2, 2.8)
 
 
+#: Largest scatter (px, robust sd about a straight trend along the side) of
+#: a side's band widths for the bands to be taken as a cushion face or
+#: shadow (:func:`band_width_scatter_px`). Measured: 0.2-0.3 px on the outside
+#: footage D1's face bands (2.9-6.1 px wide, all profiles); 1.4-1.5 px on the
+#: codec ramps of MuJoCo render mj11202's x0 side (mp4v; 5.4-6.1 px wide, 52-56 %
+#: of profiles). A ramp spread across a block takes a width set by the edge's
+#: phase in it, uniform over a block of b px: its MAD is b / 4, so this robust
+#: sd 1.4826 b / 4 (3.0 px for 8-px blocks, 1.5 px for 4-px ones).
+BAND_WIDTH_SCATTER_PX = 1.0
+
+
+def band_width_scatter_px(s: np.ndarray, width: np.ndarray) -> float:
+    """Robust sd (px, 1.4826 MAD) of band widths about a Theil-Sen line in the along-side position s.
+
+    0 with fewer than 8 bands (too few to judge; the share test applies).
+
+    >>> band_width_scatter_px(np.linspace(0, 1, 20), np.linspace(3.0, 4.0, 20))
+    0.0
+    """
+    if len(width) < 8:
+        return 0.0
+    from scipy.stats import theilslopes
+
+    s = np.asarray(s, float)
+    width = np.asarray(width, float)
+    if np.ptp(s) <= 0:
+        r = width
+    else:
+        slope, icpt, _, _ = theilslopes(width, s)  # robust line (Theil-Sen): clutter does not tilt it
+        r = width - (icpt + slope * s)
+    return float(np.round(1.4826 * np.median(np.abs(r - np.median(r))), 12))
+
+
 def fit_single_edges(prof: np.ndarray, offs: np.ndarray, pos: np.ndarray, lo: np.ndarray, hi: np.ndarray,
                      reach_px: float | np.ndarray = SINGLE_FIT_REACH_PX, sigmas=SINGLE_FIT_SIGMAS,
                      spacing_px: float = 0.5) -> np.ndarray:
@@ -812,12 +845,17 @@ def edge_points_along(gray: np.ndarray, p0: np.ndarray, p1: np.ndarray, outward:
         rows_a, nose_a, inner_a = np.array(rows), np.array(nose), np.array(inner)
         band = np.isfinite(inner_a)
         reach_row = np.full(len(nose_a), SINGLE_FIT_REACH_PX)
-        if SINGLE_FIT and band.any() and band.mean() < settings.band_min_frac:
-            # A face or shadow band runs the whole side (its width changes
-            # slowly along it); "bands" on a minority of profiles are a
-            # codec's ringing dip closed by a block-boundary step (the second
-            # edge sits on the block grid) or clutter: their first edge is
-            # the cushion's, located as a single edge like the rest.
+        if SINGLE_FIT and band.any() and (band.mean() < settings.band_min_frac
+                                          or band_width_scatter_px(s[rows_a[band]], nose_a[band] - inner_a[band])
+                                          > BAND_WIDTH_SCATTER_PX):
+            # A face or shadow band runs the whole side, its width changing
+            # slowly along it (perspective: about linearly). "Bands" on a
+            # minority of profiles, or whose widths scatter about that trend,
+            # are a codec's work: a ringing dip closed by a block-boundary
+            # step, or a faint step spread into a ramp across its block (its
+            # ends on the block grid, its width set by the edge's phase in the
+            # block); or clutter. The cushion's edge lies between their two
+            # edges and is located as a single edge like the rest.
             # searched for between its two edges (SINGLE_FIT_REACH_PX either side)
             mid_b = 0.5 * (nose_a[band] + inner_a[band])
             half_b = 0.5 * (nose_a[band] - inner_a[band])
