@@ -120,8 +120,9 @@ class _Break:
     mixed: bool = False  # other kinds of contact were merged into this break
 
 
-def _layouts(samples, cands, onsets, dt, s):
-    """Per ball: chain layout and the map contact index -> break index."""
+def _layouts(samples, cands, onsets, dt, s, touch=None):
+    """Per ball: chain layout and the map contact index -> break index. ``touch``: (table length
+    mm, width mm, centre-to-nose distance at first touch mm) for the cushion touch prior."""
     layouts, maps = {}, {}
     for name, b in samples.items():
         brs = [_Break(c.t_init_s, c.kind, i) for i, c in enumerate(cands) if name in (c.ball_a, c.ball_b)]
@@ -159,10 +160,25 @@ def _layouts(samples, cands, onsets, dt, s):
         ])
         half = np.array([max(1.0 * dt, s.contact_time_floor_s) if m.kind != "strike" else 2.5 * dt
                          for m in merged])
+        lines = None
+        if touch is not None:
+            L, W, D = touch
+            off = {"x0": 0.0, "xL": -L, "y0": 0.0, "yW": -W}  # n . (a point of the nose line)
+            lines = [[] for _ in merged]
+            held = np.bincount(list(cmap.values()), minlength=len(merged))
+            for ci, j in cmap.items():
+                c = cands[ci]
+                # only a break that stands for this one contact: where several contacts share a
+                # break (within a frame) the break may fall before the later touch
+                if held[j] == 1 and c.kind == "ball-cushion" and c.ball_a == name and c.cushion in off:
+                    n = np.asarray(c.normal, float)
+                    lines[j].append((float(n[0]), float(n[1]), off[c.cushion] + D))
+            lines = [tuple(v) for v in lines]
         layouts[name] = ChainLayout(
             name, float(b.t[0]), bool(rest_first and (merged or on.t_onset is None)),
             [m.kind for m in merged], np.array([m.t for m in merged]), half, guards,
             slip_link=np.array([m.kind == "ball-ball" and not m.mixed for m in merged], dtype=bool),
+            touch_lines=lines,
         )
         maps[name] = (cmap, merged)
     return layouts, maps
@@ -199,7 +215,8 @@ def _analyze(tracks, detections, table, ball_radius_mm, ball_mass_kg, fps, setti
     R, m = float(ball_radius_mm), float(ball_mass_kg)
     onsets = {k: motion_onset(b, dt, s) for k, b in samples.items()}
     cands = find_contacts(samples, table.length_mm, table.width_mm, R, dt, s, onsets)
-    layouts, maps = _layouts(samples, cands, onsets, dt, s)
+    touch = (table.length_mm, table.width_mm, contact_distance_mm(R, table.cushion_nose_height_mm))
+    layouts, maps = _layouts(samples, cands, onsets, dt, s, touch)
     fits: dict[str, ChainFit] = {}
     for name, b in samples.items():
         lay = layouts[name]
@@ -655,7 +672,8 @@ def _split_hidden(samples, cands, onsets, fits, maps, table, R, dt, s, s2, mus, 
         for gap, t_m, c, nrm in sorted(tried):
             cand = ContactCandidate("ball-cushion", name, "", c, t_m, nrm, gap, 0.0)
             trial = cands + [cand]
-            lays, mps = _layouts({name: b}, trial, {name: onsets[name]}, dt, s)
+            lays, mps = _layouts({name: b}, trial, {name: onsets[name]}, dt, s,
+                                 (L, W, contact_distance_mm(R, table.cushion_nose_height_mm)))
             lay_n = lays[name]
             ci = len(trial) - 1
             if ci not in mps[name][0]:

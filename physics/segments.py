@@ -93,6 +93,11 @@ class ChainLayout:
     #: physics.pipeline._shared_slip_shifts), the sigma (mm/s) of the pass-2 prior both balls
     #: started from, NaN elsewhere; used for the two balls' joint covariance (physics.pair_cov).
     slip_shift_s0: np.ndarray | None = None
+    #: per break: the cushion nose lines it touches, as tuples (nx, ny, c) with n the cushion's
+    #: inward normal and c = n . (a point of the nose line) + the centre's distance from the nose
+    #: line at first touch; the centre at the break is then at n . p <= c (touch prior,
+    #: :func:`touch_residuals`). None, or an empty tuple at a break: no such prior.
+    touch_lines: list | None = None
 
     @property
     def links(self) -> np.ndarray:
@@ -188,9 +193,28 @@ def _priors(x: np.ndarray, lay: ChainLayout, s: PhysicsSettings, seg_priors=None
             k, (s.mu_s_prior, s.mu_s_prior_sigma, s.mu_r_prior, s.mu_r_prior_sigma))
         out.append((np.hypot(*a) - ms * g) / (ss * g))
         out.append((a_r - mr * g) / (sr * g))
+    out = np.asarray(out, dtype=float)
+    if s.touch_prior and lay.touch_lines is not None:
+        out = np.concatenate([out, touch_residuals(x, lay, s)])
     if s.slip_prior:
-        return np.concatenate([np.asarray(out, dtype=float), slip_residuals(x, lay, s)])
-    return np.asarray(out)
+        return np.concatenate([out, slip_residuals(x, lay, s)])
+    return out
+
+
+def touch_residuals(x: np.ndarray, lay: ChainLayout, s: PhysicsSettings) -> np.ndarray:
+    """Prior residuals (one per cushion of each break, in sigmas): a ball's velocity cannot
+    change at a cushion before it touches it, so at the break its centre is no farther from the
+    cushion's nose line than at first touch: ``max(n . p(t_b) - c, 0) / s.touch_sigma_mm``
+    (``lay.touch_lines``). One-sided: the centre moves on into the cushion while it is compressed,
+    so a later break is free."""
+    if lay.touch_lines is None:
+        return np.zeros(0)
+    _, pos = segment_starts(x, lay)
+    out = []
+    for i, lines in enumerate(lay.touch_lines):
+        for nx, ny, c in lines or ():
+            out.append(max(nx * pos[i + 1][0] + ny * pos[i + 1][1] - c, 0.0) / s.touch_sigma_mm)
+    return np.asarray(out, dtype=float)
 
 
 def slip_velocity(v0: np.ndarray, a: np.ndarray, t_roll: float, tau: float) -> np.ndarray:
@@ -436,6 +460,14 @@ def _bounds(lay: ChainLayout, t_end: float, s: PhysicsSettings):
     for i in range(lay.n_seg - 1):
         lo[b + i] = lay.break_init[i] - lay.break_halfwidth[i]
         hi[b + i] = lay.break_init[i] + lay.break_halfwidth[i]
+    if s.ordered_breaks:
+        # two breaks whose ranges overlap may not pass each other (a segment of negative
+        # duration): the overlap is split halfway between their initial times
+        for i in range(lay.n_seg - 2):
+            if hi[b + i] > lo[b + i + 1]:
+                mid = 0.5 * (lay.break_init[i] + lay.break_init[i + 1])
+                hi[b + i] = min(hi[b + i], mid)
+                lo[b + i + 1] = max(lo[b + i + 1], mid)
     return lo, hi
 
 
@@ -638,6 +670,10 @@ def fit_chain(
         tau = max(integrated_autocorr_time(series, s.corr_max_lag), 1.0)
         cov *= tau
         k_cov *= tau
+    if s.unresolved_bounded and free.any():
+        # directions the samples and priors leave (nearly) undetermined: the pseudo-inverse
+        # gives them zero (or unbounded) variance; they are bounded by the fit's box instead
+        cov[np.ix_(free, free)] = bounded_cov(Js, d, k_cov, _box_widths(lay, lo, hi, s)[free])
     rms = float(np.sqrt(np.mean(np.sum((P - xyu) ** 2, axis=1)))) if len(tu) else float("nan")
     info = np.zeros((lay.n_par, lay.n_par))
     Jd = J[:n_data][:, free]
@@ -645,6 +681,59 @@ def fit_chain(
     scales = misfit_scales(P, xyu, sgu, seg_u, lay, chi2, tau, s)
     return ChainFit(lay, x_fit, cov, rms, int(len(tu)), float(chi2), t, xy, used, float(res.cost),
                     float(k_cov), info, scales)
+
+
+def _box_widths(lay: ChainLayout, lo: np.ndarray, hi: np.ndarray, s: PhysicsSettings) -> np.ndarray:
+    """Per parameter (n_par,): width of the range it can take, the fit's bounds where finite;
+    start position and velocities (unbounded in the fit) from settings (unresolved_*)."""
+    w = np.where(np.isfinite(lo) & np.isfinite(hi), hi - lo, np.nan)
+    w[0:2] = s.unresolved_position_mm
+    for k in range(lay.n_seg):
+        o = lay.move_offset(k)
+        if o is not None:
+            w[o : o + 2] = 2.0 * s.unresolved_speed_mm_s
+    return np.where(np.isfinite(w) & (w > 0), w, 2.0 * s.unresolved_speed_mm_s)
+
+
+def bounded_cov(Js: np.ndarray, d: np.ndarray, k: float, width: np.ndarray, rcond: float = 1e-12) -> np.ndarray:
+    """Parameter covariance (n, n) ``k (J^T J)^-1`` of a fit whose column-scaled Jacobian is
+    ``Js`` (parameter x = x_s / d, ``d`` (n,)), with each direction's variance capped by the
+    parameters' ranges ``width`` (n,).
+
+    A chain with a segment that holds no sample (two contacts closer than the guards leave
+    room for, at a low frame rate) fits its samples along a whole family of such segments:
+    ``J^T J`` is singular, and its pseudo-inverse (cut at ``rcond`` x the largest eigenvalue, as
+    before) reports zero variance along the family, so every quantity that moves along it looks
+    exact; nearly singular, it reports variances far beyond anything the fit's bounds allow.
+    Each parameter is a priori spread uniformly over its range (variance width^2 / 12, the
+    moment-matched Gaussian has inverse variances W = diag(12 / width^2)). Along the null space N
+    (orthonormal) the covariance is ``N (N^T W N)^-1 N^T``; along every other eigenvector v of
+    ``J^T J`` (eigenvalue lam) the variance is ``min(k / lam, 1 / (v^T W v))``: the data's where
+    they say more than the range, so a determined direction keeps exactly its variance.
+
+    >>> import numpy as np
+    >>> Js = np.array([[1.0, 1.0], [1.0, 1.0]]) / np.sqrt(2)  # only x0 + x1 is measured
+    >>> C = bounded_cov(Js, np.ones(2), 1.0, np.array([np.sqrt(12.0), np.sqrt(12.0)]))
+    >>> np.round(C, 3).tolist()  # along (x0 + x1)/sqrt 2: 1/2 from the data; (x0 - x1)/sqrt 2: 1 from the ranges
+    [[0.75, -0.25], [-0.25, 0.75]]
+    >>> C = bounded_cov(np.eye(2) * 10, np.ones(2), 1.0, np.array([1.0, 1.0]))
+    >>> np.round(np.diag(C), 4).tolist()  # well measured: the data's variance, ranges unused
+    [0.01, 0.01]
+    """
+    n = Js.shape[1]
+    A = Js.T @ Js
+    ev, V = np.linalg.eigh(A)
+    w_inv = 12.0 / (np.asarray(width, float) * d) ** 2
+    null = ev <= rcond * max(float(ev.max()) if n else 0.0, 1e-300)
+    C = np.zeros((n, n))
+    if null.any():
+        N = V[:, null]
+        C += N @ np.linalg.inv(N.T @ (w_inv[:, None] * N)) @ N.T
+    if (~null).any():
+        Vd = V[:, ~null]
+        var = np.minimum(k / ev[~null], 1.0 / np.einsum("ij,i,ij->j", Vd, w_inv, Vd))
+        C += (Vd * var) @ Vd.T
+    return C / np.outer(d, d)
 
 
 def misfit_scales(P: np.ndarray, xy: np.ndarray, sig: np.ndarray, seg: np.ndarray, lay: ChainLayout,

@@ -361,6 +361,31 @@ class PhysicsSettings:
     #: bounds run time.
     residual_corr_inflation: bool = True
     corr_max_lag: int = 60
+    #: Parameter directions a chain's samples and priors leave undetermined (a segment with no
+    #: sample between two contacts closer than their guards) get the variance of a uniform
+    #: spread over each parameter's range (physics.segments.bounded_cov), not the zero a
+    #: pseudo-inverse gives them: a 240 fps corner (cushions 2.6 frames apart, no sample left
+    #: between) reported e 0.41 +- 0.006 and 1.19 +- 0.064 for a true 0.72. Ranges: the fit's
+    #: bounds; start position and velocities, unbounded in the fit, over the table's size
+    #: (5 m covers a 12 ft table's diagonal) and +-15 m/s (above break speeds of ~13 m/s, as
+    #: for t_roll_max_s). Design choice (a bound, not fitted).
+    unresolved_bounded: bool = True
+    unresolved_position_mm: float = 5000.0
+    unresolved_speed_mm_s: float = 15000.0
+    #: A cushion break's centre is no farther from the nose line than at first touch (one-sided
+    #: prior, physics.segments.touch_residuals): the velocity cannot change before the touch.
+    #: Sigma: the cushion line's place from the table calibration and the nose height (62.5-64.5 %
+    #: of the ball's diameter, common practice, from memory: +-0.3 mm on the touch distance),
+    #: ~1 mm. 240 fps corner, cushions 2.6 frames apart, draw 3: second break 1.06 -> 0.10 frame
+    #: from its closed-form time.
+    #: Design choice (a tolerance, not fitted).
+    touch_prior: bool = True
+    touch_sigma_mm: float = 1.0
+    #: Consecutive breaks of a chain whose ranges (break_halfwidth) overlap may not pass each
+    #: other: the overlap is split halfway between their initial times (physics.segments._bounds).
+    #: At 500 fps a corner's two cushions 5 ms apart (ranges +-4 ms) were fitted in reverse order.
+    #: Geometry (time order), not tuned.
+    ordered_breaks: bool = True
 
     # -- leaving the table -----------------------------------------------------------------
     #: A ball whose samples stop this many frame periods before the clip end left the table.
