@@ -695,7 +695,8 @@ def _box_widths(lay: ChainLayout, lo: np.ndarray, hi: np.ndarray, s: PhysicsSett
     return np.where(np.isfinite(w) & (w > 0), w, 2.0 * s.unresolved_speed_mm_s)
 
 
-def bounded_cov(Js: np.ndarray, d: np.ndarray, k: float, width: np.ndarray, rcond: float = 1e-12) -> np.ndarray:
+def bounded_cov(Js: np.ndarray, d: np.ndarray, k: float, width: np.ndarray,
+                rcond: float = 1e-12) -> np.ndarray:
     """Parameter covariance (n, n) ``k (J^T J)^-1`` of a fit whose column-scaled Jacobian is
     ``Js`` (parameter x = x_s / d, ``d`` (n,)), with each direction's variance capped by the
     parameters' ranges ``width`` (n,).
@@ -714,7 +715,7 @@ def bounded_cov(Js: np.ndarray, d: np.ndarray, k: float, width: np.ndarray, rcon
     >>> import numpy as np
     >>> Js = np.array([[1.0, 1.0], [1.0, 1.0]]) / np.sqrt(2)  # only x0 + x1 is measured
     >>> C = bounded_cov(Js, np.ones(2), 1.0, np.array([np.sqrt(12.0), np.sqrt(12.0)]))
-    >>> np.round(C, 3).tolist()  # along (x0 + x1)/sqrt 2: 1/2 from the data; (x0 - x1)/sqrt 2: 1 from the ranges
+    >>> np.round(C, 3).tolist()  # (x0 + x1)/sqrt 2: 1/2 from the data; (x0 - x1)/sqrt 2: 1 from ranges
     [[0.75, -0.25], [-0.25, 0.75]]
     >>> C = bounded_cov(np.eye(2) * 10, np.ones(2), 1.0, np.array([1.0, 1.0]))
     >>> np.round(np.diag(C), 4).tolist()  # well measured: the data's variance, ranges unused
