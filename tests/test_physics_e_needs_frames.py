@@ -54,8 +54,10 @@ def _bounce(frames_after: int, seed: int):
 def test_two_frames_after_a_cushion_contact_give_e_only_with_a_useful_sigma():
     """Each noise draw: the contact is found; its e is either reported with a sigma under
     1/2 and within 3 sigma of 0.8, or left empty with a note naming the 2 frames after it.
-    Some draws (seed 5 here) leave the fit without a velocity after the contact (sigma ~ 900)."""
-    blank = 0
+    (Until the fit's covariance gave directions the data cannot fix the variance of their allowed
+    range, physics.segments.bounded_cov, seed 5 here had sigma ~ 900 and was left empty; now every
+    draw reports e with sigma 0.07-0.10, within 0.4 sigma. Either outcome is honest; a wrong e with
+    a small sigma is not.)"""
     for seed in range(3, 9):
         tracks, det = _bounce(2, seed=seed)
         out = analyze_tracks(tracks, det, TABLE, R, M, FPS)
@@ -65,10 +67,8 @@ def test_two_frames_after_a_cushion_contact_give_e_only_with_a_useful_sigma():
         if np.isfinite(r.e):
             assert r.e_sigma <= 0.5 and abs(r.e - 0.8) < 3 * r.e_sigma + 0.02, (seed, r.e, r.e_sigma)
         else:
-            blank += 1
             assert np.isnan(r.e_sigma) and "e not measured" in str(r.note)
             assert "(cue has 2 frames after the contact)" in str(r.note)
-    assert blank >= 1
 
 
 def test_enough_frames_after_a_cushion_contact_give_e():
