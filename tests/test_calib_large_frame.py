@@ -106,6 +106,9 @@ def test_outside_footage_upscaled_3x():
         assert err.max() < 1.0, f"{key}: {err.round(2)} px"  # 1 px at 3x: a third of D2's own target
     # truth lens k1 -0.06: distortion is on normalised coordinates, the same at any size
     assert cal.camera.dist[0] == pytest.approx(truth["camera"]["dist_coeffs"][0], abs=0.006)
+    # where the full-size refit was not kept the user is told the edges were measured reduced
+    assert cal.camera.meta["reduced_by"] == 3
+    assert cal.camera.meta.get("work_factor", 1) == 1 or any("reduced 3x" in n for n in cal.notes), cal.notes
 
 
 def _blurred_steps(x, levels, edges, blur):

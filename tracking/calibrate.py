@@ -304,6 +304,10 @@ def calibrate_auto(frames: list[np.ndarray], table: TablePreset, ball_diameter_m
             fine.camera.meta.update(reduced_by=int(k), full_refine_shift_px=shift)
             return fine
         cal.camera.meta.update(reduced_by=int(k), full_refine_shift_px=shift)
+        cal.notes.append(
+            f"the cushion edges were measured on the picture reduced {k}x (at full size they are too soft to "
+            f"follow: an upscaled video?), so the table corners are good to about {k}x the usual precision; check "
+            "calibration.png or calibrate from a file")
         return cal
 
 
