@@ -19,6 +19,9 @@ Figures per clip:
   mean, RMS and count; ``foot`` lines likewise at z = 0 where the fit used
   cushion-face feet.
 * the fitted vs true horizontal field of view.
+* on frames above 1920x1080: the factor the search ran reduced by
+  (tracking.calibrate_scale), how far the full-size refit moved the corners
+  and whether it was kept; the calibration's time and the peak memory.
 
 ``--save DIR``: also write DIR/CLIP.calib.npz (the edge points per group and the
 median image) for a closer look.
@@ -26,6 +29,7 @@ median image) for a closer look.
 from __future__ import annotations
 
 import argparse
+import resource
 import sys
 import time
 from pathlib import Path
@@ -97,10 +101,16 @@ def bench(clip: Path, save: Path | None) -> None:
         if sum(len(p) for s, z, p in g if z > 0) == n_nose:
             final = g
             break
+    m = cal.camera.meta
+    scale = (f"  (reduced {int(m['reduced_by'])}x, full-size refit moved {m['full_refine_shift_px']:.2f} px, "
+             f"{'kept' if m.get('work_factor', 1) == 1 else 'not kept'})" if "reduced_by" in m else "")
     print(f"{clip.stem}: corner worst {errs.max():.2f} px  mean {errs.mean():.2f} px  (cloth "
           f"{errs[:4].max():.2f}, nose {errs[4:].max():.2f})  hfov fit {hfov_deg_of(cal.camera):.1f} true "
           f"{hfov_deg_of(tcal.camera):.1f} ({cal.camera.meta.get('hfov_source')})  res {cal.residual_px:.2f} px  "
-          f"{dt:.1f} s")
+          f"{dt:.1f} s{scale}")
+    # the fit kept ran on frames reduced k-fold (tracking.calibrate_scale): its points to full-frame px
+    k = int(cal.camera.meta.get("work_factor", 1))
+    final = [(side, z, k * np.asarray(p, float) + (k - 1) / 2.0) for side, z, p in final]
     row = []
     for side, z, p in final:
         if not len(p):
@@ -109,6 +119,8 @@ def bench(clip: Path, save: Path | None) -> None:
         kind = "nose" if z > 0 else "foot"
         row.append(f"{side}/{kind} {np.mean(r):+.2f}/{np.sqrt(np.mean(r * r)):.2f} n{len(r)}")
     print("   vs truth line (mean/rms px, + inward): " + "  ".join(row))
+    # peak resident memory of this process so far (Linux: kB), frames included
+    print(f"   peak memory so far {resource.getrusage(resource.RUSAGE_SELF).ru_maxrss / 1024:.0f} MB")
     if save is not None:
         save.mkdir(parents=True, exist_ok=True)
         out = {f"{side}_{'nose' if z > 0 else 'foot'}": p for side, z, p in final}

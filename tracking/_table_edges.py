@@ -269,6 +269,18 @@ def _sample(gray: np.ndarray, pts: np.ndarray) -> np.ndarray:
     return v.reshape(shp)
 
 
+#: Least gradient (fraction of the faintest cushion nose's gradient peak,
+#: CalibrationSettings.nose_contrast_min of the cloth level at ~1 px blur) of
+#: a profile's first edge off the cloth. Without it the floor was the noise
+#: (edge_min_snr) or 1 DN/px: a 3840x2160 upscaled, MPEG-4 part 2 re-encoded
+#: copy of the outside clip D2, reduced 3x (tracking.calibrate_scale), has
+#: a cloth so smooth that 4-DN block steps on it cleared both, and on 40 % of
+#: the x0 profiles the face band's foot was taken 8 px inward of the face.
+#: 0.5 lost faint noses (codec-blurred cushion tops of the cloth's colour:
+#: MuJoCo renders mj11202, mj13102, mj13103 refused); 0.25 kept them.
+FIRST_EDGE_FLOOR = 0.25
+
+
 def nose_offset(profile: np.ndarray, step: float, plateau_n: int, settings: CalibrationSettings,
                 inner_n: int, band_max_n: int | None = None) -> tuple[float, float, float | None, int] | None:
     """Offsets (samples) of the nose edge along an outward profile, its contrast, and the band's inner edge.
@@ -286,7 +298,12 @@ def nose_offset(profile: np.ndarray, step: float, plateau_n: int, settings: Cali
     dg = gaussian_filter1d(g, sig, order=1) / step  # DN per px
     dc = dg[:inner_n]
     dnoise = 1.4826 * np.median(np.abs(dc - np.median(dc))) + 0.2
-    thr = max(settings.edge_min_snr * dnoise, 1.0)
+    # ... and at least FIRST_EDGE_FLOOR of the faintest nose sought on this
+    # cloth (as in noise_strip_px): on cloth smoothed flat by a codec its
+    # blocks' DC steps (a few DN) would otherwise count as the first edge
+    floor = FIRST_EDGE_FLOOR * settings.nose_contrast_min * abs(c0) / (
+        np.sqrt(2 * np.pi) * np.hypot(1.0, settings.edge_sigma_px))
+    thr = max(settings.edge_min_snr * dnoise, 1.0, floor)
     absd = np.abs(dg)
     # the first edge: the first run of strong gradient beyond the known cloth
     # (slow shading of the cloth, e.g. darkening near the cushions, is no edge)

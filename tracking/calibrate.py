@@ -110,6 +110,13 @@ from tracking._table_edges import (
     region_reach_px,
     rough_quad,
 )
+from tracking.calibrate_scale import (
+    REFINE_AGREE_PX,
+    corner_shift_px,
+    full_calibration,
+    reduce_frame,
+    work_factor,
+)
 from tracking.calibration import Calibration
 from tracking.camera import CameraModel
 from tracking.settings import CalibrationSettings
@@ -260,17 +267,55 @@ def calibrate_auto(frames: list[np.ndarray], table: TablePreset, ball_diameter_m
     # calibration 1.4-1.6x faster, same numbers on D1 to 1e-6)
     if hfov_deg is not None:
         hfov_deg = check_hfov_deg(hfov_deg, settings)
+    # large frames (2560x1440 and up) are calibrated reduced to the size the
+    # pixel figures were measured on, and the camera carried back
+    # (tracking.calibrate_scale)
+    frames = _check_frames(frames)
+    h_full, w_full = frames[0].shape[:2]
+    k = work_factor(w_full, h_full)
+    work = [reduce_frame(f, k) for f in frames] if k > 1 else frames
     with threadpool_limits(limits=1, user_api="blas"):
         try:
-            return _calibrate_once(frames, table, ball_diameter_mm, settings, settings.line_share, hfov_deg)
+            cal = _calibrate_once(work, table, ball_diameter_mm, settings, settings.line_share, hfov_deg)
         except FeltlabError as first:
             if not getattr(first, "retry", False):
                 raise
             try:
-                return _calibrate_once(frames, table, ball_diameter_mm, settings, settings.line_share_retry,
-                                       hfov_deg)
+                cal = _calibrate_once(work, table, ball_diameter_mm, settings, settings.line_share_retry,
+                                      hfov_deg)
             except FeltlabError:
                 raise first from None
+        if k == 1:
+            return cal
+        cal = full_calibration(cal, k, (w_full, h_full))
+        # the refinement passes again on the full frames, from the reduced
+        # fit's lines: sharp footage locates its edges better there (fresh
+        # 3840x2160 MuJoCo render: nose corners 1.98 px off reduced, 0.23 px
+        # at full size); kept only where it stays within the reduced fit's
+        # own precision (REFINE_AGREE_PX working px), else a blurred
+        # (upscaled) picture's edges were taken at another line
+        try:
+            fine = _calibrate_once(frames, table, ball_diameter_mm, settings, settings.line_share, hfov_deg,
+                                   start=cal.camera)
+        except FeltlabError:
+            fine = None
+        shift = corner_shift_px(cal, fine) if fine is not None else math.inf
+        if shift <= REFINE_AGREE_PX * k:
+            fine.camera.meta.update(reduced_by=int(k), full_refine_shift_px=shift)
+            return fine
+        cal.camera.meta.update(reduced_by=int(k), full_refine_shift_px=shift)
+        cal.notes.append(
+            f"the cushion edges were measured on the picture reduced {k}x (at full size they are too soft to "
+            f"follow: an upscaled video?), so the table corners are good to about {k}x the usual precision; check "
+            "calibration.png or calibrate from a file")
+        return cal
+
+
+class _StartFit:
+    """A fitted camera to start the refinement passes from (``_calibrate_once(start=...)``)."""
+
+    def __init__(self, camera: CameraModel):
+        self.camera = camera
 
 
 def _refusal(msg: str, kind: str = "fit", height_mm: float | None = None) -> FeltlabError:
@@ -296,8 +341,14 @@ def _region_error(msg: str) -> FeltlabError:
 
 
 def _calibrate_once(frames: list[np.ndarray], table: TablePreset, ball_diameter_mm: float | None,
-                    settings: CalibrationSettings, line_share: float, hfov_deg: float | None = None) -> Calibration:
-    """calibrate_auto with one support share for the first pass's lines (:func:`main_line`)."""
+                    settings: CalibrationSettings, line_share: float, hfov_deg: float | None = None,
+                    start: CameraModel | None = None) -> Calibration:
+    """calibrate_auto with one support share for the first pass's lines (:func:`main_line`).
+
+    start: a camera already fitted (to these frames reduced, :mod:`tracking.calibrate_scale`): the
+    first pass (search across the cloth region's outline) is skipped and the refinement passes
+    start from its lines.
+    """
     imgs = _check_frames(frames)
     ball_d = float(ball_diameter_mm or table.ball.diameter_mm)
     if not (0 < ball_d < 200):
@@ -352,10 +403,10 @@ def _calibrate_once(frames: list[np.ndarray], table: TablePreset, ball_diameter_
     edge_met = {side: False for side in SIDE_ORDER}
     prior = ((settings.hfov_prior_deg, settings.hfov_prior_sigma_deg) if hfov_deg is None
              else (hfov_deg, settings.hfov_given_sigma_deg))
-    fit = None
+    fit = None if start is None else _StartFit(start)
     inner: dict[str, np.ndarray] = {}
-    n_pass = max(settings.passes, 1)
-    it = -1
+    n_pass = max(settings.passes, 1 if start is None else 2)
+    it = -1 if start is None else 0
     while it + 1 < n_pass:
         it += 1
         pts: dict[str, np.ndarray] = {}
