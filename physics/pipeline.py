@@ -53,6 +53,7 @@ from physics.segments import (
     widened_cov,
 )
 from physics.settings import PhysicsSettings
+from physics.slide_profile import widen_for_short_slides
 
 CONTACT_COLUMNS = [
     "contact", "t_s", "t_sigma_s", "kind", "ball_a", "ball_b", "cushion", "nx", "ny",
@@ -318,6 +319,17 @@ def _analyze(tracks, detections, table, ball_radius_mm, ball_mass_kg, fps, setti
             for p, dd in zip(contacts["_e_var_parts"], d):
                 if isinstance(p, dict):
                     p["alt"] = float(dd**2)
+    if s.slide_profile:
+        def _e_of(fs, ci):
+            c = cands[ci]
+            ia, ib = maps[c.ball_a][0][ci], maps[c.ball_b][0][ci]
+            own = all(list(maps[bn][0].values()).count(j) == 1 and not maps[bn][1][j].mixed
+                      for bn, j in ((c.ball_a, ia), (c.ball_b, ib)))
+            return float(ball_ball_values(fs[c.ball_a], ia, fs[c.ball_b], ib, R, dt, s, fuse=own)[0]["e"])
+
+        contacts = widen_for_short_slides(
+            contacts, cands, fits, maps, samples, _e_of, s2,
+            lambda name, lay: {k: _loo_prior(s, mus, mur, (name, k)) for k in range(lay.n_seg)}, dt)
     contacts = _drop_non_separating(contacts, cands, s)
     # compound events (several balls touching within one frame): group columns, e NaN per link
     contacts = annotate_groups(contacts, cands, fits, maps, m)

@@ -263,6 +263,19 @@ class PhysicsSettings:
     #: 2.1-5.1 sigma off in 4 of 40 noise draws of a closed-form stun shot at 120 fps (0.9-1.1
     #: sigma with the alternate; tests/test_physics_sigma_calibration.py). Not tuned.
     alternates_pass3: bool = True
+    #: Profile of e over the end of a short slide after a ball-ball contact (physics.slide_profile):
+    #: where a ball's slide after the contact holds at most ``slide_profile_max_samples`` used
+    #: samples, its chain is refitted with t_roll held on ``slide_profile_points`` values from 0 to
+    #: max(2 t_roll, t_roll + ``slide_profile_frames`` frame periods), and e_sigma is widened to the
+    #: largest |e_k - e| / sqrt(max(dchi2_k, 1)) among refits within ``slide_profile_dchi2_max``
+    #: (3 sigma) of the best (profile likelihood, Wilks; from memory). Stun shot, 120 fps (tests/test_physics_sigma_calibration.py): draws
+    #: 3, 8, 10 were 3.3-3.5 sigma off with a ~30 ms slide where the truth slides 3-6 ms.
+    #: Counts and span are design choices.
+    slide_profile: bool = True
+    slide_profile_max_samples: int = 4
+    slide_profile_frames: float = 4.0
+    slide_profile_points: int = 9
+    slide_profile_dchi2_max: float = 9.0
 
     # -- slow touches and compound events (physics.events, physics.compound) ------------------
     #: Change-point windows tried (multiples of the standard window) while a jump is not yet

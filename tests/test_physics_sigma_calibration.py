@@ -18,15 +18,15 @@ median 0.674, 95.4 % within 2 sigma (standard normal table). With 40 draws (seed
 sample median of a calibrated sigma is within about +-0.25 of 0.674 (its standard error is
 0.79 / sqrt(n) = 0.12), while a sigma 2x too wide gives ~0.34 and 2x too narrow ~1.35.
 
-The stun shot is a known failure (strict xfail): the cue ball leaves at 15-60 mm/s and its short
-slide lies between two samples. Measured (session 14, draws 0-19 at 120 fps): 15 of 19 reported
-e within 2 sigma, one left empty; draws 3, 8 and 10 are 3.3-3.5 sigma low, each fitted with a
-~30 ms slide from 67-88 mm/s where the truth slides 3-6 ms from 21-45 mm/s. The cue ball slides
-INTO the contact, so its slip there is a free parameter and the cloth-slip link cannot fix the
-slide after it (a tighter link, slip_sigma_rel 0.005, changed none of the three). The cue's
-samples prefer the fit to the truth by only chi^2 5.8-9.6 while e's own z^2 is 11.0-11.9: more
-than the whole difference, so e's linearised sigma is narrower than the range the samples allow
-(a profile over that slide's end would be the fix; not done).
+The stun shot: the cue ball leaves at 15-60 mm/s and its short slide lies between two samples.
+Before session 14's profile (physics.slide_profile), draws 0-19 at 120 fps: 15 of 19 reported e
+within 2 sigma, one left empty; draws 3, 8 and 10 were 3.3-3.5 sigma low, each fitted with a
+~30 ms slide from 67-88 mm/s where the truth slides 3-6 ms from 21-45 mm/s (the cue ball slides
+INTO the contact, so nothing but the few samples after it fixes that slide's end). e's sigma is
+now widened by a profile over that slide's end time: draws 0-19 (used while building it) 19 of
+20 within 2 sigma, median 0.57; draws 20-59 (fresh, chosen before looking) 0.925 -> 0.975 within
+2 sigma, median 0.82 -> 0.47 (somewhat wide, inside BAND). Still a known failure (strict xfail):
+draw 13 leaves e empty (its sigma 0.87 > 0.5).
 """
 from __future__ import annotations
 
@@ -109,9 +109,25 @@ def test_e_sigma_calibrated_follow_shot():
 
 
 @pytest.mark.slow
+def test_e_sigma_calibrated_stun_shot_reported():
+    """Stun shot, draws 20-59 at 120 fps (not used while building physics.slide_profile): of the
+    reported e, >= 85 % within 2 sigma, none beyond 3 sigma and the median |err|/sigma within BAND.
+    Measured 0.975, worst 2.36 sigma, median 0.47 (before the profile 0.925, worst 5.07 sigma on
+    draw 53, median 0.82). With a calibrated Gaussian sigma all 40 lie within 3 sigma with
+    probability 0.9973^40 = 0.90 (standard normal table)."""
+    z = z_scores("stun", 120.0, 40, seed0=20)
+    z = z[np.isfinite(z)]
+    assert len(z) >= 36, f"e left empty on {40 - len(z)} of 40 draws"
+    # truth: closed-form head-on impact (module docstring); 2 and 3 sigma: standard normal table
+    assert np.mean(z < 2.0) >= 0.85, f"{np.mean(z < 2.0):.2f} within 2 sigma"
+    assert np.max(z) < 3.0, f"worst {np.max(z):.2f} sigma"
+    med = float(np.median(z))  # half-normal median 0.674 (standard normal table)
+    assert BAND[0] <= med <= BAND[1], f"median |err|/sigma {med:.2f} (calibrated 0.67)"
+
+
+@pytest.mark.slow
 @pytest.mark.xfail(strict=True, reason="known defect: after a stun shot the cue ball (15-60 mm/s) slides for "
-                   "2-10 ms, less than a frame; its linearised sigma either runs above 0.5 (e left empty) or misses "
-                   "a slide duration the samples cannot rule out (3.3 sigma off)")
+                   "2-10 ms, less than a frame; on draw 13 its linearised sigma runs above 0.5 and e is left empty")
 def test_e_sigma_calibrated_stun_shot():
     """Stun shot, 20 draws at 120 fps: every e reported, >= 85 % within 2 sigma, median in BAND."""
     z = z_scores("stun", 120.0, 20)
