@@ -23,13 +23,13 @@ import json
 import sys
 from pathlib import Path
 
-import cv2
 import numpy as np
 
 sys.path.insert(0, str(Path(__file__).resolve().parents[1]))
 from tracking.detect import build_background, detect_frame  # noqa: E402
 from tracking.pipeline import calibration_from_truth  # noqa: E402
 from tracking.settings import DetectionSettings  # noqa: E402
+from tracking.video import open_video  # noqa: E402
 
 
 def main() -> int:
@@ -47,13 +47,7 @@ def main() -> int:
         k, v = kv.split("=", 1)
         over[k] = ast.literal_eval(v)
     ds = dataclasses.replace(DetectionSettings(), **over)
-    cap = cv2.VideoCapture(str(a.clip))
-    imgs = []
-    while True:
-        ok, im = cap.read()
-        if not ok:
-            break
-        imgs.append(im)
+    imgs = [im for _, _, im in open_video(a.clip)]
     bg = build_background(imgs[::3], cal, ds)
     P = np.array(truth["frames"]["positions_mm"][a.ball], float)
     rows = []

@@ -24,7 +24,6 @@ import argparse
 import sys
 from pathlib import Path
 
-import cv2
 import numpy as np
 
 ROOT = Path(__file__).resolve().parents[1]
@@ -37,17 +36,11 @@ from tracking.detect import build_background  # noqa: E402
 from tracking.faint import faint_background  # noqa: E402
 from tracking.pipeline import track_clip  # noqa: E402
 from tracking.settings import DetectionSettings  # noqa: E402
+from tracking.video import open_video  # noqa: E402
 
 
 def read_frames(clip: Path) -> list[np.ndarray]:
-    cap = cv2.VideoCapture(str(clip))
-    out = []
-    while True:
-        ok, im = cap.read()
-        if not ok:
-            break
-        out.append(im)
-    return out
+    return [im for _, _, im in open_video(clip)]
 
 
 def bench(clip: Path, max_n: int) -> dict:

@@ -36,6 +36,7 @@ from tracking.detect import (_edge_points, build_background, delta_e76, edge_map
                              lightness_difference, shade_free_de, to_lab)
 from tracking.pipeline import calibration_from_truth  # noqa: E402
 from tracking.settings import DetectionSettings  # noqa: E402
+from tracking.video import open_video  # noqa: E402
 
 
 def main() -> int:
@@ -48,13 +49,7 @@ def main() -> int:
     truth = json.loads(a.clip.with_suffix(".truth.json").read_text())
     cal = calibration_from_truth(truth)
     ds = DetectionSettings()
-    cap = cv2.VideoCapture(str(a.clip))
-    imgs = []
-    while True:
-        ok, im = cap.read()
-        if not ok:
-            break
-        imgs.append(im)
+    imgs = [im for _, _, im in open_video(a.clip)]
     if not imgs:
         print(f"{a.clip}: no frames read")
         return 1
