@@ -323,8 +323,7 @@ def _analyze(tracks, detections, table, ball_radius_mm, ball_mass_kg, fps, setti
         def _e_of(fs, ci):
             c = cands[ci]
             ia, ib = maps[c.ball_a][0][ci], maps[c.ball_b][0][ci]
-            own = all(list(maps[bn][0].values()).count(j) == 1 and not maps[bn][1][j].mixed
-                      for bn, j in ((c.ball_a, ia), (c.ball_b, ib)))
+            own = _own_pair_breaks(maps, c, ia, ib)
             return float(ball_ball_values(fs[c.ball_a], ia, fs[c.ball_b], ib, R, dt, s, fuse=own)[0]["e"])
 
         contacts = widen_for_short_slides(
@@ -398,6 +397,13 @@ def _blank_unmeasurable_e(contacts: pd.DataFrame, fits: dict, maps: dict, s: Phy
         old = str(df.at[r, "note"] or "") if "note" in df.columns else ""
         df.at[r, "note"] = f"{old}; {note}" if old else note
     return df
+
+
+def _own_pair_breaks(maps: dict, c, ia: int, ib: int) -> bool:
+    """Whether both balls' breaks ``ia``/``ib`` of ball-ball candidate ``c`` belong to that pair alone:
+    a break shared with another contact (within one frame) times that group, not this pair."""
+    return all(list(maps[bn][0].values()).count(j) == 1 and not maps[bn][1][j].mixed
+               for bn, j in ((c.ball_a, ia), (c.ball_b, ib)))
 
 
 def _drop_non_separating(contacts: pd.DataFrame, cands, s: PhysicsSettings) -> pd.DataFrame:
@@ -760,9 +766,7 @@ def _contacts_table(cands, fits, maps, table, R, m, dt, s, hidden=None) -> pd.Da
             ia, ib = maps[c.ball_a][0].get(ci), maps[c.ball_b][0].get(ci)
             if ia is None or ib is None:
                 continue
-            # a break shared with another contact (within one frame) times that group, not this pair
-            own = all(list(maps[bn][0].values()).count(j) == 1 and not maps[bn][1][j].mixed
-                      for bn, j in ((c.ball_a, ia), (c.ball_b, ib)))
+            own = _own_pair_breaks(maps, c, ia, ib)
             parts = {} if s.e_sigma_parts else None
             core, var = ball_ball_values(fa, ia, fb, ib, R, dt, s, fuse=own, parts=parts)
             rolls_a, rolls_b = _roll_flags(fa, ia), _roll_flags(fb, ib)
