@@ -376,6 +376,20 @@ def test_report_escapes_names_and_embeds_images(tmp_path):
     assert "http://" not in html and "https://" not in html
 
 
+def test_report_says_a_calibration_note_once():
+    """A calibration note also carried in the run's warnings is shown once, not twice; others stay."""
+    shot_note, own_note = "field of view 60 deg assumed", "corners good to about 2 x the usual precision"
+    ctx_warn = [f"tracking: calibration: {shot_note}"]
+    shot = {"clip": {"name": "s.mp4", "sha256": "0" * 64}, "n_frames": 1, "fps": 60.0, "fps_source": "container",
+            "duration_s": 0.0, "table": {"preset": "pool-9ft", "length_mm": 2540, "width_mm": 1270},
+            "ball": {"diameter_mm": 57.15, "mass_kg": 0.163}, "warnings": ctx_warn,
+            "calibration": {"method": "auto", "notes": [shot_note, own_note]}, "software": {"version": "0"}}
+    ctx = rep_out.build_context(shot, None, {}, [], [])
+    assert ctx["warnings"] == ctx_warn and ctx["notes"] == [own_note]
+    html = rep_out.render_report(ctx)
+    assert html.count(shot_note) == 1 and html.count(own_note) == 1
+
+
 def test_report_sentence_closed_form(tmp_path):
     """Head-on, equal masses: object ball leaves at (1 + e) v / 2, cue at (1 - e) v / 2, and the fraction
     of kinetic energy lost is (1 - e^2) / 2 (REFERENCES.md closed forms; 1.5 m/s, e = 0.9 -> 1.43, 0.07 m/s, 9.5%)."""

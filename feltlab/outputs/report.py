@@ -385,13 +385,16 @@ def build_context(shot: dict, contacts: pd.DataFrame | None, plots: dict[str, Pa
     ]
     sentences = describe_contacts(contacts.to_dict(orient="records") if contacts is not None and len(contacts) else [])
     heads, rows = contacts_rows(contacts)
+    warnings = [str(w) for w in shot.get("warnings", [])]
+    # A calibration note is usually also carried in the run's warnings ("tracking: calibration: ..."); say it once.
+    notes = [str(n) for n in cal.get("notes", []) if not any(str(n) in w for w in warnings)]
     return {
         "title": f"Shot report: {shot['clip']['name']}",
         "facts": facts,
         "sentences": sentences,
         "summary": shot_summary(tracks, contacts),
-        "warnings": [str(w) for w in shot.get("warnings", [])],
-        "notes": [str(n) for n in cal.get("notes", [])],
+        "warnings": warnings,
+        "notes": notes,
         "table_heads": heads,
         "table_rows": rows,
         "plots": [(cap, embed_png(p, 1200)) for cap, p in plots.items()],
