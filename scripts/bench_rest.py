@@ -1,7 +1,7 @@
 #!/usr/bin/env python3
 """Where a resting ball's position error comes from (prints figures, asserts nothing).
 
-usage: bench_rest.py CLIP.mp4 [--auto] [--no-chroma-rebuild]
+usage: bench_rest.py CLIP.mp4 [--auto] [--chroma-rebuild]
        bench_rest.py --codec SEED [SEED ...] [--size WxH]
 
 Clip mode: tracks the clip (truth camera unless ``--auto``) and prints one
@@ -42,7 +42,7 @@ sys.path.insert(0, str(ROOT / "scripts"))
 MIN_FRAMES = 5
 
 
-def clip_mode(clip: Path, auto: bool, chroma_rebuild: bool = True) -> None:
+def clip_mode(clip: Path, auto: bool, chroma_rebuild: bool = False) -> None:
     from bench_tracking import MOVING_MM_S, in_view, load_truth, truth_path
     from tracking.pipeline import track_clip
     from tracking.settings import TrackClipSettings
@@ -188,8 +188,8 @@ def main() -> None:
     ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     ap.add_argument("clip", nargs="?", type=Path)
     ap.add_argument("--auto", action="store_true", help="calibrate from the clip instead of the truth camera")
-    ap.add_argument("--no-chroma-rebuild", action="store_true",
-                    help="track without tracking.chroma (TrackClipSettings.chroma_rebuild=False)")
+    ap.add_argument("--chroma-rebuild", action="store_true",
+                    help="track with tracking.chroma (TrackClipSettings.chroma_rebuild=True)")
     ap.add_argument("--codec", nargs="+", type=int, metavar="SEED", help="the ray-cast codec experiment")
     ap.add_argument("--size", default="1280x720", help="frame size of the codec experiment")
     a = ap.parse_args()
@@ -197,7 +197,7 @@ def main() -> None:
         w, h = (int(v) for v in a.size.lower().split("x"))
         codec_mode(a.codec, (w, h))
     elif a.clip:
-        clip_mode(a.clip, a.auto, not a.no_chroma_rebuild)
+        clip_mode(a.clip, a.auto, a.chroma_rebuild)
     else:
         ap.error("give a clip or --codec SEED ...")
 

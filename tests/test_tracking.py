@@ -389,8 +389,8 @@ def test_synthetic_clip_end_to_end_and_cli(tmp_path):
     assert (out / "tracks.csv").read_bytes() == before
     assert not list(out.glob(".*partial"))
     # Resting-ball bias against the closed-form ray-sphere truth: the task's 0.5 mm bound (issue 3).
-    # Measured 0.12 mm here (0.32 mm without tracking/chroma.py); red placed at five other spots
-    # chosen before running: 0.19-0.44 mm (0.16-0.38 without). What is left is mostly the MJPG
+    # Measured 0.32 mm here (0.12 mm with tracking/chroma.py on); red placed at five other spots
+    # chosen before running: 0.16-0.38 mm (0.19-0.44 with it). What is left is mostly the MJPG
     # codec's fixed pattern at the ball's place (8-px blocks, 2-px colour grid; scripts/bench_rest.py
     # --codec: 0.035 px per axis on raw frames, 0.08 through MJPG), which a still ball meets at the
     # same phase in every frame.

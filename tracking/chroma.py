@@ -21,7 +21,8 @@ blocks (:func:`block_chroma`: within-block differences below
 ``BLOCK_RATIO`` of the across-block ones), each block's value is taken as the
 sample at the block's centre (2i + 0.5, 2j + 0.5) and the chroma is
 interpolated linearly between the block centres (:func:`rebuild_chroma`; luma
-untouched). Frames whose colour is at full resolution are left alone.
+untouched). Frames whose colour is at full resolution are left alone. Used by
+tracking.pipeline.track_clip when TrackClipSettings.chroma_rebuild is set (off by default: see there).
 """
 from __future__ import annotations
 
