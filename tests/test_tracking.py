@@ -388,11 +388,13 @@ def test_synthetic_clip_end_to_end_and_cli(tmp_path):
     assert again.exit_code == 2
     assert (out / "tracks.csv").read_bytes() == before
     assert not list(out.glob(".*partial"))
-    if rest_err > 0.2 + 0.3:  # jitter 0 + bias bound (the task's resting target)
-        # Known shortfall (issue 3, open): since the foreground test moved to CIELAB Delta-E the
-        # shaded limb of a resting ball shifts its silhouette centre by ~0.5 mm here (measured
-        # 0.52 mm); moving balls and low-contrast balls got better. Reported, not hidden.
-        pytest.xfail(f"resting-ball bias {rest_err:.2f} mm > 0.5 mm (known shortfall, issue 3)")
+    # Resting-ball bias against the closed-form ray-sphere truth: the task's 0.5 mm bound (issue 3).
+    # Measured 0.32 mm here (0.12 mm with tracking/chroma.py on); red placed at five other spots
+    # chosen before running: 0.16-0.38 mm (0.19-0.44 with it). What is left is mostly the MJPG
+    # codec's fixed pattern at the ball's place (8-px blocks, 2-px colour grid; scripts/bench_rest.py
+    # --codec: 0.035 px per axis on raw frames, 0.08 through MJPG), which a still ball meets at the
+    # same phase in every frame.
+    assert rest_err <= 0.2 + 0.3, f"resting-ball bias {rest_err:.2f} mm"  # jitter 0 + bias bound
 
 
 def test_dim_light_cue_is_the_ball_bright_in_every_channel():

@@ -54,6 +54,7 @@ from tracking.kalman import (as_cov, bridge_gap, scatter_scale, smear_cov, smear
 from tracking.appearance import add_appearance, is_monochrome, light_field
 from tracking.labels import label_tracks
 from tracking.overlap import separate_overlaps
+from tracking.chroma import block_chroma, rebuild_chroma
 from tracking.phantoms import StillCloth, off_surface_tracks, clean_median, codec_tracks, ring_shading
 from tracking.settings import PhantomSettings, TrackClipSettings, TrackingSettings
 from tracking.table_choice import calibrate_choosing_table
@@ -474,6 +475,10 @@ def track_clip(path: str | os.PathLike, table: str | TablePreset | None = DEFAUL
     if mono:
         warnings.append("the clip has no colour (grey-level camera): balls are named by lightness - cue, black, "
                         "shade-1 (lightest) ... - not by colour")
+    # colour copied over 2 x 2 blocks by the decoder: interpolated between block centres (tracking/chroma.py)
+    rebuild = settings.chroma_rebuild and not mono and block_chroma(imgs[:5])
+    if rebuild:
+        imgs = [rebuild_chroma(im) for im in imgs]
     bg = build_background(imgs, cal, ds)
     bg = faint_background(bg, cal, ds)  # faint resting balls out of the background too
     # where a ball stood for part of the clip: the median of the frames that show the cloth there
@@ -496,6 +501,8 @@ def track_clip(path: str | os.PathLike, table: str | TablePreset | None = DEFAUL
     total = src.n_frames
     done = 0
     for idx, t, img in src:
+        if rebuild:
+            img = rebuild_chroma(img)
         raw = img
         img = exposure.correct(img)  # lamp flicker / auto exposure out
         bg = still.update(raw, img, t)

@@ -1290,3 +1290,10 @@ class TrackClipSettings:
     exposure: ExposureSettings = ExposureSettings()
     #: Frames handed to automatic calibration when no calibration is given.
     calibration_frames: int = 9
+    #: 4:2:0 video decoded with each colour sample copied over its 2 x 2 block: interpolate the
+    #: colour between the block centres before detection (tracking/chroma.py). Ray-cast still
+    #: balls through the 4:2:0 step: fixed centre offset 0.086 -> 0.059 px per axis (raw frames 0.035);
+    #: resting balls better on 6 of 7 clip balls, but off by default: on the outside footage (scorer,
+    #: automatic calibration) D1 0.45 -> 0.49 mm (a resting stripe ball 0.53 -> 0.66) and D2's late
+    #: cushion e error 0.010 -> 0.020 max (D2 0.65 -> 0.62 mm).
+    chroma_rebuild: bool = False
