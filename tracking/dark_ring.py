@@ -361,6 +361,48 @@ def _outline_holds(patch: np.ndarray, background: Background, xa: int, ya: int, 
     return int(np.sum(ball & (d_new > lim))) - int(np.sum(ball & (d_old > lim))) <= settings.ring_outline_max_out * n
 
 
+def _patch(image: np.ndarray, background: Background, full_cloth: np.ndarray, cen: list, rad: list, i: int,
+           settings: DetectionSettings):
+    """(xa, ya, xb, yb, L* patch, weight patch) round detection i's image centre ``cen[i]``, or None.
+
+    The box reaches 2 ``ring_outer[1]`` radii; the weight is the cloth mask
+    with the other detections' discs (``ring_known_pad`` x their radius) at 0.
+    """
+    H, W = image.shape[:2]
+    x0, y0, x1, y1 = background.roi
+    gx, gy = cen[i]
+    pad = int(np.ceil(2.0 * settings.ring_outer[1] * rad[i])) + 4
+    xa, ya, xb, yb = max(0, int(gx) - pad), max(0, int(gy) - pad), min(W, int(gx) + pad + 2), min(H, int(gy) + pad + 2)
+    lp = to_lab(image[ya:yb, xa:xb])[..., 0]
+    wp = np.zeros(lp.shape, np.float32)
+    cy0, cx0, cy1, cx1 = max(ya, y0), max(xa, x0), min(yb, y1), min(xb, x1)
+    if cy1 <= cy0 or cx1 <= cx0:
+        return None
+    wp[cy0 - ya:cy1 - ya, cx0 - xa:cx1 - xa] = full_cloth[cy0 - y0:cy1 - y0, cx0 - x0:cx1 - x0]
+    for k, ((kx, ky), rk) in enumerate(zip(cen, rad)):
+        if k != i:
+            cv2.circle(wp, (int(round((kx - xa) * 16)), int(round((ky - ya) * 16))),
+                       int(round(settings.ring_known_pad * rk * 16)), 0, -1, lineType=cv2.LINE_8, shift=4)
+    return xa, ya, xb, yb, lp, wp
+
+
+def ring_patch(image: np.ndarray, background: Background, calibration: Calibration, cen: list, rad: list, i: int,
+               settings: DetectionSettings = DetectionSettings()):
+    """:func:`_patch` with the search's cloth mask at full resolution (as :func:`recentre_by_ring` uses)."""
+    return _patch(image, background, _full_res_cloth_for(background, calibration, settings), cen, rad, i, settings)
+
+
+def _full_res_cloth_for(background: Background, calibration: Calibration, settings: DetectionSettings) -> np.ndarray:
+    """The cloth mask of the ring search at full resolution over the ROI (cached on the Background)."""
+    x0, y0, x1, y1 = background.roi
+    sc = 2 if background.radius_px >= settings.ring_half_res_px else 1
+    cloth, _, msc = surface_masks(background, calibration, settings)
+    if msc != sc:
+        cloth = cv2.resize(cloth.astype(np.uint8), ((x1 - x0) // sc, (y1 - y0) // sc),
+                           interpolation=cv2.INTER_NEAREST) > 0
+    return _full_res_cloth(background, cloth, sc)
+
+
 def recentre_by_ring(det: pd.DataFrame, image: np.ndarray, calibration: Calibration, background: Background,
                      settings: DetectionSettings = DetectionSettings()) -> pd.DataFrame:
     """Detections whose colour evidence is weak, re-centred on their dark ring (a new DataFrame; det unchanged).
@@ -393,15 +435,7 @@ def recentre_by_ring(det: pd.DataFrame, image: np.ndarray, calibration: Calibrat
     if not weak.any():
         return det
     cal = calibration
-    x0, y0, x1, y1 = background.roi
-    r0 = background.radius_px
-    sc = 2 if r0 >= settings.ring_half_res_px else 1
-    cloth, _, msc = surface_masks(background, cal, settings)
-    if msc != sc:
-        cloth = cv2.resize(cloth.astype(np.uint8), ((x1 - x0) // sc, (y1 - y0) // sc),
-                           interpolation=cv2.INTER_NEAREST) > 0
-    full_cloth = _full_res_cloth(background, cloth, sc)
-    H, W = image.shape[:2]
+    full_cloth = _full_res_cloth_for(background, cal, settings)
     # image centres (silhouette) of every detection, their radii
     cen, rad = [], []
     for x, y in det[["x_px", "y_px"]].to_numpy(float):
@@ -420,18 +454,10 @@ def recentre_by_ring(det: pd.DataFrame, image: np.ndarray, calibration: Calibrat
         d_nb[i] = np.inf
         if np.any(d_nb < settings.ring_outer[1] * r_exp + rad_a):
             continue
-        pad = int(np.ceil(2.0 * settings.ring_outer[1] * r_exp)) + 4
-        xa, ya, xb, yb = max(0, int(gx) - pad), max(0, int(gy) - pad), min(W, int(gx) + pad + 2), min(H, int(gy) + pad + 2)
-        lp = to_lab(image[ya:yb, xa:xb])[..., 0]
-        wp = np.zeros(lp.shape, np.float32)
-        cy0, cx0, cy1, cx1 = max(ya, y0), max(xa, x0), min(yb, y1), min(xb, x1)
-        if cy1 <= cy0 or cx1 <= cx0:
+        got = _patch(image, background, full_cloth, cen, rad, i, settings)
+        if got is None:
             continue
-        wp[cy0 - ya:cy1 - ya, cx0 - xa:cx1 - xa] = full_cloth[cy0 - y0:cy1 - y0, cx0 - x0:cx1 - x0]
-        for k, ((kx, ky), rk) in enumerate(zip(cen, rad)):
-            if k != i:
-                cv2.circle(wp, (int(round((kx - xa) * 16)), int(round((ky - ya) * 16))),
-                           int(round(settings.ring_known_pad * rk * 16)), 0, -1, lineType=cv2.LINE_8, shift=4)
+        xa, ya, xb, yb, lp, wp = got
         tx, ty, contrast = ring_centre(lp, wp, gx - xa, gy - ya, r_exp, settings)
         noise_px = patch_noise(lp, wp, gx - xa, gy - ya, settings.ring_outer[1] * r_exp)
         if not contrast > 0 or not np.isfinite(noise_px) \

@@ -568,7 +568,7 @@ def _edge_points(dsm: np.ndarray, centre: np.ndarray, r_exp: float, settings: De
         # too far out (> 1.3 radii) to count.
         rowmax = drop.max(axis=1, keepdims=True)
         floor = 0.2 * (edge_floor if edge_floor is not None else 0.0)
-        strong = drop >= np.maximum(0.15 * rowmax, floor)
+        strong = drop >= np.maximum(settings.edge_outer_frac * rowmax, floor)
         kk = np.arange(len(sm))[None, :]
         # outermost strong sample within 1.3 radii, then the peak of its run
         outer = np.where(strong & (sm[None, :] <= 1.3 * r_exp), kk, -1).max(axis=1)

@@ -560,6 +560,11 @@ def add_faint(det: pd.DataFrame, image: np.ndarray, calibration: Calibration, ba
         from tracking.dark_ring import recentre_by_ring
 
         det = recentre_by_ring(det, image, calibration, background, settings)
+    if settings.stripe_refit:
+        # a stripe whose band is the cloth's colour: the colour fit may have traced its white cap
+        from tracking.stripe_outline import recentre_stripes
+
+        det = recentre_stripes(det, image, calibration, background, settings)
     if settings.ring_search:
         # first: its centre comes from the ball's own outline, where the
         # colour filter's is pulled by the ball's shadow

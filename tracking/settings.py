@@ -442,6 +442,11 @@ class DetectionSettings:
     #: expected one for a free-radius fit to be trusted; otherwise the radius is
     #: fixed at the expected value (occlusion, cushion overlap, clusters).
     radius_tol: float = 0.2
+    #: The silhouette is the outermost drop along a ray of at least this
+    #: fraction of the ray's strongest drop (detect._edge_points: a shadow's
+    #: soft outer edge is weaker; inner edges such as a number circle are
+    #: never outside the outline).
+    edge_outer_frac: float = 0.15
     #: Fraction of rays that must carry an inlying edge to accept a detection.
     min_support: float = 0.4
     #: Floor of the per-detection centre sigma (px): compression and the
@@ -997,6 +1002,22 @@ class DetectionSettings:
     ring_outline_level: float = 2.0
     ring_outline_pad_px: float = 1.0
     ring_outline_max_out: float = 0.05
+    #: A stripe ball whose band is the cloth's colour (tracking/stripe_outline.py):
+    #: circle-fit detections with clear colour contrast are refitted on the
+    #: lit-only colour difference from their dark ring's centre; the
+    #: outermost drop counts from stripe_outer_frac of the ray's strongest
+    #: (the band's lit limb is a few units, the white cap's inner edge tens);
+    #: the refit's free radius must lie within stripe_radius_tol of the
+    #: expected one (the cap's edge is a circle of ~0.83 radii on the sphere,
+    #: so a cap traced alone fits 0.8-0.9) and move the centre more than
+    #: stripe_min_shift radii (closer: the colour fit stands). Where the ring
+    #: lies more than stripe_min_shift radii from the colour fit and no refit
+    #: passes, the sigma is widened to that distance. Chosen on the tuning
+    #: clip mj14001_g120 (ball 14), see the commit for fresh figures.
+    stripe_refit: bool = True
+    stripe_outer_frac: float = 0.04
+    stripe_radius_tol: float = 0.1
+    stripe_min_shift: float = 0.1
     ring_gate_warmup: int = 3
     ring_gate_period: int = 8
     ring_gate_reach: float = 6.0
