@@ -115,7 +115,8 @@ def test_e_sigma_calibrated_stun_shot_reported():
     """Stun shot, draws 20-59 at 120 fps (not used while building physics.slide_profile): of the
     reported e, >= 85 % within 2 sigma, none beyond 3 sigma and the median |err|/sigma within BAND.
     Measured 0.975, worst 2.36 sigma, median 0.47 (before the profile 0.925, worst 5.07 sigma on
-    draw 53, median 0.82). With a calibrated Gaussian sigma all 40 lie within 3 sigma with
+    draw 53, median 0.82); with session 15's profile replacing the linearised t_roll part 1.00,
+    worst 1.90, median 0.54. With a calibrated Gaussian sigma all 40 lie within 3 sigma with
     probability 0.9973^40 = 0.90 (standard normal table)."""
     z = z_scores("stun", 120.0, 40, seed0=20)
     z = z[np.isfinite(z)]
