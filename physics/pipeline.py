@@ -53,7 +53,7 @@ from physics.segments import (
     widened_cov,
 )
 from physics.settings import PhysicsSettings
-from physics.slide_profile import widen_for_short_slides
+from physics.slide_profile import conditional_cov, widen_for_short_slides
 
 CONTACT_COLUMNS = [
     "contact", "t_s", "t_sigma_s", "kind", "ball_a", "ball_b", "cushion", "nx", "ny",
@@ -326,8 +326,16 @@ def _analyze(tracks, detections, table, ball_radius_mm, ball_mass_kg, fps, setti
             own = _own_pair_breaks(maps, c, ia, ib)
             return float(ball_ball_values(fs[c.ball_a], ia, fs[c.ball_b], ib, R, dt, s, fuse=own)[0]["e"])
 
+        def _e_var_of(ci, hold_a, hold_b):
+            c = cands[ci]
+            fa, fb = fits[c.ball_a], fits[c.ball_b]
+            ia, ib = maps[c.ball_a][0][ci], maps[c.ball_b][0][ci]
+            hold = tuple(hold_a) + tuple(len(fa.x) + k for k in hold_b)
+            return float(ball_ball_values(fa, ia, fb, ib, R, dt, s, fuse=_own_pair_breaks(maps, c, ia, ib),
+                                          hold=hold)[1][0])
+
         contacts = widen_for_short_slides(
-            contacts, cands, fits, maps, samples, _e_of, s2,
+            contacts, cands, fits, maps, samples, _e_of, _e_var_of, s2,
             lambda name, lay: {k: _loo_prior(s, mus, mur, (name, k)) for k in range(lay.n_seg)}, dt)
     contacts = _drop_non_separating(contacts, cands, s)
     # compound events (several balls touching within one frame): group columns, e NaN per link
@@ -906,14 +914,16 @@ def hop_dv(fa: ChainFit, ia: int, fb: ChainFit, ib: int, mu_s: float, s: Physics
 
 def ball_ball_values(fa: ChainFit, ia: int, fb: ChainFit, ib: int, R: float, dt: float,
                      s: PhysicsSettings, fuse: bool = True, sampling: bool = False,
-                     parts: dict | None = None) -> tuple[dict, np.ndarray]:
+                     parts: dict | None = None, hold: tuple[int, ...] = ()) -> tuple[dict, np.ndarray]:
     """(core values, variances (2,) of e and of the touch time in s^2) of the ball-ball contact at
     breaks ``ia`` / ``ib`` of two fitted chains (R mm, dt s). The variances come from one Jacobian
     over both balls' parameters with their joint covariance (physics.pair_cov: the two fits share
     the slip shift, hence the touch time and normal enter both). ``fuse``: touch time from the gap
     and both velocity breaks (settings.touch_time_fuse). ``sampling``: only the samples' noise
     part of the variance (what noise draws of one shot show; priors held fixed). ``parts``: filled
-    with e's variance parts (:func:`_fit_parts`)."""
+    with e's variance parts (:func:`_fit_parts`). ``hold``: indices into the stacked (xa, xb)
+    parameters held fixed, i.e. the variances conditional on them (Gaussian conditioning;
+    physics.slide_profile replaces a slide end's linearised part by its profile)."""
     na = len(fa.x)
 
     def core_of(z, w=None):
@@ -936,6 +946,8 @@ def ball_ball_values(fa: ChainFit, ia: int, fb: ChainFit, ib: int, R: float, dt:
         # a segment whose samples misfit the model widens its parameters' errors (lack of fit,
         # physics.segments.misfit_scales); the noise-only part is left as the samples make it
         cz = widened_cov(cz, np.concatenate([fa.misfit_sd(), fb.misfit_sd()]))
+    if hold:
+        cz = conditional_cov(cz, list(hold))
     var = propagate(lambda z: _e_t(core_of(z)), xz, cz)
     if parts is not None:
         parts.update(_fit_parts(lambda z: _e_t(core_of(z)), xz, cz0,

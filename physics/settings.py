@@ -270,12 +270,28 @@ class PhysicsSettings:
     #: largest |e_k - e| / sqrt(max(dchi2_k, 1)) among refits within ``slide_profile_dchi2_max``
     #: (3 sigma) of the best (profile likelihood, Wilks; from memory). Stun shot, 120 fps (tests/test_physics_sigma_calibration.py): draws
     #: 3, 8, 10 were 3.3-3.5 sigma off with a ~30 ms slide where the truth slides 3-6 ms.
-    #: Counts and span are design choices.
+    #: Counts and span are design choices. Since session 15 the three switches below change
+    #: "widened to the largest ratio" into "the linearised t_roll part replaced by the profile's
+    #: spread" (all three False: the session 14 behaviour).
     slide_profile: bool = True
     slide_profile_max_samples: int = 4
     slide_profile_frames: float = 4.0
     slide_profile_points: int = 9
     slide_profile_dchi2_max: float = 9.0
+    #: ``slide_profile_replace``: the profile REPLACES the t_roll part of e's linearised variance
+    #: (e's variance minus its variance with t_roll held) instead of only widening e_sigma; where
+    #: the slide lies between two samples the profile is flat to fourth order at its best point and
+    #: the linearised part is far too wide (stun shot draw 13 at 120 fps: e_sigma 0.87, e left
+    #: empty, where the refits move e by 0.03). ``slide_profile_flip``: each grid point is also
+    #: refitted from the reversed slide acceleration (the slip after a contact the ball slid into
+    #: is free, so forward and backward slides to the same roll velocity fit alike).
+    slide_profile_replace: bool = True
+    slide_profile_flip: bool = True
+    #: ``slide_profile_moments``: the profile's part is the mean squared difference of e from the
+    #: reported e under the profile likelihood exp(-dchi2 / 2) with a flat prior over the signed
+    #: slide end (physics.slide_profile._profile_mse), not the largest |e_k - e| / sqrt(dchi2_k):
+    #: the profile is flat-topped, and a flat top of width W has a spread W / sqrt(12), not W / 2.
+    slide_profile_moments: bool = True
 
     # -- slow touches and compound events (physics.events, physics.compound) ------------------
     #: Change-point windows tried (multiples of the standard window) while a jump is not yet

@@ -13,8 +13,20 @@ k, whose chi^2 (scaled like the fit's covariance) lies dchi2_k above the best, s
 off by |e_k - e| at dchi2_k, i.e. by |e_k - e| / sqrt(max(dchi2_k, 1)) at one sigma (profile
 likelihood, Wilks: delta chi^2 = z^2 for one parameter; standard statistics, from memory). For
 a quadratic profile this ratio is the same at every k, the t_roll part of e's sigma. e_sigma
-becomes the larger of its linearised value and the largest such ratio over refits within
-``slide_profile_dchi2_max`` (never narrower).
+replaces the t_roll part of e's linearised variance: that part (e's variance minus its variance
+with t_roll held, Gaussian conditioning) is taken out and the square of the largest such ratio
+over refits within ``slide_profile_dchi2_max`` put in. The linearised part can be far too wide
+as well as too narrow: where the slide lies between two samples the profile is flat to fourth
+order at its best point (dchi2 ~ 0.05 at 8 ms, 0.9 at 16 ms, 3.3 at 24 ms on one 120 fps stun
+shot), its curvature there near 0, and the linearised sigma of t_roll ran to 0.29 s, of e to
+0.87, where the refits moved e by 0.03 within dchi2 <= 1.
+
+The slide's direction is not fixed by the samples either: a ball that slid into the contact
+has a free slip there, so the slip link says nothing of the slip after it, and a slide that
+speeds the ball up (forward spin) or slows it down (none or back spin) to the same roll
+velocity fits the few samples after it alike. Each grid point with t_roll > 0 is therefore
+refitted from both starts, the fitted slide acceleration and its reverse (roll velocity kept),
+and both count in the half-width.
 """
 from __future__ import annotations
 
@@ -44,14 +56,18 @@ def _short_slide(f: ChainFit, j: int, s: PhysicsSettings) -> tuple[int, float] |
 
 
 def profile_t_roll(f: ChainFit, sig: np.ndarray, k: int, grid: np.ndarray, s: PhysicsSettings,
-                   seg_priors: dict | None) -> tuple[np.ndarray, list[np.ndarray]]:
+                   seg_priors: dict | None, flip: bool = False) -> tuple[np.ndarray, list[np.ndarray]]:
     """Costs (len(grid),) and refitted parameters of chain ``f`` with parameter ``k`` (a t_roll)
-    held at each grid value; ``sig``: the samples' sigmas (T, 2) mm."""
+    held at each grid value; ``sig``: the samples' sigmas (T, 2) mm. ``flip``: start each refit
+    from the reversed slide acceleration (parameters k-2, k-1), with the start velocity moved so
+    the roll velocity v0 + a t_roll stays the fit's."""
     lay = f.layout
     tu, xyu, sgu = f.t[f.used], f.xy[f.used], sig[f.used]
     lo, hi = _bounds(lay, f.t[-1], s)
     free = np.ones(len(f.x), bool)
     free[k] = False
+    o = k - 4  # the segment's offset: v0 (2), a (2), t_roll, a_r (physics.segments.unpack_segment)
+    v_roll = f.x[o : o + 2] + f.x[o + 2 : o + 4] * f.x[k]
 
     def res(q, val):
         z = f.x.copy()
@@ -62,6 +78,11 @@ def profile_t_roll(f: ChainFit, sig: np.ndarray, k: int, grid: np.ndarray, s: Ph
     costs, xs = [], []
     q0 = np.clip(f.x[free], lo[free], hi[free])
     for val in grid:
+        if flip:
+            z0 = f.x.copy()
+            z0[o + 2 : o + 4] = -f.x[o + 2 : o + 4]
+            z0[o : o + 2] = v_roll - z0[o + 2 : o + 4] * val
+            q0 = np.clip(z0[free], lo[free], hi[free])
         r = least_squares(res, q0, bounds=(lo[free], hi[free]), args=(float(val),), x_scale="jac",
                           max_nfev=200)
         z = f.x.copy()
@@ -72,11 +93,58 @@ def profile_t_roll(f: ChainFit, sig: np.ndarray, k: int, grid: np.ndarray, s: Ph
     return np.asarray(costs), xs
 
 
+def conditional_cov(cov: np.ndarray, hold: list[int]) -> np.ndarray:
+    """Covariance of a Gaussian with parameters ``hold`` known: ``C - C[:, h] C[h, h]^+ C[h, :]``
+    (conditioning a multivariate normal; standard statistics, from memory).
+
+    >>> import numpy as np
+    >>> C = np.array([[4.0, 2.0], [2.0, 2.0]])
+    >>> conditional_cov(C, [1]).round(6).tolist()  # var x0 | x1 = 4 - 2 * 2 / 2
+    [[2.0, 0.0], [0.0, 0.0]]
+    """
+    h = np.asarray(hold, dtype=int)
+    if len(h) == 0:
+        return cov
+    chh = cov[np.ix_(h, h)]
+    out = cov - cov[:, h] @ np.linalg.pinv(chh) @ cov[h, :]
+    return 0.5 * (out + out.T)
+
+
+def _profile_mse(t: np.ndarray, dchi2: np.ndarray, e: list, e0: float) -> float:
+    """Mean squared difference of e from ``e0`` under the profile likelihood exp(-dchi2 / 2) over
+    the signed slide end ``t`` (s; < 0: the reversed slide), flat prior on ``t`` (trapezoid
+    weights over the sorted grid): the spread of e the samples leave, about the reported value.
+    NaN e_k are left out.
+
+    >>> import numpy as np
+    >>> t = np.linspace(-1.0, 1.0, 201)
+    >>> round(_profile_mse(t, np.zeros_like(t), list(t), 0.0), 3)  # flat: uniform on [-1, 1], 1/3
+    0.333
+    """
+    e = np.asarray(e, dtype=float)
+    ok = np.isfinite(e) & np.isfinite(dchi2)
+    if ok.sum() < 2:
+        return 0.0
+    t, d, e = np.asarray(t, float)[ok], np.asarray(dchi2, float)[ok], e[ok]
+    order = np.argsort(t, kind="stable")
+    t, d, e = t[order], d[order], e[order]
+    dt = np.diff(t)
+    w_t = np.zeros(len(t))
+    w_t[:-1] += 0.5 * dt
+    w_t[1:] += 0.5 * dt
+    w = w_t * np.exp(-0.5 * (d - d.min()))
+    if not np.sum(w) > 0:
+        return 0.0
+    return float(np.sum(w * (e - e0) ** 2) / np.sum(w))
+
+
 def widen_for_short_slides(contacts: pd.DataFrame, cands, fits: dict, maps: dict, samples: dict,
-                           e_of, s: PhysicsSettings, pri_of, dt: float) -> pd.DataFrame:
-    """``contacts`` with e_sigma of ball-ball rows widened to the t_roll profile half-width where a
-    ball's slide after the contact is short (module docstring). ``e_of(fits, ci)``: e of candidate
-    ``ci`` from the given fits; ``pri_of(name, lay)``: that ball's segment priors."""
+                           e_of, e_var_of, s: PhysicsSettings, pri_of, dt: float) -> pd.DataFrame:
+    """``contacts`` with the t_roll part of e_sigma of ball-ball rows replaced by the t_roll
+    profile's half-width where a ball's slide after the contact is short (module docstring).
+    ``e_of(fits, ci)``: e of candidate ``ci`` from the given fits; ``e_var_of(ci, hold_a,
+    hold_b)``: e's propagated fit variance with the given parameter indices of ball a and ball b
+    held; ``pri_of(name, lay)``: that ball's segment priors."""
     if not s.slide_profile or contacts.empty:
         return contacts
     df = contacts.copy()
@@ -86,7 +154,8 @@ def widen_for_short_slides(contacts: pd.DataFrame, cands, fits: dict, maps: dict
         if c.kind != "ball-ball" or not np.isfinite(df.at[r, "e"]):
             continue
         e0 = float(df.at[r, "e"])
-        half = 0.0
+        half2 = 0.0
+        hold: dict[str, list[int]] = {c.ball_a: [], c.ball_b: []}
         for name in (c.ball_a, c.ball_b):
             f = fits.get(name)
             j = maps[name][0].get(ci) if f is not None else None
@@ -101,6 +170,10 @@ def widen_for_short_slides(contacts: pd.DataFrame, cands, fits: dict, maps: dict
             pri = pri_of(name, f.layout)
             try:
                 costs, xs = profile_t_roll(f, samples[name].sig, k, grid, s, pri)
+                if s.slide_profile_flip:
+                    pos = grid[grid > 0]
+                    c2, x2 = profile_t_roll(f, samples[name].sig, k, pos, s, pri, flip=True)
+                    costs, xs = np.concatenate([costs, c2]), xs + x2
             except (ValueError, np.linalg.LinAlgError):
                 continue  # a degenerate refit: the linearised sigma stands (never a failed analysis)
             base = float(np.sum(_residuals(f.x, f.layout, f.t[f.used], f.xy[f.used],
@@ -108,16 +181,38 @@ def widen_for_short_slides(contacts: pd.DataFrame, cands, fits: dict, maps: dict
             best = min(base, float(np.min(costs)))
             scale = f.cov_scale if np.isfinite(f.cov_scale) and f.cov_scale > 0 else 1.0
             dchi2 = 2.0 * (costs - best) / scale
-            for z, d in zip(xs, dchi2):
-                if d > s.slide_profile_dchi2_max:
-                    continue
-                e_k = e_of({**fits, name: replace(f, x=z)}, ci)
-                if np.isfinite(e_k):
-                    half = max(half, abs(e_k - e0) / np.sqrt(max(d, 1.0)))
+            if s.slide_profile_moments:
+                signed = np.concatenate([grid, -grid[grid > 0]]) if len(xs) > len(grid) else grid
+                half2 += _profile_mse(signed, dchi2, [e_of({**fits, name: replace(f, x=z)}, ci)
+                                                       for z in xs], e0)
+            else:
+                half = 0.0
+                for z, d in zip(xs, dchi2):
+                    if d > s.slide_profile_dchi2_max:
+                        continue
+                    e_k = e_of({**fits, name: replace(f, x=z)}, ci)
+                    if np.isfinite(e_k):
+                        half = max(half, abs(e_k - e0) / np.sqrt(max(d, 1.0)))
+                half2 += half**2
+            hold[name].append(k)
+        if not (hold[c.ball_a] or hold[c.ball_b]):
+            continue
         sg = float(df.at[r, "e_sigma"])
-        if np.isfinite(sg) and half > sg:
-            df.at[r, "e_sigma"] = half
+        if not np.isfinite(sg):
+            continue
+        if s.slide_profile_replace:
+            try:
+                v_all = e_var_of(ci, [], [])
+                v_held = e_var_of(ci, hold[c.ball_a], hold[c.ball_b])
+                lin = max(v_all - v_held, 0.0) if np.isfinite(v_all) and np.isfinite(v_held) else 0.0
+            except (ValueError, np.linalg.LinAlgError):
+                lin = 0.0  # the linearised part stands; the profile can only widen
+            var = max(sg**2 - lin, 0.0) + half2
+        else:  # session 14: the larger of the two, never narrower
+            var = max(sg**2, half2)
+        if abs(var - sg**2) > 1e-15:
+            df.at[r, "e_sigma"] = float(np.sqrt(var))
             p = df.at[r, "_e_var_parts"] if "_e_var_parts" in df.columns else None
-            if isinstance(p, dict):  # PhysicsSettings.e_sigma_parts: what the profile added
-                p["profile"] = float(half**2 - sg**2)
+            if isinstance(p, dict):  # PhysicsSettings.e_sigma_parts: what the profile changed
+                p["profile"] = float(var - sg**2)
     return df

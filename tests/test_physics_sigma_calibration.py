@@ -25,8 +25,10 @@ within 2 sigma, one left empty; draws 3, 8 and 10 were 3.3-3.5 sigma low, each f
 INTO the contact, so nothing but the few samples after it fixes that slide's end). e's sigma is
 now widened by a profile over that slide's end time: draws 0-19 (used while building it) 19 of
 20 within 2 sigma, median 0.57; draws 20-59 (fresh, chosen before looking) 0.925 -> 0.975 within
-2 sigma, median 0.82 -> 0.47 (somewhat wide, inside BAND). Still a known failure (strict xfail):
-draw 13 leaves e empty (its sigma 0.87 > 0.5).
+2 sigma, median 0.82 -> 0.47 (somewhat wide, inside BAND). Session 15: where the slide lies
+between two samples the profile is flat to fourth order at its best point and e's linearised
+sigma there is far too WIDE (draw 13: 0.87, e left empty); the profile now replaces the slide
+end's linearised part instead of only widening, and covers slides in both directions.
 """
 from __future__ import annotations
 
@@ -113,7 +115,8 @@ def test_e_sigma_calibrated_stun_shot_reported():
     """Stun shot, draws 20-59 at 120 fps (not used while building physics.slide_profile): of the
     reported e, >= 85 % within 2 sigma, none beyond 3 sigma and the median |err|/sigma within BAND.
     Measured 0.975, worst 2.36 sigma, median 0.47 (before the profile 0.925, worst 5.07 sigma on
-    draw 53, median 0.82). With a calibrated Gaussian sigma all 40 lie within 3 sigma with
+    draw 53, median 0.82); with session 15's profile replacing the linearised t_roll part 1.00,
+    worst 1.90, median 0.54. With a calibrated Gaussian sigma all 40 lie within 3 sigma with
     probability 0.9973^40 = 0.90 (standard normal table)."""
     z = z_scores("stun", 120.0, 40, seed0=20)
     z = z[np.isfinite(z)]
@@ -126,11 +129,14 @@ def test_e_sigma_calibrated_stun_shot_reported():
 
 
 @pytest.mark.slow
-@pytest.mark.xfail(strict=True, reason="known defect: after a stun shot the cue ball (15-60 mm/s) slides for "
-                   "2-10 ms, less than a frame; on draw 13 its linearised sigma runs above 0.5 and e is left empty")
 def test_e_sigma_calibrated_stun_shot():
-    """Stun shot, 20 draws at 120 fps: every e reported, >= 85 % within 2 sigma, median in BAND."""
+    """Stun shot, 20 draws at 120 fps: every e reported, >= 85 % within 2 sigma, median in BAND.
+    Draw 13 (cue ball leaving at 35 mm/s, sliding 5 ms between two samples) was left empty with
+    e_sigma 0.87 (> 0.5): e's linearised sigma followed the curvature of a profile flat to fourth
+    order in the slide's end. With the profile replacing that part (physics.slide_profile) it is
+    reported, 0.67 sigma off; draws 0-19 were used while building that change (tuning)."""
     z = z_scores("stun", 120.0, 20)
     assert np.all(np.isfinite(z)), f"{int(np.sum(~np.isfinite(z)))} of {len(z)} draws with e left empty"
+    # truth: closed-form head-on impact (module docstring); 2 sigma, median: standard normal table
     assert np.mean(z < 2.0) >= 0.85, f"{np.mean(z < 2.0):.2f} within 2 sigma"
-    assert BAND[0] <= float(np.median(z)) <= BAND[1]
+    assert BAND[0] <= float(np.median(z)) <= BAND[1], f"median |err|/sigma {float(np.median(z)):.2f}"
