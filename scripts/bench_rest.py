@@ -106,6 +106,7 @@ def codec_mode(seeds: list[int], size: tuple[int, int]) -> None:
 
     from tracking.chroma import rebuild_chroma
     from tracking.detect import build_background, detect_frame
+    from tracking.video import open_video
 
     cal = make_calibration(size=size)
 
@@ -116,14 +117,7 @@ def codec_mode(seeds: list[int], size: tuple[int, int]) -> None:
             for f in frames:
                 wr.write(f)
             wr.release()
-            cap = cv2.VideoCapture(p)
-            out = []
-            while True:
-                ok, f = cap.read()
-                if not ok:
-                    break
-                out.append(f)
-            cap.release()
+            out = [f for _, _, f in open_video(p)]
         return out
 
     def chroma_420(f: np.ndarray, interp: int) -> np.ndarray:

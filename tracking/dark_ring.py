@@ -403,6 +403,28 @@ def _full_res_cloth_for(background: Background, calibration: Calibration, settin
     return _full_res_cloth(background, cloth, sc)
 
 
+def ball_centres_px(det: pd.DataFrame, background: Background) -> tuple[list, list]:
+    """Image centres (silhouette, px) and expected radii (px) of every detection, in ``det``'s order."""
+    cen, rad = [], []
+    for x, y in det[["x_px", "y_px"]].to_numpy(float):
+        r_e, ox, oy = background.lookup(x, y)
+        cen.append((x + ox, y + oy))
+        rad.append(r_e)
+    return cen, rad
+
+
+def ring_crowded(cen: list, rad: list, i: int, settings: DetectionSettings = DetectionSettings()) -> bool:
+    """True where another ball's disc reaches into ball ``i``'s ring annulus (out to ``ring_outer[1]`` radii).
+
+    A ball in a rack: its neighbour hides part of the ring and adds its own
+    contact shadow, so a ring centre is not trusted there.
+    """
+    cen_a = np.asarray(cen, float).reshape(-1, 2)
+    d_nb = np.hypot(cen_a[:, 0] - cen_a[i, 0], cen_a[:, 1] - cen_a[i, 1])
+    d_nb[i] = np.inf
+    return bool(np.any(d_nb < settings.ring_outer[1] * rad[i] + np.asarray(rad, float)))
+
+
 def recentre_by_ring(det: pd.DataFrame, image: np.ndarray, calibration: Calibration, background: Background,
                      settings: DetectionSettings = DetectionSettings()) -> pd.DataFrame:
     """Detections whose colour evidence is weak, re-centred on their dark ring (a new DataFrame; det unchanged).
@@ -436,23 +458,12 @@ def recentre_by_ring(det: pd.DataFrame, image: np.ndarray, calibration: Calibrat
         return det
     cal = calibration
     full_cloth = _full_res_cloth_for(background, cal, settings)
-    # image centres (silhouette) of every detection, their radii
-    cen, rad = [], []
-    for x, y in det[["x_px", "y_px"]].to_numpy(float):
-        r_e, ox, oy = background.lookup(x, y)
-        cen.append((x + ox, y + oy))
-        rad.append(r_e)
+    cen, rad = ball_centres_px(det, background)
     out = det.copy()
-    cen_a = np.asarray(cen, float).reshape(-1, 2)
-    rad_a = np.asarray(rad, float)
     for i in np.nonzero(weak)[0]:
         gx, gy = cen[i]
         r_exp = rad[i]
-        # A neighbour whose disc reaches into the ring's outer annulus (a ball in a rack) hides part
-        # of the ring and adds its own contact shadow: the ring centre is not trusted there.
-        d_nb = np.hypot(cen_a[:, 0] - gx, cen_a[:, 1] - gy)
-        d_nb[i] = np.inf
-        if np.any(d_nb < settings.ring_outer[1] * r_exp + rad_a):
+        if ring_crowded(cen, rad, i, settings):
             continue
         got = _patch(image, background, full_cloth, cen, rad, i, settings)
         if got is None:

@@ -97,7 +97,8 @@ def recentre_stripes(det: pd.DataFrame, image: np.ndarray, calibration: Calibrat
     """
     if det.empty or not settings.stripe_refit:
         return det
-    from tracking.dark_ring import _outline_holds, ring_centre, ring_patch, ring_refine
+    from tracking.dark_ring import (_outline_holds, ball_centres_px, ring_centre, ring_crowded, ring_patch,
+                                    ring_refine)
 
     thr = background.threshold_dn
     todo = (det["contrast_dn"].to_numpy(float) >= settings.ring_recentre_contrast * thr) \
@@ -105,20 +106,12 @@ def recentre_stripes(det: pd.DataFrame, image: np.ndarray, calibration: Calibrat
     if not todo.any():
         return det
     cal = calibration
-    cen, rad = [], []
-    for x, y in det[["x_px", "y_px"]].to_numpy(float):
-        r_e, ox, oy = background.lookup(x, y)
-        cen.append((x + ox, y + oy))
-        rad.append(r_e)
-    cen_a = np.asarray(cen, float).reshape(-1, 2)
-    rad_a = np.asarray(rad, float)
+    cen, rad = ball_centres_px(det, background)
     out = det.copy()
     for i in np.nonzero(todo)[0]:
         gx, gy = cen[i]
         r_exp = rad[i]
-        d_nb = np.hypot(cen_a[:, 0] - gx, cen_a[:, 1] - gy)
-        d_nb[i] = np.inf
-        if np.any(d_nb < settings.ring_outer[1] * r_exp + rad_a):
+        if ring_crowded(cen, rad, i, settings):
             continue
         got = ring_patch(image, background, cal, cen, rad, i, settings)
         if got is None:
