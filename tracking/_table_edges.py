@@ -623,6 +623,21 @@ def fit_single_edges(prof: np.ndarray, offs: np.ndarray, pos: np.ndarray, lo: np
     return out
 
 
+#: Model a dark line at the nose also where the camera says the cushion face
+#: is hidden (``edge_points_along(face_px=0)``): a shadow or groove on the
+#: cloth side of the nose (:func:`face_line_shift`).
+SHADOW_LINE = True
+#: Width (px) modelled for such a line, which nothing predicts. Under a blur
+#: of ~1 px the profiles tell the width only roughly (a pooled fit over
+#: 0.25-1.5 px picked 1.25 for a 0.5-px line), and the modelled width sets
+#: the shift: on blurred (0.8-1.2 px) steps with lines 0.5 / 1.0 / 1.5 px wide,
+#: 1.0 leaves +0.14..+0.31 / -0.03..-0.08 / -0.41..-0.45 px (closed-form
+#: profiles built as in tests/test_calib_face_line.py: cloth 63, top 55, line
+#: 46-51 DN, 0.7 DN noise, 160 profiles; fixed 0.3 px: -0.15..-0.85). Wider lines
+#: show as a resolved band (:func:`nose_offset`).
+SHADOW_LINE_PX = 1.0
+
+
 def _step_line_fits(ms: np.ndarray, w: float) -> tuple[tuple, tuple]:
     """Least-squares fits of profiles ms (B, N) on the grid u = -5..5 px (0.125 px), plain step and step + line.
 
@@ -683,6 +698,10 @@ def face_line_shift(prof: np.ndarray, offs: np.ndarray, edge: np.ndarray, face_p
     many standard errors; (3) it does not overshoot the brighter plateau by
     half that much (sharpening rings on both sides; a dark line only dips).
     Otherwise 0. prof: (P, N) profiles on the locating image (DN).
+
+    face_px <= 0: the camera says the face is hidden, so a dark line there
+    lies on the cloth (a shadow of the nose, a groove), of unknown width
+    (modelled ``SHADOW_LINE_PX`` wide); the same tests decide.
     """
     from scipy.ndimage import gaussian_filter1d as _g1
     from scipy.special import ndtr
@@ -695,7 +714,8 @@ def face_line_shift(prof: np.ndarray, offs: np.ndarray, edge: np.ndarray, face_p
         return 0.0
     blocks = [np.median(al[b], axis=0) for b in np.array_split(np.arange(len(al)), k)]
     ms = np.vstack([np.median(al, axis=0)] + blocks)
-    w = float(min(max(face_px, 0.05), settings.face_line_max_px))
+    # a face of predicted width, or (face hidden) a shadow or groove on the cloth
+    w = float(min(max(face_px, 0.05), settings.face_line_max_px)) if face_px > 0 else SHADOW_LINE_PX
     (e0, s0, c0, cost0), (e1, s1, c1, cost1) = _step_line_fits(ms, w)
     sh = e1 - e0
     shift = float(sh[0])
@@ -721,7 +741,7 @@ def face_line_shift(prof: np.ndarray, offs: np.ndarray, edge: np.ndarray, face_p
     if info is not None:
         info.update(e0=float(e0[0]), e1=float(e1[0]), s0=float(s0[0]), s1=float(s1[0]), step=float(c1[0][1]),
                     line=float(c1[0][2]), shift=shift, z_shift=float(z_shift), dip=float(dip.mean()),
-                    z_dip=z_dip, over=float(over.mean()), z_min=z_min, blocks=k, taken=ok)
+                    z_dip=z_dip, over=float(over.mean()), z_min=z_min, blocks=k, width=w, taken=ok)
     return shift if ok else 0.0
 
 
@@ -764,7 +784,7 @@ def edge_points_along(gray: np.ndarray, p0: np.ndarray, p1: np.ndarray, outward:
                       plateau_px: float, settings: CalibrationSettings,
                       curve=None, n_profiles: int | None = None, gray_lin: np.ndarray | None = None,
                       detect: np.ndarray | None = None, rough_line: bool = False,
-                      stats: dict | None = None, face_px: float = 0.0) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+                      stats: dict | None = None, face_px: float | None = None) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
     """Nose points along the segment p0->p1 (px), profiles taken along ``outward``.
 
     ``gray`` (tone-encoded DN) is used to detect the edges; ``gray_lin`` (the
@@ -784,8 +804,11 @@ def edge_points_along(gray: np.ndarray, p0: np.ndarray, p1: np.ndarray, outward:
 
     face_px: predicted image width (px) of an undercut cushion face in view
     just inward of the nose (0: hidden; the caller decides from the fitted
-    camera, ``calibrate.face_width_px``). Where > 0, the side's single edges
-    are moved by :func:`face_line_shift` (``stats["face_shift_px"]``).
+    camera, ``calibrate.face_width_px``; None: not judged, no camera yet).
+    Where > 0, the side's single edges are moved by :func:`face_line_shift`
+    (``stats["face_shift_px"]``); where 0 (face hidden) likewise for a dark
+    line of unknown width, which can then only lie on the cloth (a shadow
+    of the nose, a groove): the nose is its cushion-side edge (``SHADOW_LINE``).
 
     s_ranges: fractions of the segment to use (pockets excluded). ``curve``
     optionally maps fractions s (M,) -> (points (M,2), outward normals (M,2)) to
@@ -893,7 +916,7 @@ def edge_points_along(gray: np.ndarray, p0: np.ndarray, p1: np.ndarray, outward:
             hi_s = np.minimum(p_s + SINGLE_FIT_HALF_PX, np.array(wend)[sb])
             lo_s = np.maximum(p_s - reach_row[sb] - SINGLE_FIT_HALF_PX + SINGLE_FIT_REACH_PX, offs[0])
             nose_a[sb] = fit_single_edges(prof_l[rows_a[sb]], offs, p_s, lo_s, hi_s, reach_px=reach_row[sb])
-        if face_px > 0 and (~band).sum() >= 8:
+        if face_px is not None and (face_px > 0 or SHADOW_LINE) and (~band).sum() >= 8:
             info: dict = {}
             shift = face_line_shift(prof_l[rows_a[~band]], offs, nose_a[~band], face_px, settings, info)
             if stats is not None:
