@@ -1043,6 +1043,9 @@ class DetectionSettings:
     tint_min_snr: float = 5.0
     tint_min_fill: float = 0.85
     tint_near_sep: float = 0.35
+    #: a first look on the detection's core square skips balls whose tint lies
+    #: beyond tint_quick_margin x tint_near_sep from the cloth's (speed only)
+    tint_quick_margin: float = 1.5
     tint_in_band: tuple[float, float] = (0.4, 0.8)
     tint_out_band: tuple[float, float] = (1.25, 1.55)
     tint_fill_radius: float = 0.75

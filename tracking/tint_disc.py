@@ -214,7 +214,22 @@ def recentre_by_tint(det: pd.DataFrame, image: np.ndarray, calibration: Calibrat
     cal = calibration
     cen, rad = ball_centres_px(det, background)
     out = det.copy()
+    H, W = image.shape[:2]
+    bl = background.lab_image()
     for i in range(len(det)):
+        # quick look first: a ball of a clearly different tint (most balls) is left at once
+        gx, gy = cen[i]
+        h = int(np.ceil(settings.tint_core * rad[i]))
+        xa, ya = max(0, int(round(gx)) - h), max(0, int(round(gy)) - h)
+        xb, yb = min(W, int(round(gx)) + h + 1), min(H, int(round(gy)) + h + 1)
+        if xb - xa < 3 or yb - ya < 3 or bl.shape[:2] != image.shape[:2]:
+            continue
+        lab = to_lab(image[ya:yb, xa:xb])
+        lc = lab[..., 0].reshape(-1)
+        u_b = np.median(unit_colour(lab).reshape(-1, 3)[lc <= np.median(lc)], axis=0)
+        u_c = np.median(unit_colour(bl[ya:yb, xa:xb]).reshape(-1, 3), axis=0)
+        if np.linalg.norm(u_b / (np.linalg.norm(u_b) + 1e-9) - u_c) > settings.tint_quick_margin * settings.tint_near_sep:
+            continue
         got = ring_patch(image, background, cal, cen, rad, i, settings)
         if got is None:
             continue
