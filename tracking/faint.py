@@ -574,6 +574,12 @@ def add_faint(det: pd.DataFrame, image: np.ndarray, calibration: Calibration, ba
                       settings)
     if settings.faint_search:
         det = _append(det, find_faint(image, calibration, background, _known(det), settings), calibration, settings)
+    if settings.tint_refit:
+        # a solid ball of nearly the cloth's colour (found by colour, ring or faint search): its own
+        # tint outlines it, its shadows' does not
+        from tracking.tint_disc import recentre_by_tint
+
+        det = recentre_by_tint(det, image, calibration, background, settings)
     return det
 
 

@@ -1018,6 +1018,46 @@ class DetectionSettings:
     stripe_outer_frac: float = 0.04
     stripe_radius_tol: float = 0.1
     stripe_min_shift: float = 0.1
+    #: A solid ball of nearly the cloth's colour (tracking/tint_disc.py): every
+    #: detection is refitted on the brightness-free tint map (0 cloth and its
+    #: shadows, 1 the ball), the ball's tint read over the darker half of its
+    #: pixels within tint_core radii, when that tint lies within tint_near_sep
+    #: (unit-colour distance) of the cloth's: red on red 0.18-0.19, green on
+    #: green 0.03, clear balls 0.55-1.5 on MuJoCo and outside footage (measured).
+    #: Rays (tint_rays) from tint_ray_span radii; per ray the level half way
+    #: between the ball's (tint_in_band) and beyond the edge (tint_out_band)
+    #: marks the silhouette; a free circle through the crossings. Kept when
+    #: >= tint_min_rays of the rays cross, the radius is within tint_radius_tol
+    #: of the expected, the separation is tint_min_snr x the map's noise on the
+    #: cloth, the fit moved <= tint_max_shift radii, and tint_min_fill of the
+    #: darker half of the disc (tint_fill_radius radii) reads > tint_fill_level.
+    #: tint_edge_px: the blurred edge's width (rays closer share pixels);
+    #: tint_model_frac x r: model error added to the fit's sigma. Chosen on
+    #: mj15002_rc60 (ball 13) and closed-form scenes; fresh figures in the commit.
+    tint_refit: bool = True
+    tint_core: float = 0.7
+    tint_rays: int = 64
+    tint_ray_span: tuple[float, float] = (0.3, 1.6)
+    tint_min_rays: float = 0.6
+    tint_radius_tol: float = 0.1
+    tint_min_snr: float = 5.0
+    tint_min_fill: float = 0.85
+    tint_near_sep: float = 0.35
+    #: a first look on the detection's core square skips balls whose tint lies
+    #: beyond tint_quick_margin x tint_near_sep from the cloth's (speed only)
+    tint_quick_margin: float = 1.5
+    tint_in_band: tuple[float, float] = (0.4, 0.8)
+    tint_out_band: tuple[float, float] = (1.25, 1.55)
+    tint_fill_radius: float = 0.75
+    tint_fill_level: float = 0.25
+    tint_max_shift: float = 0.6
+    tint_edge_px: float = 2.0
+    tint_model_frac: float = 0.03
+    #: a streak fit is replaced only by a tint circle that is one (a resting ball
+    #: whose shadows on both sides looked like a smear): >= tint_streak_rays of the
+    #: rays that cross inliers, residual scale <= tint_streak_scale_px
+    tint_streak_rays: float = 0.9
+    tint_streak_scale_px: float = 0.5
     ring_gate_warmup: int = 3
     ring_gate_period: int = 8
     ring_gate_reach: float = 6.0
