@@ -121,6 +121,8 @@ def backproject_radial(cam: CameraModel, px: np.ndarray, z_mm: float) -> np.ndar
 
 #: A group of edge points: (side name, height z_mm of the line, (N, 2) pixels).
 Group = tuple[str, float, np.ndarray]
+#: An image point on a plane x = const: (pixel (2,), z_mm, x as a fraction of L, sigma px).
+PointOnX = tuple[np.ndarray, float, float, float]
 
 
 def _edge_resid_mm(cam: CameraModel, groups: list[Group], L: float, W: float, ls: float = 1.0) -> np.ndarray:
@@ -170,7 +172,8 @@ def gaussian_under_soft_l1(c: np.ndarray | float, f_scale: float) -> np.ndarray:
 
 def fit_edges(cam0: CameraModel, groups: list[Group], L: float, W: float,
               fit_k2: bool = False, loss_scale_px: float = 0.5,
-              hfov_prior: tuple[float, float] | None = None, free_length: bool = False) -> EdgeFit:
+              hfov_prior: tuple[float, float] | None = None, free_length: bool = False,
+              points: list[PointOnX] | None = None) -> EdgeFit:
     """Fit focal, pose and radial distortion so the table's lines pass through the edge points.
 
     groups: (side, z_mm, pixels): observed pixels on the line x = 0, x = L,
@@ -181,6 +184,12 @@ def fit_edges(cam0: CameraModel, groups: list[Group], L: float, W: float,
     ratio). hfov_prior: (deg, sigma deg), a Gaussian prior on the
     horizontal field of view, weighted like one side's points (see below)
     and kept quadratic under the robust loss (:func:`gaussian_under_soft_l1`).
+    points: (pixel (2,), z_mm, x fraction of L, sigma px): image points known
+    to lie on the plane x = frac * L (a side pocket's centre, frac 0.5); each
+    residual is the back-projected x minus frac * L, in px over sigma, and
+    weighted like the prior: a sigma's error costs what one side's points
+    all off by ``loss_scale_px`` cost (a side's systematic error), kept
+    quadratic. They are not in the returned residuals.
     """
     w = cam0.image_size[0]
     z_ref = groups[0][1]
@@ -203,6 +212,10 @@ def fit_edges(cam0: CameraModel, groups: list[Group], L: float, W: float,
             hfov = np.degrees(2 * np.arctan(w / 2.0 / p[0]))
             r = np.append(r, gaussian_under_soft_l1(prior_w * (hfov - hfov_prior[0]) / hfov_prior[1],
                                                     loss_scale_px))
+        for px, zp, frac, sig in points or ():
+            x = backproject_radial(cam, np.asarray(px, float).reshape(1, 2), zp)[0, 0]
+            e = (x - frac * L * ls) * scale
+            r = np.append(r, gaussian_under_soft_l1(prior_w * e / sig, loss_scale_px))
         return r
 
     lo = np.full_like(p0, -np.inf)

@@ -33,6 +33,13 @@ Automatic (:func:`calibrate_auto`)
    face, or the shadow under an overhanging nose lit from above), the band's
    inner edge is the foot of the face at z = 0 and the fit uses both lines;
    the band widths must pass a geometric test first (``_band_check``).
+   On a table with side pockets the mirror centre of each long side's
+   cushion strip about its pocket (:func:`tracking.pockets.side_pocket_points`)
+   is the image of x = L / 2 there; the fit takes the two as point
+   constraints with their own sigma, so the short-side lines (which lamp
+   shading can shift the same way) no longer alone place the table along
+   its length (``meta['side_pockets']``; none on carom tables or when a
+   pocket is off the picture, unclear or not mirror-like).
    Otherwise a weak prior on the field of view sets the focal length, or
    the lens's field of view where the user gives it (``meta['height_from']``
    and ``meta['hfov_source']`` say which; a note says so); the nose and
@@ -119,6 +126,7 @@ from tracking.calibrate_scale import (
 )
 from tracking.calibration import Calibration
 from tracking.camera import CameraModel
+from tracking.pockets import side_pocket_points
 from tracking.settings import CalibrationSettings
 
 #: Nose height as a fraction of ball diameter when the preset has none: pool
@@ -523,6 +531,14 @@ def _calibrate_once(frames: list[np.ndarray], table: TablePreset, ball_diameter_
         else:
             notes.append("cushion-face band seen but inconsistent with vertical faces; camera height from "
                          + ("the focal-length prior" if hfov_deg is None else "the given field of view"))
+    # The side pockets' mirror centres fix where x = L / 2 is along the long
+    # sides; without them only the short-side lines place the table along its
+    # length, and under lamps both can be off the same way (mj16001: +0.77 and
+    # -0.41 px inward, ~0.6 px along x). None on carom tables or out of view.
+    pocket_pts, pocket_info = side_pocket_points(img, fit.camera, table, z_nose)
+    if pocket_pts:
+        fit = fit_edges(fit.camera, groups, L, W, settings.fit_k2, settings.loss_scale_px, fit_prior,
+                        points=pocket_pts)
     res_px = float(np.sqrt(np.mean(fit.resid_px[:n_nose] ** 2)))
     res_mm = float(np.sqrt(np.mean(fit.resid_mm[:n_nose] ** 2)))
     if not math.isfinite(res_px) or res_px > settings.max_residual_px:
@@ -606,7 +622,8 @@ def _calibrate_once(frames: list[np.ndarray], table: TablePreset, ball_diameter_
         notes.append(fov)
     cam_fit.meta = {"layout": layout, "nose_height_mm": z_nose, "n_edge_points": int(n_nose),
                     "height_from": height_from, "corner_gain": gain, "line_offsets_px": off_line,
-                    "foot_rms_px": r_foot, "hfov_deg": hfov, "hfov_source": hfov_source}
+                    "foot_rms_px": r_foot, "hfov_deg": hfov, "hfov_source": hfov_source,
+                    "side_pockets": pocket_info}
     return Calibration(camera=cam_fit, table=table, ball_diameter_mm=ball_d, residual_px=res_px,
                        residual_mm=res_mm, method="auto", notes=notes)
 
