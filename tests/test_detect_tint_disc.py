@@ -163,3 +163,26 @@ def test_clear_ball_keeps_its_colour_fit(cal):
     a, _ = nearest(add_faint(detect_frame(img, cal, OFF, bg), img, cal, bg, OFF), tp)
     b, _ = nearest(add_faint(detect_frame(img, cal, S, bg), img, cal, bg, S), tp)
     assert (a.x_px, a.y_px, a.sigma_px) == (b.x_px, b.y_px, b.sigma_px)
+
+
+def test_off_white_ball_on_grey_cloth_keeps_its_colour_fit(cal):
+    """On a neutral (grey) cloth there is no dyed tint to tell a ball by: an ivory ball's tint is the cloth's up
+    to white balance, so the tint refit must leave it to the colour fit (tint_min_cloth_chroma). Colours are our
+    choices (a grey cloth with a slight white-balance cast, an ivory ball)."""
+    cloth = (0.125, 0.12, 0.11)
+    ball = (0.55, 0.72, 0.78)
+    x, y = 1210.0, 590.0
+    tp = truth_px(cal, x, y)
+    moved = []
+    for light in LIGHTS.values():
+        bg = _background(cal, cloth, light)
+        img = render(cal, x, y, ball, cloth, light, np.random.default_rng(4))
+        a, _ = nearest(add_faint(detect_frame(img, cal, OFF, bg), img, cal, bg, OFF), tp)
+        b, _ = nearest(add_faint(detect_frame(img, cal, S, bg), img, cal, bg, S), tp)
+        assert (a.x_px, a.y_px, a.sigma_px) == (b.x_px, b.y_px, b.sigma_px)
+        # without the neutral-cloth guard the tint stage does take this ball (so the check above can fail)
+        loose = dataclasses.replace(S, tint_min_cloth_chroma=0.0)
+        c, _ = nearest(add_faint(detect_frame(img, cal, loose, bg), img, cal, bg, loose), tp)
+        moved.append(float(np.hypot(c.x_px - a.x_px, c.y_px - a.y_px)))
+    print("moved without the guard (px)", moved)
+    assert max(moved) > 0.3, moved  # measured 1.03 px (one lamp) before the guard

@@ -1043,6 +1043,13 @@ class DetectionSettings:
     tint_min_snr: float = 5.0
     tint_min_fill: float = 0.85
     tint_near_sep: float = 0.35
+    #: The tint map needs a dyed cloth: on a neutral one (grey: CIELAB chroma
+    #: C* 3-4 measured on MuJoCo grey cloth) every off-white or grey ball has
+    #: "the cloth's tint" up to white balance, and the map holds only that error
+    #: (an ivory cue ball on grey cloth, C* 13-17, was moved 4 mm: mj16002_gs60).
+    #: Coloured cloths measure C* 40-55; below tint_min_cloth_chroma the
+    #: brightness-based colour fit stands.
+    tint_min_cloth_chroma: float = 15.0
     #: a first look on the detection's core square skips balls whose tint lies
     #: beyond tint_quick_margin x tint_near_sep from the cloth's (speed only)
     tint_quick_margin: float = 1.5

@@ -29,7 +29,9 @@ the outermost such crossing (a white highlight dips the map inside). A
 circle fitted to the crossings (Tukey IRLS,
 :func:`tracking.detect.fit_circle_robust`, free radius; twice, the ball's
 tint re-read about the new centre) gives the centre. It is kept only when
-the map says one ball of one tint is there: the tint separation below
+the map says one ball of one tint is there: the cloth dyed (chroma C* at least
+``tint_min_cloth_chroma``: on grey cloth an off-white ball's tint is the
+cloth's up to white balance), the tint separation below
 ``tint_near_sep`` (a clearly coloured ball keeps its colour fit) and
 ``tint_min_snr`` times the map's noise on the cloth, at least
 ``tint_min_rays`` of the rays crossing, the radius within
@@ -227,7 +229,10 @@ def recentre_by_tint(det: pd.DataFrame, image: np.ndarray, calibration: Calibrat
         lab = to_lab(image[ya:yb, xa:xb])
         lc = lab[..., 0].reshape(-1)
         u_b = np.median(unit_colour(lab).reshape(-1, 3)[lc <= np.median(lc)], axis=0)
-        u_c = np.median(unit_colour(bl[ya:yb, xa:xb]).reshape(-1, 3), axis=0)
+        cloth = bl[ya:yb, xa:xb]
+        if float(np.median(np.hypot(cloth[..., 1], cloth[..., 2]))) < settings.tint_min_cloth_chroma:
+            continue  # a neutral cloth has no tint of its own to tell a ball by (tint_min_cloth_chroma)
+        u_c = np.median(unit_colour(cloth).reshape(-1, 3), axis=0)
         if np.linalg.norm(u_b / (np.linalg.norm(u_b) + 1e-9) - u_c) > settings.tint_quick_margin * settings.tint_near_sep:
             continue
         got = ring_patch(image, background, cal, cen, rad, i, settings)
