@@ -320,14 +320,28 @@ def _analyze(tracks, detections, table, ball_radius_mm, ball_mass_kg, fps, setti
                 if isinstance(p, dict):
                     p["alt"] = float(dd**2)
     if s.slide_profile:
+        contact_mm = contact_distance_mm(R, table.cushion_nose_height_mm)
+
         def _e_of(fs, ci):
             c = cands[ci]
+            if c.kind != "ball-ball":
+                f, i = fs[c.ball_a], maps[c.ball_a][0][ci]
+                return float(cushion_core(f, i, f.x, c.cushion, c.normal, table.length_mm, table.width_mm,
+                                          contact_mm, dt)["e"])
             ia, ib = maps[c.ball_a][0][ci], maps[c.ball_b][0][ci]
             own = _own_pair_breaks(maps, c, ia, ib)
             return float(ball_ball_values(fs[c.ball_a], ia, fs[c.ball_b], ib, R, dt, s, fuse=own)[0]["e"])
 
         def _e_var_of(ci, hold_a, hold_b):
             c = cands[ci]
+            if c.kind != "ball-ball":
+                # as in _contacts_table (the model terms added there do not depend on the fit)
+                f, i = fits[c.ball_a], maps[c.ball_a][0][ci]
+                cz = widened_cov(f.cov, f.misfit_sd())
+                if hold_a:
+                    cz = conditional_cov(cz, list(hold_a))
+                return float(propagate(lambda z: _e_t(cushion_core(f, i, z, c.cushion, c.normal, table.length_mm,
+                                                                    table.width_mm, contact_mm, dt)), f.x, cz)[0])
             fa, fb = fits[c.ball_a], fits[c.ball_b]
             ia, ib = maps[c.ball_a][0][ci], maps[c.ball_b][0][ci]
             hold = tuple(hold_a) + tuple(len(fa.x) + k for k in hold_b)

@@ -292,6 +292,14 @@ class PhysicsSettings:
     #: slide end (physics.slide_profile._profile_mse), not the largest |e_k - e| / sqrt(dchi2_k):
     #: the profile is flat-topped, and a flat top of width W has a spread W / sqrt(12), not W / 2.
     slide_profile_moments: bool = True
+    #: ``slide_profile_pre``: also profile the slide end of the segment each ball ENDS at a contact
+    #: (cushion or ball-ball; physics.slide_profile): a draw bank reaching the cushion ~85 ms after
+    #: the strike still sliding fits a roll-over a few frames before it about as well (dchi2 ~3),
+    #: and the roll phase carries the contact velocity unchanged where the slide takes mu_s g dt
+    #: off it per frame; with that slide end taken as known, cushion e was 5.5 sigma off on two
+    #: such banks (bench seed 1515, 120 fps). Its part is the largest |e_k - e| / sqrt(dchi2_k)
+    #: (the profile rises to a plateau, not flat-topped). False: session 15's behaviour.
+    slide_profile_pre: bool = True
 
     # -- slow touches and compound events (physics.events, physics.compound) ------------------
     #: Change-point windows tried (multiples of the standard window) while a jump is not yet

@@ -27,6 +27,21 @@ speeds the ball up (forward spin) or slows it down (none or back spin) to the sa
 velocity fits the few samples after it alike. Each grid point with t_roll > 0 is therefore
 refitted from both starts, the fitted slide acceleration and its reverse (roll velocity kept),
 and both count in the half-width.
+
+Before a contact (cushion or ball-ball) the same question arises the other way round: a ball
+that reaches the contact still sliding (a draw bank ~85 ms after the strike) fits a slide that
+rolls over a few frames before the contact about as well (dchi2 ~3 at 120 fps), and the roll
+phase then carries the velocity at the contact almost unchanged where the slide would have
+taken another mu_s g dt off it per frame. With the slide end held the linearised sigma says
+nothing of that choice, and e was 5.5 sigma off on such banks. Where ``slide_profile_pre`` is
+set, the segment that ends at the contact is refitted with its slide end held on a grid from
+a few frames before the earlier of (fitted slide end, contact) to one frame past the later
+(past the contact: the ball slides into it), every other parameter free. This profile is not
+flat-topped: it rises from the best fit to a plateau (every slide end past the contact is one
+model), so its part is the largest |e_k - e| / sqrt(max(dchi2_k, 1)) among refits within
+``slide_profile_dchi2_max`` (the profile likelihood's one-sigma reach, Wilks; a flat prior
+over the slide end would weigh the plateau by an arbitrary span). It replaces the linearised
+part of that slide end as above; both ends of a ball-ball contact can count at once.
 """
 from __future__ import annotations
 
@@ -36,7 +51,7 @@ import numpy as np
 import pandas as pd
 from scipy.optimize import least_squares
 
-from physics.segments import ChainFit, _bounds, _residuals, unpack_segment
+from physics.segments import ChainFit, _bounds, _residuals, segment_starts, unpack_segment
 from physics.settings import PhysicsSettings
 
 
@@ -53,6 +68,22 @@ def _short_slide(f: ChainFit, j: int, s: PhysicsSettings) -> tuple[int, float] |
     if int(((tu > tb) & (tu < tb + t_roll)).sum()) > s.slide_profile_max_samples:
         return None
     return o + 4, t_roll
+
+
+def _pre_contact_slide(f: ChainFit, j: int, dt: float, s: PhysicsSettings) -> tuple[int, np.ndarray, float] | None:
+    """(parameter index of t_roll, grid of t_roll values s, the grid's far end) of the segment that
+    ENDS at break ``j`` (module docstring), or None for a rest segment. The far end is the other
+    model: sliding into the contact where the fit rolls there, else rolling a few frames before."""
+    o = f.layout.move_offset(j)
+    if o is None or unpack_segment(f.x, f.layout, j) is None:
+        return None
+    starts, _ = segment_starts(f.x, f.layout)
+    tau_b = float(f.breaks()[j]) - float(starts[j])
+    t_hat = float(f.x[o + 4])
+    lo = max(min(t_hat, tau_b) - s.slide_profile_frames * dt, 0.0)
+    hi = max(t_hat, tau_b) + dt
+    grid = np.unique(np.concatenate([np.linspace(lo, hi, s.slide_profile_points), [t_hat]]))
+    return o + 4, grid, (hi if t_hat < tau_b else lo)
 
 
 def profile_t_roll(f: ChainFit, sig: np.ndarray, k: int, grid: np.ndarray, s: PhysicsSettings,
@@ -138,25 +169,51 @@ def _profile_mse(t: np.ndarray, dchi2: np.ndarray, e: list, e0: float) -> float:
     return float(np.sum(w * (e - e0) ** 2) / np.sum(w))
 
 
+def _dchi2(f: ChainFit, costs: np.ndarray, sig: np.ndarray, s: PhysicsSettings, pri) -> np.ndarray:
+    """Refits' chi^2 above the best of (fit, refits), scaled like the fit's covariance."""
+    base = float(np.sum(_residuals(f.x, f.layout, f.t[f.used], f.xy[f.used], sig[f.used], s, pri) ** 2) / 2.0)
+    best = min(base, float(np.min(costs)))
+    scale = f.cov_scale if np.isfinite(f.cov_scale) and f.cov_scale > 0 else 1.0
+    return 2.0 * (costs - best) / scale
+
+
+def _largest_ratio(es: list, dchi2: np.ndarray, e0: float, d_max: float) -> float:
+    """Largest |e_k - e0| / sqrt(max(dchi2_k, 1)) over refits with dchi2_k <= ``d_max`` (0 if none):
+    the one-sigma reach of a profile likelihood (Wilks, delta chi^2 = z^2; from memory).
+
+    >>> import numpy as np
+    >>> round(_largest_ratio([0.0, 0.1, 0.4, 0.9], np.array([0.0, 0.25, 4.0, 16.0]), 0.0, 9.0), 3)
+    0.2
+    """
+    half = 0.0
+    for e_k, d in zip(es, dchi2):
+        if d <= d_max and np.isfinite(e_k):
+            half = max(half, float(abs(e_k - e0) / np.sqrt(max(float(d), 1.0))))
+    return half
+
+
 def widen_for_short_slides(contacts: pd.DataFrame, cands, fits: dict, maps: dict, samples: dict,
                            e_of, e_var_of, s: PhysicsSettings, pri_of, dt: float) -> pd.DataFrame:
-    """``contacts`` with the t_roll part of e_sigma of ball-ball rows replaced by the t_roll
-    profile's half-width where a ball's slide after the contact is short (module docstring).
+    """``contacts`` with the t_roll part of e_sigma replaced by the t_roll profile's part where a
+    ball's slide after a ball-ball contact is short, and (``s.slide_profile_pre``) for the slide
+    end of the segment each ball ends at a contact of either kind (module docstring).
     ``e_of(fits, ci)``: e of candidate ``ci`` from the given fits; ``e_var_of(ci, hold_a,
     hold_b)``: e's propagated fit variance with the given parameter indices of ball a and ball b
-    held; ``pri_of(name, lay)``: that ball's segment priors."""
+    held (hold_b empty for a cushion); ``pri_of(name, lay)``: that ball's segment priors."""
     if not s.slide_profile or contacts.empty:
         return contacts
     df = contacts.copy()
     for r in df.index:
         ci = int(df.at[r, "_cand"])
         c = cands[ci]
-        if c.kind != "ball-ball" or not np.isfinite(df.at[r, "e"]):
+        bb = c.kind == "ball-ball"
+        if not (bb or s.slide_profile_pre) or not np.isfinite(df.at[r, "e"]):
             continue
         e0 = float(df.at[r, "e"])
         half2 = 0.0
-        hold: dict[str, list[int]] = {c.ball_a: [], c.ball_b: []}
-        for name in (c.ball_a, c.ball_b):
+        names = (c.ball_a, c.ball_b) if bb else (c.ball_a,)
+        hold: dict[str, list[int]] = {name: [] for name in names}
+        for name in names if bb else ():
             f = fits.get(name)
             j = maps[name][0].get(ci) if f is not None else None
             if j is None or name not in samples:
@@ -176,34 +233,49 @@ def widen_for_short_slides(contacts: pd.DataFrame, cands, fits: dict, maps: dict
                     costs, xs = np.concatenate([costs, c2]), xs + x2
             except (ValueError, np.linalg.LinAlgError):
                 continue  # a degenerate refit: the linearised sigma stands (never a failed analysis)
-            base = float(np.sum(_residuals(f.x, f.layout, f.t[f.used], f.xy[f.used],
-                                           samples[name].sig[f.used], s, pri) ** 2) / 2.0)
-            best = min(base, float(np.min(costs)))
-            scale = f.cov_scale if np.isfinite(f.cov_scale) and f.cov_scale > 0 else 1.0
-            dchi2 = 2.0 * (costs - best) / scale
+            dchi2 = _dchi2(f, costs, samples[name].sig, s, pri)
+            es = [e_of({**fits, name: replace(f, x=z)}, ci) for z in xs]
             if s.slide_profile_moments:
                 signed = np.concatenate([grid, -grid[grid > 0]]) if len(xs) > len(grid) else grid
-                half2 += _profile_mse(signed, dchi2, [e_of({**fits, name: replace(f, x=z)}, ci)
-                                                       for z in xs], e0)
+                half2 += _profile_mse(signed, dchi2, es, e0)
             else:
-                half = 0.0
-                for z, d in zip(xs, dchi2):
-                    if d > s.slide_profile_dchi2_max:
-                        continue
-                    e_k = e_of({**fits, name: replace(f, x=z)}, ci)
-                    if np.isfinite(e_k):
-                        half = max(half, abs(e_k - e0) / np.sqrt(max(d, 1.0)))
-                half2 += half**2
+                half2 += _largest_ratio(es, dchi2, e0, s.slide_profile_dchi2_max) ** 2
             hold[name].append(k)
-        if not (hold[c.ball_a] or hold[c.ball_b]):
+        for name in names if s.slide_profile_pre else ():
+            f = fits.get(name)
+            j = maps[name][0].get(ci) if f is not None else None
+            if j is None or name not in samples:
+                continue
+            got = _pre_contact_slide(f, j, dt, s)
+            if got is None or got[0] in hold[name]:
+                continue
+            k, grid, t_far = got
+            pri = pri_of(name, f.layout)
+            try:
+                # the other model first: where it lies beyond slide_profile_dchi2_max the samples
+                # have chosen and the linearised part stands (saves the grid's refits at most contacts)
+                c_far, x_far = profile_t_roll(f, samples[name].sig, k, np.array([t_far]), s, pri)
+                if _dchi2(f, c_far, samples[name].sig, s, pri)[0] > s.slide_profile_dchi2_max:
+                    continue
+                rest = grid[grid != t_far]
+                costs, xs = profile_t_roll(f, samples[name].sig, k, rest, s, pri)
+                costs, xs = np.concatenate([costs, c_far]), xs + x_far
+            except (ValueError, np.linalg.LinAlgError):
+                continue
+            dchi2 = _dchi2(f, costs, samples[name].sig, s, pri)
+            es = [e_of({**fits, name: replace(f, x=z)}, ci) for z in xs]
+            half2 += _largest_ratio(es, dchi2, e0, s.slide_profile_dchi2_max) ** 2
+            hold[name].append(k)
+        if not any(hold.values()):
             continue
         sg = float(df.at[r, "e_sigma"])
         if not np.isfinite(sg):
             continue
+        ha, hb = hold[c.ball_a], (hold[c.ball_b] if bb else [])
         if s.slide_profile_replace:
             try:
                 v_all = e_var_of(ci, [], [])
-                v_held = e_var_of(ci, hold[c.ball_a], hold[c.ball_b])
+                v_held = e_var_of(ci, ha, hb)
                 lin = max(v_all - v_held, 0.0) if np.isfinite(v_all) and np.isfinite(v_held) else 0.0
             except (ValueError, np.linalg.LinAlgError):
                 lin = 0.0  # the linearised part stands; the profile can only widen

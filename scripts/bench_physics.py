@@ -7,7 +7,7 @@ Gaussian position noise of 0.2-0.5 mm, and analysed with :func:`physics.pipeline
 Reported: contacts found / missed / false, restitution errors by kind and frame rate, fraction of
 truths within 2 reported sigmas, contact-time error in frames, sliding-friction error.
 
-usage: python scripts/bench_physics.py [--n 36] [--fps 60,120,240] [--seed 1] [--set slip_prior=false] [--refine]
+usage: python scripts/bench_physics.py [--n 36] [--fps 60,120,240] [--seed 1] [--kinds bank] [--set slip_prior=false] [--refine]
        [--parts FILE.csv]
 
 ``--parts FILE.csv`` keeps e's variance split into its parts (PhysicsSettings.e_sigma_parts: the fit's
@@ -49,9 +49,11 @@ def _inside(p, margin=R + 40):
     return margin < p[0] < TABLE.length_mm - margin and margin < p[1] < TABLE.width_mm - margin
 
 
-def make_shot(rng: np.random.Generator, i: int):
-    """(balls, params, t_end, label) for shot i (kind cycles through the list)."""
-    kinds = ["cut", "cut", "bank", "three", "cut-rest"]
+KINDS = ("cut", "cut", "bank", "three", "cut-rest")
+
+
+def make_shot(rng: np.random.Generator, i: int, kinds=KINDS):
+    """(balls, params, t_end, label) for shot i (kind cycles through ``kinds``)."""
     kind = kinds[i % len(kinds)]
     params = SimParams.for_table(
         TABLE,
@@ -258,6 +260,9 @@ def main() -> None:
     ap.add_argument("--parts", default=None, metavar="CSV",
                     help="write each matched contact's e error, sigma and sigma's parts (fit, noise-only, "
                          "lack-of-fit widening, model-time, hop, ...) to CSV, and print their summary")
+    ap.add_argument("--kinds", default=None, metavar="LIST",
+                    help="comma list of shot kinds to cycle through (cut, bank, three, cut-rest), e.g. "
+                         "bank for a bank-only set (default: cut,cut,bank,three,cut-rest)")
     ap.add_argument("--refine", action="store_true",
                     help="also refit each matched contact with physics.refine (circular here: its model is "
                          "the simulator; an upper bound, see scripts/bench_refine.py)")
@@ -270,10 +275,14 @@ def main() -> None:
         truth_feed(a.truth_clip, a.noise, range(a.seed, a.seed + a.n), settings, a.verbose)
         return
     fps_list = [float(f) for f in a.fps.split(",")]
+    kinds = tuple(a.kinds.split(",")) if a.kinds else KINDS
+    bad = [k for k in kinds if k not in KINDS]
+    if bad:
+        raise SystemExit(f"unknown shot kind(s) {', '.join(bad)}: use some of {', '.join(sorted(set(KINDS)))}")
     stats = {f: dict(bb=[], bc=[], z=[], zk=[], dt=[], mu=[], mur=[], ref=[], missed=0, false=0, n=0, found=0,
                      matched=0, time=0.0) for f in fps_list}
     for i in range(a.start, a.n) if a.only is None else [a.only]:
-        balls, params, t_end, kind = make_shot(np.random.default_rng([a.seed, i]), i)
+        balls, params, t_end, kind = make_shot(np.random.default_rng([a.seed, i]), i, kinds)
         for fps in fps_list:
             rng = np.random.default_rng([a.seed, i, int(fps)])
             sigma = rng.uniform(0.2, 0.5)
