@@ -41,16 +41,22 @@ def make_calibration(k1: float = -0.03, size=(960, 540), roll=0.6, pitch=1.5, ya
     return Calibration(camera=cam, table=table, ball_diameter_mm=POOL_BALL.diameter_mm, method="truth")
 
 
+def subsample_rays(cal: Calibration, x0: int, y0: int, x1: int, y1: int, ss: int) -> np.ndarray:
+    """Unit ray directions (N, 3, table frame) from the camera centre through ss x ss sub-samples of each
+    pixel of [x0, x1) x [y0, y1) (row-major, sub-samples last)."""
+    sub = (np.arange(ss) + 0.5) / ss - 0.5
+    gy, gx = np.mgrid[y0:y1, x0:x1]
+    px = (gx[..., None, None] + sub[None, None, None, :]).repeat(ss, axis=2)
+    py = (gy[..., None, None] + sub[None, None, :, None]).repeat(ss, axis=3)
+    return cal.camera.rays(np.column_stack([px.ravel(), py.ravel()]))[1]
+
+
 def sphere_normals(cal: Calibration, C: np.ndarray, x0: int, y0: int, x1: int, y1: int, ss: int):
     """Ray-cast a ball of radius R_MM centred at C (table mm) over pixels [x0, x1) x [y0, y1), ss x ss
     sub-samples per pixel (row-major, sub-samples last): unit surface normals (N, 3) where each ray
     first meets the sphere (closed-form ray-sphere intersection), and which rays hit (N,) bool."""
     O = cal.camera.centre_mm
-    sub = (np.arange(ss) + 0.5) / ss - 0.5
-    gy, gx = np.mgrid[y0:y1, x0:x1]
-    px = (gx[..., None, None] + sub[None, None, None, :]).repeat(ss, axis=2)
-    py = (gy[..., None, None] + sub[None, None, :, None]).repeat(ss, axis=3)
-    _, d = cal.camera.rays(np.column_stack([px.ravel(), py.ravel()]))
+    d = subsample_rays(cal, x0, y0, x1, y1, ss)
     oc = O - C
     bq = d @ oc
     disc = bq * bq - (oc @ oc - R_MM * R_MM)

@@ -33,7 +33,7 @@ import numpy as np
 import pytest
 
 from lambert_ball import srgb_encode
-from test_detect import R_MM, make_calibration, nearest, sphere_normals, truth_px
+from test_detect import R_MM, make_calibration, nearest, sphere_normals, subsample_rays, truth_px
 from test_detect_dark_rim import chroma_420
 from tracking.detect import build_background, detect_frame
 from tracking.faint import add_faint
@@ -90,11 +90,7 @@ def render(cal, x: float | None, y: float | None, ball_lin, cloth_lin, lights, r
         n, hit = sphere_normals(cal, C, x0, y0, x1, y1, ss)
         # the cloth point under each sub-sample ray (plane z = 0)
         O = cal.camera.centre_mm
-        sub = (np.arange(ss) + 0.5) / ss - 0.5
-        gy, gx = np.mgrid[y0:y1, x0:x1]
-        px = (gx[..., None, None] + sub[None, None, None, :]).repeat(ss, axis=2)
-        py = (gy[..., None, None] + sub[None, None, :, None]).repeat(ss, axis=3)
-        _, d = cal.camera.rays(np.column_stack([px.ravel(), py.ravel()]))
+        d = subsample_rays(cal, x0, y0, x1, y1, ss)
         P = O + (-O[2] / d[:, 2])[:, None] * d
         V = -d  # towards the camera
         irr_cloth = np.full(len(P), AMBIENT)

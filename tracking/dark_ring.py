@@ -250,6 +250,28 @@ def ring_centre(lum: np.ndarray, wgt: np.ndarray, x0: float, y0: float, r: float
     return x, y, float(T[int(round(y)), int(round(x))])
 
 
+#: Sample spacing along a ray (px) for :func:`ray_profiles`.
+RAY_STEP_PX = 0.25
+
+
+def ray_profiles(img: np.ndarray, wgt: np.ndarray, x0: float, y0: float, n: int, r_from: float, r_to: float
+                 ) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
+    """Profiles of ``img`` along n rays from (x0, y0) (patch px), every RAY_STEP_PX from r_from to r_to px.
+
+    Returns (ang (n,) rad, rad (m,) px, prof (n, m) bilinear samples smoothed
+    along each ray only (sigma 0.5 px: pixel noise, not an edge), wv (n, m)
+    the weight patch's nearest samples, 0 off the patch).
+    """
+    ang = np.arange(n) * (2 * np.pi / n)
+    rad = np.arange(r_from, r_to, RAY_STEP_PX)
+    X = (x0 + np.cos(ang)[:, None] * rad[None, :]).astype(np.float32)
+    Y = (y0 + np.sin(ang)[:, None] * rad[None, :]).astype(np.float32)
+    prof = cv2.remap(np.asarray(img, np.float32), X, Y, cv2.INTER_LINEAR, borderMode=cv2.BORDER_REPLICATE)
+    wv = cv2.remap(wgt.astype(np.float32), X, Y, cv2.INTER_NEAREST, borderMode=cv2.BORDER_CONSTANT, borderValue=0)
+    prof = cv2.GaussianBlur(prof, (0, 0), sigmaX=0.5 / RAY_STEP_PX, sigmaY=1e-3)
+    return ang, rad, prof, wv
+
+
 def ring_refine(lum: np.ndarray, wgt: np.ndarray, x0: float, y0: float, r: float,
                 settings: DetectionSettings = DetectionSettings()) -> tuple[float, float] | None:
     """Centre (x, y px) of the circle through the darkest point of each ray from (x0, y0), or None.
@@ -267,15 +289,8 @@ def ring_refine(lum: np.ndarray, wgt: np.ndarray, x0: float, y0: float, r: float
     from tracking.detect import fit_circle_robust
 
     n = settings.ring_rays
-    ang = np.arange(n) * (2 * np.pi / n)
-    step = 0.25
-    rad = np.arange(settings.ring_ray_span[0] * r, settings.ring_ray_span[1] * r, step)
-    X = (x0 + np.cos(ang)[:, None] * rad[None, :]).astype(np.float32)
-    Y = (y0 + np.sin(ang)[:, None] * rad[None, :]).astype(np.float32)
-    prof = cv2.remap(lum.astype(np.float32), X, Y, cv2.INTER_LINEAR, borderMode=cv2.BORDER_REPLICATE)
-    wv = cv2.remap(wgt.astype(np.float32), X, Y, cv2.INTER_NEAREST, borderMode=cv2.BORDER_CONSTANT, borderValue=0)
-    # smooth along each ray only (sigma 0.5 px): pixel noise, not the ring
-    prof = cv2.GaussianBlur(prof, (0, 0), sigmaX=0.5 / step, sigmaY=1e-3)
+    ang, rad, prof, wv = ray_profiles(lum, wgt, x0, y0, n, settings.ring_ray_span[0] * r, settings.ring_ray_span[1] * r)
+    step = RAY_STEP_PX
     pts = []
     for k in range(n):
         if wv[k].min() <= 0:

@@ -54,7 +54,6 @@ blurred edge counted (``tint_edge_px``), plus ``tint_model_frac`` x r.
 """
 from __future__ import annotations
 
-import cv2
 import numpy as np
 import pandas as pd
 
@@ -87,16 +86,11 @@ def tint_map(lab: np.ndarray, bg_lab: np.ndarray, u_ball: np.ndarray) -> tuple[n
 def _crossings(m: np.ndarray, wgt: np.ndarray, x0: float, y0: float, r: float,
                settings: DetectionSettings) -> np.ndarray:
     """(N,2) points where m first falls below 0.5 going out along each ray from (x0, y0) (patch px)."""
+    from tracking.dark_ring import RAY_STEP_PX, ray_profiles
+
     n = settings.tint_rays
-    ang = np.arange(n) * (2 * np.pi / n)
-    step = 0.25
-    rad = np.arange(settings.tint_ray_span[0] * r, settings.tint_ray_span[1] * r, step)
-    X = (x0 + np.cos(ang)[:, None] * rad[None, :]).astype(np.float32)
-    Y = (y0 + np.sin(ang)[:, None] * rad[None, :]).astype(np.float32)
-    prof = cv2.remap(m, X, Y, cv2.INTER_LINEAR, borderMode=cv2.BORDER_REPLICATE)
-    wv = cv2.remap(wgt.astype(np.float32), X, Y, cv2.INTER_NEAREST, borderMode=cv2.BORDER_CONSTANT, borderValue=0)
-    # smooth along each ray only (sigma 0.5 px): pixel noise, not the edge
-    prof = cv2.GaussianBlur(prof, (0, 0), sigmaX=0.5 / step, sigmaY=1e-3)
+    ang, rad, prof, wv = ray_profiles(m, wgt, x0, y0, n, settings.tint_ray_span[0] * r, settings.tint_ray_span[1] * r)
+    step = RAY_STEP_PX
     # each ray's own levels: the ball's (inside) and what lies beyond the
     # blurred edge (open cloth 0, a shadow whose tint leans away from the ball's < 0)
     i_in = (rad >= settings.tint_in_band[0] * r) & (rad <= settings.tint_in_band[1] * r)
